@@ -1,0 +1,93 @@
+"""Unit handling at the API boundary (private helpers, not for outside use).
+
+Public functions take :class:`astropy.units.Quantity` and return Quantity.  These helpers
+convert once to plain SI floats for the kernels and turn astropy's unit errors into
+:class:`~cwlimits.errors.UnitsMismatchError` messages that name the argument.
+"""
+
+import astropy.units as u
+import numpy as np
+
+from .errors import UnitsMismatchError
+
+__all__ = ["to_value", "parse_quantity", "parse_unit", "DIMENSIONLESS"]
+
+DIMENSIONLESS = u.dimensionless_unscaled
+
+
+def to_value(quantity, unit, name, *, allow_bare=False):
+    """Return ``quantity`` as a float array in ``unit``.
+
+    Parameters
+    ----------
+    quantity : Quantity, str or array_like
+        A Quantity, a string astropy parses (``"1.5 kpc"``), or, for dimensionless
+        arguments or when ``allow_bare`` is set, plain numbers taken to be in ``unit``.
+    unit : str or Unit
+        The unit the kernel wants.
+    name : str
+        The argument's name, for the error message.
+
+    Raises
+    ------
+    UnitsMismatchError
+        When the unit cannot be converted or a bare number is given for a dimensional
+        argument.
+    """
+    unit = u.Unit(unit)
+    if isinstance(quantity, str):
+        quantity = parse_quantity(quantity, unit, name)
+    if not isinstance(quantity, u.Quantity):
+        if unit.physical_type == "dimensionless" or allow_bare:
+            return np.asarray(quantity, dtype=float)
+        raise UnitsMismatchError(
+            f"{name} needs a unit of {unit.physical_type} (for example "
+            f"astropy.units.Quantity(..., '{unit}'))",
+            value=quantity,
+        )
+    try:
+        return np.asarray(quantity.to_value(unit), dtype=float)
+    except u.UnitConversionError:
+        raise UnitsMismatchError(
+            f"{name} must have a unit of {unit.physical_type} (convertible to '{unit}'), "
+            f"not '{quantity.unit}'",
+            value=str(quantity),
+        ) from None
+
+
+def parse_unit(text, name="unit", **where):
+    """Parse a unit string, raising a located :class:`UnitsMismatchError` on failure."""
+    try:
+        return u.Unit(text)
+    except ValueError:
+        raise UnitsMismatchError(f"{name}: not a unit astropy understands", value=text,
+                                 **where) from None
+
+
+def parse_quantity(text, unit, name, **where):
+    """Parse ``"3.2 kpc"`` (or a bare number, taken in ``unit``) into a Quantity in ``unit``.
+
+    ``where`` (file, row, column) locates the value in error messages.
+    """
+    unit = u.Unit(unit)
+    if isinstance(text, u.Quantity):
+        q = text
+    else:
+        text = str(text).strip()
+        try:
+            q = u.Quantity(float(text), unit)
+        except ValueError:
+            try:
+                q = u.Quantity(text)
+            except (ValueError, TypeError):
+                raise UnitsMismatchError(
+                    f"{name}: cannot read a number with a unit of {unit.physical_type} "
+                    f"(for example '1.5 {unit}')",
+                    value=text, **where) from None
+    try:
+        return q.to(unit)
+    except u.UnitConversionError:
+        raise UnitsMismatchError(
+            f"{name}: needs a unit of {unit.physical_type} (convertible to '{unit}'), "
+            f"not '{q.unit}'", value=text if isinstance(text, str) else str(q),
+            **where) from None

@@ -1,0 +1,90 @@
+"""The ``cwlimits`` command line: a thin layer over the Python API.
+
+Each subcommand lives in its own module under :mod:`cwlimits.commands` and provides
+``ORDER`` (its place in ``cwlimits --help``) and ``register(subparsers, common)``, which adds
+its parser and sets ``run``.  Modules are found by :func:`pkgutil.iter_modules`, so adding a
+command is adding a module.  This module parses the
+arguments, runs the command and turns errors into exit codes:
+
+* 0: success;
+* 2: bad input or usage (``error: ...`` on stderr, no output file written);
+* 1: an unexpected internal error (one line; ``--verbose`` shows the traceback);
+* 130: interrupted with Ctrl-C (finished work already written stays).
+"""
+
+import argparse
+import importlib
+import logging
+import pkgutil
+import sys
+
+from . import __version__
+from .errors import CwlimitsError
+
+__all__ = ["main", "build_parser"]
+
+
+_EXAMPLES = """\
+examples:
+  cwlimits demo                                   # the whole job on the fictional demo
+  cwlimits indirect target_lists/demo.csv --out limits.ecsv
+  cwlimits convert --h0 1e-25 --f-gw 200Hz --distance 1kpc
+  cwlimits COMMAND --help                         # options and examples of one command
+"""
+
+
+def build_parser():
+    """Return the top-level :class:`argparse.ArgumentParser` with every subcommand."""
+    parser = argparse.ArgumentParser(
+        prog="cwlimits",
+        description="Plan directed searches for continuous gravitational waves and turn "
+                    "their results into strain, ellipticity and r-mode limits.",
+        epilog=_EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("--version", action="version", version=f"cwlimits {__version__}")
+    common = argparse.ArgumentParser(add_help=False)
+    common.add_argument("-v", "--verbose", action="store_true",
+                        help="log what is done; show tracebacks of internal errors")
+    common.add_argument("-q", "--quiet", action="store_true",
+                        help="no progress bars or summaries, only errors")
+    subparsers = parser.add_subparsers(dest="command", metavar="COMMAND")
+    for module in _command_modules():
+        module.register(subparsers, common)
+    return parser
+
+
+def _command_modules():
+    from . import commands
+
+    modules = [importlib.import_module(f"{commands.__name__}.{info.name}")
+               for info in pkgutil.iter_modules(commands.__path__)
+               if not info.name.startswith("_")]
+    return sorted(modules, key=lambda m: (m.ORDER, m.__name__))
+
+
+def main(argv=None):
+    """Run the command line; return the exit code."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if not getattr(args, "run", None):
+        parser.print_help()
+        return 2
+    logging.basicConfig(level=logging.INFO if args.verbose else logging.WARNING,
+                        format="%(levelname)s %(name)s: %(message)s")
+    try:
+        return int(args.run(args) or 0)
+    except CwlimitsError as exc:
+        print(f"error: {exc}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("interrupted: finished work has been kept", file=sys.stderr)
+        return 130
+    except Exception as exc:  # the last line of defence: one line, not a traceback
+        if args.verbose:
+            raise
+        print(f"error: internal error ({type(exc).__name__}: {exc}); rerun with --verbose "
+              "for the traceback and please report it", file=sys.stderr)
+        return 1
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

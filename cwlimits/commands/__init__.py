@@ -1,0 +1,1 @@
+"""Subcommands of the ``cwlimits`` command line, one module each (see :mod:`cwlimits.cli`)."""

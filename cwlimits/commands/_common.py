@@ -1,0 +1,47 @@
+"""Helpers shared by the subcommands: quantity options, output paths, printing."""
+
+import argparse
+import sys
+from pathlib import Path
+
+from .._units import parse_quantity
+from ..errors import InputError
+
+__all__ = ["add_parser", "quantity_arg", "check_output_path", "echo"]
+
+
+def add_parser(subparsers, common, name, *, help, description, examples):
+    """Add a subcommand parser with the shared options and an examples epilog."""
+    return subparsers.add_parser(
+        name, parents=[common], help=help, description=description,
+        epilog="examples:\n" + "\n".join(f"  {line}" for line in examples),
+        formatter_class=argparse.RawDescriptionHelpFormatter)
+
+
+def quantity_arg(unit, name):
+    """An argparse ``type`` that reads ``"1.5 kpc"`` (or a bare number in ``unit``)."""
+    def parse(text):
+        try:
+            return parse_quantity(text, unit, name)
+        except InputError as exc:
+            raise argparse.ArgumentTypeError(exc.reason + f" (got {text!r})") from None
+    parse.__name__ = f"quantity in {unit}"
+    return parse
+
+
+def check_output_path(path, suffixes=(".csv", ".ecsv")):
+    """Validate an output path before any work is done; return it as a Path."""
+    if path is None:
+        return None
+    path = Path(path)
+    if path.suffix.lower() not in suffixes:
+        raise InputError(f"output file must end in {' or '.join(suffixes)}", file=str(path))
+    if path.exists() and path.is_dir():
+        raise InputError("output path is a folder", file=str(path))
+    return path
+
+
+def echo(args, text=""):
+    """Print to stdout unless ``--quiet``."""
+    if not getattr(args, "quiet", False):
+        print(text, file=sys.stdout)

@@ -1,0 +1,349 @@
+"""Reading and writing the tables cwlimits uses: CSV with units in the header, and ECSV.
+
+Every table cwlimits writes carries units and the assumptions behind its numbers:
+
+* **CSV**: comment lines ``# key: value`` first (title, the assumptions, the seed), then a
+  header whose column names carry units in brackets (``h0_limit [1]``, ``f [Hz]``), then the
+  rows.  Cells a spreadsheet would run as a formula (leading ``=``, ``+``, ``-``, ``@``, tab
+  or carriage return in a text cell) are written with a leading ``'``.
+* **ECSV** (astropy's self-describing format): units in the column metadata, the
+  assumptions in the table metadata under ``assumptions``.
+
+A table is written to a temporary file beside its destination and renamed, so no reader
+ever sees half a file and a failed run leaves nothing behind.
+
+Reading is the mirror image: :func:`read_table` gives a :class:`RawTable` of text cells with
+the file line of every row, and :meth:`RawTable.quantity` turns a column into a Quantity,
+raising errors that name the file, row, column and value.
+"""
+
+import csv
+import io
+import math
+import os
+import re
+import tempfile
+from pathlib import Path
+
+import astropy.units as u
+import numpy as np
+from astropy.table import Table
+
+from ._units import parse_unit
+from .errors import InputError, TableError
+
+__all__ = ["RawTable", "read_table", "write_table", "atomic_write", "neutralise_cell"]
+
+_HEADER = re.compile(r"^\s*(?P<name>[^\[\]]*?)\s*(?:\[(?P<unit>[^\[\]]*)\])?\s*$")
+_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+
+
+def neutralise_cell(text):
+    """Return ``text`` with a leading ``'`` if a spreadsheet would evaluate it.
+
+    Numbers written as text (``-1.5e-3``) are left alone: they are data, not formulas.
+    """
+    if text and text.startswith(_FORMULA_START):
+        try:
+            float(text)
+        except ValueError:
+            return "'" + text
+    return text
+
+
+class RawTable:
+    """The text cells of a table file, with the file line of every row.
+
+    Attributes
+    ----------
+    path : str
+        The file, as given (used in error messages).
+    columns : dict of str -> list of str
+        Cells by column name (names stripped of their unit).
+    units : dict of str -> Unit or None
+        The unit declared in the header (``name [unit]``) or the ECSV metadata.
+    lines : list of int
+        For each row, its 1-based line in the file (header and comments count).
+    meta : dict
+        ECSV metadata, or the ``# key: value`` comment lines of a CSV file.
+    """
+
+    def __init__(self, path, columns, units, lines, meta, error=TableError):
+        self.path, self.columns, self.units = str(path), columns, units
+        self.lines, self.meta, self.error = lines, meta, error
+
+    def __len__(self):
+        return len(self.lines)
+
+    def has(self, name):
+        """Whether column ``name`` exists."""
+        return name in self.columns
+
+    def fail(self, message, row_index=None, column=None, value=None):
+        """Raise this table's error class, located at a 0-based row index."""
+        row = None if row_index is None else self.lines[row_index]
+        raise self.error(message, file=self.path, row=row, column=column, value=value)
+
+    def require(self, *names):
+        """Raise a located error naming the first missing column."""
+        for name in names:
+            if name not in self.columns:
+                have = ", ".join(self.columns) or "none"
+                raise self.error(f"missing column '{name}' (columns found: {have})",
+                                 file=self.path, column=name)
+
+    def blank(self, name):
+        """Boolean array: where column ``name`` is empty (all True if the column is absent)."""
+        if name not in self.columns:
+            return np.ones(len(self), dtype=bool)
+        return np.array([c is None or str(c).strip() == "" for c in self.columns[name]])
+
+    def text(self, name):
+        """Column ``name`` as a list of stripped strings ('' for a blank cell)."""
+        return ["" if c is None else str(c).strip() for c in self.columns[name]]
+
+    def unit_of(self, name, default_unit, physical_type=None):
+        """The column's declared unit, or ``default_unit``; checked against the type."""
+        unit = self.units.get(name) or u.Unit(default_unit)
+        want = u.Unit(default_unit)
+        if not unit.is_equivalent(want):
+            raise self.error(
+                f"unit '{unit}' is not a unit of {physical_type or want.physical_type} "
+                f"(use e.g. '{want}')", file=self.path, column=name, value=str(unit))
+        return unit
+
+    def quantity(self, name, default_unit, *, required=True, positive=False,
+                 finite=True, physical_type=None):
+        """Column ``name`` as a Quantity in ``default_unit``; blanks become NaN.
+
+        Parameters
+        ----------
+        name : str
+            Column name.
+        default_unit : str or Unit
+            The unit the column is taken to be in when its header declares none; the
+            returned Quantity is converted to it.
+        required : bool
+            If True, the column must exist and no cell may be blank.
+        positive : bool
+            If True, every non-blank value must be > 0.
+        finite : bool
+            If True, every non-blank value must be finite.
+        """
+        want = u.Unit(default_unit)
+        if name not in self.columns:
+            if required:
+                self.require(name)
+            return np.full(len(self), np.nan) << want
+        unit = self.unit_of(name, want, physical_type)
+        values = np.full(len(self), np.nan)
+        for i, cell in enumerate(self.text(name)):
+            if cell == "":
+                if required:
+                    self.fail("empty cell; a number is required", i, name, cell)
+                continue
+            try:
+                x = float(cell)
+            except ValueError:
+                self.fail("not a number", i, name, cell)
+            if finite and not math.isfinite(x):
+                self.fail("value must be finite", i, name, cell)
+            if positive and not x > 0:
+                self.fail("value must be positive", i, name, cell)
+            values[i] = x
+        return (values << unit).to(want)
+
+
+def _decode(path, error):
+    try:
+        raw = Path(path).read_bytes()
+    except FileNotFoundError:
+        raise error("file not found", file=path) from None
+    except IsADirectoryError:
+        raise error("is a folder, not a file", file=path) from None
+    except OSError as exc:
+        raise error(f"cannot read file: {exc.strerror}", file=path) from None
+    if b"\x00" in raw:
+        raise error("binary file: expected UTF-8 text", file=path)
+    try:
+        return raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = raw[: exc.start].count(b"\n") + 1
+        raise error(f"not UTF-8 text (byte {exc.start})", file=path, row=line) from None
+
+
+def read_table(path, *, error=TableError):
+    """Read a CSV (units in the header) or ECSV file into a :class:`RawTable`.
+
+    The format follows the extension: ``.ecsv`` is read by astropy; anything else is read
+    as comma-separated text whose lines starting with ``#`` are comments
+    (``# key: value`` comments become metadata).
+
+    Raises
+    ------
+    TableError (or ``error``)
+        Missing, empty, binary or non-UTF-8 file; a header with a duplicated, empty or
+        unparsable column; a row with the wrong number of cells.
+    """
+    text = _decode(path, error)
+    if str(path).lower().endswith(".ecsv"):
+        return _read_ecsv(path, text, error)
+    return _read_csv(path, text, error)
+
+
+def _read_csv(path, text, error):
+    meta, data_lines = {}, []
+    for number, line in enumerate(text.splitlines(), start=1):
+        stripped = line.strip()
+        if stripped.startswith("#"):
+            key, sep, value = stripped.lstrip("#").partition(":")
+            if sep and key.strip() and " " not in key.strip():
+                meta[key.strip()] = value.strip()
+            continue
+        if stripped:
+            data_lines.append((number, line))
+    if not data_lines:
+        raise error("empty file: no header and no rows", file=path)
+    reader = csv.reader(io.StringIO("\n".join(line for _, line in data_lines)))
+    rows = list(reader)
+    header_line = data_lines[0][0]
+    names, units = [], {}
+    for j, cell in enumerate(rows[0]):
+        match = _HEADER.match(cell)
+        name = match.group("name") if match else ""
+        if not name:
+            raise error(f"header cell {j + 1} has no column name", file=path,
+                        row=header_line, value=cell)
+        if name in names:
+            raise error("duplicated column", file=path, row=header_line, column=name)
+        names.append(name)
+        unit_text = match.group("unit")
+        units[name] = (parse_unit(unit_text, f"unit of column '{name}'", file=path,
+                                  row=header_line, column=name)
+                       if unit_text not in (None, "") else None)
+    if len(rows) < 2:
+        raise error("no data rows below the header", file=path, row=header_line)
+    columns = {n: [] for n in names}
+    lines = []
+    for (number, _), row in zip(data_lines[1:], rows[1:], strict=True):
+        if len(row) != len(names):
+            raise error(f"row has {len(row)} cells but the header has {len(names)}",
+                        file=path, row=number)
+        for n, cell in zip(names, row, strict=True):
+            columns[n].append(cell)
+        lines.append(number)
+    return RawTable(path, columns, units, lines, meta, error)
+
+
+def _read_ecsv(path, text, error):
+    try:
+        table = Table.read(text, format="ascii.ecsv")
+    except Exception as exc:  # astropy raises many types for a malformed header
+        raise error(f"not a readable ECSV file ({type(exc).__name__}: {exc})",
+                    file=path) from None
+    body = [i for i, line in enumerate(text.splitlines(), start=1)
+            if line.strip() and not line.lstrip().startswith("#")]
+    lines = body[1:1 + len(table)]
+    if len(table) == 0:
+        raise error("no data rows", file=path)
+    columns, units = {}, {}
+    for name in table.colnames:
+        col = table[name]
+        mask = getattr(col, "mask", None)
+        columns[name] = [None if (mask is not None and mask[i]) else str(v)
+                         for i, v in enumerate(np.asarray(col).tolist())]
+        units[name] = col.unit
+    return RawTable(path, columns, units, lines, dict(table.meta), error)
+
+
+def atomic_write(path, write):
+    """Call ``write(file_object)`` on a temporary file, then rename it to ``path``.
+
+    The temporary file lives beside ``path``, so the rename is atomic; on any error it is
+    removed and ``path`` is left as it was.
+    """
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8", newline="") as handle:
+            write(handle)
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+
+
+def _cell(value):
+    if isinstance(value, (float, np.floating)):
+        return repr(float(value))
+    if isinstance(value, (bool, np.bool_)):
+        return "true" if value else "false"
+    if isinstance(value, (int, np.integer)):
+        return str(int(value))
+    if value is None or (np.ma.is_masked(value)):
+        return ""
+    return neutralise_cell(str(value))
+
+
+def _header_cell(name, unit):
+    if unit is None:
+        return name
+    return f"{name} [{unit.to_string() or '1'}]"
+
+
+def write_table(table, path, *, assumptions=None, title=None):
+    """Write an astropy Table as CSV or ECSV (by extension), with units and assumptions.
+
+    Parameters
+    ----------
+    table : astropy.table.Table or QTable
+        Columns with units where they have them.
+    path : str or Path
+        Destination; ``.csv`` or ``.ecsv``.
+    assumptions : dict of str -> str, optional
+        Written as ``# assumption.<key>: value`` lines (CSV) or under
+        ``meta['assumptions']`` (ECSV).
+    title : str, optional
+        A one-line description written first.
+
+    Raises
+    ------
+    InputError
+        For an extension other than .csv or .ecsv (nothing is written).
+    """
+    path = Path(path)
+    suffix = path.suffix.lower()
+    if suffix not in (".csv", ".ecsv"):
+        raise InputError("output table must end in .csv or .ecsv", file=str(path))
+    from . import __version__
+
+    table = Table(table, copy=True)
+    meta = {"title": title or "", "written_by": f"cwlimits {__version__}"}
+    meta.update({k: v for k, v in table.meta.items() if k != "assumptions"})
+    assumptions = dict(assumptions or table.meta.get("assumptions", {}))
+
+    if suffix == ".ecsv":
+        table.meta = dict(meta, assumptions=assumptions)
+        for name in table.colnames:
+            if table[name].dtype.kind in "OU":
+                table[name] = [neutralise_cell(str(v)) for v in table[name]]
+
+        def write(handle):
+            buffer = io.StringIO()
+            table.write(buffer, format="ascii.ecsv")
+            handle.write(buffer.getvalue())
+    else:
+        def write(handle):
+            for key, value in meta.items():
+                if value != "":
+                    handle.write(f"# {key}: {value}\n")
+            for key, value in assumptions.items():
+                handle.write(f"# assumption.{key}: {value}\n")
+            writer = csv.writer(handle, lineterminator="\n")
+            header = [_header_cell(name, table[name].unit) for name in table.colnames]
+            writer.writerow(header)
+            for row in table:
+                writer.writerow([_cell(row[name]) for name in table.colnames])
+    atomic_write(path, write)
+    return path
