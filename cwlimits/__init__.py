@@ -13,6 +13,13 @@ try:
 except PackageNotFoundError:  # pragma: no cover - running from a source tree
     __version__ = "0+unknown"
 
+from .conversions import (  # noqa: E402
+    ellipticity,
+    mass_quadrupole,
+    rmode_amplitude,
+    strain_from_ellipticity,
+    strain_from_rmode_amplitude,
+)
 from .errors import (  # noqa: E402
     CatalogueError,
     ComputationError,
@@ -23,9 +30,49 @@ from .errors import (  # noqa: E402
     TableError,
     UnitsMismatchError,
 )
+from .fiducial import DEFAULT_MOMENT_OF_INERTIA, FIDUCIAL_RMODE_STAR  # noqa: E402
+from .indirect import (  # noqa: E402
+    MASS_QUADRUPOLE,
+    R_MODE,
+    age_limit,
+    indirect_limits,
+    limit_range,
+    rmode_age_limit,
+    rmode_spindown_limit,
+    sample_limits,
+    spindown_limit,
+)
+from .tables import read_table, write_table  # noqa: E402
+from .targets import Target, TargetCatalogue, load_targets  # noqa: E402
 
 __all__ = [
     "__version__",
+    # targets
+    "Target",
+    "TargetCatalogue",
+    "load_targets",
+    # indirect limits
+    "DEFAULT_MOMENT_OF_INERTIA",
+    "MASS_QUADRUPOLE",
+    "R_MODE",
+    "spindown_limit",
+    "age_limit",
+    "rmode_spindown_limit",
+    "rmode_age_limit",
+    "limit_range",
+    "sample_limits",
+    "indirect_limits",
+    # conversions
+    "FIDUCIAL_RMODE_STAR",
+    "ellipticity",
+    "strain_from_ellipticity",
+    "mass_quadrupole",
+    "rmode_amplitude",
+    "strain_from_rmode_amplitude",
+    # tables
+    "read_table",
+    "write_table",
+    # errors
     "CwlimitsError",
     "InputError",
     "CatalogueError",

@@ -55,13 +55,12 @@ def to_value(quantity, unit, name, *, allow_bare=False):
         ) from None
 
 
-def parse_unit(text, name="unit", **where):
-    """Parse a unit string, raising a located :class:`UnitsMismatchError` on failure."""
+def parse_unit(text, name="unit", error=UnitsMismatchError, **where):
+    """Parse a unit string, raising a located ``error`` on failure."""
     try:
         return u.Unit(text)
     except ValueError:
-        raise UnitsMismatchError(f"{name}: not a unit astropy understands", value=text,
-                                 **where) from None
+        raise error(f"{name}: not a unit astropy understands", value=text, **where) from None
 
 
 def parse_quantity(text, unit, name, **where):

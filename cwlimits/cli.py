@@ -41,11 +41,14 @@ def build_parser():
                     "their results into strain, ellipticity and r-mode limits.",
         epilog=_EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("--version", action="version", version=f"cwlimits {__version__}")
+    # --verbose and --quiet work before or after the subcommand; the subcommand's copies
+    # default to SUPPRESS so they do not overwrite a value given before it.
     common = argparse.ArgumentParser(add_help=False)
-    common.add_argument("-v", "--verbose", action="store_true",
-                        help="log what is done; show tracebacks of internal errors")
-    common.add_argument("-q", "--quiet", action="store_true",
-                        help="no progress bars or summaries, only errors")
+    for target, default in ((parser, False), (common, argparse.SUPPRESS)):
+        target.add_argument("-v", "--verbose", action="store_true", default=default,
+                            help="log what is done; show tracebacks of internal errors")
+        target.add_argument("-q", "--quiet", action="store_true", default=default,
+                            help="no progress bars or summaries, only errors")
     subparsers = parser.add_subparsers(dest="command", metavar="COMMAND")
     for module in _command_modules():
         module.register(subparsers, common)

@@ -49,7 +49,8 @@ class InputError(CwlimitsError, ValueError):
     """
 
     def __init__(self, message, *, file=None, row=None, column=None, value=None):
-        self.file, self.row, self.column, self.value = file, row, column, value
+        self.file = None if file is None else str(file)
+        self.row, self.column, self.value = row, column, value
         self.reason = message
         where = _where(file, row, column)
         text = f"{where}: {message}" if where else message

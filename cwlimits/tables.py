@@ -27,7 +27,7 @@ from pathlib import Path
 
 import astropy.units as u
 import numpy as np
-from astropy.table import Table
+from astropy.table import MaskedColumn, Table
 
 from ._units import parse_unit
 from .errors import InputError, TableError
@@ -218,7 +218,7 @@ def _read_csv(path, text, error):
             raise error("duplicated column", file=path, row=header_line, column=name)
         names.append(name)
         unit_text = match.group("unit")
-        units[name] = (parse_unit(unit_text, f"unit of column '{name}'", file=path,
+        units[name] = (parse_unit(unit_text, "unit of the column", error, file=path,
                                   row=header_line, column=name)
                        if unit_text not in (None, "") else None)
     if len(rows) < 2:
@@ -276,7 +276,8 @@ def atomic_write(path, write):
 
 def _cell(value):
     if isinstance(value, (float, np.floating)):
-        return repr(float(value))
+        # NaN marks "not applicable" (a spin-down limit without a known spin): blank cell.
+        return repr(float(value)) if math.isfinite(value) or math.isinf(value) else ""
     if isinstance(value, (bool, np.bool_)):
         return "true" if value else "false"
     if isinstance(value, (int, np.integer)):
@@ -326,8 +327,12 @@ def write_table(table, path, *, assumptions=None, title=None):
     if suffix == ".ecsv":
         table.meta = dict(meta, assumptions=assumptions)
         for name in table.colnames:
-            if table[name].dtype.kind in "OU":
-                table[name] = [neutralise_cell(str(v)) for v in table[name]]
+            column = table[name]
+            if column.dtype.kind in "OU":
+                table[name] = [neutralise_cell(str(v)) for v in column]
+            elif column.dtype.kind == "f" and np.isnan(column).any():
+                # NaN marks "not applicable": written as a masked (empty) cell.
+                table[name] = MaskedColumn(column, mask=np.isnan(column))
 
         def write(handle):
             buffer = io.StringIO()

@@ -45,3 +45,44 @@ def echo(args, text=""):
     """Print to stdout unless ``--quiet``."""
     if not getattr(args, "quiet", False):
         print(text, file=sys.stdout)
+
+
+def add_target_args(parser, required=True):
+    """Add ``--catalogue FILE --target NAME`` to a parser."""
+    parser.add_argument("--catalogue", metavar="FILE", required=required,
+                        help="target catalogue (CSV or ECSV)")
+    parser.add_argument("--target", metavar="NAME", required=required,
+                        help="name of the target in the catalogue")
+
+
+def resolve_target(args):
+    """The :class:`~cwlimits.targets.Target` named by ``--catalogue`` and ``--target``."""
+    from ..targets import load_targets
+
+    return load_targets(args.catalogue).target(args.target)
+
+
+def format_rows(headers, rows):
+    """A plain-text table: headers, a rule, then the rows, columns aligned."""
+    cells = [list(map(str, headers))] + [[str(c) for c in row] for row in rows]
+    widths = [max(len(row[j]) for row in cells) for j in range(len(headers))]
+    lines = []
+    for k, row in enumerate(cells):
+        lines.append("  ".join(c.ljust(w) if j == 0 else c.rjust(w)
+                               for j, (c, w) in enumerate(zip(row, widths, strict=True))))
+        if k == 0:
+            lines.append("  ".join("-" * w for w in widths))
+    return "\n".join(lines)
+
+
+def format_assumptions(assumptions):
+    """The assumptions as indented ``key: text`` lines under a heading."""
+    lines = ["assumptions:"]
+    lines += [f"  {key}: {text}" for key, text in assumptions.items()]
+    return "\n".join(lines)
+
+
+def sci(value, digits=3):
+    """A number in compact scientific notation; '-' for NaN."""
+    value = float(value)
+    return "-" if value != value else f"{value:.{digits - 1}e}"

@@ -1,0 +1,28 @@
+import os
+import pathlib
+import sys
+
+import pytest
+
+os.environ.setdefault("MPLBACKEND", "Agg")
+sys.path.insert(0, str(pathlib.Path(__file__).parent))
+
+ROOT = pathlib.Path(__file__).resolve().parent.parent
+
+
+@pytest.fixture
+def demo_catalogue_path():
+    return ROOT / "target_lists" / "demo.csv"
+
+
+@pytest.fixture
+def write_file(tmp_path):
+    """Write text to a file in the test's temporary folder and return its path."""
+    def write(name, text, mode="w"):
+        path = tmp_path / name
+        if mode == "wb":
+            path.write_bytes(text)
+        else:
+            path.write_text(text, encoding="utf-8")
+        return path
+    return write

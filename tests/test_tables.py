@@ -1,0 +1,80 @@
+import astropy.units as u
+import numpy as np
+import pytest
+from astropy.table import QTable, Table
+
+from cwlimits.errors import InputError, TableError
+from cwlimits.tables import neutralise_cell, read_table, write_table
+
+
+def _table():
+    t = QTable()
+    t["name"] = ["=HYPERLINK(\"x\")", "plain", "+1 call", "@sum", "-x"]
+    t["f"] = [10.0, 20.0, 30.0, 40.0, 50.0] * u.Hz
+    t["h0"] = [1e-25, 2e-25, np.nan, 4e-25, 5e-25] * u.one
+    return t
+
+
+@pytest.mark.parametrize("suffix", [".csv", ".ecsv"])
+def test_write_read_round_trip_with_units_and_assumptions(tmp_path, suffix):
+    path = write_table(_table(), tmp_path / f"t{suffix}", assumptions={"noise": "Gaussian"},
+                       title="test")
+    raw = read_table(path)
+    assert raw.units["f"] == u.Hz
+    assert np.allclose(raw.quantity("f", u.kHz).value, [0.01, 0.02, 0.03, 0.04, 0.05])
+    h0 = raw.quantity("h0", u.one, required=False)
+    assert np.isnan(h0[2]) and h0[0] == 1e-25
+    # the assumptions travel with the table
+    text = path.read_text()
+    assert "Gaussian" in text
+    # spreadsheet formulas are neutralised (OWASP CSV-injection advice, common practice)
+    names = raw.text("name")
+    assert names[0].startswith("'=") and names[2].startswith("'+") and names[3] == "'@sum"
+    assert names[1] == "plain"
+    assert not list((tmp_path).glob(".*.tmp"))
+
+
+def test_ecsv_is_readable_by_astropy(tmp_path):
+    # astropy.table reads what we write (reference library)
+    path = write_table(_table(), tmp_path / "t.ecsv", assumptions={"a": "b"})
+    table = Table.read(path, format="ascii.ecsv")
+    assert table["f"].unit == u.Hz
+    assert table.meta["assumptions"] == {"a": "b"}
+
+
+def test_neutralise_keeps_numbers():
+    assert neutralise_cell("-1.5e-3") == "-1.5e-3"
+    assert neutralise_cell("=1+2") == "'=1+2"
+    assert neutralise_cell("") == ""
+
+
+def test_bad_extension_writes_nothing(tmp_path):
+    with pytest.raises(InputError, match=r"\.csv or \.ecsv"):
+        write_table(_table(), tmp_path / "t.xlsx")
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_failed_write_leaves_nothing(tmp_path, monkeypatch):
+    import cwlimits.tables as tables
+
+    def broken(value):
+        raise RuntimeError("disk full")
+    monkeypatch.setattr(tables, "_cell", broken)
+    with pytest.raises(RuntimeError):
+        write_table(_table(), tmp_path / "t.csv")
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_reader_errors(write_file):
+    with pytest.raises(TableError, match="duplicated column"):
+        read_table(write_file("a.csv", "f,f\n1,2\n"))
+    with pytest.raises(TableError, match="no column name"):
+        read_table(write_file("b.csv", "f,[Hz]\n1,2\n"))
+    raw = read_table(write_file("c.csv", "f [Hz],x\n1,abc\n"))
+    with pytest.raises(TableError, match="not a number") as info:
+        raw.quantity("x", u.one)
+    assert info.value.row == 2 and info.value.column == "x"
+    with pytest.raises(TableError, match="not a unit of"):
+        raw.quantity("f", u.m)
+    with pytest.raises(TableError, match="not a readable ECSV"):
+        read_table(write_file("d.ecsv", "# %ECSV 1.0\n# ---\n# garbage: [\nx\n1\n"))
