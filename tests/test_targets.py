@@ -1,0 +1,155 @@
+import shlex
+
+import astropy.units as u
+import numpy as np
+import pytest
+from astropy.coordinates import SkyCoord
+
+import cwlimits
+from cwlimits.errors import CatalogueError
+
+HEADER = "name,ra,dec,distance [kpc],age [yr]\n"
+
+
+def test_demo_catalogue(demo_catalogue_path):
+    cat = cwlimits.load_targets(demo_catalogue_path)
+    assert 6 <= len(cat) <= 10
+    assert "fictional" in demo_catalogue_path.read_text().lower()
+    assert cat.has_spin.sum() == 1
+    pulsar = next(t for t in cat if t.has_spin)
+    assert pulsar.fdot_rot < 0
+    assert isinstance(cat.coord, SkyCoord) and len(cat.coord) == len(cat)
+    # spread from young-and-close to old-and-far
+    assert cat.distance.min() < 1 * u.kpc < 5 * u.kpc < cat.distance.max()
+    assert cat.age.min() < 1000 * u.yr < 2e4 * u.yr < cat.age.max()
+    assert np.all(cat.distance_min <= cat.distance) and np.all(cat.age <= cat.age_max)
+
+
+def test_sexagesimal_and_degrees_agree_with_astropy(write_file):
+    # Positions read the way astropy.coordinates.SkyCoord reads them (reference library)
+    path = write_file("c.csv", HEADER + "A,05h34m31.9s,+22d00m52s,1,100\n"
+                      "B,05:34:31.9,+22:00:52,1,100\nC,83.632917,22.014444,1,100\n")
+    cat = cwlimits.load_targets(path)
+    ref = SkyCoord("05h34m31.9s", "+22d00m52s")
+    for target in cat:
+        assert target.coord.separation(ref) < 0.01 * u.arcsec
+
+
+def test_galactic_coordinates(write_file):
+    path = write_file("g.csv", "name,l,b,distance [pc],age [kyr]\nA,120.1,1.4,3300,1.2\n")
+    target = cwlimits.load_targets(path).target("A")
+    # SkyCoord galactic -> ICRS (reference library)
+    ref = SkyCoord(l=120.1 * u.deg, b=1.4 * u.deg, frame="galactic").icrs
+    assert target.coord.separation(ref) < 1e-6 * u.arcsec
+    assert target.distance.to_value(u.kpc) == pytest.approx(3.3)
+    assert target.age.to_value(u.yr) == pytest.approx(1200)
+
+
+def test_default_units_and_ranges(write_file):
+    path = write_file("r.csv", "name,ra,dec,distance,distance_max,age,age_min\n"
+                               "A,10,-5,2.0,3.0,800,500\n")
+    t = cwlimits.load_targets(path).target("A")
+    assert t.distance == 2 * u.kpc and t.distance_min == 2 * u.kpc and t.distance_max == 3 * u.kpc
+    assert t.age_min == 500 * u.yr and t.age_max == 800 * u.yr
+    assert not t.has_spin and t.f_rot is None
+
+
+@pytest.mark.parametrize("suffix", [".ecsv", ".csv"])
+def test_round_trip(demo_catalogue_path, tmp_path, suffix):
+    cat = cwlimits.load_targets(demo_catalogue_path)
+    path = cat.write(tmp_path / f"cat{suffix}")
+    again = cwlimits.load_targets(path)
+    assert again.names == cat.names
+    assert again.coord.separation(cat.coord).max() < 1e-6 * u.arcsec
+    for column in ("distance", "distance_min", "distance_max", "age", "age_min", "age_max"):
+        assert np.allclose(getattr(again, column), getattr(cat, column), rtol=1e-12)
+    assert np.array_equal(again.has_spin, cat.has_spin)
+    assert np.allclose(again.f_rot[cat.has_spin], cat.f_rot[cat.has_spin])
+    assert again.notes == cat.notes
+    frame = again.to_pandas()
+    assert list(frame["name"]) == cat.names and "distance_kpc" in frame
+
+
+def test_extra_columns_are_kept(write_file, tmp_path):
+    path = write_file("x.csv", "name,ra,dec,distance,age,survey\nA,1,2,1,100,deep\n")
+    cat = cwlimits.load_targets(path)
+    assert cat.extra == {"survey": ["deep"]}
+    again = cwlimits.load_targets(cat.write(tmp_path / "x.ecsv"))
+    assert again.extra == {"survey": ["deep"]}
+
+
+@pytest.mark.parametrize("text, row, column, value", [
+    ("name,ra,distance,age\nA,1,1,100\n", None, "dec", None),                  # missing column
+    ("name,ra,dec,age\nA,1,2,100\n", None, "distance", None),
+    (HEADER + "A,1,2,1,100\nB,nowhere,2,1,100\n", 3, "ra", "nowhere"),         # bad coordinate
+    (HEADER + "A,1,95,1,100\n", 2, "dec", "95"),                               # |dec| > 90
+    (HEADER + "A,1,2,0,100\n", 2, "distance", "0"),                            # non-positive
+    (HEADER + "A,1,2,-1,100\n", 2, "distance", "-1"),
+    (HEADER + "A,1,2,inf,100\n", 2, "distance", "inf"),                        # non-finite
+    (HEADER + "A,1,2,nan,100\n", 2, "distance", "nan"),
+    (HEADER + "A,1,2,1,-5\n", 2, "age", "-5"),
+    (HEADER + "A,1,2,1,\n", 2, "age", ""),                                     # empty cell
+    ("name,ra,dec,distance,distance_min,distance_max,age\nA,1,2,1,2,1.5,100\n",
+     2, "distance_min", "2"),                                                  # min > max
+    ("name,ra,dec,distance,distance_min,distance_max,age\nA,1,2,3,1,2,100\n",
+     2, "distance", "3"),                                                      # outside range
+    (HEADER + "A,1,2,1,100\nA,3,4,1,100\n", 3, "name", "A"),                   # duplicated
+    ("name,ra,dec,distance [s],age [yr]\nA,1,2,1,100\n", None, "distance", "s"),  # wrong unit
+    ("name,ra,dec,distance [kpc],age [parsec]\nA,1,2,1,100\n", None, "age", "pc"),
+    ("name,ra,dec,distance [furlongs],age\nA,1,2,1,100\n", 1, "distance", "furlongs"),
+    (HEADER + "A,1,2,1,100,7\n", 2, None, None),                               # extra cell
+    ("# comment\n" + HEADER + "A,1,2,1,100\nB,1,2,x,100\n", 4, "distance", "x"),
+    (HEADER + "A,1,2,1,100\nB,1,2,1\n", 3, None, None),                       # short row
+    ("name,ra,dec,distance,age,f_rot\nA,1,2,1,100,30\n", 2, "fdot_rot", ""),    # spin half-given
+    ("name,ra,dec,distance,age,f_rot,fdot_rot\nA,1,2,1,100,30,1e-10\n", 2, "fdot_rot", "1e-10"),
+    (HEADER + ",1,2,1,100\n", 2, "name", ""),                                  # empty name
+])
+def test_validation_errors_name_file_row_column_value(write_file, text, row, column, value):
+    path = write_file("bad.csv", text)
+    with pytest.raises(CatalogueError) as info:
+        cwlimits.load_targets(path)
+    err = info.value
+    assert err.file == str(path)
+    assert str(path) in str(err)
+    if row is not None:
+        assert err.row == row and f"row {row}" in str(err)
+    if column is not None:
+        assert err.column == column and f"'{column}'" in str(err)
+    if value is not None:
+        assert repr(value) in str(err)
+
+
+@pytest.mark.parametrize("content, mode, match", [
+    ("", "w", "empty file"),
+    ("# only a comment\n", "w", "empty file"),
+    (HEADER, "w", "no data rows"),
+    (b"\x89PNG\x00\x00binary", "wb", "binary"),
+    ("name,ra,dec,distance,age\nA\xe9,1,2,1,100\n".encode("latin-1"), "wb", "UTF-8"),
+])
+def test_unreadable_files(write_file, content, mode, match):
+    path = write_file("f.csv", content, mode)
+    with pytest.raises(CatalogueError, match=match):
+        cwlimits.load_targets(path)
+
+
+def test_missing_file_and_unknown_target(tmp_path, demo_catalogue_path):
+    with pytest.raises(CatalogueError, match="not found"):
+        cwlimits.load_targets(tmp_path / "nope.csv")
+    cat = cwlimits.load_targets(demo_catalogue_path)
+    with pytest.raises(cwlimits.InputError, match="unknown target 'Nothing'"):
+        cat.target("Nothing")
+
+
+def test_ecsv_row_numbers(tmp_path, demo_catalogue_path):
+    cat = cwlimits.load_targets(demo_catalogue_path)
+    path = cat.write(tmp_path / "c.ecsv")
+    lines = path.read_text().splitlines()
+    # corrupt the distance of the third target; the error must name that line
+    third = next(i for i, line in enumerate(lines) if line.startswith(f'"{cat.names[2]}"'))
+    cells = shlex.split(lines[third])
+    cells[3] = "-1.0"
+    lines[third] = " ".join(f'"{c}"' if (" " in c or not c) else c for c in cells)
+    path.write_text("\n".join(lines) + "\n")
+    with pytest.raises(CatalogueError) as info:
+        cwlimits.load_targets(path)
+    assert info.value.row == third + 1 and info.value.column == "distance"
