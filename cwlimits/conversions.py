@@ -1,0 +1,165 @@
+"""Conversions between the strain amplitude h0 and the star's deformation.
+
+* **Ellipticity** of a star rotating about a principal axis, radiating at f_gw = 2 f_rot:
+  h0 = 4 pi^2 G I eps f_gw^2 / (c^4 d) (Jaranowski, Krolak & Schutz 1998, gr-qc/9804014,
+  eq. 22; Abbott et al. 2010, arXiv:0909.3583, eq. 2), numerically
+  eps = 0.237 (h0/1e-24) (f_rot/1 Hz)^-2 (d/1 kpc) I_38^-1.
+* **Mass quadrupole** Q22 = sqrt(15 / (8 pi)) I eps (Owen 2005, PRL 95, 211101,
+  astro-ph/0503399, eq. 2).
+* **r-mode amplitude** alpha (Owen 2010, arXiv:1006.1994, eq. 24):
+  h0 = sqrt(8 pi / 5) (G / c^5) alpha omega^3 M R^3 J~ / d, with omega = 2 pi f_gw and
+  J~ the dimensionless mass-current integral of the stellar model, which for the
+  fiducial star (1.4 solar masses, 11.7 km, J~ = 0.0164 of an n = 1 polytrope) gives
+  alpha = 0.028 (h0/1e-24) (d/1 kpc) (100 Hz/f_gw)^3.
+
+Equation numbers are from memory; the numerical coefficients are checked in the tests
+against the published normalisations.  All functions take and return Quantity and
+broadcast over their arguments (e.g. h0 per frequency band against a grid of distances).
+"""
+
+import astropy.constants as const
+import astropy.units as u
+import numpy as np
+
+from ._units import to_value
+from .errors import InputError
+from .fiducial import DEFAULT_MOMENT_OF_INERTIA, FIDUCIAL_RMODE_STAR
+
+__all__ = [
+    "ellipticity",
+    "strain_from_ellipticity",
+    "mass_quadrupole",
+    "rmode_amplitude",
+    "strain_from_rmode_amplitude",
+]
+
+_G = const.G.si.value
+_C = const.c.si.value
+
+
+def _positive(quantity, unit, name):
+    value = to_value(quantity, unit, name)
+    if np.any(~np.isfinite(value)) or np.any(value <= 0):
+        raise InputError(f"{name} must be positive and finite", value=str(quantity))
+    return value
+
+
+def _strain(h0):
+    value = to_value(h0, u.one, "h0")
+    if np.any(~np.isfinite(value)) or np.any(value < 0):
+        raise InputError("h0 must be finite and non-negative", value=str(h0))
+    return value
+
+
+def _eps_per_h0(f_gw, distance, moment_of_inertia):
+    """Eps / h0 = c^4 d / (4 pi^2 G I f_gw^2) (JKS 1998, eq. 22)."""
+    f = _positive(f_gw, u.Hz, "f_gw")
+    d = _positive(distance, u.m, "distance")
+    inertia = _positive(moment_of_inertia, u.kg * u.m**2, "moment_of_inertia")
+    return _C**4 * d / (4.0 * np.pi**2 * _G * inertia * f**2)
+
+
+def ellipticity(h0, f_gw, distance, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA):
+    """Equatorial ellipticity eps that radiates strain h0 at f_gw = 2 f_rot.
+
+    Parameters
+    ----------
+    h0 : Quantity ['dimensionless'] or array_like
+    f_gw : Quantity ['frequency']
+        Gravitational-wave frequency (twice the spin frequency).
+    distance : Quantity ['length']
+    moment_of_inertia : Quantity, optional
+        About the spin axis; default 1e38 kg m^2.
+
+    Returns
+    -------
+    eps : Quantity ['dimensionless']
+
+    Notes
+    -----
+    eps = c^4 d h0 / (4 pi^2 G I f_gw^2) (Jaranowski, Krolak & Schutz 1998, eq. 22).
+
+    References
+    ----------
+    Abbott et al. 2010, ApJ 713, 671, arXiv:0909.3583, eq. (2).
+
+    Examples
+    --------
+    >>> import astropy.units as u
+    >>> round(float(ellipticity(1e-24, 2 * u.Hz, 1 * u.kpc)), 3)
+    0.237
+    """
+    return _strain(h0) * _eps_per_h0(f_gw, distance, moment_of_inertia) << u.one
+
+
+def strain_from_ellipticity(eps, f_gw, distance, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA):
+    """The strain h0 = 4 pi^2 G I eps f_gw^2 / (c^4 d): the inverse of :func:`ellipticity`."""
+    value = to_value(eps, u.one, "eps")
+    if np.any(~np.isfinite(value)) or np.any(value < 0):
+        raise InputError("eps must be finite and non-negative", value=str(eps))
+    return value / _eps_per_h0(f_gw, distance, moment_of_inertia) << u.one
+
+
+def mass_quadrupole(eps, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA):
+    """Mass quadrupole moment Q22 = sqrt(15 / (8 pi)) I eps (Owen 2005, eq. 2).
+
+    Returns
+    -------
+    Q22 : Quantity ['moment of inertia'] (kg m^2)
+    """
+    value = to_value(eps, u.one, "eps")
+    inertia = _positive(moment_of_inertia, u.kg * u.m**2, "moment_of_inertia")
+    return np.sqrt(15.0 / (8.0 * np.pi)) * inertia * value << u.kg * u.m**2
+
+
+def _alpha_per_h0(f_gw, distance, mass, radius, j_tilde):
+    """Alpha / h0 = c^5 d / (sqrt(8 pi/5) G omega^3 M R^3 J~) (Owen 2010, eq. 24)."""
+    omega = 2.0 * np.pi * _positive(f_gw, u.Hz, "f_gw")
+    d = _positive(distance, u.m, "distance")
+    m = _positive(mass, u.kg, "mass")
+    r = _positive(radius, u.m, "radius")
+    j = _positive(j_tilde, u.one, "j_tilde")
+    return _C**5 * d / (np.sqrt(8.0 * np.pi / 5.0) * _G * omega**3 * m * r**3 * j)
+
+
+def rmode_amplitude(h0, f_gw, distance, mass=FIDUCIAL_RMODE_STAR["mass"],
+                    radius=FIDUCIAL_RMODE_STAR["radius"],
+                    j_tilde=FIDUCIAL_RMODE_STAR["j_tilde"]):
+    """Dimensionless r-mode amplitude alpha that radiates strain h0 at f_gw.
+
+    Parameters
+    ----------
+    h0 : Quantity ['dimensionless'] or array_like
+    f_gw : Quantity ['frequency']
+        Gravitational-wave frequency (about 4/3 of the spin frequency).
+    distance : Quantity ['length']
+    mass, radius : Quantity, optional
+        The star; defaults are the fiducial 1.4 M_sun and 11.7 km.
+    j_tilde : float, optional
+        Dimensionless integral J~ of the stellar model; default 0.0164 (n = 1 polytrope).
+
+    Returns
+    -------
+    alpha : Quantity ['dimensionless']
+
+    Notes
+    -----
+    alpha = c^5 d h0 / (sqrt(8 pi / 5) G (2 pi f_gw)^3 M R^3 J~), which for the fiducial
+    star is 0.028 (h0/1e-24)(d/1 kpc)(100 Hz/f_gw)^3.
+
+    References
+    ----------
+    Owen 2010, PRD 82, 104002, arXiv:1006.1994, eqs. (23)-(24) (equation numbers from
+    memory).
+    """
+    return _strain(h0) * _alpha_per_h0(f_gw, distance, mass, radius, j_tilde) << u.one
+
+
+def strain_from_rmode_amplitude(alpha, f_gw, distance, mass=FIDUCIAL_RMODE_STAR["mass"],
+                                radius=FIDUCIAL_RMODE_STAR["radius"],
+                                j_tilde=FIDUCIAL_RMODE_STAR["j_tilde"]):
+    """The strain h0 of an r-mode of amplitude alpha: the inverse of :func:`rmode_amplitude`."""
+    value = to_value(alpha, u.one, "alpha")
+    if np.any(~np.isfinite(value)) or np.any(value < 0):
+        raise InputError("alpha must be finite and non-negative", value=str(alpha))
+    return value / _alpha_per_h0(f_gw, distance, mass, radius, j_tilde) << u.one
