@@ -1,0 +1,75 @@
+"""``cwlimits indirect``: the indirect amplitude limits of every target of a catalogue."""
+
+import astropy.units as u
+
+from ..fiducial import DEFAULT_MOMENT_OF_INERTIA
+from ..indirect import DEFAULT_EPS_FREQUENCIES, indirect_limits
+from ..tables import write_table
+from ..targets import load_targets
+from ._common import (
+    add_parser,
+    check_output_path,
+    echo,
+    format_assumptions,
+    format_rows,
+    quantity_arg,
+    sci,
+)
+
+ORDER = 10
+
+
+def register(subparsers, common):
+    parser = add_parser(
+        subparsers, common, "indirect",
+        help="age-based and spin-down limits on h0 for each target of a catalogue",
+        description="Indirect limits on the strain amplitude h0 of each target: the "
+                    "age-based limit (nominal, optimistic and pessimistic over the "
+                    "catalogue's distance and age ranges), the r-mode age-based limit, the "
+                    "spin-down limit where the spin is known, and the ellipticity a star "
+                    "needs to reach its age-based limit at a few frequencies.",
+        examples=["cwlimits indirect target_lists/demo.csv",
+                  "cwlimits indirect target_lists/demo.csv --braking-index 3 "
+                  "--out limits.ecsv",
+                  "cwlimits indirect my_targets.csv --moment-of-inertia '2e38 kg m2' "
+                  "--seed 1 --out limits.csv"])
+    parser.add_argument("catalogue", metavar="CATALOGUE", help="target catalogue (CSV/ECSV)")
+    parser.add_argument("--braking-index", type=float, default=None, metavar="N",
+                        help="braking index of the age-based limit (default 5)")
+    parser.add_argument("--moment-of-inertia", type=quantity_arg(u.kg * u.m**2,
+                        "moment of inertia"), default=DEFAULT_MOMENT_OF_INERTIA,
+                        metavar="Q", help="default 1e38 kg m2")
+    parser.add_argument("--eps-at", type=quantity_arg(u.Hz, "frequency"), nargs="+",
+                        default=None, metavar="F",
+                        help="gravitational-wave frequencies for the ellipticity columns "
+                             "(default 100 300 1000 Hz)")
+    parser.add_argument("--seed", type=int, default=None,
+                        help="add Monte-Carlo quantiles over the distance and age ranges, "
+                             "with this seed")
+    parser.add_argument("--samples", type=int, default=10000,
+                        help="Monte-Carlo draws per target with --seed (default 10000)")
+    parser.add_argument("--out", metavar="FILE", help="write the table (.csv or .ecsv)")
+    parser.set_defaults(run=run)
+
+
+def run(args):
+    out = check_output_path(args.out)
+    catalogue = load_targets(args.catalogue)
+    freqs = DEFAULT_EPS_FREQUENCIES if not args.eps_at else u.Quantity(args.eps_at)
+    table = indirect_limits(catalogue, args.braking_index, args.moment_of_inertia,
+                            eps_frequencies=freqs, rng=args.seed, n_samples=args.samples)
+    eps_columns = [c for c in table.colnames if c.startswith("eps_age_")]
+    headers = ["target", "d [kpc]", "age [yr]", "h0_age", "optimistic", "pessimistic",
+               "h0_spindown", *eps_columns]
+    rows = [[r["name"], f"{r['distance'].value:.3g}", f"{r['age'].value:.4g}",
+             sci(r["h0_age"]), sci(r["h0_age_optimistic"]), sci(r["h0_age_pessimistic"]),
+             sci(r["h0_spindown"]), *[sci(r[c]) for c in eps_columns]] for r in table]
+    echo(args, f"indirect limits for {len(table)} targets of {args.catalogue}")
+    echo(args, format_rows(headers, rows))
+    echo(args)
+    echo(args, format_assumptions(table.meta["assumptions"]))
+    if out is not None:
+        write_table(table, out, title=f"indirect limits for {args.catalogue}",
+                    assumptions=table.meta["assumptions"])
+        echo(args, f"wrote {out}")
+    return 0

@@ -1,0 +1,150 @@
+"""The command line of the foundation commands, through cwlimits.cli.main."""
+
+import astropy.units as u
+import numpy as np
+import pytest
+
+import cwlimits
+from cwlimits.cli import main
+
+
+def test_help_lists_commands_with_examples(capsys):
+    with pytest.raises(SystemExit) as info:
+        main(["--help"])
+    assert info.value.code == 0
+    out = capsys.readouterr().out
+    for command in ("demo", "indirect", "convert"):
+        assert command in out
+    assert "examples:" in out
+
+
+@pytest.mark.parametrize("command", ["demo", "indirect", "convert"])
+def test_every_subcommand_help_shows_an_example(capsys, command):
+    with pytest.raises(SystemExit) as info:
+        main([command, "--help"])
+    assert info.value.code == 0
+    assert f"examples:\n  cwlimits {command}" in capsys.readouterr().out
+
+
+def test_indirect_prints_and_writes(tmp_path, capsys, demo_catalogue_path):
+    out = tmp_path / "limits.ecsv"
+    assert main(["indirect", str(demo_catalogue_path), "--out", str(out), "--seed", "1"]) == 0
+    text = capsys.readouterr().out
+    assert "h0_age" in text and "moment_of_inertia" in text
+    table = cwlimits.read_table(out)
+    cat = cwlimits.load_targets(demo_catalogue_path)
+    h = table.quantity("h0_age", u.one)
+    assert np.allclose(h, cwlimits.age_limit(cat.distance, cat.age))
+    assert "assumptions" in table.meta
+
+
+def test_indirect_options_change_the_numbers(tmp_path, demo_catalogue_path):
+    a, b = tmp_path / "a.csv", tmp_path / "b.csv"
+    assert main(["-q", "indirect", str(demo_catalogue_path), "--out", str(a)]) == 0
+    assert main(["-q", "indirect", str(demo_catalogue_path), "--out", str(b),
+                 "--braking-index", "3", "--moment-of-inertia", "4e38 kg m2"]) == 0
+    ha = cwlimits.read_table(a).quantity("h0_age", u.one)
+    hb = cwlimits.read_table(b).quantity("h0_age", u.one)
+    # h_age ∝ sqrt(I/(n-1)) (Wette et al. 2008): sqrt(4 * 4/2) = sqrt(8)
+    assert np.allclose(hb / ha, np.sqrt(8))
+    assert "n = 3" in b.read_text()
+
+
+def test_convert_value_and_range(capsys):
+    assert main(["convert", "--h0", "1e-24", "--f-gw", "2Hz", "--distance", "1kpc",
+                 "--distance-range", "0.5kpc", "2kpc"]) == 0
+    out = capsys.readouterr().out
+    # 0.237 (Abbott et al. 2010, arXiv:0909.3583, Sect. 1) and half/double of it
+    assert "2.36e-01" in out and "1.18e-01" in out and "4.73e-01" in out
+
+
+def test_convert_table(tmp_path, write_file):
+    src = write_file("h.csv", "f [Hz],h0\n100,1e-24\n200,1e-24\n")
+    out = tmp_path / "eps.csv"
+    assert main(["-q", "convert", "--table", str(src), "--distance", "1 kpc",
+                 "--out", str(out)]) == 0
+    table = cwlimits.read_table(out)
+    alpha = table.quantity("alpha_rmode", u.one)
+    # Owen 2010, eq. (24): 0.028 at 100 Hz, and ∝ f^-3
+    assert alpha[0].value == pytest.approx(0.028, rel=0.02)
+    assert alpha[1].value == pytest.approx(alpha[0].value / 8)
+
+
+def test_demo_writes_tables(tmp_path, capsys):
+    assert main(["demo", "--out-dir", str(tmp_path / "rep")]) == 0
+    assert "FICTIONAL" in capsys.readouterr().out
+    first = (tmp_path / "rep" / "indirect_limits.csv").read_text()
+    assert main(["-q", "demo", "--out-dir", str(tmp_path / "rep")]) == 0
+    assert (tmp_path / "rep" / "indirect_limits.csv").read_text() == first
+
+
+BAD_CATALOGUES = {
+    "missing_column": "name,ra,dec,age\nA,1,2,100\n",
+    "bad_coordinate": "name,ra,dec,distance,age\nA,north,2,1,100\n",
+    "negative_distance": "name,ra,dec,distance,age\nA,1,2,-1,100\n",
+    "nan_age": "name,ra,dec,distance,age\nA,1,2,1,nan\n",
+    "min_above_max": "name,ra,dec,distance,age,age_min,age_max\nA,1,2,1,100,200,150\n",
+    "outside_range": "name,ra,dec,distance,age,age_min,age_max\nA,1,2,1,100,200,300\n",
+    "duplicate": "name,ra,dec,distance,age\nA,1,2,1,100\nA,1,2,1,100\n",
+    "empty": "",
+    "wrong_unit": "name,ra,dec,distance [s],age\nA,1,2,1,100\n",
+}
+
+
+@pytest.mark.parametrize("case", sorted(BAD_CATALOGUES))
+def test_bad_catalogue_exit_2_no_output(tmp_path, capsys, write_file, case):
+    path = write_file("bad.csv", BAD_CATALOGUES[case])
+    out = tmp_path / "out.csv"
+    assert main(["indirect", str(path), "--out", str(out)]) == 2
+    captured = capsys.readouterr()
+    assert captured.err.startswith("error: ") and str(path) in captured.err
+    assert "Traceback" not in captured.err
+    assert not out.exists()
+
+
+@pytest.mark.parametrize("argv", [
+    ["convert", "--h0=-1e-25", "--f-gw", "100Hz", "--distance", "1kpc"],
+    ["convert", "--h0", "1e-25", "--distance", "1kpc"],
+    ["convert", "--h0", "1e-25", "--f-gw", "100Hz", "--distance", "1kpc",
+     "--distance-range", "2kpc", "1kpc"],
+    ["indirect", "does-not-exist.csv"],
+    ["indirect", "target_lists/demo.csv", "--out", "limits.xlsx"],
+    ["indirect", "target_lists/demo.csv", "--braking-index", "1"],
+])
+def test_bad_arguments_exit_2(capsys, argv, monkeypatch, tmp_path):
+    import pathlib
+    monkeypatch.chdir(pathlib.Path(__file__).resolve().parent.parent)
+    assert main(argv) == 2
+    assert capsys.readouterr().err.startswith("error: ")
+
+
+@pytest.mark.parametrize("argv", [
+    ["convert", "--h0", "1e-25", "--f-gw", "100 s", "--distance", "1kpc"],
+    ["convert", "--h0", "1e-25", "--f-gw", "100Hz", "--distance", "far"],
+    ["indirect"],
+])
+def test_usage_errors_exit_2(capsys, argv):
+    with pytest.raises(SystemExit) as info:
+        main(argv)
+    assert info.value.code == 2
+    assert "error:" in capsys.readouterr().err
+
+
+def test_convert_bad_table_names_row_and_column(tmp_path, capsys, write_file):
+    src = write_file("h.csv", "f [Hz],h0\n100,1e-24\n200,-3\n")
+    out = tmp_path / "o.csv"
+    assert main(["convert", "--table", str(src), "--distance", "1kpc", "--out", str(out)]) == 2
+    err = capsys.readouterr().err
+    assert "row 3" in err and "'h0'" in err and "'-3'" in err
+    assert not out.exists()
+
+
+def test_internal_error_exit_1(monkeypatch, capsys, demo_catalogue_path):
+    import cwlimits.commands.indirect as command
+
+    def boom(*args, **kwargs):
+        raise ZeroDivisionError("oops")
+    monkeypatch.setattr(command, "indirect_limits", boom)
+    assert main(["indirect", str(demo_catalogue_path)]) == 1
+    err = capsys.readouterr().err
+    assert "internal error" in err and "--verbose" in err and "Traceback" not in err
