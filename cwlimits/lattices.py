@@ -1,0 +1,299 @@
+"""Template lattices: hypercubic Z^n and A_n*, their thickness, mismatch and nearest points.
+
+A template bank covers the parameter space so that no point is farther than the maximum
+mismatch ``mu_max`` from a template, measured with the metric ``mu = g_kl dl^k dl^l``.  In
+coordinates where the metric is the identity ("whitened" coordinates) the bank is a lattice
+scaled so that its covering radius is ``sqrt(mu_max)``.  The number of templates in a
+metric volume ``V_g = integral sqrt(det g) d^n lambda`` is then
+
+    N = theta mu_max^(-n/2) V_g,
+
+with ``theta`` the normalised thickness: the volume of the covering sphere (radius R) over
+the volume of the lattice's fundamental cell (Conway & Sloane, "Sphere Packings, Lattices
+and Groups" (SPLAG), Ch. 2, Sect. 1.2; Prix 2007, arXiv:0707.0428, the template-counting
+formula of its introduction).
+
+Here a :class:`Lattice` lives in units where its covering radius is 1, so the mismatch of a
+point ``x`` (whitened coordinates divided by ``sqrt(mu_max)``) is ``mu_max |x - p|^2`` with
+``p`` the nearest lattice point.
+
+* ``Z^n``: ``R = sqrt(n)/2`` for unit spacing, ``theta = V_n (sqrt(n)/2)^n`` (SPLAG Ch. 4,
+  Sect. 4); the mean of ``|x-p|^2/R^2`` over the Voronoi cell is ``(n/12)/(n/4) = 1/3`` for
+  every ``n`` (each coordinate of the offset is uniform on [-1/2, 1/2], variance 1/12).
+* ``A_n*``: the projection of ``Z^(n+1)`` onto the hyperplane ``sum x = 0`` (SPLAG Ch. 4,
+  Sect. 6.6), fundamental volume ``1/sqrt(n+1)``, covering radius
+  ``R = sqrt(n (n+2) / (12 (n+1)))`` (SPLAG Ch. 4, Sect. 6.6; Prix 2007, arXiv:0707.0428,
+  Sect. on the A_n* lattice; equation numbers not quoted as we did not re-read them), so
+  ``theta = V_n sqrt(n+1) (n (n+2) / (12 (n+1)))^(n/2)``.  Its mean mismatch factor is
+  computed here by quasi-Monte-Carlo integration (scrambled Sobol points, fixed seed) over
+  the fundamental cell with the nearest-point algorithm of SPLAG Ch. 20 (for A_n and its
+  cosets); it agrees with the normalised second moments G(A_2*) = 5/(36 sqrt 3) and
+  G(A_3*) = 0.0785433 of SPLAG Table 2.3 (tested).
+
+``V_n = pi^(n/2) / Gamma(n/2 + 1)`` is the volume of the unit n-ball.
+"""
+
+import functools
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import special
+from scipy.stats import qmc
+
+from .errors import InputError
+
+__all__ = ["Lattice", "LATTICE_NAMES", "get_lattice", "sample_mismatch", "ball_volume"]
+
+#: Accepted lattice names (case-insensitive) and the canonical name each maps to.
+LATTICE_NAMES = {
+    "an*": "An*", "ans": "An*", "a_n*": "An*", "anstar": "An*", "an-star": "An*",
+    "zn": "Zn", "z^n": "Zn", "hypercubic": "Zn", "cubic": "Zn",
+}
+
+
+def ball_volume(n):
+    """Volume of the unit ball in ``n`` dimensions, ``pi^(n/2) / Gamma(n/2 + 1)``."""
+    n = np.asarray(n, float)
+    return np.pi ** (n / 2) / special.gamma(n / 2 + 1)
+
+
+def _canonical(name):
+    key = str(name).strip().lower()
+    if key not in LATTICE_NAMES:
+        raise InputError("unknown lattice; use 'An*' (A_n*, the thinnest covering in low "
+                         "dimensions) or 'Zn' (hypercubic)", value=name)
+    return LATTICE_NAMES[key]
+
+
+def _hyperplane_basis(n):
+    """Orthonormal basis (n+1, n) of the hyperplane sum x = 0 in R^(n+1)."""
+    ones = np.ones((n + 1, 1)) / math.sqrt(n + 1)
+    # QR of [1, I] gives an orthonormal basis whose first vector is along (1, ..., 1)
+    q, _ = np.linalg.qr(np.hstack([ones, np.eye(n + 1)[:, :n]]))
+    return q[:, 1:]
+
+
+def _nearest_an(y):
+    """Nearest point of A_n (integer vectors with zero sum) to y (..., n+1) with sum y = 0.
+
+    SPLAG Ch. 20, Sect. 2 (algorithm for A_n): round every coordinate; if the rounded
+    coordinates sum to D != 0, move the |D| coordinates that were rounded the "wrong" way
+    most by one unit.
+    """
+    f = np.rint(y)
+    delta = y - f
+    excess = f.sum(axis=-1, keepdims=True)
+    m = y.shape[-1]
+    rank = np.argsort(np.argsort(delta, axis=-1), axis=-1)
+    # excess > 0: lower the `excess` coordinates with the smallest delta (rounded up most)
+    f = f - ((excess > 0) & (rank < excess))
+    # excess < 0: raise the |excess| coordinates with the largest delta (rounded down most)
+    f = f + ((excess < 0) & (rank >= m + excess))
+    return f
+
+
+def _nearest_anstar(y):
+    """Nearest point of A_n* (projected Z^(n+1)) to y (..., n+1) in the hyperplane.
+
+    A_n* is the union of the n+1 cosets r_i + A_n with r_i the projection of
+    e_1 + ... + e_i (SPLAG Ch. 4, Sect. 6.6, glue vectors; Ch. 20, Sect. 4): find the nearest
+    point in each coset and keep the closest.
+    """
+    m = y.shape[-1]
+    best, best_d2 = None, None
+    for i in range(m):
+        r = np.where(np.arange(m) < i, 1.0, 0.0) - i / m
+        p = r + _nearest_an(y - r)
+        d2 = ((y - p) ** 2).sum(axis=-1)
+        if best is None:
+            best, best_d2 = p, d2
+        else:
+            closer = d2 < best_d2
+            best = np.where(closer[..., None], p, best)
+            best_d2 = np.where(closer, d2, best_d2)
+    return best
+
+
+@dataclass(frozen=True)
+class Lattice:
+    """A template lattice in ``n_dims`` dimensions, scaled to covering radius 1.
+
+    Parameters
+    ----------
+    kind : str
+        ``"An*"`` or ``"Zn"`` (aliases in :data:`LATTICE_NAMES`).
+    n_dims : int
+        Dimension, >= 1.
+
+    Attributes
+    ----------
+    generator : ndarray (n_dims, n_dims)
+        Rows are basis vectors (covering radius 1).
+    thickness : float
+        Normalised thickness ``theta`` (covering-sphere volume per fundamental cell).
+    mean_mismatch_factor : float
+        Mean of ``|x - p|^2 / R^2`` for ``x`` uniform in the Voronoi cell: the mean
+        mismatch of a random signal relative to the maximum mismatch.
+
+    References
+    ----------
+    Conway & Sloane, SPLAG, Ch. 2 and 4 (thickness), Ch. 20 (nearest points);
+    Prix 2007, arXiv:0707.0428.
+    """
+
+    kind: str
+    n_dims: int
+
+    def __post_init__(self):
+        object.__setattr__(self, "kind", _canonical(self.kind))
+        if not isinstance(self.n_dims, (int, np.integer)) or self.n_dims < 1:
+            raise InputError("lattice dimension must be an integer >= 1", value=self.n_dims)
+        object.__setattr__(self, "n_dims", int(self.n_dims))
+
+    # native scale (unit spacing for Z^n; projected Z^(n+1) for A_n*)
+    @property
+    def _native_radius(self):
+        n = self.n_dims
+        if self.kind == "Zn":
+            return math.sqrt(n) / 2
+        return math.sqrt(n * (n + 2) / (12 * (n + 1)))
+
+    @property
+    def _native_generator(self):
+        n = self.n_dims
+        if self.kind == "Zn":
+            return np.eye(n)
+        # projections of e_1..e_n onto the hyperplane, in its orthonormal basis
+        return np.eye(n + 1)[:n] @ _hyperplane_basis(n)
+
+    @property
+    def generator(self):
+        """Basis vectors (rows) of the lattice with covering radius 1."""
+        return self._native_generator / self._native_radius
+
+    @property
+    def cell_volume(self):
+        """Volume of the fundamental cell at covering radius 1."""
+        return abs(np.linalg.det(self.generator))
+
+    @property
+    def thickness(self):
+        """Normalised thickness ``theta = V_n R^n / vol`` (SPLAG Ch. 2, Sect. 1.2)."""
+        return float(ball_volume(self.n_dims) / self.cell_volume)
+
+    @property
+    def mean_mismatch_factor(self):
+        """Mean of ``|x - p|^2 / R^2`` over the Voronoi cell (1/3 for Z^n)."""
+        if self.kind == "Zn":
+            return 1.0 / 3.0
+        return _anstar_mean_factor(self.n_dims)
+
+    @property
+    def normalised_second_moment(self):
+        """``G = (1/n) <|x-p|^2> / vol^(2/n)`` (SPLAG Ch. 2, Sect. 3, second moment)."""
+        # <|x-p|^2> = mean_mismatch_factor * R^2 with R = 1 here
+        return self.mean_mismatch_factor / (self.n_dims * self.cell_volume ** (2 / self.n_dims))
+
+    def nearest_point(self, x):
+        """Nearest lattice point to each point ``x`` (..., n_dims), covering radius 1.
+
+        Parameters
+        ----------
+        x : array_like (..., n_dims)
+            Points in lattice units (whitened coordinates over ``sqrt(mu_max)``).
+
+        Returns
+        -------
+        ndarray (..., n_dims)
+            The nearest lattice points.
+        """
+        x = np.asarray(x, float)
+        if x.shape[-1:] != (self.n_dims,):
+            raise InputError(f"points must have a last axis of length {self.n_dims}",
+                             value=x.shape)
+        r = self._native_radius
+        if self.kind == "Zn":
+            return np.rint(x * r) / r
+        basis = _hyperplane_basis(self.n_dims)
+        y = (x * r) @ basis.T
+        return (_nearest_anstar(y) @ basis) / r
+
+    def sample_mismatch(self, max_mismatch=1.0, size=10000, rng=None):
+        """Mismatches of signals uniform in the Voronoi cell: ``mu_max |x - p|^2``.
+
+        Parameters
+        ----------
+        max_mismatch : float or array_like
+            Maximum mismatch ``mu_max`` in (0, 1]; broadcasts against ``size``.
+        size : int or tuple of int
+            Shape of the draws.
+        rng : None, int or numpy.random.Generator
+            Random generator or seed.
+
+        Returns
+        -------
+        ndarray
+            Mismatches in ``[0, mu_max]``, shape ``broadcast(size, shape(max_mismatch))``.
+        """
+        rng = np.random.default_rng(rng)
+        mm = np.asarray(max_mismatch, float)
+        if np.any(~(mm > 0)) or np.any(mm > 1):
+            raise InputError("max_mismatch must be in (0, 1]", value=max_mismatch)
+        shape = (size,) if np.ndim(size) == 0 else tuple(size)
+        # uniform in the fundamental parallelepiped is uniform in the Voronoi cell modulo
+        # the lattice, so the offset to the nearest point has the Voronoi-cell distribution
+        x = rng.random(shape + (self.n_dims,)) @ self.generator
+        d2 = ((x - self.nearest_point(x)) ** 2).sum(axis=-1)
+        return mm * d2
+
+
+@functools.lru_cache(maxsize=None)
+def _anstar_mean_factor(n, log2_points=16, seed=20100517):
+    """Mean of |x-p|^2/R^2 over A_n*'s Voronoi cell by scrambled-Sobol integration."""
+    lat = Lattice("An*", n)
+    u = qmc.Sobol(d=n, scramble=True, seed=seed).random_base2(log2_points)
+    x = u @ lat.generator
+    return float(((x - lat.nearest_point(x)) ** 2).sum(axis=-1).mean())
+
+
+@functools.lru_cache(maxsize=None)
+def get_lattice(name, n_dims):
+    """The :class:`Lattice` ``name`` ('An*' or 'Zn') in ``n_dims`` dimensions (cached)."""
+    return Lattice(name, int(n_dims))
+
+
+def sample_mismatch(lattice, n_dims, max_mismatch, size=10000, rng=None):
+    """Draw mismatches of signals placed uniformly at random relative to a template lattice.
+
+    The sensitivity model draws the mismatch of a stage from here.
+
+    Parameters
+    ----------
+    lattice : str or Lattice
+        ``"An*"`` or ``"Zn"`` (ignored if a :class:`Lattice` is given, except for its kind).
+    n_dims : int
+        Dimension of the template bank (the ``n_dims_coh`` / ``n_dims_semi`` columns of
+        :func:`cwlimits.cost.count_templates`).
+    max_mismatch : float or array_like
+        Maximum mismatch of the stage, in (0, 1].
+    size : int or tuple of int
+        Shape of the draws.
+    rng : None, int or numpy.random.Generator
+        Random generator or seed.
+
+    Returns
+    -------
+    ndarray
+        Mismatch samples in ``[0, max_mismatch]``; their mean is
+        ``lattice.mean_mismatch_factor * max_mismatch``.
+
+    Notes
+    -----
+    The mismatch is the quadratic metric mismatch (valid for small ``mu``).  For a
+    StackSlide search the coarse and fine mismatches add approximately (Prix & Shaltev 2012,
+    arXiv:1201.4321; from memory), so a total can be drawn as the sum of two independent
+    draws.
+    """
+    kind = lattice.kind if isinstance(lattice, Lattice) else lattice
+    return get_lattice(_canonical(kind), int(n_dims)).sample_mismatch(max_mismatch, size, rng)
