@@ -15,6 +15,7 @@ arguments, runs the command and turns errors into exit codes:
 import argparse
 import importlib
 import logging
+import os
 import pkgutil
 import sys
 
@@ -81,6 +82,11 @@ def main(argv=None):
     except KeyboardInterrupt:
         print("interrupted: finished work has been kept", file=sys.stderr)
         return 130
+    except BrokenPipeError:
+        # The reader of our output went away (``cwlimits ... | head``): stop quietly, as
+        # the Python documentation advises, pointing stdout at devnull for the exit flush.
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 1
     except Exception as exc:  # the last line of defence: one line, not a traceback
         if args.verbose:
             raise
