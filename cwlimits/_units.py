@@ -5,6 +5,8 @@ convert once to plain SI floats for the kernels and turn astropy's unit errors i
 :class:`~cwlimits.errors.UnitsMismatchError` messages that name the argument.
 """
 
+import re
+
 import astropy.units as u
 import numpy as np
 
@@ -55,10 +57,21 @@ def to_value(quantity, unit, name, *, allow_bare=False):
         ) from None
 
 
+_BARE_POWER = re.compile(r"(\^|\*\*)\s*(-?[0-9.]+(?:/[0-9.]+)?)")
+
+
 def parse_unit(text, name="unit", error=UnitsMismatchError, **where):
-    """Parse a unit string, raising a located ``error`` on failure."""
+    """Parse a unit string, raising a located ``error`` on failure.
+
+    Besides everything astropy reads, a power without parentheses is accepted, as people
+    write amplitude spectral densities: ``Hz^-1/2`` and ``Hz**-0.5`` mean ``Hz^(-1/2)``.
+    """
     try:
         return u.Unit(text)
+    except ValueError:
+        pass
+    try:
+        return u.Unit(_BARE_POWER.sub(r"\1(\2)", text))
     except ValueError:
         raise error(f"{name}: not a unit astropy understands", value=text, **where) from None
 
