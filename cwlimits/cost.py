@@ -46,7 +46,10 @@ from .metric import _coherent_metric_scaled, _segments, _semicoherent_metric_sca
 from .parameter_space import AgeBasedSpace, ParameterSpace
 
 __all__ = ["count_templates", "computing_cost", "CostEstimate", "scan_cost",
-           "resolve_space", "SCAN_QUANTITIES"]
+           "plot_cost_scan", "resolve_space", "SCAN_QUANTITIES", "PLOT_SUFFIXES"]
+
+#: File types :func:`plot_cost_scan` writes.
+PLOT_SUFFIXES = (".png", ".pdf", ".svg")
 
 #: What :func:`scan_cost` can scan.
 SCAN_QUANTITIES = ("t_seg", "n_seg")
@@ -317,3 +320,74 @@ def scan_cost(setup, target_or_space, quantity, values, bands=None):
         if quantity == "t_seg" and setup.span is not None else ""))
     table.meta["assumptions"] = assumptions
     return table
+
+
+def plot_cost_scan(scan, quantity, path, *, title=None):
+    """Plot the total cost of a :func:`scan_cost` table against the scanned quantity.
+
+    Log axes; the coherent and semi-coherent parts and the total are drawn with different
+    line styles and markers (readable in greyscale).
+
+    Parameters
+    ----------
+    scan : astropy.table.QTable
+        The output of :func:`scan_cost`.
+    quantity : {'t_seg', 'n_seg'}
+        The scanned column.
+    path : str or Path
+        ``.png``, ``.pdf`` or ``.svg``; written atomically.
+    title : str, optional
+        Plot title.
+
+    Returns
+    -------
+    Path
+    """
+    from pathlib import Path
+
+    from .tables import atomic_write
+
+    path = Path(path)
+    if path.suffix.lower() not in PLOT_SUFFIXES:
+        raise InputError(f"plot file must end in {', '.join(PLOT_SUFFIXES)}", file=str(path))
+    if quantity not in SCAN_QUANTITIES:
+        raise InputError(f"can plot only {' or '.join(SCAN_QUANTITIES)}", value=quantity)
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    import matplotlib.ticker
+
+    x = np.asarray(scan[quantity].to_value(u.day) if quantity == "t_seg" else scan[quantity],
+                   float)
+    fig, ax = plt.subplots(figsize=(6.5, 4.5))
+    for column, label, style, marker in (("cost", "total", "-", "o"),
+                                         ("cost_coh", "coherent stage", "--", "s"),
+                                         ("cost_semi", "semi-coherent stage", ":", "^")):
+        y = scan[column].to_value(u.h)
+        ok = y > 0
+        ax.loglog(x[ok], y[ok], linestyle=style, marker=marker, color="k" if column ==
+                  "cost" else None, label=label)
+    ax.set_xlabel("coherent segment length T_seg [day]" if quantity == "t_seg"
+                  else "number of segments N_seg")
+    ax.set_ylabel("computing cost [core-hours]")
+    # plain numbers on the scanned axis (it rarely spans more than two decades)
+    plain = matplotlib.ticker.FuncFormatter(lambda v, _: f"{v:g}")
+    ax.xaxis.set_major_formatter(plain)
+    ax.xaxis.set_minor_formatter(matplotlib.ticker.NullFormatter())
+    ax.grid(True, which="both", alpha=0.3)
+    ax.legend()
+    if title:
+        ax.set_title(title)
+    fig.tight_layout()
+    fmt = path.suffix.lower().lstrip(".")
+
+    def write(handle):
+        # atomic_write opens text files; matplotlib needs the binary buffer underneath
+        fig.savefig(handle.buffer if hasattr(handle, "buffer") else handle, format=fmt)
+
+    try:
+        atomic_write(path, write)
+    finally:
+        plt.close(fig)
+    return path

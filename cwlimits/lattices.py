@@ -43,7 +43,8 @@ from scipy.stats import qmc
 
 from .errors import InputError
 
-__all__ = ["Lattice", "LATTICE_NAMES", "get_lattice", "sample_mismatch", "ball_volume"]
+__all__ = ["Lattice", "LATTICE_NAMES", "get_lattice", "sample_mismatch", "ball_volume",
+           "nearest_template"]
 
 #: Accepted lattice names (case-insensitive) and the canonical name each maps to.
 LATTICE_NAMES = {
@@ -297,3 +298,56 @@ def sample_mismatch(lattice, n_dims, max_mismatch, size=10000, rng=None):
     """
     kind = lattice.kind if isinstance(lattice, Lattice) else lattice
     return get_lattice(_canonical(kind), int(n_dims)).sample_mismatch(max_mismatch, size, rng)
+
+
+def nearest_template(points, metric, max_mismatch, lattice="An*", origin=None):
+    """Nearest template of a lattice bank laid out with a constant metric.
+
+    The bank is the lattice in whitened coordinates ``w = L^T (lambda - origin) /
+    sqrt(mu_max)`` (``g = L L^T``, Cholesky), so that its covering radius is the maximum
+    mismatch: every point lies within ``mu_max`` of its nearest template.
+
+    Parameters
+    ----------
+    points : array_like (..., n)
+        Parameter-space points in the metric's (SI) coordinates.
+    metric : array_like (n, n)
+        Constant positive-definite metric ``g`` (e.g. :func:`cwlimits.metric.coherent_metric`).
+    max_mismatch : float
+        Maximum mismatch ``mu_max`` in (0, 1].
+    lattice : str
+        ``"An*"`` or ``"Zn"``.
+    origin : array_like (n,), optional
+        A template of the bank (default: the first point).
+
+    Returns
+    -------
+    templates : ndarray (..., n)
+        The nearest template to each point.
+    mismatch : ndarray (...)
+        The metric mismatch ``g_kl dl^k dl^l`` to it.
+    """
+    pts = np.asarray(points, float)
+    g = np.asarray(metric, float)
+    n = g.shape[-1]
+    if g.shape != (n, n) or pts.shape[-1:] != (n,):
+        raise InputError("metric must be (n, n) and points (..., n)",
+                         value=(g.shape, pts.shape))
+    mm = float(max_mismatch)
+    if not 0 < mm <= 1:
+        raise InputError("max_mismatch must be in (0, 1]", value=max_mismatch)
+    lat = get_lattice(_canonical(lattice), n)
+    origin = pts.reshape(-1, n)[0] if origin is None else np.asarray(origin, float)
+    # scale to unit diagonal first: the Cholesky factor of an SI metric (entries from
+    # s^2 to s^8) is then well conditioned
+    d = np.sqrt(np.diag(g))
+    try:
+        chol = np.linalg.cholesky(g / np.outer(d, d))
+    except np.linalg.LinAlgError:
+        raise InputError("metric is not positive definite") from None
+    forward = d[:, None] * chol / math.sqrt(mm)      # w = (lambda - origin) @ forward
+    w = (pts - origin) @ forward
+    templates = np.linalg.solve(forward.T, lat.nearest_point(w).reshape(-1, n).T).T
+    templates = templates.reshape(pts.shape) + origin
+    delta = pts - templates
+    return templates, np.einsum("...k,kl,...l->...", delta, g, delta)

@@ -1,0 +1,272 @@
+"""``cwlimits cost``: template counts and computing cost of a segment setup, per band."""
+
+import math
+
+import astropy.units as u
+import numpy as np
+
+from ..cost import PLOT_SUFFIXES, computing_cost, plot_cost_scan, scan_cost
+from ..errors import InputError
+from ..lattices import LATTICE_NAMES
+from ..setup import DEFAULT_UNIT_COSTS, SearchSetup, load_setup
+from ..tables import write_table
+from ._common import (
+    add_parser,
+    add_target_args,
+    check_output_path,
+    echo,
+    format_assumptions,
+    format_rows,
+    quantity_arg,
+    resolve_target,
+    sci,
+)
+
+__all__ = ["ORDER", "register", "run"]
+
+ORDER = 40
+
+_EXAMPLES = [
+    "cwlimits cost --age 1000yr --t-seg 10day --n-seg 12 --f-min 50Hz --f-max 500Hz",
+    "cwlimits cost --setup search.toml --age 3000yr --out cost.ecsv",
+    "cwlimits cost --setup search.toml --catalogue target_lists/demo.csv "
+    "--target 'Fict Ember' --band-width 10Hz",
+    "cwlimits cost --setup search.toml --age 1000yr --scan t-seg --scan-range 1day 30day "
+    "--plot scan.png",
+    "cwlimits cost --setup search.toml --age 1000yr --scan segments --scan-range 4 64",
+    "cwlimits cost --age 500yr --t-seg 5day --n-seg 20 --f-min 100Hz --f-max 300Hz "
+    "--mismatch-coarse 0.5 --mismatch-fine 0.2 --lattice Zn --detectors H1,L1,V1",
+]
+
+# option dest -> SearchSetup field (or a part of one)
+_OVERRIDES = ("t_seg", "n_seg", "span", "duty_factor", "mismatch_coarse", "mismatch_fine",
+              "lattice", "band_width", "cost_coherent", "cost_semicoherent")
+
+
+def register(subparsers, common):
+    """Add the ``cost`` subcommand."""
+    parser = add_parser(
+        subparsers, common, "cost",
+        help="template counts and computing cost of a semi-coherent search, per band",
+        description="Count the coherent (per segment) and semi-coherent templates of a "
+                    "StackSlide search of the age-based parameter space of a target, per "
+                    "frequency band, and its computing cost in core-hours: "
+                    "C = N_seg N_coh c_coh N_det + N_seg N_semi c_semi.  The setup comes "
+                    "from --setup FILE (TOML) and/or the options below; options override "
+                    "the file.  Without --setup, --t-seg, --n-seg, --f-min and --f-max are "
+                    "needed.",
+        examples=_EXAMPLES)
+    parser.add_argument("--setup", metavar="FILE", help="TOML setup file")
+    who = parser.add_argument_group("target (one of)")
+    who.add_argument("--age", type=quantity_arg(u.yr, "age"), metavar="AGE",
+                     help="age of the target (e.g. 1000yr)")
+    add_target_args(who, required=False)
+    grp = parser.add_argument_group("setup (override the file)")
+    grp.add_argument("--t-seg", type=quantity_arg(u.day, "segment length"), metavar="T",
+                     help="coherent segment length (e.g. 10day)")
+    grp.add_argument("--n-seg", type=int, metavar="N", help="number of segments")
+    grp.add_argument("--span", type=quantity_arg(u.day, "span"), metavar="T",
+                     help="total observation span (segments spread evenly over it)")
+    grp.add_argument("--duty-factor", type=float, metavar="X",
+                     help="fraction of time with data (for the sensitivity; not the cost)")
+    grp.add_argument("--detectors", metavar="LIST",
+                     help="comma-separated site codes (default H1,L1)")
+    grp.add_argument("--mismatch-coarse", type=float, metavar="MU",
+                     help="maximum mismatch of the coherent grid (default 0.3)")
+    grp.add_argument("--mismatch-fine", type=float, metavar="MU",
+                     help="maximum mismatch of the semi-coherent grid (default 0.3)")
+    grp.add_argument("--lattice", choices=sorted({"An*", "Zn"}),
+                     help="template lattice (default An*)")
+    grp.add_argument("--f-min", type=quantity_arg(u.Hz, "f_min"), metavar="F",
+                     help="lower band edge")
+    grp.add_argument("--f-max", type=quantity_arg(u.Hz, "f_max"), metavar="F",
+                     help="upper band edge")
+    grp.add_argument("--band-width", type=quantity_arg(u.Hz, "band width"), metavar="DF",
+                     help="width of the reporting bands (default 1Hz)")
+    grp.add_argument("--braking-index-min", type=float, metavar="N",
+                     help="smallest braking index (default 2)")
+    grp.add_argument("--braking-index-max", type=float, metavar="N",
+                     help="largest braking index (default 7)")
+    grp.add_argument("--cost-coherent", type=quantity_arg(u.s, "unit cost"), metavar="T",
+                     help="seconds per coherent template per detector per segment "
+                          f"(default {DEFAULT_UNIT_COSTS['coherent']})")
+    grp.add_argument("--cost-semicoherent", type=quantity_arg(u.s, "unit cost"),
+                     metavar="T", help="seconds per semi-coherent template per segment "
+                                       f"(default {DEFAULT_UNIT_COSTS['semicoherent']})")
+    out = parser.add_argument_group("output")
+    out.add_argument("--out", metavar="FILE",
+                     help="write the per-band (or scan) table (.csv or .ecsv)")
+    out.add_argument("--scan", choices=("t-seg", "segments"),
+                     help="total cost against the segment length or the number of segments")
+    out.add_argument("--scan-range", nargs=2, metavar=("FROM", "TO"),
+                     help="scan range: times for t-seg (e.g. 1day 30day), integers for "
+                          "segments (default: a quarter to four times the setup's value)")
+    out.add_argument("--scan-steps", type=int, default=9, metavar="K",
+                     help="number of log-spaced scan values (default 9)")
+    out.add_argument("--plot", metavar="FILE",
+                     help="with --scan: plot cost against the scanned quantity (.png, "
+                          ".pdf, .svg)")
+    parser.set_defaults(run=run)
+
+
+def _build_setup(args):
+    base = load_setup(args.setup) if args.setup else None
+    given = {name: getattr(args, name) for name in _OVERRIDES
+             if getattr(args, name) is not None}
+    if args.detectors is not None:
+        given["detectors"] = tuple(d.strip() for d in args.detectors.split(",") if d.strip())
+    try:
+        if base is None:
+            missing = [opt for opt, name in (("--t-seg", "t_seg"), ("--n-seg", "n_seg"))
+                       if name not in given]
+            missing += [opt for opt in ("--f-min", "--f-max")
+                        if getattr(args, opt[2:].replace("-", "_")) is None]
+            if missing:
+                raise InputError(f"without --setup FILE give {', '.join(missing)}")
+            n_min = 2.0 if args.braking_index_min is None else args.braking_index_min
+            n_max = 7.0 if args.braking_index_max is None else args.braking_index_max
+            return SearchSetup(band=(args.f_min, args.f_max), braking_index=(n_min, n_max),
+                               **given)
+        band = (args.f_min if args.f_min is not None else base.f_min,
+                args.f_max if args.f_max is not None else base.f_max)
+        n_min, n_max = base.braking_index
+        n_min = n_min if args.braking_index_min is None else args.braking_index_min
+        n_max = n_max if args.braking_index_max is None else args.braking_index_max
+        if base.mid_times is not None and ("t_seg" in given or "n_seg" in given):
+            # explicit mid-times belong to the file's segments; new segments drop them
+            given["mid_times"] = None
+        return base.replace(band=band, braking_index=(n_min, n_max), **given)
+    except InputError as exc:
+        field = getattr(exc, "field", None)
+        if field is None:
+            raise
+        option = {"n_min": "braking-index-min", "n_max": "braking-index-max",
+                  "band": "f-min/--f-max"}.get(field, field.replace("_", "-"))
+        raise InputError(f"--{option}: {getattr(exc, 'short', exc.reason)}",
+                         value=exc.value) from None
+
+
+def _target_space(args):
+    if args.age is not None and (args.catalogue or args.target):
+        raise InputError("give either --age or --catalogue/--target, not both")
+    if args.age is not None:
+        return args.age, f"age {args.age}"
+    if args.catalogue and args.target:
+        target = resolve_target(args)
+        return target, f"target {target.name} of {args.catalogue} (age {target.age})"
+    if args.catalogue or args.target:
+        raise InputError("--catalogue and --target go together")
+    raise InputError("give the target: --age AGE, or --catalogue FILE --target NAME")
+
+
+def _scan_values(args, setup):
+    steps = args.scan_steps
+    if steps < 2:
+        raise InputError("--scan-steps must be at least 2", value=steps)
+    if args.scan == "t-seg":
+        if args.scan_range:
+            lo, hi = (quantity_arg(u.day, "scan range")(x) for x in args.scan_range)
+        else:
+            lo, hi = setup.t_seg / 4, setup.t_seg * 4
+            if setup.span is not None:
+                hi = min(hi.to(u.day), setup.span.to(u.day))
+        lo, hi = lo.to_value(u.day), hi.to_value(u.day)
+        if not 0 < lo < hi:
+            raise InputError("--scan-range needs 0 < FROM < TO", value=args.scan_range)
+        return "t_seg", np.geomspace(lo, hi, steps) << u.day
+    if args.scan_range:
+        try:
+            lo, hi = (int(x) for x in args.scan_range)
+        except ValueError:
+            raise InputError("--scan-range for segments takes two integers",
+                             value=args.scan_range) from None
+    else:
+        lo, hi = max(1, setup.n_seg // 4), setup.n_seg * 4
+    if not 1 <= lo < hi:
+        raise InputError("--scan-range needs 1 <= FROM < TO", value=(lo, hi))
+    values = np.unique(np.rint(np.geomspace(lo, hi, steps)).astype(int))
+    return "n_seg", values
+
+
+def run(args):
+    """Run ``cwlimits cost``."""
+    out = check_output_path(args.out)
+    plot = None
+    if args.plot is not None:
+        if args.scan is None:
+            raise InputError("--plot needs --scan (t-seg or segments)")
+        plot = check_output_path(args.plot, PLOT_SUFFIXES)
+    setup = _build_setup(args)
+    target, what = _target_space(args)
+    if args.scan:
+        quantity, values = _scan_values(args, setup)
+        table = scan_cost(setup, target, quantity, values)
+        _print_scan(args, table, quantity, what)
+        title = f"computing cost against {quantity} for {what}"
+    else:
+        estimate = computing_cost(setup, target)
+        table = estimate.table
+        _print_bands(args, estimate, setup, what)
+        title = f"template counts and computing cost for {what}"
+    echo(args)
+    echo(args, format_assumptions(table.meta["assumptions"]))
+    if out is not None:
+        write_table(table, out, title=title, assumptions=table.meta["assumptions"])
+        echo(args, f"wrote {out}")
+    if plot is not None:
+        plot_cost_scan(table, quantity, plot, title=title)
+        echo(args, f"wrote {plot}")
+    return 0
+
+
+def _band_rows(table, idx):
+    return [[f"{table['f_min'][i].value:.6g}", f"{table['f_max'][i].value:.6g}",
+             sci(table["n_coh"][i]), str(int(table["dims_coh"][i])), sci(table["n_semi"][i]),
+             str(int(table["dims_semi"][i])), sci(table["cost"][i].to_value(u.h))]
+            for i in idx]
+
+
+def _print_bands(args, estimate, setup, what):
+    table = estimate.table
+    n = len(table)
+    echo(args, f"computing cost of {setup.n_seg} x {setup.t_seg} segments, "
+               f"{','.join(setup.detectors)}, {what}")
+    headers = ["f_min [Hz]", "f_max [Hz]", "N_coh/seg", "dim", "N_semi", "dim",
+               "cost [core-h]"]
+    if n <= 20:
+        echo(args, format_rows(headers, _band_rows(table, range(n))))
+    else:
+        head = format_rows(headers, _band_rows(table, list(range(8)) + list(range(n - 4, n))))
+        lines = head.splitlines()
+        lines.insert(2 + 8, f"... {n - 12} more bands (all of them with --out FILE)")
+        echo(args, "\n".join(lines))
+    echo(args)
+    echo(args, f"bands: {n} of {setup.band_width} from {setup.f_min} to {setup.f_max}")
+    echo(args, f"coherent templates per segment: {sci(estimate.n_coh_total)}; "
+               f"semi-coherent templates: {sci(estimate.n_semi_total)}")
+    echo(args, f"total cost: {sci(estimate.total.to_value(u.h))} core-hours "
+               f"(coherent {sci(estimate.total_coherent.to_value(u.h))}, semi-coherent "
+               f"{sci(estimate.total_semicoherent.to_value(u.h))}; "
+               f"{_readable(estimate.total)})")
+
+
+def _readable(cost):
+    hours = cost.to_value(u.h)
+    if not math.isfinite(hours):
+        return "not finite"
+    return f"{hours / (24 * 365.25):.3g} core-years"
+
+
+def _print_scan(args, table, quantity, what):
+    echo(args, f"computing cost against {quantity} for {what}")
+    headers = ["T_seg [day]", "N_seg", "N_coh/seg", "N_semi", "coherent [core-h]",
+               "semi-coherent [core-h]", "total [core-h]"]
+    rows = [[f"{r['t_seg'].to_value(u.day):.4g}", str(int(r["n_seg"])), sci(r["n_coh"]),
+             sci(r["n_semi"]), sci(r["cost_coh"].to_value(u.h)),
+             sci(r["cost_semi"].to_value(u.h)), sci(r["cost"].to_value(u.h))]
+            for r in table]
+    echo(args, format_rows(headers, rows))
+
+
+# keep the lattice names visible to --help readers who look for aliases
+_ = LATTICE_NAMES
