@@ -1,0 +1,507 @@
+"""Tests of cwlimits.detection against published values, scipy.stats and a Monte Carlo.
+
+The Monte-Carlo estimator here is independent of the package: it draws the orientation from
+textbook antenna patterns, the mismatch, and the non-central chi-squared statistic from its
+definition (sum of squares of unit normals), counts detections and bisects on the amplitude.
+"""
+
+import astropy.units as u
+import numpy as np
+import pytest
+from scipy import integrate, stats
+
+from cwlimits import detection as det
+from cwlimits.errors import (
+    ComputationError,
+    CwlimitsError,
+    InputError,
+    UnitsMismatchError,
+)
+
+# ---------------------------------------------------------------------------------------
+# Reference values (value, tolerance, reason, source)
+# ---------------------------------------------------------------------------------------
+# h0 = 11.4 sqrt(S_n / T) for a coherent single-template search at 1 % false alarm and
+# 10 % false dismissal with rho2 = (4/25) h0^2 T / S_n.  Tolerance 0.05: the published
+# value is rounded to 0.1.  Source: Abbott et al. 2004, PRD 69, 082004, gr-qc/0308050.
+ABBOTT_2004_H0_FACTOR = 11.4
+ABBOTT_2004_TOL = 0.05
+# <R2> averaged over sky, psi and cos iota for one 90-degree detector = (1/5)(7/15 + 1/3)
+# = 4/25 (Jaranowski, Krolak & Schutz 1998, gr-qc/9804014).
+R2_MEAN_ONE_DETECTOR = 4.0 / 25.0
+# Monte-Carlo agreement required by the task: 3 %.
+MC_TOLERANCE = 0.03
+
+T_DATA = 1.0 * u.s  # depths are then in units of sqrt(T_data)
+PSD = 1.0 * u.Hz**-1
+
+
+# ---------------------------------------------------------------------------------------
+# Independent R2 distributions (textbook long-wavelength antenna patterns)
+# ---------------------------------------------------------------------------------------
+def antenna_patterns(cos_theta, phi, psi):
+    """F+ and Fx of one 90-degree detector (common practice).
+
+    F+ = (1/2)(1 + cos^2 theta) cos 2phi cos 2psi - cos theta sin 2phi sin 2psi,
+    Fx = (1/2)(1 + cos^2 theta) cos 2phi sin 2psi + cos theta sin 2phi cos 2psi.
+    """
+    a = 0.5 * (1 + cos_theta**2) * np.cos(2 * phi)
+    b = cos_theta * np.sin(2 * phi)
+    return a * np.cos(2 * psi) - b * np.sin(2 * psi), a * np.sin(2 * psi) + b * np.cos(2 * psi)
+
+
+def draw_r2(n, rng, sky="all"):
+    """Samples of R2 = F+^2 (1 + x^2)^2 / 4 + Fx^2 x^2, x = cos iota (common practice).
+
+    ``sky="all"``: isotropic sky; otherwise a fixed sky position (cos theta = 0.3, phi = 1 rad).
+    psi uniform on [0, pi), cos iota uniform on [-1, 1].
+    """
+    if sky == "all":
+        cos_theta = stats.uniform.rvs(-1, 2, size=n, random_state=rng)
+        phi = stats.uniform.rvs(0, 2 * np.pi, size=n, random_state=rng)
+    else:
+        cos_theta, phi = 0.3, 1.0
+    psi = stats.uniform.rvs(0, np.pi, size=n, random_state=rng)
+    x = stats.uniform.rvs(-1, 2, size=n, random_state=rng)
+    fp, fx = antenna_patterns(cos_theta, phi, psi)
+    return fp**2 * (1 + x**2) ** 2 / 4 + fx**2 * x**2
+
+
+@pytest.fixture(scope="module")
+def r2_all_sky():
+    return draw_r2(100_000, np.random.default_rng(11), "all")
+
+
+@pytest.fixture(scope="module")
+def r2_fixed_sky():
+    return draw_r2(100_000, np.random.default_rng(12), "fixed")
+
+
+def test_r2_samples_have_textbook_mean(r2_all_sky):
+    # <R2> = 4/25 for the all-sky average (JKS 1998); MC error of the mean ~ 0.13/sqrt(1e5).
+    sigma = r2_all_sky.std() / np.sqrt(r2_all_sky.size)
+    assert abs(r2_all_sky.mean() - R2_MEAN_ONE_DETECTOR) < 4 * sigma
+
+
+# ---------------------------------------------------------------------------------------
+# Thresholds
+# ---------------------------------------------------------------------------------------
+def test_threshold_single_template_is_chi2_isf():
+    # Noise-only 2F is chi-squared with 4 dof for N = 1 (JKS 1998); scipy.stats reference.
+    thr = det.false_alarm_threshold(0.01, 1, 1)
+    assert thr.unit == u.one
+    assert thr.value == pytest.approx(stats.chi2.isf(0.01, 4), rel=1e-12)
+
+
+@pytest.mark.parametrize("n_seg", [1, 7, 500])
+def test_threshold_trials_correction(n_seg):
+    # p per template = 1 - (1 - p_band)^(1/N_t) for independent templates (common practice);
+    # threshold = chi2.isf(p, 4N) (scipy.stats), evaluated naively where that is precise.
+    p_band, n_t = 0.05, 1e6
+    p_t = 1 - (1 - p_band) ** (1 / n_t)
+    thr = det.false_alarm_threshold(p_band, n_t, n_seg)
+    assert thr.value == pytest.approx(stats.chi2.isf(p_t, 4 * n_seg), rel=1e-9)
+    # The segment-average convention divides by N (definition of 2F/N).
+    mean = det.false_alarm_threshold(p_band, n_t, n_seg, statistic="mean")
+    assert mean.value == pytest.approx(thr.value / n_seg, rel=1e-14)
+
+
+def test_threshold_tiny_false_alarm_in_log_space():
+    # Per-template p ~ 1e-3/1e300 = 1e-303 is below where chi2.isf is used: the threshold must
+    # still satisfy chi2.logsf(thr, 4N) = log(p) (scipy.stats) to high relative precision.
+    for n_seg in (1, 40):
+        thr = det.false_alarm_threshold(1e-3, 1e300, n_seg).value
+        # log p to first order: log(p_band / N_t) (p_band small; common practice)
+        assert stats.chi2.logsf(thr, 4 * n_seg) == pytest.approx(
+            np.log(1e-3) - 300 * np.log(10), rel=1e-6)
+    # Across the switch at 1e-300 the threshold grows monotonically.
+    thr = det.false_alarm_threshold(1e-3, np.array([1e296, 1e297, 1e298, 1e299]), 3).value
+    assert np.all(np.diff(thr) > 0)
+
+
+def test_threshold_per_template_1e_minus_10():
+    # chi2.isf keeps precision at 1e-10 per template: round trip through chi2.sf (scipy).
+    thr = det.false_alarm_threshold(1e-10, 1, np.array([1, 100, 1000])).value
+    assert stats.chi2.sf(thr, 4 * np.array([1, 100, 1000])) == pytest.approx(1e-10, rel=1e-8)
+
+
+# ---------------------------------------------------------------------------------------
+# Published worked example
+# ---------------------------------------------------------------------------------------
+def test_abbott_2004_coherent_single_template():
+    # Abbott et al. 2004 (gr-qc/0308050): h0 = 11.4 sqrt(S_n / T) for 1 % false alarm,
+    # 10 % false dismissal, rho2 = (4/25) h0^2 T / S_n, one template, coherent (N = 1).
+    t_data, psd = 3.0e6 * u.s, 4.0e-46 / u.Hz
+    thr = det.false_alarm_threshold(0.01, 1, 1)
+    h0 = det.solve_amplitude(thr, 1, t_data, psd, R2_MEAN_ONE_DETECTOR, 0.0, 0.9,
+                             method="exact")
+    factor = h0.value / np.sqrt(psd.value / t_data.value)
+    assert abs(factor - ABBOTT_2004_H0_FACTOR) < ABBOTT_2004_TOL
+    # The depth is the same number: D = sqrt(S_n)/h0 = sqrt(T)/11.4.
+    depth = det.critical_depth(thr, 1, t_data, R2_MEAN_ONE_DETECTOR, 0.0, 0.9)
+    assert depth.unit == u.Hz**-0.5
+    assert depth.value * factor == pytest.approx(np.sqrt(t_data.value), rel=1e-7)
+
+
+# ---------------------------------------------------------------------------------------
+# Distributions: Sankaran approximation and likelihood
+# ---------------------------------------------------------------------------------------
+@pytest.mark.parametrize("df", [400, 4000, 40000])
+def test_sankaran_against_ncx2(df):
+    # The approximation used for 4N >= 400 must match scipy.stats.ncx2.sf to 3e-5 (the bound
+    # claimed in the module) over thresholds for false alarms 1e-2..1e-20 and all nc.
+    for p in (1e-2, 1e-6, 1e-10, 1e-20):
+        x = stats.chi2.isf(p, df)
+        nc = np.linspace(0, 4 * x, 4001)
+        err = np.abs(det._sankaran_sf(x, df, nc) - stats.ncx2.sf(x, df, nc))
+        assert err.max() < 3e-5
+
+
+def test_auto_and_exact_detection_probability_agree(r2_all_sky):
+    # method="auto" (Sankaran at 4N >= 400) against scipy.stats.ncx2.sf throughout.
+    n_seg = np.array([100, 1000])
+    thr = det.false_alarm_threshold(1e-8, 1, n_seg)
+    h0 = np.array([[0.5], [1.0], [2.0]]) * det.solve_amplitude(
+        thr, n_seg, T_DATA, PSD, r2_all_sky, 0.1, 0.9).value
+    p_auto = det.detection_probability(h0, thr, n_seg, T_DATA, PSD, r2_all_sky, 0.1)
+    p_exact = det.detection_probability(h0, thr, n_seg, T_DATA, PSD, r2_all_sky, 0.1,
+                                        method="exact")
+    assert np.max(np.abs(p_auto - p_exact)) < 3e-5
+
+
+def test_condensed_rule_matches_full_rule(r2_all_sky):
+    # Condensing 3000 x 16 product nodes to 64 must not move the depth by more than 5e-4
+    # (measured <= 2e-4; the full sum with scipy.stats.ncx2.sf is the reference).
+    mu = (np.linspace(0, 0.5, 17)[:-1] + 1 / 64, np.ones(16))
+    thr = det.false_alarm_threshold(1e-6, 1, np.array([1, 30, 1000]))
+    full = det.critical_depth(thr, [1, 30, 1000], T_DATA, r2_all_sky[:3000], mu, 0.9,
+                              max_nodes=None, method="exact")
+    fast = det.critical_depth(thr, [1, 30, 1000], T_DATA, r2_all_sky[:3000], mu, 0.9)
+    np.testing.assert_allclose(fast.value, full.value, rtol=5e-4)
+
+
+@pytest.mark.parametrize("n_seg", [1, 10, 200])
+@pytest.mark.parametrize("h0", [0.0, 5.0, 20.0])
+def test_likelihood_integrates_to_one(n_seg, h0, r2_fixed_sky):
+    # A density of the statistic must integrate to 1 (scipy.integrate.quad); h0 in units of
+    # sqrt(S_n/T) since T = 1 s, S_n = 1/Hz.  The range is split at the mean
+    # 4N + <rho2> and ends 40 standard deviations above it, so quad sees the peak.
+    mu = (np.array([0.05, 0.2]), np.array([0.5, 0.5]))
+    r2 = r2_fixed_sky[:1000]
+    rho2_max = r2.max() * h0**2
+    centre = 4 * n_seg + np.mean(r2) * 0.875 * h0**2
+    top = 4 * n_seg + rho2_max + 40 * np.sqrt(8 * n_seg + 4 * rho2_max)
+    for statistic, scale in (("sum", 1), ("mean", n_seg)):
+        # In the segment-average convention the density is per unit of 2F/N.
+        def pdf(x, statistic=statistic):
+            return det.marginal_likelihood(x, h0, n_seg, T_DATA, PSD, r2, mu,
+                                           statistic=statistic).value
+
+        total = sum(integrate.quad(pdf, lo / scale, hi / scale, limit=200)[0]
+                    for lo, hi in ((0, centre), (centre, top)))
+        assert total == pytest.approx(1.0, abs=1e-6)
+
+
+def test_likelihood_noise_only_and_tail_equals_detection_probability(r2_all_sky):
+    # h0 = 0: the density is chi2.pdf(x, 4N) (JKS 1998; scipy.stats).
+    x = np.array([2.0, 10.0, 40.0])
+    like = det.marginal_likelihood(x, 0.0, 5, T_DATA, PSD, r2_all_sky, 0.0)
+    np.testing.assert_allclose(like.value, stats.chi2.pdf(x, 20), rtol=1e-12)
+    # The integral of the same likelihood above a threshold is the detection probability:
+    # one set of distributions serves both the frequentist and the Bayesian side.
+    thr, h0, n_seg = 30.0, 8.0, 3
+    r2 = r2_all_sky[:5000]
+    tail, _ = integrate.quad(
+        lambda s: det.marginal_likelihood(s, h0, n_seg, T_DATA, PSD, r2, 0.1).value,
+        thr, np.inf, limit=200)
+    p = det.detection_probability(h0, thr, n_seg, T_DATA, PSD, r2, 0.1, method="exact")
+    assert tail == pytest.approx(p.value, abs=1e-7)
+    log_like = det.marginal_likelihood(x, 3.0, 5, T_DATA, PSD, r2, 0.0, log=True)
+    np.testing.assert_allclose(
+        log_like.value,
+        np.log(det.marginal_likelihood(x, 3.0, 5, T_DATA, PSD, r2, 0.0).value))
+
+
+# ---------------------------------------------------------------------------------------
+# Brute-force Monte Carlo (independent estimator)
+# ---------------------------------------------------------------------------------------
+def mc_normalised_amplitude(n_seg, threshold_sum, confidence, r2, mu, rng):
+    """Amplitude a = h0^2 T/S_n detected with ``confidence`` by direct simulation.
+
+    2F ~ noncentral chi2(4N, rho2) drawn as (Z + rho)^2 + chi2(4N - 1) with Z ~ N(0, 1)
+    (sum of squares of 4N unit normals, one carrying the mean; common practice), with the
+    same random numbers for every amplitude tried, then bisection on log a.
+    """
+    n = r2.size
+    z = stats.norm.rvs(size=n, random_state=rng)
+    rest = stats.chi2.rvs(4 * n_seg - 1, size=n, random_state=rng)
+    c = r2 * (1 - mu)
+
+    def fraction(a):
+        return np.mean((z + np.sqrt(a * c)) ** 2 + rest > threshold_sum)
+
+    lo, hi = np.log(1e-3), np.log(1e9)
+    for _ in range(40):  # bracket width 27.6 in log a -> 2.5e-11 after 40 halvings
+        mid = 0.5 * (lo + hi)
+        if fraction(np.exp(mid)) < confidence:
+            lo = mid
+        else:
+            hi = mid
+    return np.exp(0.5 * (lo + hi))
+
+
+# (N, false alarm per template, sky, mismatch model, confidence): spans N = 1..1000,
+# false alarm 1e-2..1e-10, known sky and all sky, no/fixed/distributed mismatch.
+MC_SETUPS = [
+    (1, 1e-2, "fixed", "none", 0.9),
+    (1, 1e-10, "all", "uniform", 0.9),
+    (3, 1e-4, "all", "none", 0.95),
+    (10, 1e-6, "fixed", "uniform", 0.9),
+    (10, 1e-10, "all", "fixed", 0.9),
+    (30, 1e-2, "all", "uniform", 0.95),
+    (100, 1e-8, "fixed", "fixed", 0.9),
+    (100, 1e-10, "all", "uniform", 0.9),
+    (300, 1e-4, "fixed", "uniform", 0.95),
+    (1000, 1e-2, "all", "none", 0.9),
+    (1000, 1e-10, "fixed", "uniform", 0.9),
+    (1000, 1e-6, "all", "fixed", 0.95),
+]
+MC_SAMPLES = 1_000_000
+RULE_SAMPLES = 400_000
+
+
+@pytest.fixture(scope="module")
+def r2_rules():
+    # Large R2 sample sets fed to the fast estimator, drawn with their own seeds.
+    return {sky: draw_r2(RULE_SAMPLES, np.random.default_rng(21 + i), sky)
+            for i, sky in enumerate(("all", "fixed"))}
+
+
+@pytest.mark.parametrize("setup", MC_SETUPS, ids=lambda s: "-".join(map(str, s)))
+def test_monte_carlo_agrees_with_fast_estimate(setup, r2_rules):
+    n_seg, p_template, sky, mismatch, confidence = setup
+    rng = np.random.default_rng(1000 + MC_SETUPS.index(setup))  # fixed seed per setup
+    thr = stats.chi2.isf(p_template, 4 * n_seg)  # threshold from scipy, not the package
+    # Monte Carlo: fresh orientation and mismatch draws (independent of the rule below).
+    r2_mc = draw_r2(MC_SAMPLES, rng, sky)
+    if mismatch == "none":
+        mu_mc, mu_rule = np.zeros(MC_SAMPLES), 0.0
+    elif mismatch == "fixed":
+        mu_mc, mu_rule = np.full(MC_SAMPLES, 0.2), 0.2
+    else:
+        # Uniform mismatch on [0, 0.5): MC draws vs a 3-node Gauss-Legendre rule
+        # (numpy.polynomial.legendre.leggauss; exact to degree 5 in mu).
+        mu_mc = stats.uniform.rvs(0, 0.5, size=MC_SAMPLES, random_state=rng)
+        x, w = np.polynomial.legendre.leggauss(3)
+        mu_rule = (0.25 * (x + 1), w / 2)
+    a_mc = mc_normalised_amplitude(n_seg, thr, confidence, r2_mc, mu_mc, rng)
+    depth_mc = np.sqrt(T_DATA.value / a_mc)
+
+    r2_rule = r2_rules[sky]
+    depth = det.critical_depth(thr, n_seg, T_DATA, r2_rule, mu_rule, confidence).value
+
+    # Error budget, as a relative error of the depth: (i) the binomial error of the MC
+    # detection fraction, sqrt(P(1-P)/n_mc); (ii) the sampling error of the R2 rule,
+    # sqrt(Var g / n_rule) with g = P_det of one R2 sample (its variance from 20000 rule
+    # samples with scipy.stats.ncx2); both divided by the slope dP/dlnh0 at the root.
+    h0 = 1 / depth
+    eps = 0.01
+    p_hi, p_lo = det.detection_probability(h0 * np.array([1 + eps, 1 - eps]), thr, n_seg,
+                                           T_DATA, PSD, r2_rule, mu_rule).value
+    slope = (p_hi - p_lo) / (2 * eps)
+    mu_nodes, mu_weights = (np.atleast_1d(mu_rule), np.ones(1)) if np.ndim(mu_rule) == 0 \
+        else mu_rule
+    c_sub = r2_rule[:20000, None] * (1 - np.asarray(mu_nodes))[None, :]
+    g = np.sum(stats.ncx2.sf(thr, 4 * n_seg, h0**2 * c_sub) * mu_weights, axis=1)
+    var_p = confidence * (1 - confidence) / MC_SAMPLES + g.var() / RULE_SAMPLES
+    sigma_rel = np.sqrt(var_p) / slope
+    assert 3 * sigma_rel < MC_TOLERANCE / 2  # the MC is precise enough for the check
+    assert abs(depth_mc / depth - 1) < MC_TOLERANCE
+    # and, more strictly, within 4 sigma plus 0.05 % (rule condensation).
+    assert abs(depth_mc / depth - 1) < 4 * sigma_rel + 5e-4
+
+
+# ---------------------------------------------------------------------------------------
+# Scalings
+# ---------------------------------------------------------------------------------------
+def test_depth_scales_as_sqrt_t_coherent():
+    # rho2 ∝ h0^2 T / S_n (JKS 1998): at fixed threshold D = sqrt(S_n)/h0 ∝ sqrt(T).
+    thr = det.false_alarm_threshold(1e-6, 1, 1)
+    t = np.array([1.0, 4.0, 100.0]) * u.day
+    depth = det.critical_depth(thr, 1, t, R2_MEAN_ONE_DETECTOR, 0.0, 0.9)
+    np.testing.assert_allclose(depth.value / depth.value[0], [1.0, 2.0, 10.0], rtol=1e-7)
+    # and h0 ∝ sqrt(S_n).
+    h0 = det.solve_amplitude(thr, 1, 1 * u.day, [1e-46, 4e-46] / u.Hz, 0.16, 0.0, 0.9)
+    assert h0.value[1] / h0.value[0] == pytest.approx(2.0, rel=1e-7)
+
+
+def test_n_quarter_law(r2_all_sky):
+    # At fixed total data and fixed false alarm per template, the semi-coherent depth falls
+    # as N^(-1/4) at large N (Prix & Shaltev 2012, arXiv:1201.4321; Wette 2012,
+    # arXiv:1111.5650): threshold and required rho2 both grow like sqrt(8N) about 4N.
+    # At finite N the chi-squared skewness makes the fall shallower; measured exponents
+    # approach -1/4 from above (-0.22 over N = 100..1000, -0.245 over 1e3..1e4).
+    n_seg = np.array([100, 1000, 10000])
+    thr = det.false_alarm_threshold(1e-10, 1, n_seg)
+    depth = det.critical_depth(thr, n_seg, T_DATA, r2_all_sky, 0.0, 0.9).value
+    slopes = np.diff(np.log(depth)) / np.diff(np.log(n_seg))
+    assert -0.25 < slopes[0] < -0.20
+    assert -0.25 < slopes[1] < -0.235
+    assert slopes[1] < slopes[0]
+
+
+def test_large_n_gaussian_limit():
+    # Central limit (common practice): rho2 -> (z_fa + z_fd) sqrt(8N) for a fixed R2 as N
+    # grows; the ratio decreases to 1 (1.007 at N = 1e5).
+    n_seg = np.array([1e3, 1e4, 1e5])
+    thr = det.false_alarm_threshold(1e-10, 1, n_seg).value
+    depth = det.critical_depth(thr, n_seg, T_DATA, 1.0, 0.0, 0.9).value
+    rho2 = T_DATA.value / depth**2
+    ratio = rho2 / ((stats.norm.isf(1e-10) + stats.norm.isf(0.1)) * np.sqrt(8 * n_seg))
+    assert np.all(np.diff(ratio) < 0)
+    assert 1.0 < ratio[-1] < 1.02
+
+
+# ---------------------------------------------------------------------------------------
+# Loudest-event use and round trips
+# ---------------------------------------------------------------------------------------
+def test_loudest_event_below_noise_gives_zero_amplitude():
+    # If noise alone exceeds the observed loudest 2F with probability >= confidence, the
+    # frequentist amplitude is 0: P(chi2_4 > isf(0.95)) = 0.95 >= 0.9 (scipy.stats).
+    loud = stats.chi2.isf(0.95, 4)
+    assert det.solve_amplitude(loud, 1, T_DATA, PSD, 0.16, 0.0, 0.9).value == 0.0
+    assert np.isinf(det.critical_depth(loud, 1, T_DATA, 0.16, 0.0, 0.9).value)
+
+
+def test_solve_amplitude_round_trip(r2_fixed_sky):
+    thr = det.false_alarm_threshold([1e-2, 1e-9], [1, 1e8], [2, 50])
+    h0 = det.solve_amplitude(thr, [2, 50], 1 * u.yr, 1e-46 / u.Hz, r2_fixed_sky, 0.1,
+                             [0.9, 0.95])
+    p = det.detection_probability(h0, thr, [2, 50], 1 * u.yr, 1e-46 / u.Hz, r2_fixed_sky, 0.1)
+    np.testing.assert_allclose(p.value, [0.9, 0.95], atol=1e-8)
+
+
+# ---------------------------------------------------------------------------------------
+# Scalar, array and broadcast inputs
+# ---------------------------------------------------------------------------------------
+def test_false_alarm_threshold_shapes():
+    assert det.false_alarm_threshold(0.01, 1e4, 10).shape == ()
+    arr = det.false_alarm_threshold(0.01, 1e4, [1, 10, 100])
+    assert arr.shape == (3,)
+    grid = det.false_alarm_threshold([[0.01], [0.1]], 1e4, [1, 10, 100])
+    assert grid.shape == (2, 3)
+    assert grid[1, 2].value == det.false_alarm_threshold(0.1, 1e4, 100).value
+
+
+def test_detection_probability_shapes(r2_fixed_sky):
+    r2 = r2_fixed_sky[:2000]
+    p0 = det.detection_probability(5.0, 20.0, 2, T_DATA, PSD, r2)
+    assert p0.shape == () and 0 < p0.value < 1
+    arr = det.detection_probability([1.0, 5.0, 20.0], 20.0, 2, T_DATA, PSD, r2)
+    assert arr.shape == (3,) and np.all(np.diff(arr.value) > 0)
+    grid = det.detection_probability([[1.0], [5.0]], [20.0, 40.0, 60.0], [2, 3, 4],
+                                     [1, 2, 3] * u.s, PSD, r2)
+    assert grid.shape == (2, 3)
+    assert grid[1, 2].value == pytest.approx(
+        det.detection_probability(5.0, 60.0, 4, 3 * u.s, PSD, r2).value, rel=1e-12)
+
+
+def test_depth_and_amplitude_shapes_and_rule_batches():
+    assert det.critical_depth(20.0, 1, T_DATA, 0.16).shape == ()
+    assert det.solve_amplitude([20.0, 30.0], 1, T_DATA, PSD, 0.16).shape == (2,)
+    # Rule batch axes broadcast with the setups: one mismatch per column.
+    mu = det.QuadratureRule.fixed([0.0, 0.3])
+    depth = det.critical_depth([[20.0], [30.0], [40.0]], 2, T_DATA, 0.16, mu, 0.9)
+    assert depth.shape == (3, 2)
+    single = det.critical_depth(40.0, 2, T_DATA, 0.16, 0.3, 0.9)
+    assert depth[2, 1].value == pytest.approx(single.value, rel=1e-9)
+    # Mismatch mu reduces rho2 by (1 - mu): D ∝ sqrt(1 - mu) at fixed everything else.
+    assert depth[2, 1].value / depth[2, 0].value == pytest.approx(np.sqrt(0.7), rel=1e-7)
+
+
+def test_marginal_likelihood_shapes():
+    grid = det.marginal_likelihood([[5.0], [10.0]], [0.0, 1.0, 2.0], 1, T_DATA, PSD, 0.16)
+    assert grid.shape == (2, 3)
+    assert det.marginal_likelihood(5.0, 1.0, 1, T_DATA, PSD, 0.16).shape == ()
+    # Fixed R2: the likelihood is ncx2.pdf(x; 4, 0.16 h0^2 T/S_n) (scipy.stats).
+    assert grid[1, 2].value == pytest.approx(stats.ncx2.pdf(10.0, 4, 0.16 * 4.0), rel=1e-12)
+
+
+def test_estimate_sensitivity_and_table(r2_fixed_sky):
+    est = det.estimate_sensitivity([1, 10, 100], 30 * u.day, r2_fixed_sky, 0.1,
+                                   psd=[1e-46, 2e-46, 3e-46] / u.Hz, false_alarm=0.01,
+                                   n_templates=[1e3, 1e6, 1e9], confidence=0.95)
+    assert est.depth.shape == (3,)
+    np.testing.assert_allclose(est.h0.value * est.depth.value,
+                               np.sqrt([1e-46, 2e-46, 3e-46]), rtol=1e-12)
+    np.testing.assert_allclose(
+        est.threshold.value, det.false_alarm_threshold(0.01, [1e3, 1e6, 1e9], [1, 10, 100]))
+    table = est.to_table()
+    assert table["depth"].unit == u.Hz**-0.5 and len(table) == 3
+    assert "noise" in table.meta["assumptions"]
+    scalar = det.estimate_sensitivity(1, 30 * u.day, 0.16, threshold=20.0)
+    assert scalar.depth.shape == () and scalar.h0 is None and scalar.n_templates is None
+
+
+def test_quadrature_rule():
+    rule = det.QuadratureRule([0.1, 0.3], [1.0, 3.0])
+    assert rule.mean() == pytest.approx(0.25)
+    assert rule.size == 2 and rule.batch_shape == ()
+    assert det.QuadratureRule.fixed([0.1, 0.2]).batch_shape == (2,)
+
+
+# ---------------------------------------------------------------------------------------
+# Bad input
+# ---------------------------------------------------------------------------------------
+@pytest.mark.parametrize("confidence", [0.0, 1.0, 1.5, -0.1])
+def test_bad_confidence(confidence):
+    with pytest.raises(InputError, match="confidence"):
+        det.critical_depth(20.0, 1, T_DATA, 0.16, 0.0, confidence)
+
+
+@pytest.mark.parametrize("false_alarm", [0.0, 1.0, 2.0, np.nan])
+def test_bad_false_alarm(false_alarm):
+    with pytest.raises(InputError, match="false_alarm"):
+        det.false_alarm_threshold(false_alarm, 1, 1)
+
+
+@pytest.mark.parametrize("n_seg", [0, -3, 2.5, np.inf])
+def test_bad_n_seg(n_seg):
+    with pytest.raises(InputError, match="n_seg"):
+        det.false_alarm_threshold(0.01, 1, n_seg)
+    with pytest.raises(InputError, match="n_seg"):
+        det.critical_depth(20.0, n_seg, T_DATA, 0.16)
+
+
+def test_bad_time_psd_and_others():
+    with pytest.raises(InputError, match="t_data"):
+        det.critical_depth(20.0, 1, 0 * u.s, 0.16)
+    with pytest.raises(InputError, match="t_data"):
+        det.critical_depth(20.0, 1, [1, -1] * u.s, 0.16)
+    with pytest.raises(InputError, match="psd"):
+        det.solve_amplitude(20.0, 1, T_DATA, -1e-46 / u.Hz, 0.16)
+    with pytest.raises(InputError, match="psd"):
+        det.detection_probability(1.0, 20.0, 1, T_DATA, 0 / u.Hz, 0.16)
+    with pytest.raises(UnitsMismatchError, match="t_data"):
+        det.critical_depth(20.0, 1, 3 * u.Hz, 0.16)
+    with pytest.raises(InputError, match="n_templates"):
+        det.false_alarm_threshold(0.01, 0.5, 1)
+    with pytest.raises(InputError, match="statistic"):
+        det.false_alarm_threshold(0.01, 1, 1, statistic="max")
+    with pytest.raises(InputError, match="mismatch_rule"):
+        det.critical_depth(20.0, 1, T_DATA, 0.16, 1.5)
+    with pytest.raises(InputError, match="weights"):
+        det.QuadratureRule([0.1, 0.2], [-1.0, 2.0])
+    with pytest.raises(InputError, match="exactly one"):
+        det.estimate_sensitivity(1, T_DATA, 0.16)
+    with pytest.raises(InputError, match="h0"):
+        det.detection_probability(-1.0, 20.0, 1, T_DATA, PSD, 0.16)
+
+
+def test_unreachable_confidence_is_a_computation_error():
+    # Half the weight on R2 = 0: P_det <= 0.5 at any amplitude, so 0.9 cannot be reached.
+    rule = det.QuadratureRule([0.0, 0.2], [0.5, 0.5])
+    with pytest.raises(ComputationError, match="cannot be reached"):
+        det.critical_depth(20.0, 1, T_DATA, rule, 0.0, 0.9)
+    # All errors are CwlimitsError subclasses.
+    assert issubclass(ComputationError, CwlimitsError)
