@@ -192,7 +192,7 @@ def test_loglog_interpolation_recovers_a_power_law(tmp_path):
 
 def test_asd_header_variants_and_kind_rules(tmp_path):
     body = "10,1e-22\n100,1e-23\n1000,2e-23\n"
-    for header in ("f [Hz], asd [Hz^-1/2]", "f [Hz], asd [1/sqrt(Hz)]",
+    for header in ("f [Hz], asd [Hz^-1/2]", "f [Hz], asd [1/sqrt(Hz)]", "f [Hz], asd [Hz**-0.5]",
                    "f [Hz], value [Hz(-1/2)]", "f [kHz], asd"):
         path = write(tmp_path / "a.csv", header + "\n" + body)
         noise = read_noise_file(path)
@@ -688,3 +688,30 @@ def test_cli_rejects_bad_output_suffix_before_work(tmp_path, capsys):
     assert main(["noise", "--out", str(tmp_path / "x.txt")]) == 2
     assert main(["noise", "--plot", str(tmp_path / "x.gif")]) == 2
     assert "must end in" in capsys.readouterr().err
+
+
+def test_plot_asd_writes_labelled_log_plot(tmp_path):
+    from cwlimits.noise import plot_asd
+
+    path = plot_asd([noise_model("advanced-fit"), noise_model("initial-fit")],
+                    tmp_path / "asd.svg", 10 * u.Hz, 5000 * u.Hz, title="two fits")
+    text = path.read_text()
+    # matplotlib keeps each text element as a comment in the SVG (common practice)
+    assert "frequency f [Hz]" in text and "amplitude spectral density" in text
+    assert "advanced-fit" in text and "initial-fit" in text
+    assert plot_asd(noise_model("virgo-fit"), tmp_path / "v.pdf").read_bytes()[:4] == b"%PDF"
+    with pytest.raises(InputError, match="must end in"):
+        plot_asd(noise_model("virgo-fit"), tmp_path / "v.jpg")
+
+
+def test_cli_stretches_report_t_data(tmp_path, capsys):
+    np.save(tmp_path / "s.npy", white(int(FS_HZ * 96), seed=42))
+    out = tmp_path / "eff.csv"
+    code = main(["noise", "--timeseries", str(tmp_path / "s.npy"), "--sample-rate",
+                 "1024Hz", "--stretch", "32s", "--band", "20Hz", "420Hz", "--step", "40Hz",
+                 "--out", str(out)])
+    assert code == 0
+    raw = read_table(out)
+    assert raw.meta["assumption.t_data"] == "96 s"
+    assert "harmonic mean of 3 noise sources" in raw.meta["assumption.noise"]
+    assert "wrote 10 bands" in capsys.readouterr().out

@@ -7,7 +7,6 @@ the tabulated range nothing is extrapolated: a request there raises
 """
 
 import re
-import tempfile
 from pathlib import Path
 
 import astropy.units as u
@@ -21,9 +20,6 @@ from ._base import ASD_UNIT, PSD_UNIT, NoiseSource
 __all__ = ["TabulatedNoise", "read_noise_file"]
 
 _KINDS = ("asd", "psd")
-# Spellings of Hz^-1/2 people write in headers that astropy's parser does not read.
-_ASD_SPELLINGS = re.compile(r"Hz\s*\^\s*\(?\s*-\s*1\s*/\s*2\s*\)?|1\s*/\s*rt\s*Hz",
-                            re.IGNORECASE)
 
 
 class TabulatedNoise(NoiseSource):
@@ -170,30 +166,6 @@ def _read_plain(path, lines, n_columns):
     return np.array(rows), np.array(numbers, dtype=float).reshape(len(rows), n_columns)
 
 
-def _read_with_header(path, text):
-    """read_table on the file, after rewriting header spellings of Hz^-1/2 astropy lacks."""
-    if str(path).lower().endswith(".ecsv"):
-        return read_table(path)
-    lines = text.splitlines()
-    first = next(i for i, line in enumerate(lines)
-                 if line.strip() and not line.lstrip().startswith("#"))
-    fixed = _ASD_SPELLINGS.sub("Hz(-1/2)", lines[first])
-    if fixed == lines[first]:
-        return read_table(path)
-    lines[first] = fixed
-    # read a rewritten copy (same line numbers) and report errors against the real file
-    with tempfile.TemporaryDirectory() as tmp:
-        copy = Path(tmp) / Path(path).name
-        copy.write_text("\n".join(lines) + "\n", encoding="utf-8")
-        try:
-            raw = read_table(copy)
-        except TableError as exc:
-            raise TableError(exc.reason, file=str(path), row=exc.row, column=exc.column,
-                             value=exc.value) from None
-    raw.path = str(path)
-    return raw
-
-
 def _kind_from_header(raw, name, kind, path):
     unit = raw.units.get(name)
     if unit is not None:
@@ -270,7 +242,7 @@ def read_noise_file(path, kind=None, *, name=None):
             return {"error": TableError, "file": path, "row": int(rows[i]),
                     "column": columns[0] if column == "frequency" else columns[1]}
     else:
-        raw = _read_with_header(path, text)
+        raw = read_table(path)
         names = list(raw.columns)
         if len(names) != 2:
             raise TableError(f"a noise file has two columns (frequency, then ASD or PSD); "
