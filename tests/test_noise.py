@@ -600,8 +600,8 @@ def test_stretch_estimates_combine_by_data_time():
     np.testing.assert_allclose(eff.psd(f).to_value(PSD), hand.to_value(PSD), rtol=1e-12)
     # truth: S_eff = 384 / (256 / S1 + 128 / S2), S1 = 2/fs, S2 = 8/fs.  The harmonic mean
     # of noisy estimates is biased low by about their relative variance v (E[1/S^] ~
-    # (1 + v)/S); v < 0.05 for >= 63 median-averaged segments (pi/2 / K, asymptotic
-    # efficiency of the median, common practice), so allow 5 % plus 4 sigma.
+    # (1 + v)/S); for the corrected median of K exponentials v ~ 1 / (K ln^2 2) = 0.033
+    # at K = 63 (sample-quantile asymptotics, common practice), so allow 5 % plus 4 sigma.
     truth = 384 / (256 / WHITE_PSD + 128 / (4 * WHITE_PSD))
     r = eff.psd(np.arange(5.0, 500.0, 0.25) * u.Hz).to_value(PSD) / truth
     err = 1.5 * r.std() / math.sqrt(r.size)
@@ -715,3 +715,22 @@ def test_cli_stretches_report_t_data(tmp_path, capsys):
     assert raw.meta["assumption.t_data"] == "96 s"
     assert "harmonic mean of 3 noise sources" in raw.meta["assumption.noise"]
     assert "wrote 10 bands" in capsys.readouterr().out
+
+
+def test_network_of_stretch_combinations_nests():
+    # Detector A: two stretches; detector B: one estimate.  Combining the per-detector
+    # results with their own T_data equals combining the three stretches at once
+    # (sum_k T_k / S_k is additive; harmonic-mean rule of Cutler & Schutz 2005).
+    fs = FS_HZ * u.Hz
+    a1 = estimate_psd(white(int(FS_HZ * 32), seed=51), fs, segment=2 * u.s)
+    a2 = estimate_psd(white(int(FS_HZ * 16), seed=52, sigma=2.0), fs, segment=2 * u.s)
+    b = estimate_psd(white(int(FS_HZ * 48), seed=53, sigma=0.5), fs, segment=2 * u.s)
+    det_a = combine_noise([a1, a2])  # durations from the estimates: 32 s and 16 s
+    assert det_a.t_data.to_value(u.s) == pytest.approx(48.0)
+    network = combine_noise([det_a, b], duty_factors=[1.0, 1.0])
+    flat = combine_noise([a1, a2, b], [32, 16, 48] * u.s)
+    f = np.linspace(10.0, 400.0, 7) * u.Hz
+    np.testing.assert_allclose(network.psd(f).value, flat.psd(f).value, rtol=1e-12)
+    assert network.t_data == flat.t_data
+    with pytest.raises(InputError, match="durations are needed"):
+        combine_noise([noise_model("advanced-fit"), b])

@@ -182,6 +182,11 @@ def band_psd(noise, f_lo, f_hi, *, clip=False, panels=None):
     computed with composite Gauss-Legendre quadrature on a fixed sub-grid, vectorised
     over bands (one call of ``noise.psd`` for all nodes).
 
+    For an estimated PSD the bin values are noisy, and a harmonic mean of noisy values
+    is biased low by about their relative variance v (E[1/S^] ~ (1 + v)/S): v = 1/K for
+    a mean over K segments, about 1/(K ln^2 2) = 2.1/K for the corrected median.  For a
+    planning floor from data prefer :func:`~cwlimits.noise.band_floor`.
+
     References
     ----------
     Harmonic-mean (inverse-noise) weighting: the noise-weighted multi-detector

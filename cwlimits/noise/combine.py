@@ -81,15 +81,27 @@ class EffectiveNoise(NoiseSource):
                 f"{self._f_min_hz:g}-{self._f_max_hz:g} Hz: {parts}")
 
 
-def combine_noise(sources, durations, duty_factors=1.0, *, name="effective"):
+def _own_data_time(source):
+    """Return the data time a source carries (combination or estimate), or None."""
+    for attr in ("t_data", "duration"):
+        value = getattr(source, attr, None)
+        if value is not None:
+            return value.to_value(u.s)
+    return None
+
+
+def combine_noise(sources, durations=None, duty_factors=1.0, *, name="effective"):
     """Combine noise sources into the effective noise of a semi-coherent search.
 
     Parameters
     ----------
     sources : sequence of NoiseSource
         One per detector or data stretch.
-    durations : Quantity ['time']
-        Observation span of each source (broadcast to ``len(sources)``), >= 0.
+    durations : Quantity ['time'], optional
+        Observation span of each source (broadcast to ``len(sources)``), >= 0.  If
+        omitted, each source's own data time is used: ``t_data`` of an
+        :class:`EffectiveNoise` (so per-detector combinations nest into a network) or
+        ``duration`` of an :class:`~cwlimits.noise.EstimatedNoise`.
     duty_factors : float or array_like
         Fraction of each span with usable data, in [0, 1] (broadcast).
     name : str
@@ -104,7 +116,8 @@ def combine_noise(sources, durations, duty_factors=1.0, *, name="effective"):
     ------
     InputError
         No sources, durations or duty factors of the wrong shape, negative or
-        non-finite, zero total data time, or no common frequency range.
+        non-finite, zero total data time, no common frequency range, or no durations
+        for a source that carries no data time.
 
     Notes
     -----
@@ -115,13 +128,22 @@ def combine_noise(sources, durations, duty_factors=1.0, *, name="effective"):
     ----------
     The noise-weighted multi-detector F-statistic: Cutler & Schutz 2005, gr-qc/0504011;
     the sensitivity of semi-coherent searches through T_data / S_h: Wette 2012,
-    arXiv:1111.5650.  Equation numbers not checked against the papers.
+    arXiv:1111.5650.  Equation numbers not checked against the papers.  Because the
+    weights are data times, combining per-detector combinations (with their own
+    T_data) equals combining all their stretches at once.
     """
     sources = list(sources)
     if not sources or not all(isinstance(s, NoiseSource) for s in sources):
         raise InputError("combine_noise needs a non-empty list of noise sources",
                          value=[type(s).__name__ for s in sources])
     n = len(sources)
+    if durations is None:
+        own = [_own_data_time(s) for s in sources]
+        if any(t is None for t in own):
+            k = own.index(None)
+            raise InputError("durations are needed: source has no data time of its own",
+                             value=sources[k].name)
+        durations = np.array(own) * u.s
     try:
         t_s = np.broadcast_to(to_value(durations, u.s, "durations"), (n,)).astype(float)
         duty = np.broadcast_to(to_value(duty_factors, u.one, "duty_factors"),
