@@ -1,14 +1,18 @@
 """``cwlimits demo``: the main job on the embedded, fictional demo scenario."""
 
 from importlib import resources
-from pathlib import Path
 
 from ..indirect import indirect_limits
-from ..tables import write_table
+from ..plots import plot_indirect_limits
+from ..report import Report, file_sha256
 from ..targets import load_targets
 from ._common import add_parser, echo, format_assumptions, format_rows, sci
 
 ORDER = 0
+
+CAUTION = ("Every number here is a limit under the stated assumptions, not a detection "
+           "claim. The demo targets are FICTIONAL: invented for this demo, they match no "
+           "real object.")
 
 
 def demo_catalogue_path():
@@ -22,19 +26,20 @@ def register(subparsers, common):
         help="run the job on the embedded fictional demo targets",
         description="Run cwlimits on its embedded demo scenario: eight fictional targets "
                     "(invented; they match no real object).  Prints the indirect limits "
-                    "of every target and writes the tables into the output folder.",
+                    "of every target and writes a report (index.html, tables as CSV and "
+                    "ECSV, figures as PNG and SVG, a run record) into the output folder.",
         examples=["cwlimits demo", "cwlimits demo --out-dir /tmp/demo-report --seed 3"])
     parser.add_argument("--out-dir", default="reports/demo", metavar="DIR",
-                        help="output folder (default reports/demo)")
+                        help="output folder (default reports/demo), replaced as a whole")
     parser.add_argument("--seed", type=int, default=2026,
-                        help="seed of the Monte-Carlo quantiles (default 2026)")
+                        help="seed of every random draw (default 2026)")
     parser.set_defaults(run=run)
 
 
 def run(args):
-    out_dir = Path(args.out_dir)
     with resources.as_file(demo_catalogue_path()) as path:
         catalogue = load_targets(path)
+        catalogue_hash = file_sha256(path)
     table = indirect_limits(catalogue, rng=args.seed)
     echo(args, "cwlimits demo: FICTIONAL targets (invented for the demo)")
     echo(args, format_rows(
@@ -46,9 +51,18 @@ def run(args):
          for r in table]))
     echo(args)
     echo(args, format_assumptions(table.meta["assumptions"]))
-    for suffix in (".csv", ".ecsv"):
-        path = write_table(table, out_dir / f"indirect_limits{suffix}",
-                           title="indirect limits of the fictional demo targets",
-                           assumptions=dict(table.meta["assumptions"], seed=str(args.seed)))
-        echo(args, f"wrote {path}")
+    with Report("cwlimits demo: a directed search of fictional targets", args.out_dir) as rep:
+        rep.section("About this report", CAUTION, caution=True)
+        rep.section("Indirect limits",
+                    "Age-based limits on h0 for every target (nominal distance and age, "
+                    "with the optimistic and pessimistic ends of the catalogue ranges), "
+                    "and the spin-down limit of the target whose spin is known.")
+        rep.table("indirect_limits", table, caption="Indirect limits per target",
+                  assumptions=dict(table.meta["assumptions"], seed=str(args.seed)))
+        rep.figure("indirect_limits", plot_indirect_limits(table),
+                   caption="Indirect limits on h0 per target; bars span the catalogue "
+                           "ranges of distance and age")
+        out = rep.write({"seed": args.seed, "inputs": {"catalogue": {
+            "path": "cwlimits/data/demo.csv (embedded)", "sha256": catalogue_hash}}})
+    echo(args, f"wrote the report to {out / 'index.html'}")
     return 0

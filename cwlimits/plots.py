@@ -1,0 +1,129 @@
+"""Figures for papers and reports (the only module besides the report that uses matplotlib).
+
+Every figure is sized for a journal column (3.4 in wide), has labelled axes with units, log
+axes where the field uses them, and a legend.  Colours come from the Okabe & Ito (2008)
+colour-blind-safe palette, and every series also differs by marker or line style, so the
+figures stay readable in greyscale.  Functions return the :class:`matplotlib.figure.Figure`;
+saving is the caller's business (see :func:`save_figure`).
+"""
+
+from pathlib import Path
+
+import numpy as np
+
+__all__ = ["COLUMN_WIDTH_IN", "PALETTE", "new_figure", "save_figure", "plot_indirect_limits",
+           "plot_strain_curves"]
+
+#: Width of one journal column, inches (common practice: 3.3-3.5 in).
+COLUMN_WIDTH_IN = 3.4
+#: Okabe & Ito (2008) colour-blind-safe colours, with line styles and markers that keep the
+#: series apart in greyscale.
+PALETTE = (("#0072B2", "-", "o"), ("#D55E00", "--", "s"), ("#009E73", "-.", "^"),
+           ("#CC79A7", ":", "D"), ("#E69F00", (0, (5, 1, 1, 1)), "v"),
+           ("#56B4E9", (0, (3, 1, 1, 1, 1, 1)), "P"), ("#000000", "-", "x"))
+
+
+def _pyplot():
+    import matplotlib
+
+    matplotlib.use("Agg", force=False)
+    import matplotlib.pyplot as plt
+
+    # A fixed salt makes the SVG element ids, and so the files, the same run after run.
+    matplotlib.rcParams["svg.hashsalt"] = "cwlimits"
+
+    return plt
+
+
+def new_figure(height_ratio=0.75, width=COLUMN_WIDTH_IN):
+    """A column-width figure and its axes, with the house style."""
+    plt = _pyplot()
+    fig, ax = plt.subplots(figsize=(width, width * height_ratio), dpi=150,
+                           layout="constrained")
+    ax.tick_params(labelsize=7)
+    ax.xaxis.label.set_size(8)
+    ax.yaxis.label.set_size(8)
+    return fig, ax
+
+
+def save_figure(fig, path, formats=("png", "svg")):
+    """Save ``fig`` as ``path`` with each extension of ``formats``; return the paths."""
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    written = []
+    for fmt in formats:
+        target = path.with_suffix(f".{fmt}")
+        fig.savefig(target, format=fmt, metadata={"Date": None} if fmt == "svg" else None)
+        written.append(target)
+    return written
+
+
+def plot_indirect_limits(table, title=None):
+    """Indirect limits per target: age-based (nominal with its range) and spin-down.
+
+    Parameters
+    ----------
+    table : astropy.table.QTable
+        As returned by :func:`cwlimits.indirect_limits`.
+    """
+    fig, ax = new_figure(height_ratio=0.9)
+    n = len(table)
+    y = np.arange(n)[::-1]
+    colour, _, marker = PALETTE[0]
+    nominal = np.asarray(table["h0_age"].value)
+    low = nominal - np.asarray(table["h0_age_pessimistic"].value)
+    high = np.asarray(table["h0_age_optimistic"].value) - nominal
+    ax.errorbar(nominal, y, xerr=[low, high], fmt=marker, color=colour, ms=4, capsize=2,
+                lw=1, label="age-based (range: distance, age)")
+    spin = np.isfinite(np.asarray(table["h0_spindown"].value))
+    if spin.any():
+        colour, _, marker = PALETTE[1]
+        sd = np.asarray(table["h0_spindown"].value)
+        lo = sd - np.asarray(table["h0_spindown_pessimistic"].value)
+        hi = np.asarray(table["h0_spindown_optimistic"].value) - sd
+        ax.errorbar(sd[spin], y[spin] - 0.25, xerr=[lo[spin], hi[spin]], fmt=marker,
+                    color=colour, ms=4, capsize=2, lw=1, label="spin-down (range: distance)")
+    ax.set_yticks(y, [str(name) for name in table["name"]], fontsize=7)
+    ax.set_xscale("log")
+    ax.set_xlabel(r"indirect limit on $h_0$ (dimensionless strain)")
+    ax.set_ylabel("target")
+    ax.legend(fontsize=6, loc="lower right")
+    if title:
+        ax.set_title(title, fontsize=8)
+    return fig
+
+
+def plot_strain_curves(f, curves, bands=(), title=None, ylabel=r"$h_0$ (dimensionless strain)"):
+    """Curves against frequency on log axes, with optional shaded horizontal bands.
+
+    Parameters
+    ----------
+    f : Quantity ['frequency']
+    curves : sequence of (label, Quantity array)
+        Each drawn as a line (or markers when ``label`` ends with ' (points)').
+    bands : sequence of (label, low, nominal, high)
+        Horizontal ranges (e.g. an age-based limit and its range), drawn shaded with a
+        line at the nominal value.
+    """
+    fig, ax = new_figure()
+    fx = np.asarray(f.to_value("Hz"))
+    for k, (label, low, nominal, high) in enumerate(bands):
+        colour, style, _ = PALETTE[(k + 3) % len(PALETTE)]
+        ax.axhspan(float(low), float(high), color=colour, alpha=0.15, lw=0)
+        ax.axhline(float(nominal), color=colour, ls=style, lw=1, label=label)
+    for k, (label, values) in enumerate(curves):
+        colour, style, marker = PALETTE[k % len(PALETTE)]
+        values = np.asarray(getattr(values, "value", values), dtype=float)
+        if label.endswith(" (points)"):
+            ax.plot(fx, values, ls="none", marker=marker, ms=2, color=colour,
+                    label=label[: -len(" (points)")])
+        else:
+            ax.plot(fx, values, ls=style, lw=1.2, color=colour, label=label)
+    ax.set_xscale("log")
+    ax.set_yscale("log")
+    ax.set_xlabel("gravitational-wave frequency [Hz]")
+    ax.set_ylabel(ylabel)
+    ax.legend(fontsize=6, loc="best")
+    if title:
+        ax.set_title(title, fontsize=8)
+    return fig
