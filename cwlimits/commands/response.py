@@ -1,0 +1,250 @@
+"""``cwlimits response``: a network's response to a CW source at a sky position."""
+
+import re
+from pathlib import Path
+
+import astropy.units as u
+import numpy as np
+from astropy.coordinates import SkyCoord
+from astropy.table import QTable
+
+from .. import response as resp
+from ..errors import InputError
+from ._common import add_parser, check_output_path, echo, quantity_arg
+
+ORDER = 35
+
+_QUANTILES = (0.05, 0.10, 0.25, 0.50, 0.75, 0.90, 0.95)
+_PLOT_SUFFIXES = (".png", ".pdf", ".svg")
+
+
+def register(subparsers, common):
+    """Add the ``response`` subcommand."""
+    parser = add_parser(
+        subparsers, common, "response",
+        help="antenna-pattern averages A, B, C and the orientation factor R^2",
+        description="Average a network's antenna patterns over an observation for one sky "
+                    "position and give the distribution of the orientation factor R^2 "
+                    "(rho^2 = R^2 h0^2 T_data / S_n) over uniform cos(iota) and psi.",
+        examples=[
+            "cwlimits response --ra 12h30m --dec -45d --detectors H1,L1 "
+            "--start 2030-01-01T00:00:00 --span 1yr --duty 0.7",
+            "cwlimits response --catalogue targets.csv --target 'Fictional A' "
+            "--detectors H1,L1,V1 --start 2030-01-01 --span 180d --out response.ecsv",
+            "cwlimits response --ra 187.5 --dec -45 --detectors X1 --start 2030-01-01 "
+            "--plot daily.png",
+        ])
+    # Let a declination such as "-45d" or "-45:30:00" follow --dec without "=": argparse
+    # otherwise takes anything starting with "-" and not a plain number for an option.
+    # (This parser has no option that looks like a negative number.)
+    if hasattr(parser, "_negative_number_matcher"):
+        parser._negative_number_matcher = re.compile(r"^-(\d|\.\d)")
+    where = parser.add_argument_group("sky position (RA/Dec or a catalogue target)")
+    where.add_argument("--ra", help="right ascension, anything astropy SkyCoord parses "
+                       "(12h30m, 12:30:00 in hours, 187.5 in deg)")
+    where.add_argument("--dec", help="declination (-45d, -45:00:00, -45 in deg)")
+    where.add_argument("--catalogue", metavar="FILE", help="target catalogue (CSV/ECSV)")
+    where.add_argument("--target", metavar="NAME", help="target name in the catalogue")
+    parser.add_argument("--detectors", default="H1,L1",
+                        help="comma-separated detector codes (built in: "
+                             f"{', '.join(resp.known_detectors())}; default H1,L1)")
+    parser.add_argument("--detector-file", metavar="FILE",
+                        help="CSV or TOML file defining more detectors (see the docs)")
+    parser.add_argument("--start", required=True,
+                        help="start of the observation: ISO date (UTC) or GPS seconds")
+    parser.add_argument("--span", type=quantity_arg(u.d, "span"), default="365.25 d",
+                        help="length of the observation (default 365.25 d)")
+    parser.add_argument("--duty", default="1",
+                        help="duty factor in (0, 1], one value or one per detector "
+                             "(comma-separated; default 1)")
+    parser.add_argument("--weights",
+                        help="relative weights proportional to 1/S_n, one per detector "
+                             "(comma-separated; default equal)")
+    parser.add_argument("--order", type=int, default=48,
+                        help="quadrature nodes per dimension for the R^2 quantiles "
+                             "(default 48)")
+    parser.add_argument("--out", metavar="FILE", help="write a table (.csv or .ecsv)")
+    parser.add_argument("--plot", metavar="FILE",
+                        help="plot a(t), b(t) over one sidereal day (.png, .pdf, .svg)")
+    parser.set_defaults(run=run)
+
+
+def _numbers(text, name):
+    try:
+        values = [float(x) for x in str(text).split(",") if x.strip()]
+    except ValueError:
+        raise InputError(f"--{name}: expected numbers separated by commas",
+                         value=text) from None
+    if not values:
+        raise InputError(f"--{name}: expected at least one number", value=text)
+    return values[0] if len(values) == 1 else np.array(values)
+
+
+def _sky_position(args):
+    if args.catalogue or args.target:
+        if not (args.catalogue and args.target) or args.ra or args.dec:
+            raise InputError("give --catalogue FILE with --target NAME, or --ra with --dec")
+        from ..targets import load_targets
+
+        target = load_targets(args.catalogue).target(args.target)
+        return target.coord, f"target {target.name} in {args.catalogue}"
+    if not (args.ra and args.dec):
+        raise InputError("give a sky position: --ra and --dec, or --catalogue and --target")
+    try:
+        if ":" in args.ra:
+            coord = SkyCoord(args.ra, args.dec, unit=(u.hourangle, u.deg))
+        else:
+            try:
+                coord = SkyCoord(args.ra, args.dec)
+            except (u.UnitsError, ValueError):
+                coord = SkyCoord(args.ra, args.dec, unit=(u.deg, u.deg))
+    except (ValueError, TypeError, u.UnitsError) as exc:
+        raise InputError(f"cannot read the sky position ({exc}); e.g. --ra 12h30m "
+                         "--dec -45d", value=f"{args.ra} {args.dec}") from None
+    return coord, f"RA {args.ra}, Dec {args.dec}"
+
+
+def _check_plot_path(path):
+    if path is None:
+        return None
+    path = Path(path)
+    if path.suffix.lower() not in _PLOT_SUFFIXES:
+        raise InputError(f"plot file must end in {', '.join(_PLOT_SUFFIXES)}",
+                         file=str(path))
+    if path.is_dir():
+        raise InputError("plot path is a folder", file=str(path))
+    return path
+
+
+def run(args):
+    """Run ``cwlimits response``; return the exit code."""
+    out = check_output_path(args.out)
+    plot = _check_plot_path(args.plot)
+    extra = resp.load_detectors(args.detector_file) if args.detector_file else None
+    detectors = resp.get_detectors(args.detectors, extra)
+    coord, where = _sky_position(args)
+    duty = _numbers(args.duty, "duty")
+    weights = None if args.weights is None else _numbers(args.weights, "weights")
+    averages = resp.time_averages(detectors, coord, args.start, args.span, duty=duty,
+                                  weights=weights)
+    R2, w = resp.orientation_factor_rule(averages, order=args.order)
+    network = _summary(R2, w)
+    single = []
+    for i, det in enumerate(detectors):
+        sz = np.sin(det.zeta) ** 2
+        r2, wd = resp.orientation_factor_rule(
+            _one(averages, i, sz), order=args.order)
+        single.append(_summary(r2, wd))
+
+    # Formatting future UTC dates makes ERFA warn "dubious year"; see cwlimits.response.
+    with resp._QuietTime():
+        echo(args, f"sky position: {where} (ICRS {coord.to_string('hmsdms')})")
+        echo(args, f"observation: start {averages.start.isot} UTC, span "
+                   f"{averages.span.to(u.d):.4g}, averages by the {averages.method} method")
+        echo(args, "detector  weight   T_data [d]   A          B          C          D")
+        for i, det in enumerate(detectors):
+            a, b, c = (float(x[i]) for x in (averages.A_det, averages.B_det, averages.C_det))
+            echo(args, f"{det.name:<8}  {averages.weights[i]:.4f}  "
+                       f"{averages.t_data[i].to_value(u.d):10.3f}   {a:.6f}   {b:.6f}   "
+                       f"{c:+.6f}   {a * b - c * c:.6f}")
+        echo(args, f"network   1.0000  {np.sum(averages.t_data.to_value(u.d)):10.3f}   "
+                   f"{float(averages.A):.6f}   {float(averages.B):.6f}   "
+                   f"{float(averages.C):+.6f}   {float(averages.D):.6f}")
+        echo(args, "R^2 over uniform cos(iota) in [-1, 1] and psi (rho^2 = R^2 h0^2 T / S_n):")
+        echo(args, "  mean " + f"{network['mean']:.5f}   " + "   ".join(
+            f"q{int(round(100 * q)):02d} {v:.5f}" for q, v in zip(_QUANTILES, network['q'],
+                                                                     strict=True)))
+        if out is not None:
+            _write(out, detectors, averages, network, single, where, args)
+            echo(args, f"wrote {out}")
+        if plot is not None:
+            _plot(plot, detectors, coord, averages.start)
+            echo(args, f"wrote {plot}")
+    return 0
+
+
+def _one(averages, i, sin2zeta):
+    """ResponseAverages of detector i alone (for its own R^2 quantiles)."""
+    fields = dict(averages.__dict__)
+    fields.update(A=averages.A_det[i] * sin2zeta, B=averages.B_det[i] * sin2zeta,
+                  C=averages.C_det[i] * sin2zeta)
+    return resp.ResponseAverages(**fields)
+
+
+def _summary(R2, w):
+    return {"mean": float(np.sum(R2.value * w)),
+            "q": [float(x) for x in resp.weighted_quantiles(R2, w, _QUANTILES)]}
+
+
+def _write(out, detectors, averages, network, single, where, args):
+    names = [d.name for d in detectors] + ["network"]
+    nan = [np.nan]
+    table = QTable()
+    table["detector"] = names
+    table["latitude"] = [d.latitude.to_value(u.deg) for d in detectors] + nan << u.deg
+    table["longitude"] = [d.longitude.to_value(u.deg) for d in detectors] + nan << u.deg
+    table["gamma"] = [d.gamma.to_value(u.deg) for d in detectors] + nan << u.deg
+    table["zeta"] = [d.zeta.to_value(u.deg) for d in detectors] + nan << u.deg
+    table["weight"] = list(averages.weights) + [1.0] << u.one
+    table["t_data"] = list(averages.t_data.to_value(u.d)) + [
+        float(np.sum(averages.t_data.to_value(u.d)))] << u.d
+    for key in ("A", "B", "C"):
+        per = getattr(averages, f"{key}_det").to_value(u.one)
+        table[key] = list(per) + [float(getattr(averages, key))] << u.one
+    table["D"] = table["A"] * table["B"] - table["C"] ** 2
+    rows = single + [network]
+    table["R2_mean"] = [r["mean"] for r in rows] << u.one
+    for j, q in enumerate(_QUANTILES):
+        table[f"R2_q{int(round(100 * q)):02d}"] = [r["q"][j] for r in rows] << u.one
+    assumptions = {
+        "sky_position": where,
+        "start": f"{averages.start.isot} UTC",
+        "span": f"{averages.span.to(u.d):.6g}",
+        "duty": args.duty,
+        "weights": args.weights or "equal (proportional to 1/S_n)",
+        "averages": f"{averages.method}; data gaps spread evenly over the span",
+        "apparent_coordinates": f"TETE at the middle of the span ({averages.epoch.isot})",
+        "earth_orientation": "bundled IERS tables, UT1 = UTC outside them; no polar motion",
+        "R2": "rho^2 = R^2 h0^2 T_data/S_n; R^2 = A a1 + B a2 + 2 C a3 with sin^2(zeta) "
+              "in the network A, B, C (JKS 1998 gr-qc/9804014)",
+        "A_B_C_rows": "detector rows: JKS <a^2>, <b^2>, <ab> without sin^2(zeta); network "
+                      "row: weighted sum with sin^2(zeta); site columns nan on it",
+        "R2_quantiles": f"quadrature rule, {args.order}x{args.order} nodes, uniform "
+                        "cos(iota) in [-1,1] and psi",
+    }
+    resp_title = "cwlimits response: antenna-pattern averages and orientation factor R^2"
+    from ..tables import write_table
+
+    write_table(table, out, assumptions=assumptions, title=resp_title)
+
+
+def _plot(path, detectors, coord, start):
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    hours = np.linspace(0.0, resp.SIDEREAL_DAY.to_value(u.h), 289)
+    times = start + hours * u.h
+    # Okabe-Ito colours plus line styles and markers: readable in greyscale too.
+    colours = ["#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9"]
+    markers = ["o", "s", "^", "D", "v", "P"]
+    fig, ax = plt.subplots(figsize=(7.0, 4.2))
+    for i, det in enumerate(detectors):
+        a, b = resp.amplitude_modulation(det, coord, times)
+        colour, marker = colours[i % len(colours)], markers[i % len(markers)]
+        ax.plot(hours, a.value, color=colour, linestyle="-", marker=marker, markevery=24,
+                label=f"{det.name} a(t)")
+        ax.plot(hours, b.value, color=colour, linestyle="--", marker=marker,
+                markevery=(12, 24), fillstyle="none", label=f"{det.name} b(t)")
+    ax.set_xlabel(f"time since {start.isot} UTC [h]")
+    ax.set_ylabel("amplitude modulation a(t), b(t) [dimensionless]")
+    ax.set_title("Amplitude modulation over one sidereal day (JKS 1998)")
+    ax.set_xlim(hours[0], hours[-1])
+    ax.grid(True, alpha=0.3)
+    ax.legend(fontsize="small", ncol=2)
+    fig.tight_layout()
+    try:
+        fig.savefig(path)
+    finally:
+        plt.close(fig)
