@@ -49,13 +49,27 @@ def test_bad_results(path):
 
 # ---- generated catalogues -------------------------------------------------------------
 
-_names = st.text(alphabet=st.characters(min_codepoint=48, max_codepoint=122,
-                                        exclude_characters=",\"'#[]\\=+-@"),
-                 min_size=1, max_size=12)
+_names = st.text(
+    alphabet=st.characters(
+        min_codepoint=48, max_codepoint=122, exclude_characters=",\"'#[]\\=+-@"
+    ),
+    min_size=1,
+    max_size=12,
+)
 _rows = st.lists(
-    st.tuples(_names, st.floats(0, 359.9), st.floats(-89.9, 89.9), st.floats(0.01, 50),
-              st.floats(1, 1e6), st.floats(1.0, 2.0), st.floats(1.0, 3.0)),
-    min_size=1, max_size=8, unique_by=lambda r: r[0])
+    st.tuples(
+        _names,
+        st.floats(0, 359.9),
+        st.floats(-89.9, 89.9),
+        st.floats(0.01, 50),
+        st.floats(1, 1e6),
+        st.floats(1.0, 2.0),
+        st.floats(1.0, 3.0),
+    ),
+    min_size=1,
+    max_size=8,
+    unique_by=lambda r: r[0],
+)
 
 
 def _write(tmp_path, rows):
@@ -67,7 +81,9 @@ def _write(tmp_path, rows):
     return path
 
 
-@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(
+    max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
+)
 @given(rows=_rows)
 def test_generated_catalogues_load_and_round_trip(tmp_path, rows):
     path = _write(tmp_path, rows)
@@ -81,7 +97,9 @@ def test_generated_catalogues_load_and_round_trip(tmp_path, rows):
     assert np.all(np.isfinite(table["h0_age"].value))
 
 
-@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(
+    max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
+)
 @given(rows=_rows, data=st.data())
 def test_generated_corruption_is_located(tmp_path, rows, data):
     path = _write(tmp_path, rows)
@@ -102,7 +120,9 @@ def test_generated_corruption_is_located(tmp_path, rows, data):
 _bands = st.lists(st.tuples(st.floats(0.01, 10), st.floats(0, 1e4)), min_size=1, max_size=30)
 
 
-@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(
+    max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
+)
 @given(bands=_bands, start=st.floats(10, 1000))
 def test_generated_results_tables(tmp_path, bands, start):
     lines, f = ["f_lo [Hz],width [Hz],loudest_2F_sum"], start
