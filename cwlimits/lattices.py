@@ -340,6 +340,8 @@ def nearest_template(points, metric, max_mismatch, lattice="An*", origin=None):
     origin = pts.reshape(-1, n)[0] if origin is None else np.asarray(origin, float)
     # scale to unit diagonal first: the Cholesky factor of an SI metric (entries from
     # s^2 to s^8) is then well conditioned
+    if np.any(~(np.diag(g) > 0)):
+        raise InputError("metric is not positive definite (a diagonal entry is <= 0)")
     d = np.sqrt(np.diag(g))
     try:
         chol = np.linalg.cholesky(g / np.outer(d, d))

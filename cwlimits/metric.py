@@ -81,9 +81,21 @@ def _coherent_metric_scaled(offset, n_dims):
     """Metric in the scaled coordinates u_k = f^(k) T^(k+1) for a unit-length segment.
 
     ``offset`` is the segment mid-time minus the reference time, in units of T (broadcasts).
+    The metric is built at the mid-time (odd moments vanish, no cancellation) and moved to
+    the reference time with the Taylor map, ``g_ref = J^T g_mid J``: exact, since the map
+    changes the phase only by a parameter-dependent constant, which the metric removes.
     """
-    mom = _moments(np.asarray(offset, float) - 0.5, np.asarray(offset, float) + 0.5,
-                   2 * n_dims)
+    g_mid = _central_metric_scaled(n_dims)
+    offset = np.asarray(offset, float)
+    if not np.any(offset):
+        return np.broadcast_to(g_mid, offset.shape + g_mid.shape).copy()
+    jac = _taylor_jacobian(offset, n_dims)
+    return np.einsum("...ka,kl,...lb->...ab", jac, g_mid, jac)
+
+
+def _central_metric_scaled(n_dims):
+    """Metric of a unit-length segment about its mid-time, from exact moments."""
+    mom = _moments(-0.5, 0.5, 2 * n_dims)
     k = np.arange(n_dims)
     fact = np.array([math.factorial(i + 1) for i in k], float)
     # d_k phi = 2 pi t^(k+1)/(k+1)!  ->  g_kl = 4 pi^2 (<t^(k+l+2)> - <t^(k+1)><t^(l+1)>)/(..)
@@ -125,7 +137,7 @@ def _semicoherent_metric_scaled(mid, mask, n_dims):
     ``mid`` (..., N): segment mid-times minus the reference time, in units of T;
     ``mask`` (..., N): which entries are real segments (lets different N share one array).
     """
-    g0 = _coherent_metric_scaled(0.0, n_dims)
+    g0 = _central_metric_scaled(n_dims)
     jac = _taylor_jacobian(mid, n_dims)
     # Pletsch 2010, arXiv:1005.0395: g_semi = (1/N) sum_i J_i^T g_i J_i
     per_seg = np.einsum("...ka,kl,...lb->...ab", jac, g0, jac)
