@@ -108,6 +108,7 @@ def _band_grid(args, source):
 
 
 def _source_from_args(args):
+    # a model or file needs no extra assumptions beyond its own describe() line
     if args.timeseries is None:
         return get_noise(args.source or DEFAULT_NOISE_MODEL, args.kind), {}
     if args.source is not None:
@@ -133,12 +134,14 @@ def run(args):
     """Run ``cwlimits noise``; return the exit code."""
     if args.list:
         return _list_models(args)
+    # output paths are checked before any work, so a bad one costs nothing
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, (".png", ".svg", ".pdf"))
     source, assumptions = _source_from_args(args)
     f_lo, f_hi = _band_grid(args, source)
     psd = band_psd(source, f_lo, f_hi)
     table = QTable({"f_lo": f_lo, "f_hi": f_hi, "psd": psd, "asd": np.sqrt(psd)})
+    # every number is computed before anything is written: no partial output on error
     if hasattr(source, "periodograms"):
         table["psd_floor"] = band_floor(source, f_lo, f_hi)
     assumptions = {

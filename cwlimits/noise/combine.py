@@ -44,6 +44,7 @@ class EffectiveNoise(NoiseSource):
     """
 
     def __init__(self, components, t_k_s, *, name="effective"):
+        # defined only where every component is, so T_data is the same at every f
         f_min = max(c._f_min_hz for c in components)
         f_max = min(c._f_max_hz for c in components)
         if not f_min < f_max:
@@ -66,8 +67,11 @@ class EffectiveNoise(NoiseSource):
         return self._t_k_s.sum() << u.s
 
     def _psd_hz(self, f_hz):
+        # S_eff^-1 = sum_k w_k S_k^-1 with w_k = T_k / T_data; the loop is over the few
+        # components, each evaluated on all frequencies at once
         inv = np.zeros(np.shape(f_hz))
         for w, c in zip(self.weights, self.components, strict=True):
+            # a component without data (T_k = 0) is skipped, not evaluated
             if w > 0:
                 inv = inv + w / c._psd_checked(f_hz, False)
         return 1.0 / inv
@@ -155,6 +159,7 @@ def combine_noise(sources, durations=None, duty_factors=1.0, *, name="effective"
         raise InputError("durations must be finite and >= 0", value=str(durations))
     if not np.all(np.isfinite(duty) & (duty >= 0) & (duty <= 1)):
         raise InputError("duty factors must lie in [0, 1]", value=duty.tolist())
+    # data time of each source: span times the fraction of it with usable data
     t_k = t_s * duty
     if not t_k.sum() > 0:
         raise InputError("the total data time is zero (every duration or duty factor is 0)")
@@ -199,6 +204,7 @@ def estimate_stretches(strain, sample_rate, stretch, *, name="stretches", **welc
     if n_stretch < int(round(segment_s * float(fs))):
         raise InputError("a stretch must hold at least one Welch segment",
                          value=f"stretch {float(stretch_s):g} s, segment {segment_s:g} s")
+    # consecutive, non-overlapping stretches; each gets its own Welch estimate
     starts = np.arange(0, x.size, n_stretch)
     pieces = [x[s:s + n_stretch] for s in starts]
     # a short last stretch is kept only if it still fills one segment
@@ -207,5 +213,6 @@ def estimate_stretches(strain, sample_rate, stretch, *, name="stretches", **welc
         raise InputError("the series is shorter than one Welch segment", value=x.size)
     estimates = [estimate_psd(p, sample_rate, name=f"{name}[{k}]", **welch)
                  for k, p in enumerate(pieces)]
+    # T_k is the length of stretch k (a gap-free series has duty factor 1)
     t_k = np.array([p.size / float(fs) for p in pieces])
     return combine_noise(estimates, t_k * u.s, name=name)

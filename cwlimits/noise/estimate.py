@@ -69,8 +69,11 @@ def median_bias(n):
     ``welch(average='median')`` applies).
     """
     n = np.asarray(n)
+    # scipy's private _median_bias is a per-K Python sum; this closed form is the same
+    # number, vectorised, and also serves band_floor's pooled N (thousands of values)
     if np.any(n < 1):
         raise InputError("median_bias needs n >= 1", value=n.tolist())
+    # an even count has the same expected median as the odd count below it
     n_odd = np.where(n % 2 == 0, n - 1, n).astype(float)
     return digamma(n_odd + 1.0) - digamma(0.5 * (n_odd + 1.0))
 
@@ -126,6 +129,7 @@ class EstimatedNoise(TabulatedNoise):
 
 
 def _strain_array(strain, name="strain"):
+    # strain is dimensionless; a bare array is accepted as it is
     x = to_value(strain, u.dimensionless_unscaled, name)
     if x.ndim != 1:
         raise InputError(f"{name} must be a 1-D series", value=f"shape {x.shape}")
@@ -191,7 +195,9 @@ def estimate_psd(strain, sample_rate, *, segment=4 * u.s, overlap=0.5, average="
         raise InputError("overlap must be a fraction in [0, 1)", value=overlap)
     if average not in _AVERAGES:
         raise InputError("average must be 'median' or 'mean'", value=average)
+    # the segment is rounded to whole samples; describe() reports the length used
     nperseg = int(round(seg_s * fs))
+    # fewer than 8 samples leave too few bins for a spectrum worth the name
     if nperseg < 8:
         raise InputError(f"a segment of {seg_s:g} s holds {nperseg} samples at "
                          f"{fs:g} Hz; at least 8 are needed", value=str(segment))
@@ -204,6 +210,7 @@ def estimate_psd(strain, sample_rate, *, segment=4 * u.s, overlap=0.5, average="
     except (ValueError, TypeError):
         raise InputError("unknown window; use a scipy.signal window name such as 'hann', "
                          "'hamming', 'blackman' or 'boxcar'", value=window) from None
+    # the hop must stay >= 1 sample however close to 1 the overlap is
     noverlap = min(int(round(overlap * nperseg)), nperseg - 1)
     # one-sided, density-scaled periodograms of the mean-removed, windowed segments --
     # the same segments and scaling scipy.signal.welch averages
@@ -217,8 +224,11 @@ def estimate_psd(strain, sample_rate, *, segment=4 * u.s, overlap=0.5, average="
         raise InputError("the segment is too short to give two frequency bins",
                          value=str(segment))
     if average == "mean":
+        # Welch 1967: the mean of the K periodograms
         psd = periodograms.mean(axis=0)
     else:
+        # median over segments, made mean-unbiased for Gaussian noise by b(K)
+        # (Allen et al. 2012, gr-qc/0509116, App. B; what scipy.signal.welch does)
         psd = np.median(periodograms, axis=0) / median_bias(periodograms.shape[0])
     if not np.all(psd > 0):
         raise InputError("the series has zero power in some frequency bins (a constant or "
@@ -266,6 +276,7 @@ def band_floor(estimate, f_lo, f_hi):
                          "per-segment periodograms)", value=type(estimate).__name__)
     lo, hi = _band_edges_hz(f_lo, f_hi)
     f = estimate._f_hz
+    # a band [f_lo, f_hi) holds the bins i0 <= i < i1 (bin centres sorted ascending)
     i0 = np.searchsorted(f, lo.ravel(), side="left")
     i1 = np.searchsorted(f, hi.ravel(), side="left")
     counts = i1 - i0
@@ -284,6 +295,8 @@ def band_floor(estimate, f_lo, f_hi):
         idx = i0[sel, None] + np.arange(c)
         pooled = p[:, idx]  # (segments, bands, bins)
         pooled = np.moveaxis(pooled, 1, 0).reshape(sel.size, -1)
+        # every pooled value is S_n chi^2_2 / 2 for flat Gaussian noise in the band, so
+        # the same b(N) correction as for the segment median applies (N -> ln 2)
         out[sel] = np.median(pooled, axis=1) / median_bias(pooled.shape[1])
     return out.reshape(lo.shape) << PSD_UNIT
 
@@ -292,6 +305,7 @@ def _sample_rate_from_times(t_s, path):
     if t_s.size < 2:
         raise TableError("need at least two samples", file=path)
     dt = np.diff(t_s)
+    # the median step is robust to one bad time stamp, which is then reported below
     step = np.median(dt)
     bad = np.flatnonzero(~(np.abs(dt - step) <= 1e-6 * abs(step)) | (dt <= 0))
     if bad.size:
@@ -365,6 +379,7 @@ def read_timeseries(path, sample_rate=None):
     times = None
     if suffix == ".npy":
         try:
+            # no pickles: a data file must never run code
             data = np.load(path, allow_pickle=False)
         except FileNotFoundError:
             raise TableError("file not found", file=path) from None
@@ -414,6 +429,7 @@ def read_timeseries(path, sample_rate=None):
         strain = numbers[:, -1]
         times = numbers[:, 0] if numbers.shape[1] == 2 else None
         declared = _meta_rate(_comment_meta(text), path)
+    # a time column and a declared rate must agree; either one is enough
     if times is not None:
         from_times = _sample_rate_from_times(times, path)
         declared = _merge_rate(declared, from_times, path) if declared else from_times

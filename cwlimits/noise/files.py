@@ -47,6 +47,7 @@ class TabulatedNoise(NoiseSource):
 
     def __init__(self, frequency, values, *, name="table", source=None):
         f_hz = np.atleast_1d(to_value(frequency, u.Hz, "frequency")).astype(float)
+        # the unit says what the values are: Hz^-1/2 is an ASD, 1/Hz a PSD
         if isinstance(values, u.Quantity) and values.unit.is_equivalent(ASD_UNIT):
             psd = to_value(values, ASD_UNIT, "values") ** 2
             kind = "asd"
@@ -57,6 +58,7 @@ class TabulatedNoise(NoiseSource):
         _validate_nodes(f_hz, psd, _index_locator)
         super().__init__(name, f_hz[0], f_hz[-1])
         self._f_hz, self._psd_nodes = f_hz, psd
+        # interpolation works on logarithms, computed once
         self._log_f, self._log_s = np.log(f_hz), np.log(psd)
         self._node_spacing_hz = float(np.min(np.diff(f_hz)))
         self.kind, self.source = kind, source
@@ -107,6 +109,7 @@ def _validate_nodes(f_hz, psd, locate):
         if bad.size:
             i = int(bad[0])
             fail(f"{what} must be positive and finite", i, column, float(values[i]))
+    # interpolation needs strictly increasing nodes; report the first row that breaks it
     steps = np.diff(f_hz)
     bad = np.flatnonzero(steps <= 0)
     if bad.size:
@@ -167,6 +170,7 @@ def _read_plain(path, lines, n_columns):
 
 
 def _kind_from_header(raw, name, kind, path):
+    # precedence: the column's unit, then its name, then the caller's kind
     unit = raw.units.get(name)
     if unit is not None:
         if unit.is_equivalent(ASD_UNIT):
@@ -229,6 +233,7 @@ def read_noise_file(path, kind=None, *, name=None):
     lines = _data_lines(text)
     if not lines:
         raise TableError("empty file: no frequencies", file=path)
+    # a first line of numbers means no header: the kind must come from the caller
     if _is_numeric_line(lines[0][1]) and not path.lower().endswith(".ecsv"):
         if kind is None:
             raise TableError("the file has no header, so it cannot say whether the second "

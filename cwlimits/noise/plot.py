@@ -78,6 +78,7 @@ def plot_asd(sources, path, f_min=None, f_max=None, *, n_points=1000, title=None
     if title:
         ax.set_title(title)
     fig.tight_layout()
+    # the format follows the extension, checked above
     fmt = path.suffix.lower().lstrip(".")
 
     def write(handle):

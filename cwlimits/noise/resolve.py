@@ -36,6 +36,7 @@ def get_noise(spec, kind=None):
     if isinstance(spec, NoiseSource):
         return spec
     text = str(spec).strip()
+    # a model name wins over a file of the same name in the working folder
     if text.lower() in NOISE_MODELS:
         return noise_model(text)
     if Path(text).is_file():
