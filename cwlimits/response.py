@@ -998,7 +998,9 @@ def time_averages(detectors, coord, start, span, *, duty=1.0, weights=None, meth
         a whole number of sidereal days (within 1 s).  For long spans the two differ by
         at most ~1/(number of days).
     samples_per_day : int, optional
-        Time samples per sidereal day for ``'sampled'`` (at least 8; default 48).
+        Time samples per sidereal day for ``'sampled'`` (at least 8; default 48): the
+        grid is the midpoints of ``max(64, ceil(span / SIDEREAL_DAY * samples_per_day))``
+        equal parts of the span.
 
     Returns
     -------
@@ -1179,30 +1181,38 @@ def orientation_factor_samples(source, coord=None, start=None, span=None, *, dut
 
 
 def orientation_factor_rule(source, coord=None, start=None, span=None, *, duty=1.0,
-                            weights=None, order=16, method="auto", return_nodes=False):
+                            weights=None, order=16, method="auto", sky="fixed",
+                            sky_order=None, return_nodes=False):
     """A quadrature rule for averages over cos(iota) and psi: nodes of R^2 and weights.
 
     ``sum(w * f(R2), axis=-1)`` approximates the mean of ``f(R^2)`` over uniform cosi in
-    [-1, 1] and psi in [0, pi); it is exact for the mean of R^2 itself (and of any
-    polynomial in cosi of degree < 2 * order) from ``order >= 3``.
+    [-1, 1] and psi in [0, pi) (and, with ``sky='isotropic'``, over the sky); it is exact
+    for the mean of R^2 itself (and of any polynomial in cosi of degree < 2 * order)
+    from ``order >= 3``.
 
     Parameters
     ----------
     source, coord, start, span, duty, weights, method
-        As in :func:`orientation_factor_samples` (fixed sky positions).
+        As in :func:`orientation_factor_samples`.
     order : int, optional
         Nodes per dimension (>= 3): Gauss-Legendre in cosi, midpoint rule in psi.
+    sky : {'fixed', 'isotropic'}
+        ``'isotropic'`` also integrates over the sky (then give detectors, start and
+        span, and no coord): Gauss-Legendre in sin(dec) times a midpoint rule in RA.
+    sky_order : int, optional
+        Nodes in sin(dec) for ``sky='isotropic'`` (twice as many in RA); default ``order``.
     return_nodes : bool, optional
         Also return the cosi and psi of every node.
 
     Returns
     -------
     R2 : Quantity ['dimensionless']
-        Shape ``(*coord.shape, order**2)``.
+        Shape ``(*coord.shape, order**2)`` for a fixed sky, or
+        ``(2 * sky_order**2 * order**2,)`` for an isotropic sky.
     weights : ndarray
-        Shape ``(order**2,)``, positive, summing to 1.
+        Shape ``(order**2,)`` (or the isotropic length), positive, summing to 1.
     cosi, psi : ndarray, Quantity ['angle']
-        Only with ``return_nodes``; shape ``(order**2,)``.
+        Only with ``return_nodes``; the shape of ``weights``.
 
     Raises
     ------
@@ -1214,19 +1224,42 @@ def orientation_factor_rule(source, coord=None, start=None, span=None, *, duty=1
     R^2 is even in cosi and has period pi/2 in psi (it depends on psi only through
     cos^2 2psi, sin^2 2psi and sin 4psi), so the rule uses cosi in [0, 1] (Gauss-Legendre)
     and psi in [0, pi/2) (midpoint rule, exact for the harmonics of R^2); this is
-    equivalent to the full ranges.
+    equivalent to the full ranges.  The node order is cosi-major (``cosi[k // order]``).
     """
     order = int(order)
     if order < 3:
         raise InputError("order must be at least 3", value=order)
-    A, B, C = _source_averages(source, coord, start, span, duty, weights, method)
+    if sky not in ("fixed", "isotropic"):
+        raise InputError("sky must be 'fixed' or 'isotropic'", value=sky)
     x, wx = roots_legendre(order)
     x, wx = (x + 1) / 2, wx / 2  # Gauss-Legendre on [0, 1], weights summing to 1
     psi = (np.arange(order) + 0.5) * (np.pi / 2) / order
     X, P = np.meshgrid(x, psi, indexing="ij")
     W = (wx[:, None] * np.full(order, 1.0 / order)[None, :]).ravel()
     X, P = X.ravel(), P.ravel()
-    R2 = _orientation_factor(A[..., None], B[..., None], C[..., None], X, P)
+    if sky == "fixed":
+        A, B, C = _source_averages(source, coord, start, span, duty, weights, method)
+        R2 = _orientation_factor(A[..., None], B[..., None], C[..., None], X, P)
+    else:
+        if isinstance(source, ResponseAverages) or coord is not None:
+            raise InputError("sky='isotropic' places its own sky nodes: give detectors, "
+                             "start and span, and no coord")
+        if start is None or span is None:
+            raise InputError("start and span are needed with a list of detectors")
+        n_dec = order if sky_order is None else int(sky_order)
+        if n_dec < 3:
+            raise InputError("sky_order must be at least 3", value=n_dec)
+        obs = _observation(source, start, span, duty, weights, method, 48)
+        # Product rule on the sphere in the apparent frame (isotropy holds in any frame).
+        s, ws = roots_legendre(n_dec)
+        ra = (np.arange(2 * n_dec) + 0.5) * np.pi / n_dec
+        S, RA = np.meshgrid(s, ra, indexing="ij")
+        w_sky = (ws[:, None] / 2 / (2 * n_dec) * np.ones(2 * n_dec)).ravel()
+        _, A, B, C = obs.abc(RA.ravel(), np.arcsin(S.ravel()))
+        R2 = _orientation_factor(A[:, None], B[:, None], C[:, None], X, P).ravel()
+        n_sky = w_sky.size
+        W = (w_sky[:, None] * W[None, :]).ravel()
+        X, P = np.tile(X, n_sky), np.tile(P, n_sky)
     if return_nodes:
         return R2 << u.one, W, X, P * u.rad
     return R2 << u.one, W

@@ -588,3 +588,19 @@ def test_location_helper_is_astropy_earthlocation():
     det = resp.get_detector("X1")
     assert isinstance(det.location, EarthLocation)
     assert det.location.lat.to_value(u.deg) == pytest.approx(45.0)
+
+
+def test_isotropic_rule_gives_four_25ths_for_any_span():
+    # Over the whole sky <F+^2 + Fx^2> = 2/5 at every instant, so the sky-, cosi- and
+    # psi-mean of R^2 is 4/25 for any span (common practice), here to quadrature accuracy.
+    for span in (resp.SIDEREAL_DAY, 1.7 * u.d):
+        R2, w = resp.orientation_factor_rule("X1", start=START, span=span, order=4,
+                                             sky="isotropic", sky_order=5)
+        assert R2.shape == w.shape == (2 * 25 * 16,)
+        assert np.sum(w * R2.value) == pytest.approx(MEAN_R2, abs=1e-12)
+    # network of two: weighted 4/25 as well (sin^2 zeta = 1 for both)
+    R2, w = resp.orientation_factor_rule("H1,V1", start=START, span=3 * u.d, order=4,
+                                         sky="isotropic")
+    assert np.sum(w * R2.value) == pytest.approx(MEAN_R2, abs=1e-12)
+    with pytest.raises(InputError):
+        resp.orientation_factor_rule("X1", POSITION, START, span, sky="isotropic")

@@ -1,6 +1,8 @@
 """``cwlimits response``: a network's response to a CW source at a sky position."""
 
+import os
 import re
+import tempfile
 from pathlib import Path
 
 import astropy.units as u
@@ -10,7 +12,16 @@ from astropy.table import QTable
 
 from .. import response as resp
 from ..errors import InputError
-from ._common import add_parser, check_output_path, echo, quantity_arg
+from ._common import (
+    add_parser,
+    add_target_args,
+    check_output_path,
+    echo,
+    format_assumptions,
+    format_rows,
+    quantity_arg,
+    resolve_target,
+)
 
 ORDER = 35
 
@@ -43,8 +54,7 @@ def register(subparsers, common):
     where.add_argument("--ra", help="right ascension, anything astropy SkyCoord parses "
                        "(12h30m, 12:30:00 in hours, 187.5 in deg)")
     where.add_argument("--dec", help="declination (-45d, -45:00:00, -45 in deg)")
-    where.add_argument("--catalogue", metavar="FILE", help="target catalogue (CSV/ECSV)")
-    where.add_argument("--target", metavar="NAME", help="target name in the catalogue")
+    add_target_args(where, required=False)
     parser.add_argument("--detectors", default="H1,L1",
                         help="comma-separated detector codes (built in: "
                              f"{', '.join(resp.known_detectors())}; default H1,L1)")
@@ -84,9 +94,7 @@ def _sky_position(args):
     if args.catalogue or args.target:
         if not (args.catalogue and args.target) or args.ra or args.dec:
             raise InputError("give --catalogue FILE with --target NAME, or --ra with --dec")
-        from ..targets import load_targets
-
-        target = load_targets(args.catalogue).target(args.target)
+        target = resolve_target(args)
         return target.coord, f"target {target.name} in {args.catalogue}"
     if not (args.ra and args.dec):
         raise InputError("give a sky position: --ra and --dec, or --catalogue and --target")
@@ -138,27 +146,42 @@ def run(args):
 
     # Formatting future UTC dates makes ERFA warn "dubious year"; see cwlimits.response.
     with resp._QuietTime():
+        assumptions = _assumptions(averages, where, args)
         echo(args, f"sky position: {where} (ICRS {coord.to_string('hmsdms')})")
-        echo(args, f"observation: start {averages.start.isot} UTC, span "
-                   f"{averages.span.to(u.d):.4g}, averages by the {averages.method} method")
-        echo(args, "detector  weight   T_data [d]   A          B          C          D")
+        headers = ["detector", "weight", "T_data [d]", "A", "B", "C", "D", "mean R^2"]
+        rows = []
         for i, det in enumerate(detectors):
             a, b, c = (float(x[i]) for x in (averages.A_det, averages.B_det, averages.C_det))
-            echo(args, f"{det.name:<8}  {averages.weights[i]:.4f}  "
-                       f"{averages.t_data[i].to_value(u.d):10.3f}   {a:.6f}   {b:.6f}   "
-                       f"{c:+.6f}   {a * b - c * c:.6f}")
-        echo(args, f"network   1.0000  {np.sum(averages.t_data.to_value(u.d)):10.3f}   "
-                   f"{float(averages.A):.6f}   {float(averages.B):.6f}   "
-                   f"{float(averages.C):+.6f}   {float(averages.D):.6f}")
-        echo(args, "R^2 over uniform cos(iota) in [-1, 1] and psi (rho^2 = R^2 h0^2 T / S_n):")
+            rows.append([det.name, f"{averages.weights[i]:.4f}",
+                         f"{averages.t_data[i].to_value(u.d):.3f}", f"{a:.6f}", f"{b:.6f}",
+                         f"{c:+.6f}", f"{a * b - c * c:.6f}", f"{single[i]['mean']:.5f}"])
+        rows.append(["network", "1", f"{np.sum(averages.t_data.to_value(u.d)):.3f}",
+                     f"{float(averages.A):.6f}", f"{float(averages.B):.6f}",
+                     f"{float(averages.C):+.6f}", f"{float(averages.D):.6f}",
+                     f"{network['mean']:.5f}"])
+        echo(args, format_rows(headers, rows))
+        echo(args)
+        echo(args, "network R^2 over uniform cos(iota) in [-1, 1] and psi "
+                   "(rho^2 = R^2 h0^2 T_data / S_n):")
         echo(args, "  mean " + f"{network['mean']:.5f}   " + "   ".join(
             f"q{int(round(100 * q)):02d} {v:.5f}" for q, v in zip(_QUANTILES, network['q'],
                                                                      strict=True)))
+        echo(args)
+        echo(args, format_assumptions(assumptions))
+        # The figure goes to a temporary file first and is renamed only once the table
+        # is written, so a failure leaves neither behind.
+        pending = _plot(plot, detectors, coord, averages.start) if plot is not None else None
+        try:
+            if out is not None:
+                _write(out, detectors, averages, network, single, assumptions)
+        except BaseException:
+            if pending is not None:
+                pending.unlink(missing_ok=True)
+            raise
         if out is not None:
-            _write(out, detectors, averages, network, single, where, args)
             echo(args, f"wrote {out}")
-        if plot is not None:
-            _plot(plot, detectors, coord, averages.start)
+        if pending is not None:
+            os.replace(pending, plot)
             echo(args, f"wrote {plot}")
     return 0
 
@@ -176,7 +199,28 @@ def _summary(R2, w):
             "q": [float(x) for x in resp.weighted_quantiles(R2, w, _QUANTILES)]}
 
 
-def _write(out, detectors, averages, network, single, where, args):
+def _assumptions(averages, where, args):
+    """The assumptions behind the numbers, printed and written with the table."""
+    return {
+        "sky_position": where,
+        "start": f"{averages.start.isot} UTC",
+        "span": f"{averages.span.to(u.d):.6g}",
+        "duty": args.duty,
+        "weights": args.weights or "equal (proportional to 1/S_n)",
+        "averages": f"{averages.method}; data gaps spread evenly over the span",
+        "apparent_coordinates": f"TETE at the middle of the span ({averages.epoch.isot})",
+        "earth_orientation": "bundled IERS tables, UT1 = UTC outside them; no polar motion",
+        "R2": "rho^2 = R^2 h0^2 T_data/S_n (network: h0^2 R^2 sum_d weight_d T_d/S_d); "
+              "R^2 = A alpha1 + B alpha2 + 2 C alpha3 with A+ = (1+cosi^2)/2, Ax = cosi, "
+              "sin^2(zeta) in the network A, B, C (JKS 1998 gr-qc/9804014)",
+        "A_B_C_rows": "detector rows: JKS <a^2>, <b^2>, <ab> without sin^2(zeta); network "
+                      "row: weighted sum with sin^2(zeta); site columns nan on it",
+        "R2_quantiles": f"quadrature rule, {args.order}x{args.order} nodes, uniform "
+                        "cos(iota) in [-1,1] and psi",
+    }
+
+
+def _write(out, detectors, averages, network, single, assumptions):
     names = [d.name for d in detectors] + ["network"]
     nan = [np.nan]
     table = QTable()
@@ -196,22 +240,6 @@ def _write(out, detectors, averages, network, single, where, args):
     table["R2_mean"] = [r["mean"] for r in rows] << u.one
     for j, q in enumerate(_QUANTILES):
         table[f"R2_q{int(round(100 * q)):02d}"] = [r["q"][j] for r in rows] << u.one
-    assumptions = {
-        "sky_position": where,
-        "start": f"{averages.start.isot} UTC",
-        "span": f"{averages.span.to(u.d):.6g}",
-        "duty": args.duty,
-        "weights": args.weights or "equal (proportional to 1/S_n)",
-        "averages": f"{averages.method}; data gaps spread evenly over the span",
-        "apparent_coordinates": f"TETE at the middle of the span ({averages.epoch.isot})",
-        "earth_orientation": "bundled IERS tables, UT1 = UTC outside them; no polar motion",
-        "R2": "rho^2 = R^2 h0^2 T_data/S_n; R^2 = A a1 + B a2 + 2 C a3 with sin^2(zeta) "
-              "in the network A, B, C (JKS 1998 gr-qc/9804014)",
-        "A_B_C_rows": "detector rows: JKS <a^2>, <b^2>, <ab> without sin^2(zeta); network "
-                      "row: weighted sum with sin^2(zeta); site columns nan on it",
-        "R2_quantiles": f"quadrature rule, {args.order}x{args.order} nodes, uniform "
-                        "cos(iota) in [-1,1] and psi",
-    }
     resp_title = "cwlimits response: antenna-pattern averages and orientation factor R^2"
     from ..tables import write_table
 
@@ -237,14 +265,24 @@ def _plot(path, detectors, coord, start):
                 label=f"{det.name} a(t)")
         ax.plot(hours, b.value, color=colour, linestyle="--", marker=marker,
                 markevery=(12, 24), fillstyle="none", label=f"{det.name} b(t)")
-    ax.set_xlabel(f"time since {start.isot} UTC [h]")
+    ax.set_xlabel(f"time since {start.iso[:19]} UTC [h]")
     ax.set_ylabel("amplitude modulation a(t), b(t) [dimensionless]")
     ax.set_title("Amplitude modulation over one sidereal day (JKS 1998)")
     ax.set_xlim(hours[0], hours[-1])
     ax.grid(True, alpha=0.3)
     ax.legend(fontsize="small", ncol=2)
     fig.tight_layout()
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=path.suffix, dir=path.parent)
+    os.close(fd)
+    mask = os.umask(0)
+    os.umask(mask)
+    os.chmod(tmp, 0o666 & ~mask)  # mkstemp makes the file private; use the usual mode
     try:
-        fig.savefig(path)
+        fig.savefig(tmp, format=path.suffix.lstrip(".").lower())
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
     finally:
         plt.close(fig)
+    return Path(tmp)
