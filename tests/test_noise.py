@@ -734,3 +734,14 @@ def test_network_of_stretch_combinations_nests():
     assert network.t_data == flat.t_data
     with pytest.raises(InputError, match="durations are needed"):
         combine_noise([noise_model("advanced-fit"), b])
+
+
+def test_cli_headerless_file_needs_kind(tmp_path, capsys):
+    path = write(tmp_path / "curve.txt", "10 1e-44\n100 1e-46\n1000 1e-45\n")
+    assert main(["noise", str(path), "--band", "10Hz", "1000Hz", "--step", "90Hz"]) == 2
+    assert "pass kind='asd' or 'psd'" in capsys.readouterr().err
+    out = tmp_path / "c.csv"
+    assert main(["noise", str(path), "--kind", "psd", "--band", "10Hz", "1000Hz",
+                 "--step", "90Hz", "--out", str(out)]) == 0
+    raw = read_table(out)
+    assert len(raw) == 11 and "tabulated PSD" in raw.meta["assumption.noise"]
