@@ -43,6 +43,7 @@ from .errors import ComputationError, InputError
 __all__ = [
     "QuadratureRule",
     "SensitivityEstimate",
+    "combine_rules",
     "false_alarm_threshold",
     "detection_probability",
     "solve_amplitude",
@@ -284,6 +285,39 @@ def _signal_rule(r2_rule, mismatch_rule, max_nodes=DEFAULT_MAX_NODES):
     if max_nodes is not None and k > max_nodes:
         c, w = _condense(c, w, int(max_nodes))
     return _SignalRule(c, w, batch)
+
+
+def combine_rules(r2_rule, mismatch_rule=0.0, max_nodes=DEFAULT_MAX_NODES):
+    """Rule for the signal factor ``c = R2 (1 - mu)``, built once and reusable.
+
+    The functions of this module combine the R2 and mismatch rules (and condense large
+    ones) on every call.  For repeated calls with the same rules (many band chunks, upper-
+    limit grids) build the combined rule once and pass it as ``r2_rule`` with
+    ``mismatch_rule=0``: the results are the same.
+
+    Parameters
+    ----------
+    r2_rule, mismatch_rule
+        As in :func:`detection_probability`.
+    max_nodes : int or None
+        Condense the product rule to this many equal-probability nodes (None: keep all).
+
+    Returns
+    -------
+    QuadratureRule
+        Nodes ``c`` with the rules' batch shape.
+
+    Notes
+    -----
+    ``P_det`` and the likelihood depend on R2 and mu only through ``c``, since
+    ``rho2 = c h0^2 T_data / S_n`` (Wette 2012, arXiv:1111.5650).  Condensing keeps each
+    bin's weight and weighted-mean node; the depth moves by <= 2e-4 with 64 nodes
+    (tests/test_detection.py::test_condensed_rule_matches_full_rule).
+    """
+    rule = _signal_rule(r2_rule, mismatch_rule, max_nodes)
+    k = rule.c.shape[-1]
+    return QuadratureRule(rule.c.reshape(rule.batch_shape + (k,)),
+                          rule.w.reshape(rule.batch_shape + (k,)), name="signal rule")
 
 
 def _rule_index(rule, shape):

@@ -505,3 +505,17 @@ def test_unreachable_confidence_is_a_computation_error():
         det.critical_depth(20.0, 1, T_DATA, rule, 0.0, 0.9)
     # All errors are CwlimitsError subclasses.
     assert issubclass(ComputationError, CwlimitsError)
+
+
+def test_combined_rule_gives_the_same_depth(r2_all_sky):
+    # Building c = R2 (1 - mu) once and passing it with mismatch 0 is the same computation
+    # (rho2 depends on R2 and mu only through c; Wette 2012, arXiv:1111.5650).
+    mu = (np.array([0.1, 0.3]), np.array([0.5, 0.5]))
+    rule = det.combine_rules(r2_all_sky, mu)
+    assert rule.size == det.DEFAULT_MAX_NODES
+    # The mean of c is preserved by condensation: <R2> <1 - mu> (independent draws).
+    assert rule.mean() == pytest.approx(r2_all_sky.mean() * 0.8, rel=1e-12)
+    thr = det.false_alarm_threshold(1e-6, 1, [1, 50])
+    np.testing.assert_allclose(det.critical_depth(thr, [1, 50], T_DATA, rule, 0.0, 0.9).value,
+                               det.critical_depth(thr, [1, 50], T_DATA, r2_all_sky, mu,
+                                                  0.9).value, rtol=1e-10)
