@@ -513,6 +513,10 @@ class _QuietTime(warnings.catch_warnings):
         # the geocentric direction used here does not depend on it.
         warnings.filterwarnings("ignore", message=r"Tried to get polar motions",
                                 category=AstropyWarning)
+        # With downloads off, an expired bundled leap-second table is still used (no leap
+        # second can have been missed by more than the table's ~6-month horizon: <= 1 s).
+        warnings.filterwarnings("ignore", message=r"leap-second file is expired",
+                                category=iers.IERSStaleWarning)
         self._conf = iers.conf.set_temp("auto_download", False)
         self._conf.__enter__()
         return result

@@ -48,6 +48,16 @@ ITRS_TOL_RAD = (1 * u.arcsec).to_value(u.rad)
 # The closed forms and the tensor contraction are the same algebra: 1e-12.
 CONTRACTION_TOL = 1e-12
 
+
+
+@pytest.fixture(autouse=True, scope="module")
+def _offline_astropy():
+    """Keep astropy from downloading IERS or leap-second tables in this module's own
+    Time objects (the library does this itself; the tests must not depend on order)."""
+    with iers.conf.set_temp("auto_download", False):
+        yield
+
+
 WHOLE_DAY = resp.SIDEREAL_DAY
 START = "2030-01-01T00:00:00"
 POSITION = SkyCoord("12h30m", "-45d")
@@ -272,6 +282,10 @@ def test_pattern_shapes_scalar_array_and_broadcast():
     assert grid[0][4, 2].value == pytest.approx(single[0].value, abs=1e-6)
     a, b = resp.amplitude_modulation("V1", POSITION, times[:, None])
     assert a.shape == (5, 1) and b.unit == u.one
+    assert resp.amplitude_modulation("V1", POSITION, times[0])[0].shape == ()
+    assert resp.amplitude_modulation("V1", POSITION, times)[1].shape == (5,)
+    assert resp.antenna_patterns_tensor("V1", POSITION, psi[0], times[0])[0].shape == ()
+    assert resp.antenna_patterns_tensor("V1", POSITION, psi[0], times)[1].shape == (5,)
     tensor = resp.antenna_patterns_tensor("V1", POSITION, psi[None, :], times[:, None])
     np.testing.assert_allclose(tensor[0].value, grid[0].value, atol=CONTRACTION_TOL)
     # times as GPS seconds give the same numbers as the Time object
