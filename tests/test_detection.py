@@ -519,3 +519,38 @@ def test_combined_rule_gives_the_same_depth(r2_all_sky):
     np.testing.assert_allclose(det.critical_depth(thr, [1, 50], T_DATA, rule, 0.0, 0.9).value,
                                det.critical_depth(thr, [1, 50], T_DATA, r2_all_sky, mu,
                                                   0.9).value, rtol=1e-10)
+
+
+def _poisson_mixture(x, df, nc, kind):
+    """High-precision non-central chi-squared sf/pdf as a Poisson mixture of central ones.
+
+    P(X > x) = sum_j Pois(j; nc/2) Q(df/2 + j, x/2) (Johnson, Kotz & Balakrishnan,
+    Continuous Univariate Distributions vol. 2, ch. 29, from memory; common practice),
+    evaluated with mpmath.
+    """
+    mpmath = pytest.importorskip("mpmath")
+    with mpmath.workdps(30):
+        lam, x = mpmath.mpf(nc) / 2, mpmath.mpf(x)
+        half = int(12 * mpmath.sqrt(lam + 1)) + 20
+        total = mpmath.mpf(0)
+        for j in range(max(0, int(lam) - half), int(lam) + half):
+            pois = mpmath.exp(-lam + j * mpmath.log(lam) - mpmath.loggamma(j + 1))
+            k = mpmath.mpf(df) / 2 + j
+            if kind == "sf":
+                term = mpmath.gammainc(k, x / 2, regularized=True)
+            else:  # chi2 pdf with 2k dof
+                term = mpmath.exp((k - 1) * mpmath.log(x / 2) - x / 2 - mpmath.loggamma(k)) / 2
+            total += pois * term
+        return float(total)
+
+
+@pytest.mark.parametrize(("df", "nc"), [(4000, 600.0), (400, 2000.0), (4, 30.0)])
+def test_scipy_ncx2_at_large_df_against_mpmath(df, nc):
+    # The package relies on scipy.stats.ncx2 at 4N up to thousands; check sf and pdf there
+    # against a 30-digit Poisson-mixture evaluation (mpmath, installed with sympy).
+    x = stats.chi2.isf(1e-10, df)
+    assert stats.ncx2.sf(x, df, nc) == pytest.approx(_poisson_mixture(x, df, nc, "sf"),
+                                                     rel=1e-9, abs=1e-15)
+    x_mid = df + nc  # the mean of the distribution
+    assert stats.ncx2.pdf(x_mid, df, nc) == pytest.approx(
+        _poisson_mixture(x_mid, df, nc, "pdf"), rel=1e-9)
