@@ -249,7 +249,7 @@ class Lattice:
         return mm * d2
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def _anstar_mean_factor(n, log2_points=16, seed=20100517):
     """Mean of |x-p|^2/R^2 over A_n*'s Voronoi cell by scrambled-Sobol integration."""
     lat = Lattice("An*", n)
@@ -258,7 +258,7 @@ def _anstar_mean_factor(n, log2_points=16, seed=20100517):
     return float(((x - lat.nearest_point(x)) ** 2).sum(axis=-1).mean())
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def get_lattice(name, n_dims):
     """The :class:`Lattice` ``name`` ('An*' or 'Zn') in ``n_dims`` dimensions (cached)."""
     return Lattice(name, int(n_dims))

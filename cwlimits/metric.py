@@ -30,9 +30,10 @@ reference time (tested).
 Semi-coherent metric.  Each segment's metric is written in common coordinates at one
 reference time ``t_ref`` (the segment metric at its own mid-time, transformed with that
 Taylor map) and the ``N`` segment metrics are averaged (Pletsch 2010, arXiv:1005.0395,
-the semi-coherent metric section; equation numbers are not quoted as we did not re-read them).  The ratio of the averaged to the coherent determinants gives the
-refinement factors: ``sqrt(5 N^2 - 4)`` in ``fdot`` and ``sqrt((35 N^4 - 140 N^2 + 108)/3)``
-in ``fddot`` for contiguous segments (Pletsch 2010, arXiv:1005.0395; checked in the tests).
+the semi-coherent metric section; equation numbers are not quoted as we did not re-read
+them).  The ratio of the averaged to the coherent determinants gives the refinement
+factors: ``sqrt(5 N^2 - 4)`` in ``fdot`` and ``sqrt((35 N^4 - 140 N^2 + 108)/3)`` in
+``fddot`` for contiguous segments (Pletsch 2010, arXiv:1005.0395; checked in the tests).
 """
 
 import math

@@ -4,13 +4,6 @@ from collections import namedtuple
 import astropy.units as u
 import numpy as np
 import pytest
-
-from cwlimits.cli import main
-from cwlimits.cost import computing_cost, count_templates, plot_cost_scan, scan_cost
-from cwlimits.errors import InputError
-from cwlimits.parameter_space import AgeBasedSpace, BoxSpace
-from cwlimits.setup import SearchSetup
-from cwlimits.tables import read_table
 from references_cost import (
     coherent_sqrt_det_3,
     refinement_fddot,
@@ -18,6 +11,13 @@ from references_cost import (
     thickness_anstar,
     thickness_zn,
 )
+
+from cwlimits.cli import main
+from cwlimits.cost import computing_cost, count_templates, plot_cost_scan, scan_cost
+from cwlimits.errors import InputError
+from cwlimits.parameter_space import AgeBasedSpace, BoxSpace
+from cwlimits.setup import SearchSetup
+from cwlimits.tables import read_table
 
 DAY = 86400.0
 YR = 365.25 * DAY

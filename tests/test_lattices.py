@@ -4,6 +4,16 @@ import math
 import astropy.units as u
 import numpy as np
 import pytest
+from references_cost import (
+    G_A2,
+    G_A3STAR,
+    G_ZN,
+    THICKNESS_ANSTAR_TABLE,
+    THICKNESS_TABLE_RTOL,
+    thickness_anstar,
+    thickness_zn,
+)
+from references_cost import ball_volume as ball_volume_ref
 from scipy import optimize, stats
 
 from cwlimits.errors import InputError
@@ -15,16 +25,6 @@ from cwlimits.lattices import (
     sample_mismatch,
 )
 from cwlimits.metric import coherent_metric
-from references_cost import (
-    G_A2,
-    G_A3STAR,
-    G_ZN,
-    THICKNESS_ANSTAR_TABLE,
-    THICKNESS_TABLE_RTOL,
-    thickness_anstar,
-    thickness_zn,
-)
-from references_cost import ball_volume as ball_volume_ref
 
 
 def test_ball_volume_scalar_array_broadcast():
