@@ -828,7 +828,7 @@ def antenna_patterns_tensor(detector, coord, psi, times):
     -----
     The wave comes from the direction n = (cos d cos phi, cos d sin phi, sin d) with
     phi = alpha - GAST; X, Y are the wave-frame axes of Anderson, Brady, Creighton &
-    Flanagan 2001 (gr-qc/0008066, Appendix B); e+ = XX - YY, ex = XY + YX.
+    Flanagan 2001 (gr-qc/0008066, Appendix B, from memory); e+ = XX - YY, ex = XY + YX.
 
     References
     ----------
