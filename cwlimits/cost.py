@@ -15,7 +15,7 @@ Thin directions.  Where the space is thinner than one template in a direction, t
 direction must not count: the full-dimensional formula would give a fraction of a template
 per unit of the other directions.  The rule used here: the count of a stage is
 ``max(N_1, N_2, N_3)`` over the nested projections (the higher spin-down orders are the ones
-that become thin), as in Wette et al. 2008, Sect. III; the dimension that gave the maximum is
+that become thin), following Wette et al. 2008, Sect. III; the dimension that gave the maximum is
 reported (``dims_coh``, ``dims_semi``).  A band that contains any of the space has at least
 one template; a band outside the space (a box space) has none.
 
@@ -31,6 +31,9 @@ Cost (in hours of one CPU core; astropy unit ``h``):
 with ``c_coh`` the cost of one coherent template for one detector and one segment and
 ``c_semi`` of one semi-coherent template for one segment (the StackSlide cost model of
 Prix & Shaltev 2012, arXiv:1201.4321, in the simple form with constant unit costs).
+
+Section, chapter and table numbers of the works cited here are given from memory; the
+formulas themselves are checked in the tests against sympy, scipy or the closed forms.
 """
 
 from dataclasses import dataclass, field

@@ -31,6 +31,9 @@ point ``x`` (whitened coordinates divided by ``sqrt(mu_max)``) is ``mu_max |x - 
   G(A_3*) = 0.0785433 of SPLAG Table 2.3 (tested).
 
 ``V_n = pi^(n/2) / Gamma(n/2 + 1)`` is the volume of the unit n-ball.
+
+Section, chapter and table numbers of the works cited here are given from memory; the
+formulas themselves are checked in the tests against sympy, scipy or the closed forms.
 """
 
 import functools

@@ -34,6 +34,9 @@ the semi-coherent metric section; equation numbers are not quoted as we did not 
 them).  The ratio of the averaged to the coherent determinants gives the refinement
 factors: ``sqrt(5 N^2 - 4)`` in ``fdot`` and ``sqrt((35 N^4 - 140 N^2 + 108)/3)`` in
 ``fddot`` for contiguous segments (Pletsch 2010, arXiv:1005.0395; checked in the tests).
+
+Section, chapter and table numbers of the works cited here are given from memory; the
+formulas themselves are checked in the tests against sympy, scipy or the closed forms.
 """
 
 import math

@@ -25,6 +25,9 @@ since the fddot range at fixed ``(f, fdot)`` is ``(n_max - n_min) fdot^2 / f`` a
 ``integral fdot^2 dfdot`` over the fdot range is ``f^3 [(n_min-1)^-3 - (n_max-1)^-3] /
 (3 tau^3)``.  Wette et al. 2008 give the same ``f^3/tau^3`` scaling of the template count
 (their Sect. III; the prefactor above is our own integration, tested against scipy).
+
+Section, chapter and table numbers of the works cited here are given from memory; the
+formulas themselves are checked in the tests against sympy, scipy or the closed forms.
 """
 
 from dataclasses import dataclass

@@ -251,3 +251,27 @@ def test_cli_bad_setup_file_exits_2(tmp_path, capsys, line, match):
 def test_cli_needs_setup_values(capsys):
     assert main(["cost", "--age", "1000yr", "--t-seg", "1day"]) == 2
     assert "--n-seg" in capsys.readouterr().err
+
+
+def test_gapped_segments_use_the_semicoherent_metric_of_their_mid_times():
+    # reference: Pletsch 2010 (segments with gaps): the semi-coherent count is
+    # theta mu^(-3/2) sqrt(det g_semi) V_3 with the metric of the given mid-times
+    from cwlimits.metric import semicoherent_sqrt_det
+
+    s = _setup(t_seg=10 * u.day, n_seg=4, span=100 * u.day)
+    row = count_templates(s, 300 * u.yr)[0]
+    sd = semicoherent_sqrt_det(s.t_seg, mid_times=s.segment_mid_times).to_value(u.s ** 6)
+    want = thickness_anstar(3) * 0.3 ** -1.5 * sd * _volume3(400.0, 500.0, 300 * YR)
+    assert row["dims_semi"] == 3 and row["n_semi"] == pytest.approx(want, rel=1e-9)
+    contiguous = count_templates(s.replace(span=None), 300 * u.yr)[0]
+    assert row["n_semi"] > contiguous["n_semi"]          # a longer span resolves finer
+
+
+def test_computing_cost_scalar_and_broadcast_bands():
+    s = _setup(n_seg=3)
+    one = computing_cost(s, 300 * u.yr, bands=(450 * u.Hz, 451 * u.Hz))
+    assert len(one.table) == 1 and one.total.unit == u.h
+    grid = computing_cost(s, 300 * u.yr, bands=(np.array([[400.0], [420.0]]) * u.Hz,
+                                                np.array([440.0, 460.0]) * u.Hz))
+    assert len(grid.table) == 4
+    assert grid.total.value == pytest.approx(grid.table["cost"].value.sum())

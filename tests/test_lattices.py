@@ -171,6 +171,19 @@ def test_covering_with_a_phase_metric(kind):
     assert abs(mu.mean() - factor * mu_max) < 4 * err + 0.01 * factor * mu_max
 
 
+def test_nearest_template_single_point_and_origin():
+    # reference: a template of the bank is its own nearest template (mismatch 0), and a
+    # point at a known whitened offset has that mismatch (definition of the metric)
+    g = coherent_metric(1 * u.day, 2)
+    origin = np.array([100.0, -1e-9])
+    t, mu = nearest_template(origin, g, 0.2, origin=origin)
+    np.testing.assert_allclose(t, origin, rtol=0, atol=1e-15)
+    assert mu.shape == () and float(mu) == pytest.approx(0.0, abs=1e-20)
+    step = np.array([0.1 * math.sqrt(0.2 / g[0, 0]), 0.0])     # mismatch 0.01 * 0.2
+    _, mu = nearest_template(origin + step, g, 0.2, origin=origin)
+    assert float(mu) == pytest.approx(0.002, rel=1e-6)
+
+
 def test_nearest_template_bad_inputs():
     g = coherent_metric(1 * u.day, 2)
     with pytest.raises(InputError, match="max_mismatch"):
