@@ -150,10 +150,10 @@ class QuadratureRule:
 
     Examples
     --------
-    >>> QuadratureRule.fixed(0.16).mean()
-    array(0.16)
-    >>> QuadratureRule.from_samples([0.1, 0.3]).mean()
-    array(0.2)
+    >>> float(QuadratureRule.fixed(0.16).mean())
+    0.16
+    >>> round(float(QuadratureRule([0.1, 0.3], [1.0, 3.0]).mean()), 12)
+    0.25
     """
 
     def __init__(self, nodes, weights=None, *, name="rule"):
@@ -274,7 +274,11 @@ def _signal_rule(r2_rule, mismatch_rule, max_nodes=DEFAULT_MAX_NODES):
     """
     r2 = _as_rule(r2_rule, "r2_rule", 0.0, np.inf)
     mu = _as_rule(mismatch_rule, "mismatch_rule", 0.0, 1.0)
-    batch = np.broadcast_shapes(r2.batch_shape, mu.batch_shape)
+    try:
+        batch = np.broadcast_shapes(r2.batch_shape, mu.batch_shape)
+    except ValueError:
+        raise InputError("the batch (per-setup) axes of r2_rule and mismatch_rule do not "
+                         "broadcast", value=(r2.batch_shape, mu.batch_shape)) from None
     # Outer product over the node axes; the batch axes broadcast.
     c = r2.nodes[..., :, None] * (1.0 - mu.nodes[..., None, :])
     w = r2.weights[..., :, None] * mu.weights[..., None, :]

@@ -492,6 +492,9 @@ def test_bad_time_psd_and_others():
         det.critical_depth(20.0, 1, T_DATA, 0.16, 1.5)
     with pytest.raises(InputError, match="weights"):
         det.QuadratureRule([0.1, 0.2], [-1.0, 2.0])
+    with pytest.raises(InputError, match="batch"):
+        det.critical_depth(20.0, 1, T_DATA, det.QuadratureRule.fixed([0.1, 0.2, 0.3]),
+                           det.QuadratureRule.fixed([0.0, 0.1]))
     with pytest.raises(InputError, match="exactly one"):
         det.estimate_sensitivity(1, T_DATA, 0.16)
     with pytest.raises(InputError, match="h0"):
