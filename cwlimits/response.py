@@ -433,7 +433,7 @@ def _orientation_from_fields(row, name):
             raise _FieldError("y_azimuth", "the arms must not be parallel",
                               row["y_azimuth"]) from None
     if "gamma" in have:
-        return row["gamma"], row.get("zeta", 90.0) if "zeta" in have else 90.0
+        return row["gamma"], (row["zeta"] if "zeta" in have else 90.0)
     missing = "y_azimuth" if "x_azimuth" in have else "x_azimuth"
     raise _FieldError(missing, "the arm orientation is missing: give x_azimuth and "
                       "y_azimuth (deg from north through east), or gamma (and zeta)", "")
@@ -544,10 +544,10 @@ def _as_time(times, name="times"):
                 return Time(array if array.ndim else str(array), scale="utc")
             if array.dtype.kind in "iuf":
                 return Time(array.astype(float), format="gps")
-        except (ValueError, TypeError) as exc:
-            raise InputError(f"{name}: cannot read as a time ({exc}); use an astropy Time, "
-                             "an ISO date such as '2030-01-01T00:00:00' (UTC) or GPS "
-                             "seconds", value=str(times)) from None
+        except (ValueError, TypeError):
+            raise InputError(f"{name}: cannot read as a time; use an astropy Time, an ISO "
+                             "date such as '2030-01-01T00:00:00' (UTC) or GPS seconds",
+                             value=str(times)) from None
     raise InputError(f"{name}: cannot read as a time; use an astropy Time, an ISO date "
                      "(UTC) or GPS seconds", value=repr(times))
 

@@ -625,3 +625,13 @@ def test_isotropic_rule_gives_four_25ths_for_any_span():
     assert np.sum(w * R2.value) == pytest.approx(MEAN_R2, abs=1e-12)
     with pytest.raises(InputError):
         resp.orientation_factor_rule("X1", POSITION, START, span, sky="isotropic")
+
+
+def test_times_in_every_accepted_form_agree():
+    # ISO (UTC), GPS seconds as a number, a string and a Quantity, and a Time: one instant.
+    t = Time("2026-04-01T03:00:00", scale="utc")
+    forms = ["2026-04-01T03:00:00", t.gps, str(t.gps), t.gps * u.s, t, t.tt]
+    values = [resp.antenna_patterns("K1", POSITION, 0.2 * u.rad, x)[0].value for x in forms]
+    np.testing.assert_allclose(values, values[0], atol=1e-12)
+    with pytest.raises(InputError, match="cannot read as a time"):
+        resp.antenna_patterns("K1", POSITION, 0.2 * u.rad, "nonsense")
