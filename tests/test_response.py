@@ -13,6 +13,8 @@ from astropy.coordinates import ITRS, TETE, EarthLocation, SkyCoord
 from astropy.time import Time
 from astropy.utils import iers
 from erfa import ErfaWarning
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from cwlimits import response as resp
 from cwlimits.cli import main
@@ -635,3 +637,28 @@ def test_times_in_every_accepted_form_agree():
     np.testing.assert_allclose(values, values[0], atol=1e-12)
     with pytest.raises(InputError, match="cannot read as a time"):
         resp.antenna_patterns("K1", POSITION, 0.2 * u.rad, "nonsense")
+
+
+@settings(max_examples=60, deadline=None)
+@given(lat=st.floats(-89.9, 89.9), lon=st.floats(-180, 180), az_x=st.floats(0, 360),
+       opening=st.floats(1, 179) | st.floats(-179, -1))
+def test_any_arm_pair_gives_the_explicit_tensor(lat, lon, az_x, opening):
+    # (u u - v v)/2 of the arms as given (JKS 1998 Sec. II), for either arm ordering and
+    # any opening angle; and the closed forms then match the contraction (JKS eqs. 10-13).
+    az_y = az_x - opening
+    det = resp.Detector.from_arm_azimuths("P1", lat * u.deg, lon * u.deg, az_x * u.deg,
+                                          az_y * u.deg)
+    la, lo = np.radians(lat), np.radians(lon)
+    east = np.array([-np.sin(lo), np.cos(lo), 0])
+    north = np.array([-np.sin(la) * np.cos(lo), -np.sin(la) * np.sin(lo), np.cos(la)])
+    uu = np.sin(np.radians(az_x)) * east + np.cos(np.radians(az_x)) * north
+    vv = np.sin(np.radians(az_y)) * east + np.cos(np.radians(az_y)) * north
+    np.testing.assert_allclose(det.tensor(), 0.5 * (np.outer(uu, uu) - np.outer(vv, vv)),
+                               atol=1e-12)
+    rng = np.random.default_rng(1)
+    ra, dec = rng.uniform(0, 2 * np.pi, 8), np.arcsin(rng.uniform(-1, 1, 8))
+    gast, psi = rng.uniform(0, 2 * np.pi, 8), rng.uniform(0, np.pi, 8)
+    a, b = resp._ab(la, det.gamma.to_value(u.rad), dec, ra - gast - lo)
+    closed = resp._fplus_fcross(a, b, det.zeta.to_value(u.rad), psi)
+    tensor = resp._tensor_patterns(det.tensor(), ra, dec, gast, psi)
+    np.testing.assert_allclose(closed, tensor, atol=1e-12)
