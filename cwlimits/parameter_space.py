@@ -286,6 +286,41 @@ class BoxSpace(ParameterSpace):
         return cls(box(f0, f_tol, u.Hz), box(fd0, fdot_tol, u.Hz / u.s),
                    box(fdd0, fddot_tol, u.Hz / u.s ** 2))
 
+    @classmethod
+    def for_target(cls, target, *, f_tol=1e-3, fdot_tol=1e-2, harmonic=2):
+        """A narrow box around the known spin of a target (``.f_rot``, ``.fdot_rot``).
+
+        Parameters
+        ----------
+        target : Target
+            A target with a known spin (:class:`cwlimits.targets.Target` or any object
+            with ``.f_rot`` and ``.fdot_rot`` Quantities).
+        f_tol, fdot_tol : float
+            Fractional half-widths of the box in f and fdot.
+        harmonic : float
+            Ratio of gravitational-wave to rotation frequency: 2 for a mass quadrupole
+            (default; common practice), 4/3 for r-modes (Owen et al. 1998, gr-qc/9804044;
+            arXiv id from memory).
+
+        Returns
+        -------
+        BoxSpace
+            The box in gravitational-wave frequency; fddot is not searched.
+
+        Raises
+        ------
+        InputError
+            If the target's spin is not known.
+        """
+        f_rot = getattr(target, "f_rot", None)
+        fdot_rot = getattr(target, "fdot_rot", None)
+        if f_rot is None or fdot_rot is None:
+            raise InputError("this target has no known spin (f_rot, fdot_rot); use the "
+                             "age-based space instead",
+                             value=getattr(target, "name", None))
+        return cls.around_spin(harmonic * f_rot, harmonic * fdot_rot, f_tol=f_tol,
+                               fdot_tol=fdot_tol)
+
     def _f_bounds(self):
         return self._lims[0]
 

@@ -275,3 +275,22 @@ def test_computing_cost_scalar_and_broadcast_bands():
                                                 np.array([440.0, 460.0]) * u.Hz))
     assert len(grid.table) == 4
     assert grid.total.value == pytest.approx(grid.table["cost"].value.sum())
+
+
+def test_cli_spin_box(tmp_path, capsys, demo_catalogue_path):
+    # the fictional demo target with a known spin; the band defaults to the box around
+    # f_gw = 2 f_rot (common practice for a mass quadrupole)
+    out = tmp_path / "box.csv"
+    rc = main(["cost", "--catalogue", str(demo_catalogue_path), "--target",
+               "Fict Pulsar Cinder", "--spin-box", "1e-3", "0.05", "--t-seg", "1day",
+               "--n-seg", "30", "--band-width", "0.01Hz", "--out", str(out)])
+    assert rc == 0
+    table = read_table(out)
+    f_lo = table.quantity("f_min", u.Hz)
+    f_hi = table.quantity("f_max", u.Hz)
+    f0 = 2 * 18.3                                   # 2 f_rot of the demo row
+    assert f_lo[0].value == pytest.approx(f0 * (1 - 1e-3))
+    assert f_hi[-1].value == pytest.approx(f0 * (1 + 1e-3))
+    assert "box around the spin" in capsys.readouterr().out
+    assert main(CLI + ["--spin-box", "1e-3", "0.1"]) == 2
+    assert "--spin-box needs" in capsys.readouterr().err

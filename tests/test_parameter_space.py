@@ -86,6 +86,24 @@ def test_around_spin_box():
         BoxSpace.around_spin(60 * u.Hz, -1e-10 * FDOT, f_tol=-1)
 
 
+def test_box_for_target(demo_catalogue_path):
+    # reference: GW frequency 2 f_rot for a mass quadrupole (common practice); the fictional
+    # demo catalogue's one target with a spin
+    from cwlimits.targets import load_targets
+
+    cat = load_targets(demo_catalogue_path)
+    star = cat.target("Fict Pulsar Cinder")
+    box = BoxSpace.for_target(star, f_tol=1e-4, fdot_tol=0.1)
+    f0 = 2 * star.f_rot.to_value(u.Hz)
+    width_f = box.volume(f0 * 0.9 * u.Hz, f0 * 1.1 * u.Hz, 1).to_value(u.Hz)
+    assert width_f == pytest.approx(2 * 1e-4 * f0, rel=1e-9)
+    width_fdot = (box.volume(f0 * 0.9 * u.Hz, f0 * 1.1 * u.Hz, 2) / (width_f * u.Hz))
+    assert width_fdot.to_value(FDOT) == pytest.approx(
+        2 * 0.1 * 2 * abs(star.fdot_rot.to_value(FDOT)), rel=1e-9)
+    with pytest.raises(InputError, match="no known spin"):
+        BoxSpace.for_target(cat.target("Fict Ember"))
+
+
 def test_bad_inputs():
     with pytest.raises(InputError, match="age"):
         AgeBasedSpace(0 * u.yr)

@@ -8,6 +8,7 @@ import numpy as np
 from ..cost import PLOT_SUFFIXES, computing_cost, plot_cost_scan, scan_cost
 from ..errors import InputError
 from ..lattices import LATTICE_NAMES
+from ..parameter_space import BoxSpace
 from ..setup import DEFAULT_UNIT_COSTS, SearchSetup, load_setup
 from ..tables import write_table
 from ._common import (
@@ -34,6 +35,8 @@ _EXAMPLES = [
     "cwlimits cost --setup search.toml --age 1000yr --scan t-seg --scan-range 1day 30day "
     "--plot scan.png",
     "cwlimits cost --setup search.toml --age 1000yr --scan segments --scan-range 4 64",
+    "cwlimits cost --catalogue target_lists/demo.csv --target 'Fict Pulsar Cinder' "
+    "--spin-box 1e-3 0.05 --t-seg 1day --n-seg 30 --band-width 0.01Hz",
     "cwlimits cost --age 500yr --t-seg 5day --n-seg 20 --f-min 100Hz --f-max 300Hz "
     "--mismatch-coarse 0.5 --mismatch-fine 0.2 --lattice Zn --detectors H1,L1,V1",
 ]
@@ -61,6 +64,11 @@ def register(subparsers, common):
     who.add_argument("--age", type=quantity_arg(u.yr, "age"), metavar="AGE",
                      help="age of the target (e.g. 1000yr)")
     add_target_args(who, required=False)
+    who.add_argument("--spin-box", nargs=2, type=float, metavar=("FTOL", "FDOTTOL"),
+                     help="with --catalogue/--target: search a narrow box around the "
+                          "target's known spin, f_gw = 2 f_rot +- FTOL f_gw and fdot_gw = "
+                          "2 fdot_rot +- FDOTTOL |fdot_gw|, instead of the age-based space "
+                          "(the band defaults to the box)")
     grp = parser.add_argument_group("setup (override the file)")
     grp.add_argument("--t-seg", type=quantity_arg(u.day, "segment length"), metavar="T",
                      help="coherent segment length (e.g. 10day)")
@@ -109,7 +117,7 @@ def register(subparsers, common):
     parser.set_defaults(run=run)
 
 
-def _build_setup(args):
+def _build_setup(args, default_band=None):
     base = load_setup(args.setup) if args.setup else None
     given = {name: getattr(args, name) for name in _OVERRIDES
              if getattr(args, name) is not None}
@@ -119,14 +127,15 @@ def _build_setup(args):
         if base is None:
             missing = [opt for opt, name in (("--t-seg", "t_seg"), ("--n-seg", "n_seg"))
                        if name not in given]
-            missing += [opt for opt in ("--f-min", "--f-max")
-                        if getattr(args, opt[2:].replace("-", "_")) is None]
+            band = (args.f_min if args.f_min is not None else (default_band or (None,))[0],
+                    args.f_max if args.f_max is not None else (default_band or (0, None))[1])
+            missing += [opt for opt, f in zip(("--f-min", "--f-max"), band, strict=True)
+                        if f is None]
             if missing:
                 raise InputError(f"without --setup FILE give {', '.join(missing)}")
             n_min = 2.0 if args.braking_index_min is None else args.braking_index_min
             n_max = 7.0 if args.braking_index_max is None else args.braking_index_max
-            return SearchSetup(band=(args.f_min, args.f_max), braking_index=(n_min, n_max),
-                               **given)
+            return SearchSetup(band=band, braking_index=(n_min, n_max), **given)
         band = (args.f_min if args.f_min is not None else base.f_min,
                 args.f_max if args.f_max is not None else base.f_max)
         n_min, n_max = base.braking_index
@@ -149,11 +158,20 @@ def _build_setup(args):
 def _target_space(args):
     if args.age is not None and (args.catalogue or args.target):
         raise InputError("give either --age or --catalogue/--target, not both")
+    if args.spin_box is not None and not (args.catalogue and args.target):
+        raise InputError("--spin-box needs --catalogue FILE --target NAME (a target with a "
+                         "known spin)")
     if args.age is not None:
-        return args.age, f"age {args.age}"
+        return args.age, f"age {args.age}", None
     if args.catalogue and args.target:
         target = resolve_target(args)
-        return target, f"target {target.name} of {args.catalogue} (age {target.age})"
+        if args.spin_box is not None:
+            box = BoxSpace.for_target(target, f_tol=args.spin_box[0],
+                                      fdot_tol=args.spin_box[1])
+            f_lo, f_hi = (x << u.Hz for x in box._f_bounds())
+            return box, (f"a box around the spin of target {target.name} of "
+                         f"{args.catalogue}"), (f_lo, f_hi)
+        return target, f"target {target.name} of {args.catalogue} (age {target.age})", None
     if args.catalogue or args.target:
         raise InputError("--catalogue and --target go together")
     raise InputError("give the target: --age AGE, or --catalogue FILE --target NAME")
@@ -196,8 +214,8 @@ def run(args):
         if args.scan is None:
             raise InputError("--plot needs --scan (t-seg or segments)")
         plot = check_output_path(args.plot, PLOT_SUFFIXES)
-    setup = _build_setup(args)
-    target, what = _target_space(args)
+    target, what, default_band = _target_space(args)
+    setup = _build_setup(args, default_band)
     if args.scan:
         quantity, values = _scan_values(args, setup)
         table = scan_cost(setup, target, quantity, values)
