@@ -46,7 +46,7 @@ from ._units import to_value
 from .errors import InputError
 from .lattices import get_lattice
 from .metric import _coherent_metric_scaled, _segments, _semicoherent_metric_scaled
-from .parameter_space import AgeBasedSpace, ParameterSpace
+from .parameter_space import VOLUME_UNITS, AgeBasedSpace, ParameterSpace
 
 __all__ = ["count_templates", "computing_cost", "CostEstimate", "scan_cost",
            "plot_cost_scan", "resolve_space", "SCAN_QUANTITIES", "PLOT_SUFFIXES"]
@@ -137,7 +137,9 @@ def count_templates(setup, target_or_space, bands=None):
     -------
     astropy.table.QTable
         One row per band (flattened): ``f_min``, ``f_max`` [Hz]; ``n_coh`` (per segment),
-        ``n_semi``; ``dims_coh``, ``dims_semi`` (the dimension that gave the count).
+        ``n_semi``; ``dims_coh``, ``dims_semi`` (the dimension that gave the count);
+        ``volume_1`` [Hz], ``volume_2`` [Hz2/s], ``volume_3`` [Hz3/s3] (the band's
+        parameter-space volume in f; f, fdot; f, fdot, fddot).
         ``meta['assumptions']`` describes the setup and space.
 
     Notes
@@ -168,6 +170,8 @@ def count_templates(setup, target_or_space, bands=None):
     table["n_semi"] = n_semi.ravel()
     table["dims_coh"] = d_coh.ravel()
     table["dims_semi"] = d_semi.ravel()
+    for k, vol in enumerate(volumes, start=1):
+        table[f"volume_{k}"] = vol.ravel() << VOLUME_UNITS[k]
     table.meta["assumptions"] = _assumptions(setup, space)
     return table
 
@@ -191,8 +195,8 @@ class CostEstimate:
     Attributes
     ----------
     table : astropy.table.QTable
-        Per band: ``f_min``, ``f_max`` [Hz], ``n_coh`` (per segment), ``n_semi``,
-        ``dims_coh``, ``dims_semi``, ``cost_coh``, ``cost_semi``, ``cost`` [h].
+        Per band: the columns of :func:`count_templates` and ``cost_coh``,
+        ``cost_semi``, ``cost`` [h].
     total, total_coherent, total_semicoherent : Quantity ['time']
         Whole-band costs in hours of one CPU core.
     assumptions : dict of str -> str

@@ -49,6 +49,8 @@ def test_coherent_count_is_theta_mu_sqrtdet_volume():
             * _volume3(400.0, 500.0, 300 * YR))
     assert row["dims_coh"] == 3
     assert row["n_coh"] == pytest.approx(want, rel=1e-10)
+    assert row["volume_3"].to_value(u.Hz ** 3 / u.s ** 3) == pytest.approx(
+        _volume3(400.0, 500.0, 300 * YR), rel=1e-12)
     zn = count_templates(s.replace(lattice="Zn"), 300 * u.yr)[0]
     assert zn["n_coh"] / row["n_coh"] == pytest.approx(thickness_zn(3) / thickness_anstar(3))
 

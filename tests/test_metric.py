@@ -154,6 +154,19 @@ def test_semicoherent_ratio_of_determinants_is_product_of_refinements():
                                                   rel=1e-9)
 
 
+def test_semicoherent_sqrt_det_scalar_array_broadcast():
+    # reference: sqrt(det g_semi) = gamma_1 gamma_2 sqrt(det g_coh) (Pletsch 2010) with
+    # sqrt(det g_coh) = pi^3 T^6/(360 sqrt 105); T (2, 1) against N (3,) broadcasts to (2, 3)
+    t = np.array([[1.0], [3.0]]) * u.day
+    n = np.array([1, 4, 9])
+    got = semicoherent_sqrt_det(t, n)
+    assert got.shape == (2, 3) and got.unit == u.s ** 6
+    want = np.array([[coherent_sqrt_det_3(ti * DAY) * refinement_fdot(ni) * refinement_fddot(ni)
+                      for ni in n] for ti in (1.0, 3.0)])
+    np.testing.assert_allclose(got.value, want, rtol=1e-9)
+    assert semicoherent_sqrt_det(1 * u.day, 1).shape == ()
+
+
 def test_semicoherent_with_gaps_matches_sympy_average():
     # reference: sympy, the average over the segments [m_i - T/2, m_i + T/2] of the exact
     # metric with one common reference time (the mean of the mid-times) - no Taylor map used
