@@ -156,7 +156,8 @@ def count_templates(setup, target_or_space, bands=None):
     lo, hi = _band_edges(setup, bands)
     n_dims = space.n_dims
     volumes = [space._volume(lo, hi, k) for k in range(1, n_dims + 1)]
-    thickness = [get_lattice(setup.lattice, k).thickness for k in range(1, n_dims + 1)]
+    thickness = [get_lattice(setup.lattice, k).normalised_thickness
+                 for k in range(1, n_dims + 1)]
     t = setup.t_seg.to_value(u.s)
     coh = _sqrt_dets(_coherent_metric_scaled(0.0, n_dims), t, n_dims)
     _, off, mask = _segments(setup.t_seg, None, setup.segment_mid_times)

@@ -8,23 +8,25 @@ metric volume ``V_g = integral sqrt(det g) d^n lambda`` is then
 
     N = theta mu_max^(-n/2) V_g,
 
-with ``theta`` the normalised thickness: the volume of the covering sphere (radius R) over
-the volume of the lattice's fundamental cell (Conway & Sloane, "Sphere Packings, Lattices
-and Groups" (SPLAG), Ch. 2, Sect. 1.2; Prix 2007, arXiv:0707.0428, the template-counting
-formula of its introduction).
+with ``theta`` the *normalised* thickness ``theta = R^n / vol``: the thickness
+``Theta = V_n R^n / vol`` (covering-sphere volume over the volume of the lattice's
+fundamental cell) divided by the unit-ball volume ``V_n`` (Conway & Sloane, "Sphere
+Packings, Lattices and Groups" (SPLAG), Ch. 2, Sect. 1.2; Prix 2007, arXiv:0707.0428, the
+template-counting formula).  Check in one dimension: templates ``2 sqrt(mu/g)`` apart give
+``N = Delta f sqrt(g) / (2 sqrt(mu))``, i.e. ``theta(Z^1) = 1/2`` while ``Theta(Z^1) = 1``.
 
 Here a :class:`Lattice` lives in units where its covering radius is 1, so the mismatch of a
 point ``x`` (whitened coordinates divided by ``sqrt(mu_max)``) is ``mu_max |x - p|^2`` with
 ``p`` the nearest lattice point.
 
-* ``Z^n``: ``R = sqrt(n)/2`` for unit spacing, ``theta = V_n (sqrt(n)/2)^n`` (SPLAG Ch. 4,
-  Sect. 4); the mean of ``|x-p|^2/R^2`` over the Voronoi cell is ``(n/12)/(n/4) = 1/3`` for
+* ``Z^n``: ``R = sqrt(n)/2`` for unit spacing, ``theta = (sqrt(n)/2)^n`` (SPLAG Ch. 4,
+  Sect. 4; Prix 2007); the mean of ``|x-p|^2/R^2`` over the Voronoi cell is ``(n/12)/(n/4) = 1/3`` for
   every ``n`` (each coordinate of the offset is uniform on [-1/2, 1/2], variance 1/12).
 * ``A_n*``: the projection of ``Z^(n+1)`` onto the hyperplane ``sum x = 0`` (SPLAG Ch. 4,
   Sect. 6.6), fundamental volume ``1/sqrt(n+1)``, covering radius
   ``R = sqrt(n (n+2) / (12 (n+1)))`` (SPLAG Ch. 4, Sect. 6.6; Prix 2007, arXiv:0707.0428,
   Sect. on the A_n* lattice; equation numbers not quoted as we did not re-read them), so
-  ``theta = V_n sqrt(n+1) (n (n+2) / (12 (n+1)))^(n/2)``.  Its mean mismatch factor is
+  ``theta = sqrt(n+1) (n (n+2) / (12 (n+1)))^(n/2)``.  Its mean mismatch factor is
   computed here by quasi-Monte-Carlo integration (scrambled Sobol points, fixed seed) over
   the fundamental cell with the nearest-point algorithm of SPLAG Ch. 20 (for A_n and its
   cosets); it agrees with the normalised second moments G(A_2*) = 5/(36 sqrt 3) and
@@ -135,7 +137,9 @@ class Lattice:
     generator : ndarray (n_dims, n_dims)
         Rows are basis vectors (covering radius 1).
     thickness : float
-        Normalised thickness ``theta`` (covering-sphere volume per fundamental cell).
+        Thickness ``Theta = V_n R^n / vol`` (covering-sphere volume per fundamental cell).
+    normalised_thickness : float
+        ``theta = Theta / V_n = R^n / vol``, the factor in the template count.
     mean_mismatch_factor : float
         Mean of ``|x - p|^2 / R^2`` for ``x`` uniform in the Voronoi cell: the mean
         mismatch of a random signal relative to the maximum mismatch.
@@ -183,8 +187,17 @@ class Lattice:
 
     @property
     def thickness(self):
-        """Normalised thickness ``theta = V_n R^n / vol`` (SPLAG Ch. 2, Sect. 1.2)."""
+        """Thickness ``Theta = V_n R^n / vol`` (SPLAG Ch. 2, Sect. 1.2)."""
         return float(ball_volume(self.n_dims) / self.cell_volume)
+
+    @property
+    def normalised_thickness(self):
+        """Normalised thickness ``theta = R^n / vol = Theta / V_n`` (SPLAG Ch. 2, Sect. 1.2).
+
+        The number of templates per unit metric volume at maximum mismatch ``mu`` is
+        ``theta mu^(-n/2)`` (Prix 2007, arXiv:0707.0428).
+        """
+        return float(1.0 / self.cell_volume)
 
     @property
     def mean_mismatch_factor(self):

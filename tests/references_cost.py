@@ -35,20 +35,20 @@ def ball_volume(n):
     return math.pi ** (n / 2) / math.gamma(n / 2 + 1)
 
 
-def thickness_zn(n):
-    """theta(Z^n) = V_n (sqrt(n)/2)^n (SPLAG Ch. 2 and Ch. 4, Sect. 4: covering radius of
-    Z^n is sqrt(n)/2, determinant 1)."""
-    return ball_volume(n) * (math.sqrt(n) / 2) ** n
+def normalised_thickness_zn(n):
+    """theta(Z^n) = n^(n/2) 2^(-n) (SPLAG Ch. 4, Sect. 4: covering radius of Z^n is
+    sqrt(n)/2, determinant 1; Prix 2007, arXiv:0707.0428)."""
+    return n ** (n / 2) * 2.0 ** -n
 
 
-def thickness_anstar(n):
-    """theta(A_n*) = V_n sqrt(n+1) (n (n+2) / (12 (n+1)))^(n/2) (SPLAG Ch. 4, Sect. 6.6;
+def normalised_thickness_anstar(n):
+    """theta(A_n*) = sqrt(n+1) (n (n+2) / (12 (n+1)))^(n/2) (SPLAG Ch. 4, Sect. 6.6;
     Prix 2007, arXiv:0707.0428)."""
-    return ball_volume(n) * math.sqrt(n + 1) * (n * (n + 2) / (12 * (n + 1))) ** (n / 2)
+    return math.sqrt(n + 1) * (n * (n + 2) / (12 * (n + 1))) ** (n / 2)
 
 
-#: Tabulated normalised thicknesses of the thinnest coverings, n = 1..4: A_n* is optimal
-#: there (SPLAG Table 2.1; values from memory, to the 4 figures printed).
+#: Tabulated thicknesses Theta = V_n theta of the thinnest coverings, n = 1..4: A_n* is
+#: optimal there (SPLAG Table 2.1; values from memory, to the 4 figures printed).
 THICKNESS_ANSTAR_TABLE = {1: 1.0, 2: 1.2092, 3: 1.4635, 4: 1.7655}
 THICKNESS_TABLE_RTOL = Reference(0.0, "", 1e-4, "table printed to 4-5 figures",
                                  "SPLAG Table 2.1 (from memory)")

@@ -8,8 +8,8 @@ from references_cost import (
     coherent_sqrt_det_3,
     refinement_fddot,
     refinement_fdot,
-    thickness_anstar,
-    thickness_zn,
+    normalised_thickness_anstar,
+    normalised_thickness_zn,
 )
 
 from cwlimits.cli import main
@@ -45,14 +45,41 @@ def test_coherent_count_is_theta_mu_sqrtdet_volume():
     # theta(A_3*) from Conway & Sloane and sqrt(det g) = pi^3 T^6/(360 sqrt 105)
     s = _setup(mismatch_coarse=0.2)
     row = count_templates(s, 300 * u.yr)[0]
-    want = (thickness_anstar(3) * 0.2 ** -1.5 * coherent_sqrt_det_3(20 * DAY)
+    want = (normalised_thickness_anstar(3) * 0.2 ** -1.5 * coherent_sqrt_det_3(20 * DAY)
             * _volume3(400.0, 500.0, 300 * YR))
     assert row["dims_coh"] == 3
     assert row["n_coh"] == pytest.approx(want, rel=1e-10)
     assert row["volume_3"].to_value(u.Hz ** 3 / u.s ** 3) == pytest.approx(
         _volume3(400.0, 500.0, 300 * YR), rel=1e-12)
     zn = count_templates(s.replace(lattice="Zn"), 300 * u.yr)[0]
-    assert zn["n_coh"] / row["n_coh"] == pytest.approx(thickness_zn(3) / thickness_anstar(3))
+    assert zn["n_coh"] / row["n_coh"] == pytest.approx(
+        normalised_thickness_zn(3) / normalised_thickness_anstar(3), rel=1e-12)
+
+
+@pytest.mark.parametrize("kind", ["An*", "Zn"])
+def test_density_formula_counts_actual_lattice_templates(kind):
+    # reference: the definition of the count - the number of templates of an actual bank
+    # (cwlimits.lattices.nearest_template) inside a box in (f, fdot) - against
+    # theta mu^(-1) sqrt(det g_2) area.  The box spans ~120 templates per side; templates
+    # are found by dense random sampling (fixed seed); tolerance 1.5 % for the box edges (measured 0.3 %)
+    from cwlimits.lattices import nearest_template
+    from cwlimits.metric import coherent_metric
+
+    g = coherent_metric(1 * u.day, 2)
+    mu = 0.3
+    widths = 120 * np.sqrt(mu / np.diag(g))
+    lo = np.array([100.0, -1e-9])
+    rng = np.random.default_rng(99)
+    pts = lo + rng.random((400000, 2)) * widths
+    templates, _ = nearest_template(pts, g, mu, kind, origin=lo)
+    found = np.unique(np.round((templates - lo) / widths, 9), axis=0)
+    inside = np.all((found >= 0) & (found < 1), axis=1).sum()
+    s = _setup(t_seg=1 * u.day, lattice=kind, mismatch_coarse=mu)
+    box = BoxSpace((lo[0] * u.Hz, (lo[0] + widths[0]) * u.Hz),
+                   (lo[1] * u.Hz / u.s, (lo[1] + widths[1]) * u.Hz / u.s))
+    row = count_templates(s, box, bands=(lo[0] * u.Hz, (lo[0] + widths[0]) * u.Hz))[0]
+    assert row["dims_coh"] == 2
+    assert inside == pytest.approx(row["n_coh"], rel=0.015)
 
 
 def test_count_scaling_t6_f3_tau3():
@@ -85,16 +112,18 @@ def test_thin_direction_uses_lower_dimensional_count():
     s = _setup(t_seg=2 * u.day, band=(100 * u.Hz, 101 * u.Hz), band_width=1 * u.Hz)
     row = count_templates(s, 1000 * u.yr)[0]
     sd2 = math.pi ** 2 * (2 * DAY) ** 3 / (6 * math.sqrt(15))
-    want2 = thickness_anstar(2) / 0.3 * sd2 * _volume2(100.0, 101.0, 1000 * YR)
-    want3 = (thickness_anstar(3) * 0.3 ** -1.5 * coherent_sqrt_det_3(2 * DAY)
+    want2 = normalised_thickness_anstar(2) / 0.3 * sd2 * _volume2(100.0, 101.0, 1000 * YR)
+    want3 = (normalised_thickness_anstar(3) * 0.3 ** -1.5 * coherent_sqrt_det_3(2 * DAY)
              * _volume3(100.0, 101.0, 1000 * YR))
     assert want3 < want2                      # the 3-d formula would undercount
     assert row["dims_coh"] == 2 and row["n_coh"] == pytest.approx(want2, rel=1e-10)
-    # an old star, a short segment: only f counts, N = mu^(-1/2) (pi T / sqrt 3) df
+    # an old star, a short segment: only f counts.  Templates 2 sqrt(mu / g_ff) apart
+    # (the covering condition in 1-d) with g_ff = pi^2 T^2 / 3 give
+    # N = df sqrt(g_ff) / (2 sqrt(mu)) (definition of the mismatch; common practice)
     row = count_templates(s.replace(t_seg=0.1 * u.day), 1e8 * u.yr)[0]
     assert row["dims_coh"] == 1
-    assert row["n_coh"] == pytest.approx(0.3 ** -0.5 * math.pi * 0.1 * DAY / math.sqrt(3),
-                                         rel=1e-10)
+    spacing = 2 * math.sqrt(0.3 / (math.pi ** 2 * (0.1 * DAY) ** 2 / 3))
+    assert row["n_coh"] == pytest.approx(1.0 / spacing, rel=1e-10)
 
 
 def test_never_a_fraction_of_a_template():
@@ -263,7 +292,8 @@ def test_gapped_segments_use_the_semicoherent_metric_of_their_mid_times():
     s = _setup(t_seg=10 * u.day, n_seg=4, span=100 * u.day)
     row = count_templates(s, 300 * u.yr)[0]
     sd = semicoherent_sqrt_det(s.t_seg, mid_times=s.segment_mid_times).to_value(u.s ** 6)
-    want = thickness_anstar(3) * 0.3 ** -1.5 * sd * _volume3(400.0, 500.0, 300 * YR)
+    want = (normalised_thickness_anstar(3) * 0.3 ** -1.5 * sd
+            * _volume3(400.0, 500.0, 300 * YR))
     assert row["dims_semi"] == 3 and row["n_semi"] == pytest.approx(want, rel=1e-9)
     contiguous = count_templates(s.replace(span=None), 300 * u.yr)[0]
     assert row["n_semi"] > contiguous["n_semi"]          # a longer span resolves finer

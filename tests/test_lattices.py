@@ -10,8 +10,8 @@ from references_cost import (
     G_ZN,
     THICKNESS_ANSTAR_TABLE,
     THICKNESS_TABLE_RTOL,
-    thickness_anstar,
-    thickness_zn,
+    normalised_thickness_anstar,
+    normalised_thickness_zn,
 )
 from references_cost import ball_volume as ball_volume_ref
 from scipy import optimize, stats
@@ -39,9 +39,15 @@ def test_ball_volume_scalar_array_broadcast():
 
 @pytest.mark.parametrize("n", [1, 2, 3, 4])
 def test_thickness_matches_conway_sloane(n):
-    # reference: closed forms of SPLAG Ch. 2/4 (see references_cost)
-    assert Lattice("Zn", n).thickness == pytest.approx(thickness_zn(n), rel=1e-12)
-    assert Lattice("An*", n).thickness == pytest.approx(thickness_anstar(n), rel=1e-12)
+    # reference: closed forms of SPLAG Ch. 2/4 and Prix 2007 (see references_cost)
+    zn, an = Lattice("Zn", n), Lattice("An*", n)
+    assert zn.normalised_thickness == pytest.approx(normalised_thickness_zn(n), rel=1e-12)
+    assert an.normalised_thickness == pytest.approx(normalised_thickness_anstar(n), rel=1e-12)
+    # Theta = V_n theta (SPLAG Ch. 2, Sect. 1.2)
+    assert an.thickness == pytest.approx(ball_volume_ref(n) * normalised_thickness_anstar(n),
+                                         rel=1e-12)
+    assert zn.thickness == pytest.approx(ball_volume_ref(n) * normalised_thickness_zn(n),
+                                         rel=1e-12)
     # and the printed table of thinnest coverings (SPLAG Table 2.1, from memory)
     assert Lattice("An*", n).thickness == pytest.approx(THICKNESS_ANSTAR_TABLE[n],
                                                         rel=THICKNESS_TABLE_RTOL.rtol)
