@@ -6,10 +6,10 @@ import numpy as np
 import pytest
 from references_cost import (
     coherent_sqrt_det_3,
-    refinement_fddot,
-    refinement_fdot,
     normalised_thickness_anstar,
     normalised_thickness_zn,
+    refinement_fddot,
+    refinement_fdot,
 )
 
 from cwlimits.cli import main
@@ -61,7 +61,8 @@ def test_density_formula_counts_actual_lattice_templates(kind):
     # reference: the definition of the count - the number of templates of an actual bank
     # (cwlimits.lattices.nearest_template) inside a box in (f, fdot) - against
     # theta mu^(-1) sqrt(det g_2) area.  The box spans ~120 templates per side; templates
-    # are found by dense random sampling (fixed seed); tolerance 1.5 % for the box edges (measured 0.3 %)
+    # are found by dense random sampling (fixed seed); tolerance 1.5 % for the box edges
+    # (measured 0.3 %)
     from cwlimits.lattices import nearest_template
     from cwlimits.metric import coherent_metric
 
