@@ -21,7 +21,8 @@ point ``x`` (whitened coordinates divided by ``sqrt(mu_max)``) is ``mu_max |x - 
 
 * ``Z^n``: ``R = sqrt(n)/2`` for unit spacing, ``theta = (sqrt(n)/2)^n`` (SPLAG Ch. 4,
   Sect. 4; Prix 2007); the mean of ``|x-p|^2/R^2`` over the Voronoi cell is
-  ``(n/12)/(n/4) = 1/3`` for every ``n`` (each coordinate of the offset is uniform on [-1/2, 1/2], variance 1/12).
+  ``(n/12)/(n/4) = 1/3`` for every ``n`` (each coordinate of the offset is uniform on
+  [-1/2, 1/2], variance 1/12).
 * ``A_n*``: the projection of ``Z^(n+1)`` onto the hyperplane ``sum x = 0`` (SPLAG Ch. 4,
   Sect. 6.6), fundamental volume ``1/sqrt(n+1)``, covering radius
   ``R = sqrt(n (n+2) / (12 (n+1)))`` (SPLAG Ch. 4, Sect. 6.6; Prix 2007, arXiv:0707.0428,
