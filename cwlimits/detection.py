@@ -66,8 +66,9 @@ _ISF_MIN_P = 1e-300
 #: (tests/test_detection.py::test_sankaran_against_ncx2 checks it).
 _SANKARAN_MIN_DF = 400
 
-#: Default cap on the number of product (R2 x mismatch) nodes; larger rules are condensed.
-DEFAULT_MAX_NODES = 64
+#: Default cap on the number of product (R2 x mismatch) nodes; larger rules are condensed
+#: (16 equal-probability x 48 logarithmic cells, two nodes each; see ``_condense``).
+DEFAULT_MAX_NODES = 132
 
 _STATISTICS = ("sum", "mean")
 _METHODS = ("auto", "exact")
@@ -232,27 +233,57 @@ def _as_rule(obj, name, lower, upper):
     return rule
 
 
-def _condense(values, weights, n_out):
-    """Condense weighted nodes (rows of ``values``) to ``n_out`` equal-probability bins.
+def _condense(values, weights, max_nodes):
+    """Condense weighted nodes (rows of ``values`` >= 0) to at most ``max_nodes`` nodes.
 
-    Each bin keeps its total weight and its weighted-mean node, so the mean of every row is
-    preserved exactly and the error of ``sum w g(x)`` is second order in the width of the
-    bins, ``~ g''/2 Var_bin`` (a quantile midpoint rule; common practice).  Vectorised over
-    rows.
+    Cells are the intersection of ``n_q = max_nodes // 8`` equal-probability bins and
+    ``n_log = max_nodes // 2 - n_q - 2`` bins uniform in ``log c`` (from the 1e-7 quantile of
+    the positive nodes to the largest), plus one cell for exact zeros.  The equal-probability
+    bins resolve the bulk; the logarithmic bins resolve the low tail, which sets the answer
+    at high confidence because ``P_det`` depends on ``c`` only through ``a c``.  Each cell is
+    replaced by two nodes ``m +- s`` of half its weight, matching its weight, mean and
+    variance, so the error is fourth order in the cell width (a two-point moment-matched
+    rule; common practice).  Measured: the depth moves by <= 2e-4 at confidences 0.5..0.999
+    and N = 1..1000 with the default ``max_nodes``
+    (tests/test_detection.py::test_condensed_rule_matches_full_rule).  Vectorised over rows.
     """
-    n_rows, n_in = values.shape
+    n_rows = values.shape[0]
+    n_q = max_nodes // 8
+    n_log = max_nodes // 2 - n_q - 2
     order = np.argsort(values, axis=-1)
     v = np.take_along_axis(values, order, axis=-1)
     w = np.take_along_axis(weights, order, axis=-1)
-    # Bin by the cumulative weight at each node's centre.
-    centre = np.cumsum(w, axis=-1) - 0.5 * w
-    bins = np.clip((centre * n_out).astype(np.intp), 0, n_out - 1)
-    flat = (np.arange(n_rows)[:, None] * n_out + bins).ravel()
-    size = n_rows * n_out
-    w_out = np.bincount(flat, weights=w.ravel(), minlength=size).reshape(n_rows, n_out)
-    vw_out = np.bincount(flat, weights=(w * v).ravel(), minlength=size).reshape(n_rows, n_out)
-    v_out = np.divide(vw_out, w_out, out=np.zeros_like(vw_out), where=w_out > 0)
-    return v_out, w_out
+    cum = np.cumsum(w, axis=-1)
+    # Equal-probability bin of each node, by the cumulative weight at its centre.
+    b_q = np.clip(((cum - 0.5 * w) * n_q).astype(np.intp), 0, n_q - 1)
+    # Logarithmic bin (1..n_log) of each positive node; 0 for exact zeros.
+    pos = v > 0
+    w_zero = np.sum(np.where(pos, 0.0, w), axis=-1, keepdims=True)
+    k_lo = np.argmax(cum - w_zero > 1e-7, axis=-1)[:, None]
+    c_lo = np.take_along_axis(v, k_lo, axis=-1)
+    c_lo = np.where(c_lo > 0, c_lo, v[:, -1:])
+    span = np.log(np.maximum(v[:, -1:] / c_lo, 1.0 + 1e-12))
+    t = np.log(np.where(pos, v, c_lo) / c_lo) / span
+    b_log = np.where(pos, np.clip((t * n_log).astype(np.intp), 0, n_log - 1) + 1, 0)
+    # Both bin indices grow with c, so the cells of the intersection are consecutive runs.
+    key = b_q * (n_log + 1) + b_log
+    new = np.ones(key.shape, dtype=bool)
+    new[:, 1:] = key[:, 1:] != key[:, :-1]
+    cell = np.cumsum(new, axis=-1) - 1
+    n_cells = int(cell[:, -1].max()) + 1
+    flat = (np.arange(n_rows)[:, None] * n_cells + cell).ravel()
+    size = n_rows * n_cells
+
+    def total(x):
+        return np.bincount(flat, weights=x.ravel(), minlength=size).reshape(n_rows, n_cells)
+
+    w_c, s1, s2 = total(w), total(w * v), total(w * v * v)
+    m = np.divide(s1, w_c, out=np.zeros_like(s1), where=w_c > 0)
+    var = np.divide(s2, w_c, out=np.zeros_like(s2), where=w_c > 0) - m**2
+    sd = np.sqrt(np.maximum(var, 0.0))
+    sd = np.where(m - sd >= 0, sd, 0.0)  # keep nodes >= 0 (never met for sorted cells)
+    return (np.concatenate([m - sd, m + sd], axis=-1),
+            np.concatenate([0.5 * w_c, 0.5 * w_c], axis=-1))
 
 
 @dataclass(frozen=True)
@@ -287,6 +318,8 @@ def _signal_rule(r2_rule, mismatch_rule, max_nodes=DEFAULT_MAX_NODES):
     c = np.broadcast_to(c, batch + (r2.size, mu.size)).reshape(-1, k)
     w = np.broadcast_to(w, batch + (r2.size, mu.size)).reshape(-1, k)
     if max_nodes is not None and k > max_nodes:
+        if int(max_nodes) < 16:
+            raise InputError("max_nodes must be at least 16 (or None)", value=max_nodes)
         c, w = _condense(c, w, int(max_nodes))
     return _SignalRule(c, w, batch)
 
@@ -304,7 +337,7 @@ def combine_rules(r2_rule, mismatch_rule=0.0, max_nodes=DEFAULT_MAX_NODES):
     r2_rule, mismatch_rule
         As in :func:`detection_probability`.
     max_nodes : int or None
-        Condense the product rule to this many equal-probability nodes (None: keep all).
+        Condense the product rule to at most this many nodes (>= 16; None: keep all).
 
     Returns
     -------
@@ -314,8 +347,9 @@ def combine_rules(r2_rule, mismatch_rule=0.0, max_nodes=DEFAULT_MAX_NODES):
     Notes
     -----
     ``P_det`` and the likelihood depend on R2 and mu only through ``c``, since
-    ``rho2 = c h0^2 T_data / S_n`` (Wette 2012, arXiv:1111.5650).  Condensing keeps each
-    bin's weight and weighted-mean node; the depth moves by <= 2e-4 with 64 nodes
+    ``rho2 = c h0^2 T_data / S_n`` (Wette 2012, arXiv:1111.5650).  Condensing keeps the
+    weight, mean and variance of each cell (equal-probability x logarithmic bins in ``c``);
+    the depth moves by <= 2e-4 with the default 132 nodes at confidences up to 0.999
     (tests/test_detection.py::test_condensed_rule_matches_full_rule).
     """
     rule = _signal_rule(r2_rule, mismatch_rule, max_nodes)
@@ -631,7 +665,8 @@ def detection_probability(h0, threshold, n_seg, t_data, psd, r2_rule, mismatch_r
         ``"exact"`` always uses ``scipy.stats.ncx2.sf``; ``"auto"`` uses Sankaran's
         approximation where ``4N >= 400`` (error <= 3e-5).
     max_nodes : int or None
-        Condense the R2 x mismatch product rule to this many nodes (None: never).
+        Condense the R2 x mismatch product rule to at most this many nodes (>= 16;
+        None: never).  See :func:`combine_rules`.
 
     Returns
     -------
