@@ -95,7 +95,11 @@ def _band_edges(setup, bands):
                              value=bands) from None
     lo = to_value(lo, u.Hz, "bands f_lo")
     hi = to_value(hi, u.Hz, "bands f_hi")
-    lo, hi = np.broadcast_arrays(lo, hi)
+    try:
+        lo, hi = np.broadcast_arrays(lo, hi)
+    except ValueError:
+        raise InputError("band edges f_lo and f_hi do not broadcast together",
+                         value=(lo.shape, hi.shape)) from None
     if np.any(~(lo > 0)) or np.any(~np.isfinite(hi)) or np.any(~(hi > lo)):
         raise InputError("bands need 0 < f_lo < f_hi (finite)")
     return lo, hi

@@ -308,6 +308,10 @@ def test_computing_cost_scalar_and_broadcast_bands():
                                                 np.array([440.0, 460.0]) * u.Hz))
     assert len(grid.table) == 4
     assert grid.total.value == pytest.approx(grid.table["cost"].value.sum())
+    with pytest.raises(InputError, match="broadcast"):
+        computing_cost(s, 300 * u.yr, bands=([1.0, 2.0] * u.Hz, [3.0, 4.0, 5.0] * u.Hz))
+    with pytest.raises(InputError, match="f_lo < f_hi"):
+        computing_cost(s, 300 * u.yr, bands=(5 * u.Hz, 4 * u.Hz))
 
 
 def test_cli_spin_box(tmp_path, capsys, demo_catalogue_path):

@@ -4,6 +4,8 @@ import math
 import astropy.units as u
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from references_cost import (
     G_A2,
     G_A3STAR,
@@ -206,3 +208,19 @@ def test_bad_lattice_names():
     with pytest.raises(InputError, match="dimension"):
         Lattice("Zn", 0)
     assert Lattice("ans", 2).kind == "An*" and Lattice("hypercubic", 2).kind == "Zn"
+
+
+@settings(max_examples=60, deadline=None)
+@given(n=st.integers(1, 4), kind=st.sampled_from(["An*", "Zn"]),
+       x=st.lists(st.floats(-50, 50), min_size=4, max_size=4))
+def test_nearest_point_properties(n, kind, x):
+    # reference: definitions - the nearest point is within the covering radius (1 here),
+    # is a fixed point of the map, and moving x by a lattice vector moves it by the same
+    lat = get_lattice(kind, n)
+    x = np.array(x[:n])
+    p = lat.nearest_point(x)
+    assert ((x - p) ** 2).sum() <= 1 + 1e-9
+    np.testing.assert_allclose(lat.nearest_point(p), p, atol=1e-9)
+    shift = np.array([3, -1, 2, 1][:n]) @ lat.generator
+    d_shift = ((x + shift - lat.nearest_point(x + shift)) ** 2).sum()
+    assert d_shift == pytest.approx(((x - p) ** 2).sum(), abs=1e-9)
