@@ -383,10 +383,10 @@ def plot_cost_scan(scan, quantity, path, *, title=None):
     ax.set_xlabel("coherent segment length T_seg [day]" if quantity == "t_seg"
                   else "number of segments N_seg")
     ax.set_ylabel("computing cost [core-hours]")
-    # plain numbers on the scanned axis (it rarely spans more than two decades)
-    plain = matplotlib.ticker.FuncFormatter(lambda v, _: f"{v:g}")
-    ax.xaxis.set_major_formatter(plain)
-    ax.xaxis.set_minor_formatter(matplotlib.ticker.NullFormatter())
+    # label the scanned values themselves (plain numbers; a scan rarely spans two decades)
+    if len(x) <= 12:
+        ax.set_xticks(x, [f"{v:.3g}" for v in x])
+        ax.xaxis.set_minor_formatter(matplotlib.ticker.NullFormatter())
     ax.grid(True, which="both", alpha=0.3)
     ax.legend()
     if title:
