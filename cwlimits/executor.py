@@ -31,6 +31,7 @@ extra arguments with :func:`functools.partial`.
 
 import concurrent.futures
 import contextlib
+import hashlib
 import logging
 import multiprocessing
 import os
@@ -41,8 +42,8 @@ import numpy as np
 
 from .errors import ComputationError, CwlimitsError, InputError
 
-__all__ = ["map_chunks", "make_executor", "chunk_bounds", "chunk_seed", "SerialExecutor",
-           "DEFAULT_CHUNK_SIZE"]
+__all__ = ["map_chunks", "make_executor", "chunk_bounds", "chunk_seed", "named_seed",
+           "SerialExecutor", "DEFAULT_CHUNK_SIZE"]
 
 #: Items (bands, injections) per chunk unless told otherwise: large enough that the cost of
 #: sending a chunk to a worker is small, small enough that a lost chunk is little work.
@@ -137,6 +138,31 @@ def chunk_seed(seed, index):
     # chunk i's stream independent of the parent's spawn counter.
     return np.random.SeedSequence(seed.entropy, spawn_key=tuple(seed.spawn_key) + (index,),
                                   pool_size=seed.pool_size)
+
+
+def named_seed(seed, name):
+    """The seed of one named part of a job (a target), independent of the parts' order.
+
+    Parameters
+    ----------
+    seed : None, int, sequence of int or numpy.random.SeedSequence
+        The job's seed (``--seed``).
+    name : str
+        The part's name.
+
+    Returns
+    -------
+    numpy.random.SeedSequence or None
+        A child of ``seed`` whose spawn key ends with the first 8 bytes of
+        ``sha256(name)`` (as an integer); ``None`` for ``seed=None``, so that
+        :func:`map_chunks` with a store keeps the entropy recorded for the part.
+    """
+    if seed is None:
+        return None
+    root, _ = _root_seed(seed)
+    word = int.from_bytes(hashlib.sha256(name.encode("utf-8")).digest()[:8], "big")
+    return np.random.SeedSequence(root.entropy, spawn_key=tuple(root.spawn_key) + (word,),
+                                  pool_size=root.pool_size)
 
 
 def _run_chunk(func, index, chunk, seed):

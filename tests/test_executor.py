@@ -29,6 +29,7 @@ from cwlimits.executor import (
     chunk_seed,
     make_executor,
     map_chunks,
+    named_seed,
 )
 from cwlimits.store import ResultStore
 
@@ -85,6 +86,18 @@ def test_chunk_seed_is_numpys_spawned_child_whatever_the_parent_spawned_before()
         a = np.random.default_rng(chunk_seed(root, i)).random(5)
         b = np.random.default_rng(children[i]).random(5)
         np.testing.assert_array_equal(a, b)
+
+
+def test_named_seeds_are_stable_distinct_and_none_stays_none():
+    import hashlib
+
+    a, b = named_seed(SEED, "fictional A"), named_seed(SEED, "fictional B")
+    # Built independently: the spawn key is the first 8 bytes of sha256(name) (hashlib).
+    word = int.from_bytes(hashlib.sha256(b"fictional A").digest()[:8], "big")
+    expected = np.random.SeedSequence(SEED, spawn_key=(word,))
+    np.testing.assert_array_equal(a.generate_state(4), expected.generate_state(4))
+    assert not np.array_equal(a.generate_state(4), b.generate_state(4))
+    assert named_seed(None, "fictional A") is None
 
 
 # --- identical bits from every executor --------------------------------------------------
