@@ -367,15 +367,21 @@ def _rule_index(rule, shape):
 # ---------------------------------------------------------------------------------------
 # Kernels (plain floats, sum convention, SI)
 # ---------------------------------------------------------------------------------------
-def _rho2(h0, t_data_s, psd_per_hz, r2, mismatch=0.0):
-    """Squared SNR of a signal in the summed statistic.
+def _rho2(h0, t_data_s, psd_per_hz, r2=1.0, mismatch=0.0):
+    """Squared SNR of a signal in the summed statistic (the one definition used here).
 
     ``rho2 = R2 h0^2 T_data / S_n (1 - mu)`` (Wette 2012, arXiv:1111.5650;
-    Dreissigacker, Prix & Wette 2018, arXiv:1808.02459; for a fixed-sky,
-    single-detector orientation average <R2> = 4/25, Jaranowski, Krolak & Schutz 1998,
-    gr-qc/9804014).
+    Dreissigacker, Prix & Wette 2018, arXiv:1808.02459; for one detector the average of R2
+    over sky, psi and cos iota is 4/25, Jaranowski, Krolak & Schutz 1998, gr-qc/9804014).
+    With the defaults ``r2 = 1``, ``mismatch = 0`` it is the normalised amplitude
+    ``a = h0^2 T_data / S_n`` the solver works in, so that ``rho2 = a c``.
     """
     return r2 * (1.0 - mismatch) * h0**2 * t_data_s / psd_per_hz
+
+
+def _h0_from_normalised(a, t_data_s, psd_per_hz):
+    """Inverse of :func:`_rho2` at ``R2 = 1``, ``mu = 0``: ``h0 = sqrt(a S_n / T_data)``."""
+    return np.sqrt(a * psd_per_hz / t_data_s)
 
 
 def _log_p_template(false_alarm, n_templates):
@@ -690,7 +696,7 @@ def detection_probability(h0, threshold, n_seg, t_data, psd, r2_rule, mismatch_r
     if s_n is None:
         raise InputError("psd is required to turn h0 into a signal-to-noise ratio")
     rule = _signal_rule(r2_rule, mismatch_rule, max_nodes)
-    a = h0**2 * t_s / s_n
+    a = _rho2(h0, t_s, s_n)
     shape = np.broadcast_shapes(a.shape, thr.shape, nseg.shape, rule.batch_shape)
     rid = _rule_index(rule, shape).reshape(shape)
     p = _detection_probability(np.broadcast_to(a, shape), np.broadcast_to(thr, shape),
@@ -742,7 +748,7 @@ def solve_amplitude(threshold, n_seg, t_data, psd, r2_rule, mismatch_rule=0.0,
         raise InputError("psd is required to return h0; use critical_depth for the depth")
     a = _solve(threshold, n_seg, r2_rule, mismatch_rule, probability, statistic, method,
                max_nodes)
-    return np.sqrt(a * s_n / t_s) << u.one
+    return _h0_from_normalised(a, t_s, s_n) << u.one
 
 
 def critical_depth(threshold, n_seg, t_data, r2_rule, mismatch_rule=0.0, confidence=0.9,
@@ -844,7 +850,7 @@ def marginal_likelihood(observed, h0, n_seg, t_data, psd, r2_rule, mismatch_rule
         raise InputError("psd is required for the likelihood")
     obs_sum = _to_sum(obs, nseg, statistic)
     rule = _signal_rule(r2_rule, mismatch_rule, max_nodes)
-    a = h0**2 * t_s / s_n
+    a = _rho2(h0, t_s, s_n)
     shape = np.broadcast_shapes(obs.shape, a.shape, nseg.shape, rule.batch_shape)
     rid = _rule_index(rule, shape).reshape(shape)
     dens = _likelihood(np.broadcast_to(obs_sum, shape), np.broadcast_to(a, shape),
