@@ -66,6 +66,12 @@ _ISF_MIN_P = 1e-300
 #: (tests/test_detection.py::test_sankaran_against_ncx2 checks it).
 _SANKARAN_MIN_DF = 400
 
+#: Degrees of freedom from which ``marginal_likelihood(method="auto")`` uses the density of
+#: Sankaran's approximation: relative error <= 3e-3 where the density exceeds 1e-3 of its
+#: peak at 4N = 1000 (5.5e-4 at 4N = 4000), measured against ``scipy.stats.ncx2.pdf``
+#: (tests/test_detection.py::test_sankaran_density_against_ncx2), ~50x faster.
+_SANKARAN_PDF_MIN_DF = 1000
+
 #: Default cap on the number of product (R2 x mismatch) nodes; larger rules are condensed
 #: (16 equal-probability x 48 logarithmic cells, two nodes each; see ``_condense``).
 DEFAULT_MAX_NODES = 132
@@ -430,13 +436,7 @@ def _sankaran_sf(x, df, nc):
     Sankaran 1959, Biometrika 46, 235 (form as commonly quoted; from memory).  Used only for
     ``df >= _SANKARAN_MIN_DF``, where it agrees with ``scipy.stats.ncx2.sf`` to <= 3e-5.
     """
-    s1 = df + nc
-    s2 = df + 2.0 * nc
-    h = 1.0 - (2.0 / 3.0) * s1 * (df + 3.0 * nc) / s2**2
-    p = s2 / s1**2
-    m = (h - 1.0) * (1.0 - 3.0 * h)
-    z = ((x / s1) ** h - (1.0 + h * p * (h - 1.0 - 0.5 * (2.0 - h) * m * p))) / (
-        h * np.sqrt(2.0 * p) * (1.0 + 0.5 * m * p))
+    z, _ = _sankaran_terms(x, df, nc)
     return special.ndtr(-z)
 
 
@@ -556,15 +556,53 @@ def _solve_log_a(threshold_sum, n_seg, probability, rule, method="auto", xatol=1
     return a.reshape(shape)
 
 
-def _likelihood(observed_sum, a, n_seg, c, w):
+def _sankaran_terms(x, df, nc, derivative=False):
+    """``z(x)`` of Sankaran's approximation (see :func:`_sankaran_sf`), and ``dz/dx``."""
+    s1 = df + nc
+    s2 = df + 2.0 * nc
+    h = 1.0 - (2.0 / 3.0) * s1 * (df + 3.0 * nc) / s2**2
+    p = s2 / s1**2
+    m = (h - 1.0) * (1.0 - 3.0 * h)
+    scale = h * np.sqrt(2.0 * p) * (1.0 + 0.5 * m * p)
+    r = x / s1
+    z = (r**h - (1.0 + h * p * (h - 1.0 - 0.5 * (2.0 - h) * m * p))) / scale
+    if not derivative:
+        return z, None
+    with np.errstate(divide="ignore"):
+        dz_dx = h * r ** (h - 1.0) / (s1 * scale)
+    return z, dz_dx
+
+
+def _signal_pdf(x, df, nc, method="exact"):
+    """Density of the non-central chi-squared at ``x``.
+
+    ``"exact"``: ``scipy.stats.ncx2.pdf``.  ``"auto"``: where ``df >= _SANKARAN_PDF_MIN_DF``
+    the density of Sankaran's approximation, ``phi(z(x)) dz/dx`` (Sankaran 1959,
+    Biometrika 46, 235), elsewhere ncx2.pdf.
+    """
+    x, df, nc = np.broadcast_arrays(x, df, nc)
+    if method == "exact":
+        return stats.ncx2.pdf(x, df, nc)
+    big = df >= _SANKARAN_PDF_MIN_DF
+    out = np.empty(x.shape)
+    xb = x[big]
+    z, dz_dx = _sankaran_terms(xb, df[big], nc[big], derivative=True)
+    # The transformation is only defined for x > 0; the true density at 0 is 0 here.
+    out[big] = stats.norm.pdf(z) * np.where(xb > 0, dz_dx, 0.0)
+    small = ~big
+    out[small] = stats.ncx2.pdf(x[small], df[small], nc[small])
+    return out
+
+
+def _likelihood(observed_sum, a, n_seg, c, w, method="exact"):
     """Density of the summed statistic: ``sum_i w_i ncx2.pdf(2F; 4N, a c_i)``.
 
     ``scipy.stats.ncx2.pdf`` is used (its ``logpdf`` returns -inf at 4N ~ 4000 where the
     density is finite, scipy 1.17); the log is taken of the marginal sum.
     """
     x = np.asarray(observed_sum, float)[..., None]
-    pdf = stats.ncx2.pdf(x, 4.0 * np.asarray(n_seg, float)[..., None],
-                         np.asarray(a, float)[..., None] * c)
+    pdf = _signal_pdf(x, 4.0 * np.asarray(n_seg, float)[..., None],
+                      np.asarray(a, float)[..., None] * c, method)
     return np.sum(w * pdf, axis=-1)
 
 
@@ -804,7 +842,8 @@ def critical_depth(threshold, n_seg, t_data, r2_rule, mismatch_rule=0.0, confide
 
 
 def marginal_likelihood(observed, h0, n_seg, t_data, psd, r2_rule, mismatch_rule=0.0,
-                        statistic="sum", log=False, max_nodes=DEFAULT_MAX_NODES):
+                        statistic="sum", log=False, method="exact",
+                        max_nodes=DEFAULT_MAX_NODES):
     """Density of an observed statistic given ``h0``, marginalised over orientation and mismatch.
 
     Parameters
@@ -820,6 +859,11 @@ def marginal_likelihood(observed, h0, n_seg, t_data, psd, r2_rule, mismatch_rule
         it is ``N`` times the density of the sum at ``N * observed``).
     log : bool
         Return the natural log of the density.
+    method : {"exact", "auto"}
+        ``"exact"`` (default) uses ``scipy.stats.ncx2.pdf`` throughout; ``"auto"`` uses the
+        density of Sankaran's approximation where ``4N >= 1000`` (relative error
+        <= 3e-3 where the density exceeds 1e-3 of its peak; ~50x faster), for large
+        Bayesian grids.
 
     Returns
     -------
@@ -835,6 +879,7 @@ def marginal_likelihood(observed, h0, n_seg, t_data, psd, r2_rule, mismatch_rule
     ----------
     Jaranowski, Krolak & Schutz 1998, gr-qc/9804014; Wette 2012, arXiv:1111.5650.
     """
+    _check_method(method)
     nseg = _check_n_seg(to_value(n_seg, u.one, "n_seg"))
     obs = np.asarray(to_value(observed, u.one, "observed"), dtype=float)
     bad = ~(np.isfinite(obs) & (obs >= 0))
@@ -854,7 +899,7 @@ def marginal_likelihood(observed, h0, n_seg, t_data, psd, r2_rule, mismatch_rule
     shape = np.broadcast_shapes(obs.shape, a.shape, nseg.shape, rule.batch_shape)
     rid = _rule_index(rule, shape).reshape(shape)
     dens = _likelihood(np.broadcast_to(obs_sum, shape), np.broadcast_to(a, shape),
-                       np.broadcast_to(nseg, shape), rule.c[rid], rule.w[rid])
+                       np.broadcast_to(nseg, shape), rule.c[rid], rule.w[rid], method)
     if statistic == "mean":
         # Change of variable 2F = N x: p_x(x) = N p_2F(N x).
         dens = dens * np.broadcast_to(nseg, shape)

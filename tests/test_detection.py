@@ -157,6 +157,38 @@ def test_sankaran_against_ncx2(df):
         assert err.max() < 3e-5
 
 
+@pytest.mark.parametrize("df", [1000, 4000])
+def test_sankaran_density_against_ncx2(df):
+    # The density used by marginal_likelihood(method="auto") for 4N >= 1000 must match
+    # scipy.stats.ncx2.pdf to 3e-3 relative (measured 2.5e-3 at 4N = 1000) wherever the
+    # density exceeds 1e-3 of its peak (the bound claimed in the module), over +-6 standard
+    # deviations and a range of nc.
+    for nc in (0.0, 30.0, 300.0, 3000.0, 30000.0):
+        mean, sd = df + nc, np.sqrt(2 * df + 4 * nc)
+        x = np.linspace(mean - 6 * sd, mean + 6 * sd, 2001)
+        exact = stats.ncx2.pdf(x, df, nc)
+        approx = det._signal_pdf(x, df, nc, method="auto")
+        core = exact > 1e-3 * exact.max()
+        assert np.max(np.abs(approx[core] / exact[core] - 1)) < 3e-3
+
+
+def test_auto_likelihood_close_to_exact_and_normalised(r2_fixed_sky):
+    # method="auto" for the likelihood: within 3e-3 of ncx2.pdf-based values at the peak
+    # of the distribution, and still a density (scipy.integrate.quad).
+    n_seg, h0 = 400, 30.0
+    r2 = r2_fixed_sky[:2000]
+    x = 4 * n_seg + np.mean(r2) * h0**2 + np.array([-60.0, 0.0, 60.0])
+    exact = det.marginal_likelihood(x, h0, n_seg, T_DATA, PSD, r2, 0.1)
+    auto = det.marginal_likelihood(x, h0, n_seg, T_DATA, PSD, r2, 0.1, method="auto")
+    np.testing.assert_allclose(auto.value, exact.value, rtol=3e-3)
+    top = 4 * n_seg + r2.max() * h0**2 + 40 * np.sqrt(8 * n_seg + 4 * r2.max() * h0**2)
+    total, _ = integrate.quad(
+        lambda s: det.marginal_likelihood(s, h0, n_seg, T_DATA, PSD, r2, 0.1,
+                                          method="auto").value, 0, top, points=[x[1]],
+        limit=200)
+    assert total == pytest.approx(1.0, abs=1e-4)
+
+
 def test_auto_and_exact_detection_probability_agree(r2_all_sky):
     # method="auto" (Sankaran at 4N >= 400) against scipy.stats.ncx2.sf throughout.
     n_seg = np.array([100, 1000])
