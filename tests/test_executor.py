@@ -144,7 +144,18 @@ def test_dask_local_cluster_gives_the_same_bits():
                                   dashboard_address=None) as cluster, \
             distributed.Client(cluster, set_as_default=False) as client:
         out = map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, seed=SEED, executor=client)
+        # --scheduler ADDRESS: make_executor connects a client of its own to the scheduler.
+        with make_executor(scheduler=cluster.scheduler_address) as by_address:
+            assert isinstance(by_address, distributed.Client)
+            again = map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, seed=SEED,
+                               executor=by_address)
+            # A failing chunk on the cluster raises here, with the note naming it.
+            with pytest.raises(RuntimeError, match="simulated failure") as info:
+                map_chunks(functools.partial(fail_at, start=ITEMS["x"][2 * CHUNK]), ITEMS,
+                           chunk_size=CHUNK, seed=SEED, executor=by_address)
     assert_bitwise_equal(out, reference())
+    assert_bitwise_equal(again, reference())
+    assert any("chunk 2" in note for note in info.value.__notes__)
 
 
 def test_a_different_seed_or_chunk_size_changes_the_draws_but_not_the_deterministic_part():
@@ -162,6 +173,24 @@ def test_items_as_a_number_gives_index_slices():
         return {"i": chunk["index"] * 2}
     out = map_chunks(index_only, 1001, chunk_size=100)
     np.testing.assert_array_equal(out["i"], 2 * np.arange(1001))
+
+
+def test_quantity_items_are_sliced_as_quantities():
+    import astropy.units as u
+
+    def to_hz(chunk, rng):
+        return {"f_hz": chunk["f"].to_value(u.Hz)}
+
+    out = map_chunks(to_hz, {"f": np.arange(5.0) * u.kHz}, chunk_size=2)
+    np.testing.assert_array_equal(out["f_hz"], [0.0, 1e3, 2e3, 3e3, 4e3])  # 1 kHz = 1e3 Hz
+
+
+def test_serial_executor_refuses_work_after_shutdown():
+    executor = SerialExecutor()
+    assert executor.submit(pow, 2, 10).result() == 1024
+    executor.shutdown()
+    with pytest.raises(RuntimeError, match="after shutdown"):
+        executor.submit(pow, 2, 10)
 
 
 def test_no_items_runs_the_function_once_for_names_and_dtypes():
