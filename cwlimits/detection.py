@@ -185,6 +185,8 @@ class QuadratureRule:
             raise InputError(f"{name}: weights must not all be zero")
         self.name = name
         self.nodes = np.array(nodes)
+        # Normalise so that a rule of raw counts or unnormalised quadrature weights works;
+        # every average below is then a plain weighted sum.
         self.weights = weights / total
 
     @classmethod
@@ -222,6 +224,8 @@ def _as_rule(obj, name, lower, upper):
     A ``QuadratureRule`` is used as is; a ``(nodes, weights)`` tuple becomes a rule; a scalar
     is a fixed value; any other array is a set of samples along its last axis.
     """
+    # Order matters: a tuple is (nodes, weights) -- as returned by the response module --
+    # before the generic "array of samples" case.
     if isinstance(obj, QuadratureRule):
         rule = obj
     elif isinstance(obj, tuple) and len(obj) == 2:
@@ -232,6 +236,7 @@ def _as_rule(obj, name, lower, upper):
         rule = QuadratureRule.fixed(obj, name=name)
     else:
         rule = QuadratureRule.from_samples(obj, name=name)
+    # R2 >= 0 always; mismatch in [0, 1] (mu = 1 means no signal power left).
     bad = (rule.nodes < lower) | (rule.nodes > upper)
     if np.any(bad):
         raise InputError(f"{name}: nodes must lie in [{lower}, {upper}]",
@@ -403,6 +408,7 @@ def _log_p_template(false_alarm, n_templates):
 def _threshold_from_log_p(log_p, df):
     """``x`` with ``chi2.sf(x, df) = exp(log_p)``; log-space root below ``_ISF_MIN_P``."""
     log_p, df = np.broadcast_arrays(np.asarray(log_p, float), np.asarray(df, float))
+    # Writable float array even for scalar input, so the tiny-p entries can be replaced.
     out = np.array(stats.chi2.isf(np.exp(log_p), df), dtype=float, ndmin=1).reshape(
         log_p.shape)
     tiny = log_p < np.log(_ISF_MIN_P)
@@ -658,6 +664,8 @@ def false_alarm_threshold(false_alarm, n_templates=1, n_seg=1, statistic="sum"):
     if np.any(bad):
         raise InputError("n_templates must be >= 1 and finite", value=_first_bad(n_t, bad))
     nseg = _check_n_seg(to_value(n_seg, u.one, "n_seg"))
+    # Noise-only 2F over N segments has 4N degrees of freedom (four amplitude parameters
+    # maximised per segment; JKS 1998).
     thr = _threshold_from_log_p(_log_p_template(p, n_t), 4.0 * nseg)
     return _from_sum(thr, nseg, statistic) << u.one
 
@@ -736,6 +744,7 @@ def detection_probability(h0, threshold, n_seg, t_data, psd, r2_rule, mismatch_r
     rule = _signal_rule(r2_rule, mismatch_rule, max_nodes)
     a = _rho2(h0, t_s, s_n)
     shape = np.broadcast_shapes(a.shape, thr.shape, nseg.shape, rule.batch_shape)
+    # Each output element reads its own rule row (rules may carry per-setup batch axes).
     rid = _rule_index(rule, shape).reshape(shape)
     p = _detection_probability(np.broadcast_to(a, shape), np.broadcast_to(thr, shape),
                                np.broadcast_to(nseg, shape), rule.c[rid], rule.w[rid], method)
@@ -897,6 +906,8 @@ def marginal_likelihood(observed, h0, n_seg, t_data, psd, r2_rule, mismatch_rule
     rule = _signal_rule(r2_rule, mismatch_rule, max_nodes)
     a = _rho2(h0, t_s, s_n)
     shape = np.broadcast_shapes(obs.shape, a.shape, nseg.shape, rule.batch_shape)
+    # Same rule rows and the same rho2 = a c as detection_probability: one model for both
+    # the frequentist and the Bayesian side.
     rid = _rule_index(rule, shape).reshape(shape)
     dens = _likelihood(np.broadcast_to(obs_sum, shape), np.broadcast_to(a, shape),
                        np.broadcast_to(nseg, shape), rule.c[rid], rule.w[rid], method)
@@ -1004,6 +1015,8 @@ def estimate_sensitivity(n_seg, t_data, r2_rule, mismatch_rule=0.0, *, psd=None,
     ----------
     Wette 2012, arXiv:1111.5650; Dreissigacker, Prix & Wette 2018, arXiv:1808.02459.
     """
+    # A false alarm with a template count, or a threshold (e.g. from a follow-up pipeline),
+    # never both: they would contradict each other.
     if (false_alarm is None) == (threshold is None):
         raise InputError("give exactly one of false_alarm (with n_templates) or threshold")
     nseg = _check_n_seg(to_value(n_seg, u.one, "n_seg"))
