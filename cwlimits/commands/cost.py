@@ -7,9 +7,7 @@ import numpy as np
 
 from ..cost import PLOT_SUFFIXES, computing_cost, plot_cost_scan, scan_cost
 from ..errors import InputError
-from ..lattices import LATTICE_NAMES
 from ..parameter_space import BoxSpace
-from ..setup import DEFAULT_UNIT_COSTS, SearchSetup, load_setup
 from ..tables import write_table
 from ._common import (
     add_parser,
@@ -22,6 +20,7 @@ from ._common import (
     resolve_target,
     sci,
 )
+from ._setup_args import add_setup_args, build_setup
 
 __all__ = ["ORDER", "register", "run"]
 
@@ -41,11 +40,6 @@ _EXAMPLES = [
     "--mismatch-coarse 0.5 --mismatch-fine 0.2 --lattice Zn --detectors H1,L1,V1",
 ]
 
-# option dest -> SearchSetup field (or a part of one)
-_OVERRIDES = ("t_seg", "n_seg", "span", "duty_factor", "mismatch_coarse", "mismatch_fine",
-              "lattice", "band_width", "cost_coherent", "cost_semicoherent")
-
-
 def register(subparsers, common):
     """Add the ``cost`` subcommand."""
     parser = add_parser(
@@ -59,7 +53,6 @@ def register(subparsers, common):
                     "the file.  Without --setup, --t-seg, --n-seg, --f-min and --f-max are "
                     "needed.",
         examples=_EXAMPLES)
-    parser.add_argument("--setup", metavar="FILE", help="TOML setup file")
     who = parser.add_argument_group("target (one of)")
     who.add_argument("--age", type=quantity_arg(u.yr, "age"), metavar="AGE",
                      help="age of the target (e.g. 1000yr)")
@@ -69,38 +62,7 @@ def register(subparsers, common):
                           "target's known spin, f_gw = 2 f_rot +- FTOL f_gw and fdot_gw = "
                           "2 fdot_rot +- FDOTTOL |fdot_gw|, instead of the age-based space "
                           "(the band defaults to the box)")
-    grp = parser.add_argument_group("setup (override the file)")
-    grp.add_argument("--t-seg", type=quantity_arg(u.day, "segment length"), metavar="T",
-                     help="coherent segment length (e.g. 10day)")
-    grp.add_argument("--n-seg", type=int, metavar="N", help="number of segments")
-    grp.add_argument("--span", type=quantity_arg(u.day, "span"), metavar="T",
-                     help="total observation span (segments spread evenly over it)")
-    grp.add_argument("--duty-factor", type=float, metavar="X",
-                     help="fraction of time with data (for the sensitivity; not the cost)")
-    grp.add_argument("--detectors", metavar="LIST",
-                     help="comma-separated site codes (default H1,L1)")
-    grp.add_argument("--mismatch-coarse", type=float, metavar="MU",
-                     help="maximum mismatch of the coherent grid (default 0.3)")
-    grp.add_argument("--mismatch-fine", type=float, metavar="MU",
-                     help="maximum mismatch of the semi-coherent grid (default 0.3)")
-    grp.add_argument("--lattice", choices=sorted({"An*", "Zn"}),
-                     help="template lattice (default An*)")
-    grp.add_argument("--f-min", type=quantity_arg(u.Hz, "f_min"), metavar="F",
-                     help="lower band edge")
-    grp.add_argument("--f-max", type=quantity_arg(u.Hz, "f_max"), metavar="F",
-                     help="upper band edge")
-    grp.add_argument("--band-width", type=quantity_arg(u.Hz, "band width"), metavar="DF",
-                     help="width of the reporting bands (default 1Hz)")
-    grp.add_argument("--braking-index-min", type=float, metavar="N",
-                     help="smallest braking index (default 2)")
-    grp.add_argument("--braking-index-max", type=float, metavar="N",
-                     help="largest braking index (default 7)")
-    grp.add_argument("--cost-coherent", type=quantity_arg(u.s, "unit cost"), metavar="T",
-                     help="seconds per coherent template per detector per segment "
-                          f"(default {DEFAULT_UNIT_COSTS['coherent']})")
-    grp.add_argument("--cost-semicoherent", type=quantity_arg(u.s, "unit cost"),
-                     metavar="T", help="seconds per semi-coherent template per segment "
-                                       f"(default {DEFAULT_UNIT_COSTS['semicoherent']})")
+    add_setup_args(parser)
     out = parser.add_argument_group("output")
     out.add_argument("--out", metavar="FILE",
                      help="write the per-band (or scan) table (.csv or .ecsv)")
@@ -115,44 +77,6 @@ def register(subparsers, common):
                      help="with --scan: plot cost against the scanned quantity (.png, "
                           ".pdf, .svg)")
     parser.set_defaults(run=run)
-
-
-def _build_setup(args, default_band=None):
-    base = load_setup(args.setup) if args.setup else None
-    given = {name: getattr(args, name) for name in _OVERRIDES
-             if getattr(args, name) is not None}
-    if args.detectors is not None:
-        given["detectors"] = tuple(d.strip() for d in args.detectors.split(",") if d.strip())
-    try:
-        if base is None:
-            missing = [opt for opt, name in (("--t-seg", "t_seg"), ("--n-seg", "n_seg"))
-                       if name not in given]
-            band = (args.f_min if args.f_min is not None else (default_band or (None,))[0],
-                    args.f_max if args.f_max is not None else (default_band or (0, None))[1])
-            missing += [opt for opt, f in zip(("--f-min", "--f-max"), band, strict=True)
-                        if f is None]
-            if missing:
-                raise InputError(f"without --setup FILE give {', '.join(missing)}")
-            n_min = 2.0 if args.braking_index_min is None else args.braking_index_min
-            n_max = 7.0 if args.braking_index_max is None else args.braking_index_max
-            return SearchSetup(band=band, braking_index=(n_min, n_max), **given)
-        band = (args.f_min if args.f_min is not None else base.f_min,
-                args.f_max if args.f_max is not None else base.f_max)
-        n_min, n_max = base.braking_index
-        n_min = n_min if args.braking_index_min is None else args.braking_index_min
-        n_max = n_max if args.braking_index_max is None else args.braking_index_max
-        if base.mid_times is not None and ("t_seg" in given or "n_seg" in given):
-            # explicit mid-times belong to the file's segments; new segments drop them
-            given["mid_times"] = None
-        return base.replace(band=band, braking_index=(n_min, n_max), **given)
-    except InputError as exc:
-        field = getattr(exc, "field", None)
-        if field is None:
-            raise
-        option = {"n_min": "braking-index-min", "n_max": "braking-index-max",
-                  "band": "f-min/--f-max"}.get(field, field.replace("_", "-"))
-        raise InputError(f"--{option}: {getattr(exc, 'short', exc.reason)}",
-                         value=exc.value) from None
 
 
 def _target_space(args):
@@ -215,7 +139,7 @@ def run(args):
             raise InputError("--plot needs --scan (t-seg or segments)")
         plot = check_output_path(args.plot, PLOT_SUFFIXES)
     target, what, default_band = _target_space(args)
-    setup = _build_setup(args, default_band)
+    setup = build_setup(args, default_band)
     if args.scan:
         quantity, values = _scan_values(args, setup)
         table = scan_cost(setup, target, quantity, values)
@@ -285,6 +209,3 @@ def _print_scan(args, table, quantity, what):
             for r in table]
     echo(args, format_rows(headers, rows))
 
-
-# keep the lattice names visible to --help readers who look for aliases
-_ = LATTICE_NAMES
