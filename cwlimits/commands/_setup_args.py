@@ -1,5 +1,7 @@
-"""The setup options shared by the commands that read a search setup (cost, sensitivity,
-limits, plan): ``--setup FILE`` and the options that override its values.
+"""Setup options shared by the commands that read a search setup.
+
+``--setup FILE`` and the options that override its values, for ``cost``, ``sensitivity``,
+``limits`` and ``plan``.
 """
 
 import astropy.units as u
