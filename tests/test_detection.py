@@ -8,6 +8,8 @@ definition (sum of squares of unit normals), counts detections and bisects on th
 import astropy.units as u
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy import integrate, stats
 
 from cwlimits import detection as det
@@ -611,3 +613,30 @@ def test_scipy_ncx2_at_large_df_against_mpmath(df, nc):
     x_mid = df + nc  # the mean of the distribution
     assert stats.ncx2.pdf(x_mid, df, nc) == pytest.approx(
         _poisson_mixture(x_mid, df, nc, "pdf"), rel=1e-9)
+
+
+def test_combine_rules_shapes(r2_fixed_sky):
+    # Scalar: one node; array: samples; batch axes broadcast (one mismatch per setup).
+    assert det.combine_rules(0.16).size == 1
+    assert det.combine_rules(0.16, 0.25).mean() == pytest.approx(0.12)  # 0.16 (1 - 0.25)
+    batch = det.combine_rules(r2_fixed_sky[:1000], det.QuadratureRule.fixed([0.1, 0.2]))
+    assert batch.batch_shape == (2,)
+    np.testing.assert_allclose(batch.mean(), r2_fixed_sky[:1000].mean() * np.array([0.9, 0.8]),
+                               rtol=1e-12)
+
+
+@settings(max_examples=25, deadline=None, derandomize=True)  # reproducible examples
+@given(n_seg=st.integers(1, 2000), log_p=st.floats(-12, -1), confidence=st.floats(0.5, 0.99))
+def test_solution_properties(n_seg, log_p, confidence):
+    # Facts of the trade (common practice): the solved amplitude reaches the confidence with
+    # scipy's ncx2.sf exactly; more confidence needs a larger amplitude; a stricter false alarm
+    # (higher threshold) needs a larger amplitude.
+    r2 = det.QuadratureRule([0.05, 0.15, 0.3], [0.3, 0.4, 0.3])
+    thr = stats.chi2.isf(10**log_p, 4 * n_seg)
+    h0 = det.solve_amplitude([thr, thr, thr * 1.05], n_seg, T_DATA, PSD, r2, 0.1,
+                             [confidence, min(confidence + 0.005, 0.995), confidence],
+                             method="exact").value
+    p = np.sum(np.array([0.3, 0.4, 0.3]) * stats.ncx2.sf(
+        thr, 4 * n_seg, h0[0] ** 2 * np.array([0.05, 0.15, 0.3]) * 0.9))
+    assert p == pytest.approx(confidence, abs=1e-8)
+    assert h0[1] > h0[0] and h0[2] > h0[0]
