@@ -137,6 +137,18 @@ def test_jks_amplitudes_reproduce_the_antenna_pattern_signal():
         np.testing.assert_allclose(model, truth, atol=1e-12 * h0)
 
 
+def test_amplitude_fast_path_equals_the_antenna_pattern_signal():
+    # (A1 a + A2 b) cos + (A3 a + A4 b) sin is F+ h+ + Fx hx (JKS 1998 eqs. 24-27)
+    data = sy.simulate_noise("H1,L1", PSD, 100 * u.Hz, 0.25 * u.Hz, 4096 * u.s,
+                             (T0 + np.arange(3) * 5000.0) * u.s, duty=0.9, rng=3)
+    sig = sy.CWSignal(SKY, 2e-24, -0.6, 0.7 * u.rad, 4.0 * u.rad, 100.03 * u.Hz,
+                      -2e-9 * u.Hz / u.s)
+    slow = sy.simulate_signal(data, sig)
+    fast = sy._signal_from_amplitudes(data, SKY, sig.amplitudes, sig.f.value, sig.fdot.value)
+    # both interpolate the response module on the same nodes: rounding only
+    np.testing.assert_allclose(fast, slow, atol=1e-9 * sig.h0)
+
+
 def test_spline_modulation_matches_the_response_module():
     data = sy.simulate_noise("H1,V1", PSD, 50 * u.Hz, 0.25 * u.Hz, 20000 * u.s,
                              [T0, T0 + 30000] * u.s, rng=1)
