@@ -42,6 +42,28 @@ from .indirect import (  # noqa: E402
     sample_limits,
     spindown_limit,
 )
+from .noise import (  # noqa: E402
+    DEFAULT_NOISE_MODEL,
+    NOISE_MODELS,
+    band_floor,
+    band_psd,
+    combine_noise,
+    estimate_psd,
+    get_noise,
+    read_noise_file,
+    read_timeseries,
+)
+from .response import (  # noqa: E402
+    Detector,
+    antenna_patterns,
+    get_detector,
+    load_detectors,
+    orientation_factor,
+    orientation_factor_rule,
+    orientation_factor_samples,
+    time_averages,
+)
+from .results import SearchResults, load_results  # noqa: E402
 from .tables import read_table, write_table  # noqa: E402
 from .targets import Target, TargetCatalogue, load_targets  # noqa: E402
 
@@ -69,6 +91,28 @@ __all__ = [
     "mass_quadrupole",
     "rmode_amplitude",
     "strain_from_rmode_amplitude",
+    # noise
+    "DEFAULT_NOISE_MODEL",
+    "NOISE_MODELS",
+    "get_noise",
+    "read_noise_file",
+    "read_timeseries",
+    "estimate_psd",
+    "band_psd",
+    "band_floor",
+    "combine_noise",
+    # detector response
+    "Detector",
+    "get_detector",
+    "load_detectors",
+    "antenna_patterns",
+    "time_averages",
+    "orientation_factor",
+    "orientation_factor_samples",
+    "orientation_factor_rule",
+    # search results
+    "SearchResults",
+    "load_results",
     # tables
     "read_table",
     "write_table",

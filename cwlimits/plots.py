@@ -12,7 +12,7 @@ from pathlib import Path
 import numpy as np
 
 __all__ = ["COLUMN_WIDTH_IN", "PALETTE", "new_figure", "save_figure", "plot_indirect_limits",
-           "plot_strain_curves"]
+           "plot_strain_curves", "plot_sensitivity"]
 
 #: Width of one journal column, inches (common practice: 3.3-3.5 in).
 COLUMN_WIDTH_IN = 3.4
@@ -86,6 +86,7 @@ def plot_indirect_limits(table, title=None):
     ax.set_yticks(y, [str(name) for name in table["name"]], fontsize=7)
     ax.set_xscale("log")
     ax.set_xlabel(r"indirect limit on $h_0$ (dimensionless strain)")
+    ax.tick_params(axis="x", which="both", labelsize=6)
     ax.set_ylabel("target")
     ax.legend(fontsize=6, loc="lower right")
     if title:
@@ -123,7 +124,37 @@ def plot_strain_curves(f, curves, bands=(), title=None, ylabel=r"$h_0$ (dimensio
     ax.set_yscale("log")
     ax.set_xlabel("gravitational-wave frequency [Hz]")
     ax.set_ylabel(ylabel)
+    ax.tick_params(which="both", labelsize=6)
     ax.legend(fontsize=6, loc="best")
     if title:
         ax.set_title(title, fontsize=8)
+    return fig
+
+
+def plot_sensitivity(table, title=None, curve_label=r"expected $h_0$ sensitivity",
+                     h0_column="h0"):
+    """h0(f) against the target's age-based limit band, marking where the search beats it.
+
+    Parameters
+    ----------
+    table : astropy.table.QTable
+        From :func:`cwlimits.strain_sensitivity` or :func:`cwlimits.upper_limits`, with
+        ``f_mid``, ``h0_column`` and (optionally) the ``h0_age*`` columns.
+    """
+    f = table["f_mid"]
+    bands = []
+    if "h0_age" in table.colnames:
+        bands.append(("age-based limit (range)", table["h0_age_pessimistic"][0].value,
+                      table["h0_age"][0].value, table["h0_age_optimistic"][0].value))
+    fig = plot_strain_curves(f, [(curve_label, table[h0_column])], bands=bands, title=title)
+    if "beats_age" in table.colnames and np.any(table["beats_age"]):
+        ax = fig.axes[0]
+        beats = np.asarray(table["beats_age"], bool)
+        colour, _, _ = PALETTE[2]
+        low = ax.get_ylim()[0]
+        ax.fill_between(np.asarray(f.to_value("Hz")), low,
+                        np.asarray(table[h0_column].value), where=beats, color=colour,
+                        alpha=0.25, hatch="///", lw=0, label="beats the age-based limit")
+        ax.set_ylim(bottom=low)
+        ax.legend(fontsize=6, loc="best")
     return fig

@@ -3,8 +3,11 @@ import pathlib
 import sys
 
 import pytest
+from astropy.utils import iers
 
 os.environ.setdefault("MPLBACKEND", "Agg")
+# No network at run time: astropy must never try to fetch IERS tables during the tests.
+iers.conf.auto_download = False
 sys.path.insert(0, str(pathlib.Path(__file__).parent))
 
 ROOT = pathlib.Path(__file__).resolve().parent.parent
