@@ -203,6 +203,29 @@ class BandData:
     noise_name: str = ""
     _cache: dict = field(default_factory=dict, repr=False, compare=False)
 
+    def __post_init__(self):
+        # BandData may also be built by hand from heterodyned data: check the layout once
+        data, mask = np.asarray(self.data), np.asarray(self.mask)
+        if data.ndim != 3 or not np.iscomplexobj(data):
+            raise InputError("data must be a complex array (n_det, n_seg, n_samples)",
+                             value=f"{data.dtype} {data.shape}")
+        n_det, n_seg, m = data.shape
+        if len(self.detectors) != n_det or m != self.n_samples or m < MIN_SAMPLES:
+            raise InputError(f"data of shape {data.shape} does not match "
+                             f"{len(self.detectors)} detector(s) and {self.n_samples} "
+                             f"samples per segment (at least {MIN_SAMPLES})")
+        if mask.shape != data.shape or mask.dtype != bool:
+            raise InputError(f"mask must be a boolean array of shape {data.shape}",
+                             value=f"{mask.dtype} {mask.shape}")
+        starts = to_value(self.segment_starts, u.s, "segment_starts")
+        psd = to_value(self.psd, PSD_UNIT, "psd")
+        if starts.shape != (n_seg,) or psd.shape != (n_det, n_seg):
+            raise InputError(f"segment_starts must have shape ({n_seg},) and psd "
+                             f"({n_det}, {n_seg})", value=(starts.shape, psd.shape))
+        for name in ("f_ref", "bandwidth"):
+            _scalar(getattr(self, name), u.Hz, name, positive=True)
+        _scalar(self.t_ref, u.s, "t_ref")
+
     @property
     def n_seg(self):
         """Number of segments."""

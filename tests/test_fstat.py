@@ -192,6 +192,13 @@ def test_invert_amplitudes_round_trip_and_degeneracy():
     np.testing.assert_allclose(r_psi.value[ok], psi[ok], atol=1e-6)
     np.testing.assert_allclose(np.angle(np.exp(1j * (r_phi0.value[ok] - phi0[ok]))), 0,
                                atol=1e-6)
+    # a scalar and a broadcast input (4, 2, 3)
+    one = fs.invert_amplitudes(amp[:, 0])
+    assert np.ndim(one[0]) == 0 and one[0] == pytest.approx(h0[0], rel=1e-9)
+    grid = sy._jks_amplitudes(h0[:2, None], cosi[None, :3], psi[0], phi0[0])
+    assert fs.invert_amplitudes(grid)[0].shape == (2, 3)
+    np.testing.assert_allclose(fs.invert_amplitudes(grid)[0],
+                               np.broadcast_to(h0[:2, None], (2, 3)), rtol=1e-9)
     # (psi + pi/2, phi0 + pi) is the same signal (JKS 1998): same amplitudes
     np.testing.assert_allclose(sy._jks_amplitudes(h0, cosi, psi + np.pi / 2, phi0 + np.pi),
                                amp, atol=1e-12)
