@@ -135,6 +135,29 @@ def test_expected_rho2_uses_the_response_time_averages():
     assert fs.expected_rho2(data, sig).value == pytest.approx(model, rel=1e-4)
 
 
+def test_network_with_unequal_noise_matches_the_weighted_model():
+    # Two detectors with PSDs 1:4.  The F-statistic weights each by T/S_n (Cutler & Schutz
+    # 2005, gr-qc/0504011); the model combines A, B, C with weights S_ref/S_d and
+    # rho^2 = R^2 h0^2 exposure / S_ref (cwlimits.response.time_averages).
+    t_seg, n_seg = 2048.0, 3
+    psd = np.array([1e-46, 4e-46])
+    data = sy.simulate_noise("H1,V1", psd * u.Hz**-1, F_REF, BAND, t_seg * u.s,
+                             (T0 + np.arange(n_seg) * t_seg) * u.s, rng=41)
+    sig = sy.CWSignal(SKY, 1e-24, -0.4, -0.5 * u.rad, 3 * u.rad, F_REF + 0.0625 * u.Hz)
+    avg = time_averages("H1,V1", SKY, T0 * u.s, n_seg * t_seg * u.s, weights=psd[0] / psd,
+                        method="sampled", samples_per_day=96)
+    r2 = orientation_factor(avg.A, avg.B, avg.C, sig.cosi, sig.psi).value
+    model = r2 * sig.h0**2 * avg.exposure.to_value(u.s) / psd[0]
+    assert fs.expected_rho2(data, sig).value == pytest.approx(model, rel=1e-4)
+    h0 = 100.0 / np.sqrt(model) * sig.h0  # rho^2 = 1e4
+    loud = sy.CWSignal(SKY, h0, sig.cosi, sig.psi, sig.phi0, sig.f)
+    res = fs.stackslide_fstat(sy.inject(data, loud), SKY)
+    j = np.argmin(np.abs(res.frequency.value - loud.f.value))
+    rho2 = fs.expected_rho2(data, loud).value
+    sigma = np.sqrt(2 * (4 * n_seg + 2 * rho2))
+    assert abs(res.twoF.value[0, j] - 4 * n_seg - rho2) < N_SIGMA * sigma
+
+
 def test_amplitudes_and_parameters_are_recovered():
     # Maximum-likelihood A^mu = M^-1 x (JKS 1998 eqs. 31-35): (A_hat - A)^T M (A_hat - A)
     # is chi^2_4 for a signal in Gaussian noise; the parameters follow from the inversion,
