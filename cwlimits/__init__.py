@@ -20,6 +20,22 @@ from .conversions import (  # noqa: E402
     strain_from_ellipticity,
     strain_from_rmode_amplitude,
 )
+from .cost import (  # noqa: E402
+    CostEstimate,
+    computing_cost,
+    count_templates,
+    scan_cost,
+)
+from .detection import (  # noqa: E402
+    QuadratureRule,
+    combine_rules,
+    critical_depth,
+    detection_probability,
+    estimate_sensitivity,
+    false_alarm_threshold,
+    marginal_likelihood,
+    solve_amplitude,
+)
 from .errors import (  # noqa: E402
     CatalogueError,
     ComputationError,
@@ -30,6 +46,7 @@ from .errors import (  # noqa: E402
     TableError,
     UnitsMismatchError,
 )
+from .executor import make_executor, map_chunks, named_seed  # noqa: E402
 from .fiducial import DEFAULT_MOMENT_OF_INERTIA, FIDUCIAL_RMODE_STAR  # noqa: E402
 from .indirect import (  # noqa: E402
     MASS_QUADRUPOLE,
@@ -42,6 +59,8 @@ from .indirect import (  # noqa: E402
     sample_limits,
     spindown_limit,
 )
+from .lattices import Lattice, nearest_template, sample_mismatch  # noqa: E402
+from .metric import coherent_metric, refinement_factors, semicoherent_metric  # noqa: E402
 from .noise import (  # noqa: E402
     DEFAULT_NOISE_MODEL,
     NOISE_MODELS,
@@ -53,6 +72,7 @@ from .noise import (  # noqa: E402
     read_noise_file,
     read_timeseries,
 )
+from .parameter_space import AgeBasedSpace, BoxSpace  # noqa: E402
 from .response import (  # noqa: E402
     Detector,
     antenna_patterns,
@@ -64,6 +84,14 @@ from .response import (  # noqa: E402
     time_averages,
 )
 from .results import SearchResults, load_results  # noqa: E402
+from .sensitivity import (  # noqa: E402
+    SignalModel,
+    sensitivity_depth,
+    signal_model,
+    strain_sensitivity,
+)
+from .setup import SearchSetup, load_setup  # noqa: E402
+from .store import ResultStore, config_hash, file_hash, open_store  # noqa: E402
 from .tables import read_table, write_table  # noqa: E402
 from .targets import Target, TargetCatalogue, load_targets  # noqa: E402
 
@@ -110,6 +138,42 @@ __all__ = [
     "orientation_factor",
     "orientation_factor_samples",
     "orientation_factor_rule",
+    # search setup, parameter space, metric, lattices, cost
+    "SearchSetup",
+    "load_setup",
+    "AgeBasedSpace",
+    "BoxSpace",
+    "coherent_metric",
+    "semicoherent_metric",
+    "refinement_factors",
+    "Lattice",
+    "sample_mismatch",
+    "nearest_template",
+    "count_templates",
+    "computing_cost",
+    "CostEstimate",
+    "scan_cost",
+    # detection statistics and sensitivity
+    "QuadratureRule",
+    "combine_rules",
+    "false_alarm_threshold",
+    "detection_probability",
+    "solve_amplitude",
+    "critical_depth",
+    "marginal_likelihood",
+    "estimate_sensitivity",
+    "SignalModel",
+    "signal_model",
+    "strain_sensitivity",
+    "sensitivity_depth",
+    # scale: executor and resumable results
+    "map_chunks",
+    "make_executor",
+    "named_seed",
+    "ResultStore",
+    "open_store",
+    "config_hash",
+    "file_hash",
     # search results
     "SearchResults",
     "load_results",
