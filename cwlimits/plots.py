@@ -11,7 +11,8 @@ from pathlib import Path
 
 import numpy as np
 
-__all__ = ["COLUMN_WIDTH_IN", "PALETTE", "new_figure", "save_figure", "plot_indirect_limits",
+__all__ = ["COLUMN_WIDTH_IN", "PALETTE", "new_figure", "save_figure", "tidy_log_axes",
+           "plot_indirect_limits",
            "plot_strain_curves", "plot_sensitivity"]
 
 #: Width of one journal column, inches (common practice: 3.3-3.5 in).
@@ -44,6 +45,26 @@ def new_figure(height_ratio=0.75, width=COLUMN_WIDTH_IN):
     ax.xaxis.label.set_size(8)
     ax.yaxis.label.set_size(8)
     return fig, ax
+
+
+def tidy_log_axes(ax):
+    """Readable log-axis ticks at column width: 1, 2, 5 per decade over short ranges.
+
+    Matplotlib's default labels every minor tick of an axis spanning about a decade,
+    which overlaps at small font sizes; here short axes get major ticks at 1, 2 and 5
+    times powers of ten and no minor labels.
+    """
+    from matplotlib import ticker
+
+    for axis, lim in ((ax.xaxis, ax.get_xlim()), (ax.yaxis, ax.get_ylim())):
+        if axis.get_scale() != "log" or min(lim) <= 0:
+            continue
+        decades = np.log10(max(lim) / min(lim))
+        if decades < 3:
+            axis.set_major_locator(ticker.LogLocator(subs=(1.0, 2.0, 5.0)))
+            axis.set_major_formatter(ticker.LogFormatterSciNotation(labelOnlyBase=False))
+        axis.set_minor_formatter(ticker.NullFormatter())
+    ax.tick_params(which="both", labelsize=6)
 
 
 def save_figure(fig, path, formats=("png", "svg")):
@@ -86,11 +107,11 @@ def plot_indirect_limits(table, title=None):
     ax.set_yticks(y, [str(name) for name in table["name"]], fontsize=7)
     ax.set_xscale("log")
     ax.set_xlabel(r"indirect limit on $h_0$ (dimensionless strain)")
-    ax.tick_params(axis="x", which="both", labelsize=6)
     ax.set_ylabel("target")
     ax.legend(fontsize=6, loc="lower right")
     if title:
         ax.set_title(title, fontsize=8)
+    tidy_log_axes(ax)
     return fig
 
 
@@ -124,10 +145,10 @@ def plot_strain_curves(f, curves, bands=(), title=None, ylabel=r"$h_0$ (dimensio
     ax.set_yscale("log")
     ax.set_xlabel("gravitational-wave frequency [Hz]")
     ax.set_ylabel(ylabel)
-    ax.tick_params(which="both", labelsize=6)
     ax.legend(fontsize=6, loc="best")
     if title:
         ax.set_title(title, fontsize=8)
+    tidy_log_axes(ax)
     return fig
 
 
@@ -157,4 +178,5 @@ def plot_sensitivity(table, title=None, curve_label=r"expected $h_0$ sensitivity
                         alpha=0.25, hatch="///", lw=0, label="beats the age-based limit")
         ax.set_ylim(bottom=low)
         ax.legend(fontsize=6, loc="best")
+        tidy_log_axes(ax)
     return fig

@@ -1,0 +1,41 @@
+"""``cwlimits report``: the whole job from one configuration file to a report."""
+
+from ..analysis import run_report
+from ..config import load_config
+from ..progress import progress
+from ._common import add_parser, echo
+
+ORDER = 5
+
+#: Steps of :func:`cwlimits.analysis.run_report` that report progress.
+STEPS = 4
+
+
+def register(subparsers, common):
+    parser = add_parser(
+        subparsers, common, "report",
+        help="run the whole analysis of a configuration file and write its report",
+        description="Indirect limits of every target, ranking and budget split, the plan "
+                    "and predicted sensitivity of each chosen target, and upper limits "
+                    "where search results are supplied; written as index.html with every "
+                    "figure (PNG, SVG) and table (CSV, ECSV) and a run record.  See the "
+                    "README for every configuration key.",
+        examples=["cwlimits report analysis.toml",
+                  "cwlimits report analysis.toml --quiet"])
+    parser.add_argument("config", metavar="CONFIG", help="analysis configuration (TOML)")
+    parser.set_defaults(run=run)
+
+
+def run(args):
+    config = load_config(args.config)
+    return write(args, config)
+
+
+def write(args, config, simulated=None):
+    """Run the report of ``config`` with a progress bar and the usual messages."""
+    quiet = getattr(args, "quiet", False)
+    with progress(STEPS, "report", enabled=False if quiet else None, unit="step") as update:
+        folder = run_report(config, echo=lambda text: echo(args, text), progress=update,
+                            simulated=simulated)
+    echo(args, f"wrote the report to {folder / 'index.html'}")
+    return 0
