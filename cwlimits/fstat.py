@@ -465,7 +465,8 @@ class AmplitudeEstimate:
     phi0: u.Quantity
 
 
-def estimate_amplitudes(data, coord, frequency, fdot=0.0 * FDOT_UNIT, *, noise="true"):
+def estimate_amplitudes(data, coord, frequency, fdot=0.0 * FDOT_UNIT, *, noise="true",
+                        doppler=False):
     """Coherent F-statistic and maximum-likelihood h0, cos(iota), psi, phi0 at one template.
 
     Parameters
@@ -476,6 +477,10 @@ def estimate_amplitudes(data, coord, frequency, fdot=0.0 * FDOT_UNIT, *, noise="
         Template frequency at ``data.t_ref``.
     fdot : Quantity ['frequency / time'], optional
     noise : {'true', 'median'} or Quantity ['1/frequency']
+    doppler : bool, optional
+        Demodulate the Earth's Doppler shift (phase at the barycentric time
+        t + Delta(t), :meth:`cwlimits.synthetic.BandData.template_phase`), for data made
+        with ``inject(..., doppler=True)``.
 
     Returns
     -------
@@ -489,7 +494,8 @@ def estimate_amplitudes(data, coord, frequency, fdot=0.0 * FDOT_UNIT, *, noise="
     Notes
     -----
     One coherent sum over all segments with the phase referenced to ``t_ref``:
-    Fa = sum w z a exp(-i 2 pi (df tau + fdot tau^2 / 2)), x = (2 Re Fa, 2 Re Fb,
+    Fa = sum w z a exp(-i dPhi), dPhi = 2 pi (df tau + fdot tau^2 / 2) (tau -> tau + Delta
+    and + 2 pi f_ref Delta with Doppler), x = (2 Re Fa, 2 Re Fb,
     -2 Im Fa, -2 Im Fb), A^mu = M^-1 x (JKS 1998 eqs. 31-35), then
     :func:`invert_amplitudes`.
     """
@@ -503,8 +509,7 @@ def estimate_amplitudes(data, coord, frequency, fdot=0.0 * FDOT_UNIT, *, noise="
                          f"{f_ref + b_hz / 2:.9g}) Hz", value=str(frequency))
     w = _weights(data, _psd_values(data, noise))
     a, b = data.modulation(coord)
-    tau = (data.times - data.t_ref).to_value(u.s)
-    e = np.exp(-2j * np.pi * tau * (f_hz - f_ref + 0.5 * fd * tau))
+    e = np.exp(-1j * data.template_phase(coord, f_hz, fd, 0.0, bool(doppler)))
     y = w * data.data * e
     fa, fb = np.sum(y * a), np.sum(y * b)
     A, B, C = (float(np.sum(x)) for x in _abc(w, a, b))

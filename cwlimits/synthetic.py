@@ -54,11 +54,16 @@ Assumptions
 """
 
 import math
+import warnings
 from dataclasses import dataclass, field, replace
 
 import astropy.units as u
 import numpy as np
 from astropy.coordinates import BaseCoordinateFrame, SkyCoord
+from astropy.time import Time
+from astropy.utils import iers
+from astropy.utils.exceptions import AstropyWarning
+from erfa import ErfaWarning
 from scipy.interpolate import CubicSpline
 
 from ._units import to_value
@@ -77,6 +82,7 @@ __all__ = [
     "simulate_real_signal",
     "heterodyne",
     "gap_mask",
+    "barycentric_delay",
 ]
 
 PSD_UNIT = u.Hz**-1
@@ -154,6 +160,56 @@ def _patterns(detector, coord, psi_rad, starts_s, offsets_s, t_seg_s):
         return fp.to_value(u.one), fx.to_value(u.one)
 
     return _interpolated(fn, starts_s, offsets_s, t_seg_s)
+
+
+def _delay_s(detector, coord, times_s):
+    """Roemer delay (s) from astropy at GPS times (any shape), offline.
+
+    ``Time.light_travel_time(kind='barycentric')`` with the detector's location and
+    astropy's built-in ephemeris (no download).  UT1 = UTC is set explicitly (at most
+    0.9 s of Earth rotation: < 2 us of delay, and the same for injections and templates);
+    outside the bundled IERS tables polar motion is taken as zero (< 20 m on the ground,
+    < 1e-7 s) and the "dubious year" warning of ERFA for future dates is silenced here only.
+    """
+    with warnings.catch_warnings(), iers.conf.set_temp("auto_download", False):
+        warnings.filterwarnings("ignore", message=r".*dubious year", category=ErfaWarning)
+        warnings.filterwarnings("ignore", message=r"Tried to get polar motions",
+                                category=AstropyWarning)
+        warnings.filterwarnings("ignore", message=r"leap-second file is expired",
+                                category=iers.IERSStaleWarning)
+        t = Time(np.asarray(times_s, dtype=float), format="gps",
+                 location=detector.location)
+        t.delta_ut1_utc = np.zeros(t.shape)
+        return np.asarray(t.light_travel_time(coord, kind="barycentric").to_value(u.s))
+
+
+def barycentric_delay(detector, coord, times):
+    """The Roemer delay Delta(t) = t_SSB - t of a detector towards a sky position.
+
+    Parameters
+    ----------
+    detector : str or Detector
+    coord : SkyCoord
+    times : Quantity ['time']
+        GPS times (any shape).
+
+    Returns
+    -------
+    Quantity ['time']
+        The light-travel time from the detector to the solar-system barycentre along the
+        direction of the source (astropy's ``Time.light_travel_time``, built-in ephemeris).
+
+    Notes
+    -----
+    Used for the optional Doppler modulation: the phase is evaluated at the barycentric
+    time t + Delta(t); d Delta / dt is the Doppler factor v.n / c (up to ~1e-4).  The
+    Einstein and Shapiro delays (<= 1.7 ms, <= 0.12 ms) are left out.
+    """
+    det = get_detectors(detector)
+    if len(det) != 1:
+        raise InputError("give one detector", value=str(detector))
+    coord = _check_coord(coord)
+    return _delay_s(det[0], coord, to_value(times, u.s, "times")) << u.s
 
 
 # ---------------------------------------------------------------------------- the data
@@ -281,6 +337,39 @@ class BandData:
             ab = [_modulation(d, coord, starts, offsets, t_seg) for d in self.detectors]
             self._cache[key] = (np.array([x[0] for x in ab]), np.array([x[1] for x in ab]))
         return self._cache[key]
+
+    def delay(self, coord):
+        """Roemer delay Delta(t) (s) of every detector at every sample, (n_det, n_seg, M).
+
+        From :func:`barycentric_delay` on nodes, spline interpolated (the delay is smooth on
+        the scale of hours); cached per sky position.
+        """
+        coord = _check_coord(coord)
+        key = ("delay", float(coord.icrs.ra.rad), float(coord.icrs.dec.rad))
+        if key not in self._cache:
+            starts = self.segment_starts.to_value(u.s)
+            offsets = self.offsets.to_value(u.s)
+            t_seg = self.t_seg.to_value(u.s)
+            self._cache[key] = np.array([
+                _interpolated(lambda t, d=d: (_delay_s(d, coord, t),), starts, offsets,
+                              t_seg)[0] for d in self.detectors])
+        return self._cache[key]
+
+    def template_phase(self, coord, f_hz, fdot_hz_s=0.0, fddot_hz_s2=0.0, doppler=False):
+        """Phase of a template after heterodyning, dPhi = Phi - 2 pi f_ref (t - t_ref).
+
+        Without Doppler Phi = 2 pi (f tau + fdot tau^2/2 + fddot tau^3/6), tau = t - t_ref;
+        with it tau_b = tau + Delta(t) replaces tau, so dPhi = 2 pi [(f - f_ref) tau_b +
+        f_ref Delta + ...].  Shape (n_det, n_seg, M) (detectors differ only with Doppler).
+        """
+        tau = (self.times - self.t_ref).to_value(u.s)[None]
+        df = f_hz - self.f_ref.to_value(u.Hz)
+        if not doppler:
+            phase = _phase_offset(df, fdot_hz_s, fddot_hz_s2, tau)
+            return np.broadcast_to(phase, self.data.shape)
+        delta = self.delay(coord)
+        return (_phase_offset(df, fdot_hz_s, fddot_hz_s2, tau + delta)
+                + 2 * np.pi * self.f_ref.to_value(u.Hz) * delta)
 
     def select(self, segments):
         """A new BandData with a subset of the segments (an index array or slice)."""
@@ -561,7 +650,7 @@ def _phase_offset(df_hz, fdot, fddot, tau):
     return 2 * np.pi * tau * (df_hz + tau * (fdot / 2 + tau * fddot / 6))
 
 
-def simulate_signal(data, signal):
+def simulate_signal(data, signal, *, doppler=False):
     """The band series z_h of a CW signal at the samples of ``data`` (zero in gaps).
 
     Parameters
@@ -569,6 +658,10 @@ def simulate_signal(data, signal):
     data : BandData
         Sets detectors, times, band and reference time.
     signal : CWSignal
+    doppler : bool, optional
+        Evaluate the phase at the barycentric time t + Delta(t) (:func:`barycentric_delay`):
+        the Earth's orbital and rotational Doppler modulation.  Default False (detector
+        frame, see the module notes).
 
     Returns
     -------
@@ -590,7 +683,16 @@ def simulate_signal(data, signal):
     if not isinstance(signal, CWSignal):
         raise InputError("signal must be a CWSignal", value=type(signal).__name__)
     tau = (data.times - data.t_ref).to_value(u.s)
-    f_inst = signal.frequency_at(tau)
+    f, fd, fdd = signal._spin()
+    phase = signal.phi0.to_value(u.rad) + data.template_phase(signal.coord, f, fd, fdd,
+                                                             doppler)
+    if doppler:
+        # instantaneous frequency f(tau_b) (1 + d Delta / dt) per detector and sample
+        delta = data.delay(signal.coord)
+        rate = np.gradient(delta, data.dt.to_value(u.s), axis=-1)
+        f_inst = signal.frequency_at(tau[None] + delta) * (1 + rate)
+    else:
+        f_inst = signal.frequency_at(tau)
     f_ref, b = data.f_ref.to_value(u.Hz), data.bandwidth.to_value(u.Hz)
     outside = np.abs(f_inst - f_ref) >= b / 2
     if np.any(outside):
@@ -600,8 +702,6 @@ def simulate_signal(data, signal):
             f"[{f_ref - b / 2:.9g}, {f_ref + b / 2:.9g}) Hz of the data: above the Nyquist "
             f"frequency B/2 = {b / 2:g} Hz of the heterodyned series (choose f within the "
             "band or a wider band)")
-    f, fd, fdd = signal._spin()
-    phase = signal.phi0.to_value(u.rad) + _phase_offset(f - f_ref, fd, fdd, tau)
     ap = signal.h0 * (1 + signal.cosi**2) / 2
     ax = signal.h0 * signal.cosi
     starts = data.segment_starts.to_value(u.s)
@@ -610,7 +710,7 @@ def simulate_signal(data, signal):
     for i, det in enumerate(data.detectors):
         fp, fx = _patterns(det, signal.coord, signal.psi.to_value(u.rad), starts, offsets,
                            data.t_seg.to_value(u.s))
-        out[i] = 0.5 * (ap * fp - 1j * ax * fx) * np.exp(1j * phase)
+        out[i] = 0.5 * (ap * fp - 1j * ax * fx) * np.exp(1j * phase[i])
     return np.where(data.mask, out, 0.0)
 
 
@@ -630,12 +730,14 @@ def _signal_from_amplitudes(data, coord, amplitudes, f_hz, fdot_hz_s=0.0):
     return np.where(data.mask, out, 0.0)
 
 
-def inject(data, signal):
+def inject(data, signal, *, doppler=False):
     """Return a copy of ``data`` with the band series of ``signal`` added.
 
-    See :func:`simulate_signal` (parameters, errors).
+    See :func:`simulate_signal` (parameters, errors).  The copy keeps the cached antenna
+    patterns and delays (same times).
     """
-    return replace(data, data=data.data + simulate_signal(data, signal), _cache={})
+    return replace(data, data=data.data + simulate_signal(data, signal, doppler=doppler),
+                   _cache=data._cache)
 
 
 # -------------------------------------------------------------------- real series

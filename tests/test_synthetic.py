@@ -8,7 +8,8 @@ import astropy.units as u
 import numpy as np
 import pytest
 import scipy.signal
-from astropy.coordinates import SkyCoord
+from astropy import constants as const
+from astropy.coordinates import BarycentricMeanEcliptic, SkyCoord
 
 from cwlimits import synthetic as sy
 from cwlimits.errors import CwlimitsError, InputError, OutOfRangeError
@@ -190,6 +191,37 @@ def test_reproducible_with_a_seed():
     args = ("H1", PSD, 100 * u.Hz, 0.25 * u.Hz, 512 * u.s, [T0] * u.s)
     one, two = sy.simulate_noise(*args, rng=7), sy.simulate_noise(*args, rng=7)
     np.testing.assert_array_equal(one.data, two.data)
+
+
+def test_barycentric_delay_has_the_size_of_the_earth_orbit():
+    # A source on the ecliptic: the Roemer delay swings by ~2 AU / c over a year and its
+    # rate peaks at ~v_orb / c = 2 pi AU / (1 yr c) (Keplerian orbit, e = 0.0167, from
+    # memory; Earth rotation adds <= 21 ms and 1.6e-6).  Tolerance 3 %: e plus rotation.
+    coord = SkyCoord(lon=40 * u.deg, lat=0 * u.deg, frame=BarycentricMeanEcliptic)
+    step = 86400.0
+    times = (T0 + np.arange(0, 366 * 86400.0, step)) * u.s
+    delay = sy.barycentric_delay("H1", coord, times).to_value(u.s)
+    light_au = (const.au / const.c).to_value(u.s)
+    assert np.ptp(delay) / (2 * light_au) == pytest.approx(1.0, abs=0.03)
+    rate = np.abs(np.diff(delay)) / step
+    v_over_c = 2 * np.pi * light_au / (365.25 * 86400.0)
+    assert rate.max() / v_over_c == pytest.approx(1.0, abs=0.03)
+    # a date after the bundled IERS tables works offline and warns of nothing
+    later = sy.barycentric_delay("L1", coord, [2.1e9, 2.1e9 + 3600] * u.s)
+    assert np.all(np.abs(later.to_value(u.s)) < 1.01 * light_au)
+
+
+def test_doppler_signal_leaving_the_band_is_rejected():
+    data = _layout()
+    delta = data.delay(SKY)[0, 0]
+    shift = 100.0 * np.mean(np.gradient(delta, data.dt.to_value(u.s)))
+    assert 1e-6 < abs(shift) / 100.0 < 1.1e-4  # |v.n| / c of the Earth (common practice)
+    # half the Doppler shift inside the band edge: in without Doppler, out with it
+    f = 100.0 + np.sign(shift) * (0.125 - abs(shift) / 2)
+    sig = sy.CWSignal(SKY, 1e-24, 0.0, 0 * u.rad, 0 * u.rad, f * u.Hz)
+    sy.simulate_signal(data, sig)  # fine without Doppler
+    with pytest.raises(OutOfRangeError, match="outside the band"):
+        sy.simulate_signal(data, sig, doppler=True)
 
 
 # ---------------------------------------------------------------------- bad input
