@@ -45,6 +45,10 @@ Assumptions
   non-central with rho^2 = (h|h)) depends only on the antenna patterns and the noise, not
   on which phase model the template matches (JKS 1998, Sec. III).  The antenna patterns
   F+(t), Fx(t) are the real ones of the detector at the target's sky position.
+  Optionally (``doppler=True``) the phase is evaluated at the barycentric time t + Delta(t)
+  with the Roemer delay of astropy (:func:`barycentric_delay`); the FFT search of
+  :mod:`cwlimits.fstat` stays in the detector frame, and only its single-template
+  :func:`~cwlimits.fstat.estimate_amplitudes` demodulates.
 * **Gaussian, stationary noise within a segment**, with gaps where ``mask`` is False (the
   data there are zero and carry no weight).
 * Antenna patterns are evaluated by :mod:`cwlimits.response` on nodes at most
