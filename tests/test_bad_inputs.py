@@ -21,6 +21,9 @@ from cwlimits.results import load_results
 BAD = pathlib.Path(__file__).parent / "data" / "bad"
 CATALOGUES = sorted((BAD / "catalogue").iterdir())
 RESULTS = sorted((BAD / "results").iterdir())
+NOISE = sorted((BAD / "noise").iterdir())
+TIMESERIES = sorted((BAD / "timeseries").iterdir())
+CONFIGS = sorted((BAD / "config").iterdir())
 
 
 def test_corpus_is_large_enough():
@@ -45,6 +48,36 @@ def test_bad_results(path):
     with pytest.raises(TableError) as info:
         load_results(path)
     assert str(path) in str(info.value)
+
+
+def _exit_2_nothing_written(argv, tmp_path, capsys, path):
+    before = set(tmp_path.iterdir())
+    assert main(argv) == 2
+    err = capsys.readouterr().err
+    assert err.startswith("error: ") and "Traceback" not in err
+    # the message names the bad file (for a configuration: it, or the input it names)
+    assert str(path) in err or str(BAD) in err
+    assert set(tmp_path.iterdir()) == before
+
+
+@pytest.mark.parametrize("path", NOISE, ids=[p.name for p in NOISE])
+def test_bad_noise_file(path, tmp_path, capsys):
+    out = tmp_path / "n.csv"
+    _exit_2_nothing_written(["noise", str(path), "--band", "12Hz", "18Hz", "--step", "1Hz",
+                             "--out", str(out)], tmp_path, capsys, path)
+
+
+@pytest.mark.parametrize("path", TIMESERIES, ids=[p.name for p in TIMESERIES])
+def test_bad_timeseries(path, tmp_path, capsys):
+    out = tmp_path / "n.csv"
+    _exit_2_nothing_written(["noise", "--timeseries", str(path), "--sample-rate", "16Hz",
+                             "--segment", "1s", "--out", str(out)], tmp_path, capsys, path)
+
+
+@pytest.mark.parametrize("path", CONFIGS, ids=[p.name for p in CONFIGS])
+def test_bad_configuration(path, tmp_path, capsys, monkeypatch):
+    monkeypatch.chdir(tmp_path)  # the default output folder would be ./reports/<name>
+    _exit_2_nothing_written(["report", str(path)], tmp_path, capsys, path)
 
 
 # ---- generated catalogues -------------------------------------------------------------

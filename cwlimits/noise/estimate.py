@@ -204,7 +204,8 @@ def estimate_psd(strain, sample_rate, *, segment=4 * u.s, overlap=0.5, average="
     if x.size < nperseg:
         raise InputError(f"the series ({x.size} samples = {x.size / fs:g} s) is shorter than "
                          f"one Welch segment ({nperseg} samples = {seg_s:g} s): use a "
-                         "shorter --segment or more data", value=x.size)
+                         "shorter --segment or more data", value=x.size,
+                         file=None if source is None else str(source))
     try:
         win = scipy.signal.get_window(window, nperseg)
     except (ValueError, TypeError):

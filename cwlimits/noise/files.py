@@ -103,7 +103,7 @@ def _validate_nodes(f_hz, psd, locate):
         raise InputError("frequency and values must be 1-D arrays of the same length",
                          value=f"{f_hz.shape} and {psd.shape}")
     if f_hz.size < 2:
-        raise InputError("a noise table needs at least two frequencies", value=f_hz.size)
+        fail("a noise table needs at least two frequencies", 0, "frequency", int(f_hz.size))
     for values, column, what in ((f_hz, "frequency", "frequency"), (psd, "value", "value")):
         bad = np.flatnonzero(~np.isfinite(values) | ~(values > 0))
         if bad.size:
