@@ -32,15 +32,20 @@ tau_k = t_k - t_start (numpy's forward sign; O(L log L) for all L frequencies).
 
 StackSlide.  2F_sum(f, fdot) = sum_k 2F_k(f + fdot (t_k - t_ref), fdot): each segment's
 frequency is shifted to the nearest FFT bin (offset at most half a bin, B / (2L); with the
-default padding of 2 that is a quarter of a Fourier bin 1/T, a loss below ~10 % of 2F for a
-rectangular window and 0 for a signal on the grid).  Only frequencies whose shifted bins fall
-inside every segment's band are returned (no wrap-around).
+default padding of 2 that is a quarter of a Fourier bin 1/T, so the segment keeps at least
+sinc^2(1/4) = 81 % of its rho^2 (rectangular window), all of it for a signal on the grid).
+Only frequencies whose shifted bins fall inside every segment's band are returned (no
+wrap-around).
 
-Assumptions: no Doppler modulation (see :mod:`cwlimits.synthetic`); known noise level per
-segment and detector (the PSD the data were drawn with, or a median-based estimate).
+Assumptions: no Doppler modulation in the FFT search (see :mod:`cwlimits.synthetic`;
+:func:`estimate_amplitudes` can demodulate one template); known noise level per segment and
+detector (the PSD the data were drawn with, or a median-based estimate).
 
 References
 ----------
+Equation numbers of JKS 1998 are cited from memory; the formulas are re-derived above in
+our normalisation and checked numerically in the tests.
+
 Jaranowski, Krolak & Schutz 1998, Phys. Rev. D 58, 063001, gr-qc/9804014;
 Cutler & Schutz 2005, gr-qc/0504011 (multi-detector F-statistic);
 Wette 2012, arXiv:1111.5650 (StackSlide sum of 2F, 4N degrees of freedom).

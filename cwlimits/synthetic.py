@@ -51,6 +51,8 @@ Assumptions
   :func:`~cwlimits.fstat.estimate_amplitudes` demodulates.
 * **Gaussian, stationary noise within a segment**, with gaps where ``mask`` is False (the
   data there are zero and carry no weight).
+* Equation numbers of JKS 1998 are cited from memory; the signs are checked numerically
+  against the response module in the tests.
 * Antenna patterns are evaluated by :mod:`cwlimits.response` on nodes at most
   ``_NODE_SPACING_S`` apart and interpolated with a cubic spline
   (``scipy.interpolate.CubicSpline``): a(t), b(t) are trigonometric polynomials of degree 2
