@@ -108,7 +108,7 @@ def plot_indirect_limits(table, title=None):
     ax.set_xscale("log")
     ax.set_xlabel(r"indirect limit on $h_0$ (dimensionless strain)")
     ax.set_ylabel("target")
-    ax.legend(fontsize=6, loc="lower right")
+    fig.legend(fontsize=6, loc="outside lower center", ncols=2)
     if title:
         ax.set_title(title, fontsize=8)
     tidy_log_axes(ax)

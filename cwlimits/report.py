@@ -30,7 +30,8 @@ body { font-family: system-ui, sans-serif; max-width: 60em; margin: 2em auto; pa
        color: #111; line-height: 1.45; }
 h1 { font-size: 1.6em; } h2 { font-size: 1.25em; border-bottom: 1px solid #ccc; }
 table { border-collapse: collapse; font-size: 0.85em; margin: 0.5em 0; }
-th, td { border: 1px solid #bbb; padding: 0.2em 0.5em; text-align: right; }
+th, td { border: 1px solid #bbb; padding: 0.2em 0.5em; text-align: right;
+         white-space: nowrap; }
 th:first-child, td:first-child { text-align: left; }
 figure { margin: 1em 0; } figure img { max-width: 100%; }
 .caution { background: #fff6e0; border-left: 4px solid #E69F00; padding: 0.5em 1em; }
