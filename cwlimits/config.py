@@ -8,12 +8,12 @@ missing input file or a results file for a target the catalogue does not have is
 anything is written.
 """
 
-import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import astropy.units as u
 
+from ._toml import load_toml
 from ._units import parse_quantity
 from .errors import ConfigError, InputError
 
@@ -161,17 +161,7 @@ def load_config(path):
         Naming the file and the key, for anything wrong; see the module docstring.
     """
     path = Path(path)
-    try:
-        with open(path, "rb") as handle:
-            doc = tomllib.load(handle)
-    except FileNotFoundError:
-        raise ConfigError("configuration file not found", file=str(path)) from None
-    except IsADirectoryError:
-        raise ConfigError("is a folder, not a configuration file", file=str(path)) from None
-    except tomllib.TOMLDecodeError as exc:
-        raise ConfigError(f"not valid TOML: {exc}", file=str(path)) from None
-    except UnicodeDecodeError:
-        raise ConfigError("not UTF-8 text", file=str(path)) from None
+    doc = load_toml(path, "configuration file")
     sections = {k.split(".")[0] for k in CONFIG_KEYS if "." in k}
     found = {}
     for name, value in doc.items():

@@ -357,7 +357,7 @@ def plot_cost_scan(scan, quantity, path, *, title=None):
     """
     from pathlib import Path
 
-    from .tables import atomic_write
+    from .plots import save_figure
 
     path = Path(path)
     if path.suffix.lower() not in PLOT_SUFFIXES:
@@ -392,14 +392,8 @@ def plot_cost_scan(scan, quantity, path, *, title=None):
     if title:
         ax.set_title(title)
     fig.tight_layout()
-    fmt = path.suffix.lower().lstrip(".")
-
-    def write(handle):
-        # atomic_write opens text files; matplotlib needs the binary buffer underneath
-        fig.savefig(handle.buffer if hasattr(handle, "buffer") else handle, format=fmt)
-
     try:
-        atomic_write(path, write)
+        save_figure(fig, path, formats=(path.suffix.lower().lstrip("."),))
     finally:
         plt.close(fig)
     return path

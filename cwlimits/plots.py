@@ -7,6 +7,8 @@ figures stay readable in greyscale.  Functions return the :class:`matplotlib.fig
 saving is the caller's business (see :func:`save_figure`).
 """
 
+import os
+import tempfile
 from pathlib import Path
 
 import numpy as np
@@ -68,13 +70,25 @@ def tidy_log_axes(ax):
 
 
 def save_figure(fig, path, formats=("png", "svg")):
-    """Save ``fig`` as ``path`` with each extension of ``formats``; return the paths."""
+    """Save ``fig`` as ``path`` with each extension of ``formats``; return the paths.
+
+    Each file is written beside its destination under a temporary name and renamed, so a
+    reader never sees half a figure and a failure leaves nothing behind.
+    """
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
     written = []
     for fmt in formats:
         target = path.with_suffix(f".{fmt}")
-        fig.savefig(target, format=fmt, metadata={"Date": None} if fmt == "svg" else None)
+        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp",
+                                   dir=target.parent)
+        os.close(fd)
+        try:
+            fig.savefig(tmp, format=fmt, metadata={"Date": None} if fmt == "svg" else None)
+            os.replace(tmp, target)
+        except BaseException:
+            Path(tmp).unlink(missing_ok=True)
+            raise
         written.append(target)
     return written
 

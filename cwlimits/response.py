@@ -29,7 +29,6 @@ is silenced inside this module only.
 
 import math
 import re
-import tomllib
 import warnings
 from dataclasses import dataclass
 from importlib import resources
@@ -44,6 +43,7 @@ from astropy.utils.exceptions import AstropyWarning
 from erfa import ErfaWarning
 from scipy.special import roots_legendre
 
+from ._toml import load_toml
 from ._units import parse_quantity, to_value
 from .errors import ConfigError, InputError, TableError
 from .tables import read_table
@@ -440,17 +440,7 @@ def _orientation_from_fields(row, name):
 
 
 def _read_detector_toml(path):
-    try:
-        text = path.read_bytes().decode("utf-8")
-    except FileNotFoundError:
-        raise ConfigError("file not found", file=str(path)) from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise ConfigError(f"cannot read the file as UTF-8 text ({exc})",
-                          file=str(path)) from None
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise ConfigError(f"not valid TOML: {exc}", file=str(path)) from None
+    data = load_toml(path, "detector file")
     extra = set(data) - {"detector"}
     if extra or not isinstance(data.get("detector"), dict) or not data["detector"]:
         raise ConfigError("expected one or more [detector.NAME] tables"

@@ -48,13 +48,13 @@ import dataclasses
 import json
 import math
 import re
-import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import astropy.units as u
 import numpy as np
 
+from ._toml import load_toml
 from .errors import ConfigError, InputError
 from .lattices import _canonical as _canonical_lattice
 from .parameter_space import check_braking_range
@@ -382,17 +382,7 @@ class SearchSetup:
             the file and the key).
         """
         path = Path(path)
-        try:
-            with open(path, "rb") as handle:
-                doc = tomllib.load(handle)
-        except FileNotFoundError:
-            raise ConfigError("setup file not found", file=str(path)) from None
-        except IsADirectoryError:
-            raise ConfigError("is a folder, not a setup file", file=str(path)) from None
-        except tomllib.TOMLDecodeError as exc:
-            raise ConfigError(f"not valid TOML: {exc}", file=str(path)) from None
-        except UnicodeDecodeError:
-            raise ConfigError("not UTF-8 text", file=str(path)) from None
+        doc = load_toml(path, "setup file")
         kwargs = _read_document(doc, str(path), set(extra_sections))
         try:
             return cls(**kwargs)

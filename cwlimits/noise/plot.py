@@ -41,7 +41,7 @@ def plot_asd(sources, path, f_min=None, f_max=None, *, n_points=1000, title=None
     """
     from pathlib import Path
 
-    from ..tables import atomic_write
+    from ..plots import save_figure
 
     path = Path(path)
     if path.suffix.lower() not in _SUFFIXES:
@@ -78,15 +78,8 @@ def plot_asd(sources, path, f_min=None, f_max=None, *, n_points=1000, title=None
     if title:
         ax.set_title(title)
     fig.tight_layout()
-    # the format follows the extension, checked above
-    fmt = path.suffix.lower().lstrip(".")
-
-    def write(handle):
-        # atomic_write opens text files; matplotlib needs the binary buffer underneath
-        fig.savefig(handle.buffer if hasattr(handle, "buffer") else handle, format=fmt)
-
     try:
-        atomic_write(path, write)
+        save_figure(fig, path, formats=(path.suffix.lower().lstrip("."),))
     finally:
         plt.close(fig)
     return path
