@@ -48,6 +48,13 @@ from .errors import (  # noqa: E402
 )
 from .executor import make_executor, map_chunks, named_seed  # noqa: E402
 from .fiducial import DEFAULT_MOMENT_OF_INERTIA, FIDUCIAL_RMODE_STAR  # noqa: E402
+from .fstat import (  # noqa: E402
+    estimate_amplitudes,
+    expected_rho2,
+    measure_unit_costs,
+    noise_levels,
+    stackslide_fstat,
+)
 from .indirect import (  # noqa: E402
     MASS_QUADRUPOLE,
     R_MODE,
@@ -92,8 +99,18 @@ from .sensitivity import (  # noqa: E402
 )
 from .setup import SearchSetup, load_setup  # noqa: E402
 from .store import ResultStore, config_hash, file_hash, open_store  # noqa: E402
+from .synthetic import (  # noqa: E402
+    BandData,
+    CWSignal,
+    heterodyne,
+    inject,
+    simulate_noise,
+    simulate_real_noise,
+    simulate_signal,
+)
 from .tables import read_table, write_table  # noqa: E402
 from .targets import Target, TargetCatalogue, load_targets  # noqa: E402
+from .validation import injection_campaign  # noqa: E402
 
 __all__ = [
     "__version__",
@@ -166,6 +183,20 @@ __all__ = [
     "signal_model",
     "strain_sensitivity",
     "sensitivity_depth",
+    # simulated data, the F-statistic, validation of the model
+    "BandData",
+    "CWSignal",
+    "simulate_noise",
+    "simulate_signal",
+    "inject",
+    "simulate_real_noise",
+    "heterodyne",
+    "stackslide_fstat",
+    "estimate_amplitudes",
+    "expected_rho2",
+    "noise_levels",
+    "measure_unit_costs",
+    "injection_campaign",
     # scale: executor and resumable results
     "map_chunks",
     "make_executor",
