@@ -86,14 +86,14 @@ DEFAULT_BAND = (50 * u.Hz, 1000 * u.Hz)
 # Tables of ln a: mismatch nodes (the search range of both mismatches is their span) and
 # log10 of the trials.  Max 0.5 each keeps the summed StackSlide mismatch <= 1.
 _MU_TABLE = np.array([0.03, 0.1, 0.25, 0.5])
-_LOG10_TRIALS = np.arange(0.0, 36.1, 9.0)
-_N_TABLE_SIZE = 8
+_LOG10_TRIALS = np.arange(0.0, 36.1, 6.0)
+_N_TABLE_SIZE = 12
 # Candidate grids of stage 1.
 _MU_GRID_DEPTH = np.array([0.04, 0.08, 0.15, 0.25, 0.4])
 _MU_GRID_BEAT = np.array([0.05, 0.15, 0.35])
 _N_GRID_SIZE = 30
 _T_STEP = 2 ** 0.5           # ratio of the absolute segment-length lattice (beat-age)
-_MISMATCH_DRAWS = 64
+_MISMATCH_DRAWS = 256
 _MISMATCH_SEED = 71201       # fixed: the mismatch sample is a quadrature rule
 _R2_NODES = 32               # condensation of the orientation rule (detection._condense)
 _SIGNAL_NODES = 48
@@ -214,7 +214,7 @@ class PowerLawModel:
         return (self.k_h * np.asarray(n, float) ** self.a * t_day ** self.b)[:, None]
 
     def log_depth(self, t_s, n, mu_c, mu_f, cost_info=None):
-        """ln D per band (arbitrary constant), shape (n_candidates, 1)."""
+        """Natural log of the depth per band (arbitrary constant), (n_candidates, 1)."""
         return (0.25 * np.log(np.asarray(n, float))
                 + 0.5 * np.log(np.asarray(t_s, float)))[:, None]
 
@@ -359,7 +359,7 @@ class _TargetModel:
         return table
 
     def log_depth(self, t_s, n, mu_c, mu_f, cost_info=None):
-        """ln D [Hz^-1/2] per band, (n_candidates, n_bands)."""
+        """Natural log of the depth [Hz^-1/2] per band, (n_candidates, n_bands)."""
         t_s, n = np.asarray(t_s, float), np.asarray(n, int)
         _, trials, d_coh, d_semi = cost_info or self.cost_info(t_s, n, mu_c, mu_f)
         shape = trials.shape
@@ -1099,8 +1099,10 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
         Runs the targets in parallel (:func:`cwlimits.executor.map_chunks`).
     plans : bool
         Build (and evaluate exactly) the plan at each allocated budget.
-    Other parameters
+    band, detectors, band_width, lattice, braking_index, cost_coherent, cost_semicoherent
         As in :func:`plan_search` (the beat-age objective is used).
+    duty_factor, t_seg_min, n_seg_max, confidence, false_alarm, start
+        As in :func:`plan_search`.
 
     Returns
     -------

@@ -4,8 +4,6 @@ import argparse
 import re
 from pathlib import Path
 
-import astropy.units as u
-
 from ..errors import InputError
 from ..executor import make_executor
 from ..planning import CASES, as_budget, rank_targets
@@ -122,8 +120,8 @@ def run(args):
         for name, plan in ranking.plans.items():
             path = plan.write(plans_dir / f"{_slug(name)}.toml")
             echo(args, f"wrote {path}")
-    from ..plots import save_figure
     from ..planning_plots import plot_merit_vs_budget, plot_planned_strain
+    from ..plots import save_figure
 
     if plot is not None:
         save_figure(plot_merit_vs_budget(ranking, title="figure of merit against budget"),
