@@ -1,0 +1,444 @@
+"""Tests of cwlimits.limits and 'cwlimits limits' against scipy and independent simulations."""
+
+import pathlib
+
+import astropy.units as u
+import numpy as np
+import pytest
+from scipy import integrate, optimize, stats
+
+import cwlimits
+from cwlimits.cli import main
+from cwlimits.conversions import ellipticity, rmode_amplitude
+from cwlimits.limits import (
+    ChainWarning,
+    band_posterior,
+    posterior_quantiles,
+    sample_band,
+    upper_limits,
+)
+from cwlimits.response import SIDEREAL_DAY, time_averages
+from cwlimits.results import SearchResults
+from cwlimits.sensitivity import DEFAULT_START, signal_model, strain_sensitivity
+from cwlimits.setup import SearchSetup
+
+ROOT = pathlib.Path(__file__).resolve().parent.parent
+CATALOGUE = ROOT / "target_lists" / "demo.csv"
+BAD_RESULTS = sorted((ROOT / "tests" / "data" / "bad" / "results").iterdir())
+
+#: Agreement of the grid posterior with scipy.integrate.quad: the issue asks 1e-3 relative
+#: on the 95 % limit; trapezoid error on the ~280-point grid is ~1e-5 (measured).
+QUAD_RTOL = 1e-3
+#: Fast path against emcee: the issue's 2 %; emcee's 95 % quantile from ~64 x 5500 steps /
+#: tau (~20) ~ 17,000 effective samples has a standard error of ~0.4 %.
+EMCEE_RTOL = 0.02
+
+
+@pytest.fixture(scope="module")
+def target():
+    return cwlimits.load_targets(CATALOGUE).target("Fict Quill")
+
+
+def _setup(**kw):
+    base = dict(t_seg=10 * SIDEREAL_DAY, n_seg=8, band=(100 * u.Hz, 110 * u.Hz),
+                band_width=1 * u.Hz)
+    base.update(kw)
+    return SearchSetup(**base)
+
+
+def _results(loudest, f0=100.0, width=0.01, psd=None, n_templates=None):
+    loudest = np.asarray(loudest, float)
+    n = len(loudest)
+    return SearchResults(
+        f_lo=(f0 + width * np.arange(n)) << u.Hz, width=np.full(n, width) << u.Hz,
+        loudest=loudest, statistic="sum",
+        psd=None if psd is None else np.full(n, psd) << 1 / u.Hz,
+        n_templates=n_templates)
+
+
+# ---------------------------------------------------------------------------------------
+# The grid posterior against scipy quadrature
+# ---------------------------------------------------------------------------------------
+def _quad_limit(obs, df, c, level, prior="uniform", x_min=None):
+    """Independent credible limit: ncx2.pdf x prior integrated by scipy.integrate.quad."""
+    def dens(x):
+        p = stats.ncx2.pdf(obs, df, c * x * x)
+        return p if prior == "uniform" else p / x
+
+    lo = 0.0 if prior == "uniform" else x_min
+    peak = np.sqrt(max(obs - df, 1.0) / c)
+    top = np.sqrt((obs + 40 * np.sqrt(obs + df) + 100) / c)
+    pts = [p for p in (0.5 * peak, peak, 1.5 * peak) if lo < p < top]
+
+    def cdf(x):
+        return integrate.quad(dens, lo, x, points=[p for p in pts if p < x] or None,
+                              limit=200, epsabs=0, epsrel=1e-11)[0]
+
+    total = cdf(top)
+    return optimize.brentq(lambda x: cdf(x) / total - level, lo * 1.0001 + 1e-12, top,
+                           xtol=1e-12, rtol=1e-12)
+
+
+@pytest.mark.parametrize("obs", [3.0, 9.0, 40.0, 150.0])
+def test_fast_posterior_matches_quad_coherent_fixed_orientation(obs):
+    # N = 1, one fixed R2 (c = 0.3): p(x | 2F) ∝ ncx2.pdf(2F; 4, c x^2) under a uniform
+    # prior (Dupuis & Woan 2005, gr-qc/0508096); reference: scipy.integrate.quad.
+    c = np.array([[0.3]])
+    w = np.array([[1.0]])
+    got = posterior_quantiles(np.array([obs]), 1, c, w, np.array([0.95]))[0, 0]
+    ref = _quad_limit(obs, 4.0, 0.3, 0.95)
+    assert got == pytest.approx(ref, rel=QUAD_RTOL)
+
+
+@pytest.mark.parametrize("obs", [5.0, 60.0])
+def test_log_uniform_prior_matches_quad(obs):
+    # prior ∝ 1/x above x_min (log-uniform in h0 with a cut-off); reference: quad.
+    x_min = np.array([0.05])
+    got = posterior_quantiles(np.array([obs]), 1, np.array([[0.3]]), np.array([[1.0]]),
+                              np.array([0.95]), prior="log-uniform", x_min=x_min)[0, 0]
+    ref = _quad_limit(obs, 4.0, 0.3, 0.95, prior="log-uniform", x_min=0.05)
+    assert got == pytest.approx(ref, rel=QUAD_RTOL)
+
+
+def test_tabulated_path_matches_direct(target):
+    # Interpolating the quantile table against 2F* must not move the limit: measured max
+    # relative difference ~1e-4 (tolerance 1e-3, the accuracy asked of the posterior).
+    sm = signal_model(_setup(), "advanced-fit", target)
+    rule = sm.signal_rule()
+    rng = np.random.default_rng(11)
+    obs = np.concatenate([rng.chisquare(32, 80), 32 + rng.uniform(0, 400, 80)])
+    c = np.broadcast_to(rule.nodes[0], (len(obs), rule.size))
+    w = np.broadcast_to(rule.weights[0], (len(obs), rule.size))
+    levels = np.array([0.5, 0.9, 0.95])
+    tab = posterior_quantiles(obs, sm.n_seg, c, w, levels, tabulate=True)
+    direct = posterior_quantiles(obs, sm.n_seg, c, w, levels, tabulate=False)
+    assert np.max(np.abs(tab / direct - 1)) < 1e-3
+
+
+# ---------------------------------------------------------------------------------------
+# Fast path against emcee
+# ---------------------------------------------------------------------------------------
+@pytest.mark.slow
+@pytest.mark.parametrize("n_seg", [1, 100])
+def test_fast_and_emcee_agree(target, n_seg):
+    # Two independent computations of the same posterior: the grid over x with the
+    # condensed (cos iota, psi) rule, and emcee over (h0, cos iota, psi) with the response
+    # module's R2 (Foreman-Mackey et al. 2013, arXiv:1202.3665); noise-like and signal-like.
+    setup = _setup(n_seg=n_seg, t_seg=2 * SIDEREAL_DAY if n_seg == 100 else 10 * SIDEREAL_DAY)
+    df = 4 * n_seg
+    obs = [df + 0.3 * np.sqrt(2 * df), df + 12 * np.sqrt(2 * df) + 30]
+    res = _results(obs, width=0.5)
+    table = upper_limits(res, setup, target, "bayes", rng=5, sampler="emcee",
+                         sampler_bands=[0, 1], n_steps=6000, mismatch="mean")
+    fast = table["h0_limit"].value
+    slow = table["h0_limit_emcee"].value
+    assert np.all(table["emcee_converged"])
+    assert np.allclose(slow, fast, rtol=EMCEE_RTOL)
+
+
+def test_short_chain_warns_and_flags(target):
+    # Fewer than 50 autocorrelation times (emcee's advice, common practice): a warning
+    # and the flag in the output.
+    res = _results([40.0], width=0.5)
+    with pytest.warns(ChainWarning, match="autocorrelation"):
+        table = upper_limits(res, _setup(), target, "bayes", rng=1, sampler="emcee",
+                             sampler_bands=[0], n_steps=300, burn=50, n_walkers=16,
+                             mismatch="mean")
+    assert not table["emcee_converged"][0]
+    assert table["emcee_n_tau"][0] < 50
+
+
+# ---------------------------------------------------------------------------------------
+# Coverage against a simulation independent of the limits code
+# ---------------------------------------------------------------------------------------
+@pytest.fixture(scope="module")
+def simulated(target):
+    """Bands with signals drawn from the population, statistic from scipy.stats.ncx2."""
+    setup = _setup()
+    n = 3000
+    psd = 1e-46
+    rng = np.random.default_rng(2026)
+    f_lo = (100 + 0.01 * np.arange(n)) << u.Hz
+    sm = signal_model(setup, "advanced-fit", target, (f_lo, f_lo + 0.01 * u.Hz))
+    t_s = sm.t_data.to_value(u.s)
+    h_max = 6e-26
+    h_true = rng.uniform(0, h_max, n)                    # the Bayesian prior's range
+    cosi = rng.uniform(-1, 1, n)
+    psi = rng.uniform(0, np.pi, n) * u.rad
+    # R2 from the response module's time averages (equal noise: equal detector weights).
+    av = time_averages(list(setup.detectors), target.coord, DEFAULT_START,
+                       setup.total_span)
+    r2 = av.orientation_factor(cosi, psi).value
+    rows = sm.mismatch_rule.nodes[sm.mismatch_index]
+    mu = rows[np.arange(n), rng.integers(0, rows.shape[1], n)]
+    rho2 = r2 * (1 - mu) * h_true**2 * t_s / psd
+    obs = stats.ncx2.rvs(4 * setup.n_seg, rho2, random_state=rng)
+    res = _results(obs, psd=psd)
+    return setup, res, h_true, h_max
+
+
+def test_frequentist_coverage(target, simulated):
+    # The loudest-event limit covers the true h0 in `confidence` of the bands for any
+    # population that matches the model (Neyman construction; Wette 2012, common
+    # practice); binomial 3-sigma band around 0.95.
+    setup, res, h_true, _ = simulated
+    table = upper_limits(res, setup, target, "frequentist")
+    covered = np.mean(table["h0_limit"].value >= h_true)
+    sigma = np.sqrt(0.95 * 0.05 / len(h_true))
+    assert abs(covered - 0.95) < 3 * sigma
+
+
+def test_bayesian_coverage_with_the_true_prior(target, simulated):
+    # With h0 drawn from the analysis prior (uniform on [0, h_max]) a credible limit has
+    # exactly its coverage on average (calibration of Bayesian intervals, common
+    # practice): 0.95 within the binomial 3-sigma band.  Without the cut-off the uniform
+    # prior is wider than the truth, so the limit over-covers (>= 0.95 - 3 sigma).
+    setup, res, h_true, h_max = simulated
+    sigma = np.sqrt(0.95 * 0.05 / len(h_true))
+    cut = upper_limits(res, setup, target, "bayes", rng=1, h0_max=h_max, n_astro=10,
+                       distance_prior="fixed")
+    covered = np.mean(cut["h0_limit"].value >= h_true)
+    assert abs(covered - 0.95) < 3 * sigma
+    free = upper_limits(res, setup, target, "bayes", rng=1, n_astro=10,
+                        distance_prior="fixed")
+    assert np.mean(free["h0_limit"].value >= h_true) > 0.95 - 3 * sigma
+    assert np.all(free["h0_limit"].value >= cut["h0_limit"].value * (1 - 1e-9))
+
+
+# ---------------------------------------------------------------------------------------
+# Monotonicity and scaling
+# ---------------------------------------------------------------------------------------
+@pytest.mark.parametrize("method", ["bayes", "frequentist"])
+def test_limit_rises_with_the_statistic(target, method):
+    # A louder loudest event can only raise the limit (common practice).
+    obs = np.linspace(40.0, 300.0, 25)
+    h = upper_limits(_results(obs, width=0.2), _setup(), target, method, rng=1,
+                     n_astro=10)["h0_limit"].value
+    assert np.all(np.diff(h) > 0)
+
+
+@pytest.mark.parametrize("method", ["bayes", "frequentist"])
+def test_limit_scales_as_sqrt_psd_over_t(target, method):
+    # rho2 ∝ h0^2 T_data / S_n (JKS 1998; Wette 2012): h0 limit ∝ sqrt(S_n / T_data).
+    # Whole sidereal days keep the antenna-pattern averages the same; no mismatch.
+    obs = [35.0, 60.0, 120.0]
+    kw = dict(rng=1, n_astro=10, mismatch="none")
+    base = upper_limits(_results(obs, psd=1e-46, width=0.3), _setup(), target, method,
+                        **kw)["h0_limit"].value
+    noisier = upper_limits(_results(obs, psd=4e-46, width=0.3), _setup(), target, method,
+                           **kw)["h0_limit"].value
+    longer = upper_limits(_results(obs, psd=1e-46, width=0.3),
+                          _setup(t_seg=20 * SIDEREAL_DAY), target, method,
+                          **kw)["h0_limit"].value
+    assert np.allclose(noisier / base, 2.0, rtol=1e-9)
+    assert np.allclose(longer / base, np.sqrt(0.5), rtol=1e-6)
+
+
+# ---------------------------------------------------------------------------------------
+# Astrophysical limits
+# ---------------------------------------------------------------------------------------
+@pytest.mark.parametrize("method", ["bayes", "frequentist"])
+def test_fixed_distance_ellipticity_is_the_conversion(target, method):
+    # eps = c^4 d h0 / (4 pi^2 G I f^2) (JKS 1998 eq. 22) at the band centre; alpha from
+    # Owen 2010 eq. 24, via cwlimits.conversions.
+    res = _results([40.0, 80.0], width=0.5)
+    t = upper_limits(res, _setup(), target, method, rng=1, distance_prior="fixed")
+    eps = ellipticity(t["h0_limit"], t["f_mid"], target.distance)
+    alpha = rmode_amplitude(t["h0_limit"], t["f_mid"], target.distance)
+    assert np.allclose(t["eps_limit"], eps, rtol=1e-12)
+    assert np.allclose(t["alpha_limit"], alpha, rtol=1e-12)
+
+
+def test_distance_range_widens_the_bayesian_ellipticity_by_the_monte_carlo(target):
+    # Hand Monte-Carlo (numpy): h0 by inverse CDF of the band's posterior, distance
+    # uniform on the catalogue range, eps by the conversion; its 95 % quantile.
+    res = _results([60.0], width=0.5)
+    setup = _setup()
+    n_code = 40000
+    t = upper_limits(res, setup, target, "bayes", rng=3, n_astro=n_code)
+    fixed = upper_limits(res, setup, target, "bayes", rng=3, distance_prior="fixed")
+    h0, _, cdf = band_posterior(res, setup, target, 0)
+    rng = np.random.default_rng(99)
+    n = 400000
+    hs = np.interp(rng.uniform(size=n), cdf, h0.value)
+    d = rng.uniform(target.distance_min.value, target.distance_max.value, n) * u.kpc
+    eps = ellipticity(hs, t["f_mid"][0], d).value
+    q = np.quantile(eps, 0.95)
+    # Standard error of a sample quantile, sqrt(p(1-p)/n)/f(q) (common practice); f from
+    # the hand samples.
+    delta = 0.02 * q
+    f_q = np.mean(np.abs(eps - q) < delta) / (2 * delta)
+    sigma = np.sqrt(0.95 * 0.05 * (1 / n_code + 1 / n)) / f_q
+    assert abs(t["eps_limit"][0].value - q) < 4 * sigma
+    assert t["eps_limit"][0] > fixed["eps_limit"][0]
+
+
+def test_frequentist_ellipticity_reaches_the_confidence_over_distance(target):
+    # Distance in the population: at eps_limit, signals of that eps at a uniform distance,
+    # random orientation and mismatch (response module, scipy.stats.ncx2) exceed 2F* with
+    # probability 0.95 (hand Monte-Carlo; binomial 4-sigma).
+    setup = _setup()
+    res = _results([70.0], width=0.5, psd=1e-46)
+    t = upper_limits(res, setup, target, "frequentist")
+    sm = signal_model(setup, "advanced-fit", target, (res.f_lo, res.f_hi))
+    rng = np.random.default_rng(5)
+    n = 200000
+    d = rng.uniform(target.distance_min.value, target.distance_max.value, n) * u.kpc
+    eps = t["eps_limit"][0].value
+    h0 = eps / ellipticity(1.0, t["f_mid"][0], d).value
+    av = time_averages(list(setup.detectors), target.coord, DEFAULT_START, setup.total_span)
+    r2 = av.orientation_factor(rng.uniform(-1, 1, n), rng.uniform(0, np.pi, n) * u.rad).value
+    nodes = sm.mismatch_rule.nodes[sm.mismatch_index[0]]
+    mu = nodes[rng.integers(0, len(nodes), n)]
+    rho2 = r2 * (1 - mu) * h0**2 * sm.t_data.to_value(u.s) / 1e-46
+    p = np.mean(stats.ncx2.sf(70.0, 4 * setup.n_seg, rho2))
+    assert abs(p - 0.95) < 4 * np.sqrt(0.95 * 0.05 / n) + 2e-3  # + rule condensation
+    # the fixed-distance limit at the nearest distance is lower
+    near = ellipticity(t["h0_limit"][0], t["f_mid"][0], target.distance_min).value
+    assert eps > near
+
+
+# ---------------------------------------------------------------------------------------
+# One code path with the expected sensitivity
+# ---------------------------------------------------------------------------------------
+def test_frequentist_at_the_threshold_equals_the_sensitivity(target):
+    # P_det(h0) = confidence with the threshold as the 'observed' loudest event is the
+    # expected-sensitivity definition (Wette 2012): the same numbers.
+    setup = _setup()
+    sens = strain_sensitivity(setup, "advanced-fit", target=target, confidence=0.9)
+    res = SearchResults(f_lo=sens["f_lo"], width=sens["f_hi"] - sens["f_lo"],
+                        loudest=np.asarray(sens["threshold"].value), statistic="sum")
+    lim = upper_limits(res, setup, target, "frequentist", confidence=0.9)
+    assert np.allclose(lim["h0_limit"].value, sens["h0"].value, rtol=1e-7)
+    assert np.array_equal(lim["beats_age"], lim["h0_limit"].value < lim["h0_age"].value)
+
+
+def test_table_has_units_assumptions_and_the_results_psd(target):
+    res = _results([40.0, 50.0], width=0.5, psd=2e-46, n_templates=np.array([1e6, 2e6]))
+    t = upper_limits(res, _setup(), target, "bayes", rng=1)
+    assert t["f_mid"].unit == u.Hz and t["psd"].unit == 1 / u.Hz
+    assert np.allclose(t["psd"].value, 2e-46)
+    assert np.array_equal(t["n_templates"], [1e6, 2e6])
+    assert "effective" in t.meta["assumptions"]["psd"]
+    assert "Bayesian" in t.meta["assumptions"]["method"]
+
+
+def test_same_seed_same_numbers_and_chunks_do_not_matter_for_the_limit(target):
+    res = _results(np.linspace(35, 90, 12), width=0.5)
+    a = upper_limits(res, _setup(), target, "bayes", rng=7)
+    b = upper_limits(res, _setup(), target, "bayes", rng=7)
+    c = upper_limits(res, _setup(), target, "bayes", rng=7, chunk_size=5)
+    assert np.array_equal(a["eps_limit"], b["eps_limit"])
+    assert np.allclose(a["h0_limit"], c["h0_limit"], rtol=1e-12)
+
+
+def test_sample_band_returns_samples_and_diagnostics(target):
+    res = _results([30.0], width=0.5)
+    out = sample_band(res, _setup(), target, 0, rng=2, n_steps=3000, mismatch="mean")
+    assert out["h0"].shape == out["cosi"].shape
+    assert np.all(np.abs(out["cosi"]) <= 1)
+    assert out["converged"] == (out["n_tau"] >= 50)
+
+
+@pytest.mark.parametrize("kwargs, match", [
+    ({"method": "bayesian"}, "method"),
+    ({"confidence": 1.0}, "confidence"),
+    ({"confidence": 0.0}, "confidence"),
+    ({"prior": "log-uniform"}, "h0_min"),
+    ({"prior": "jeffreys"}, "prior"),
+    ({"distance_prior": "flat"}, "distance_prior"),
+    ({"h0_min": 1e-25, "h0_max": 1e-26}, "below"),
+    ({"sampler": "emcee"}, "bands"),
+    ({"sampler": "emcee", "method": "frequentist"}, "emcee"),
+])
+def test_bad_options(target, kwargs, match):
+    with pytest.raises(cwlimits.errors.InputError, match=match):
+        upper_limits(_results([40.0], width=0.5), _setup(), target, **kwargs)
+
+
+# ---------------------------------------------------------------------------------------
+# Command line
+# ---------------------------------------------------------------------------------------
+SETUP_TOML = """format = "cwlimits-setup 1"
+[data]
+t_seg = "10 day"
+n_seg = 8
+[band]
+f_min = "100 Hz"
+f_max = "110 Hz"
+width = "1 Hz"
+"""
+
+
+@pytest.fixture()
+def files(tmp_path):
+    setup = tmp_path / "s.toml"
+    setup.write_text(SETUP_TOML)
+    results = tmp_path / "res.csv"
+    rng = np.random.default_rng(4)
+    lines = ["f_lo [Hz],width [Hz],loudest_2F_sum"]
+    lines += [f"{100 + 0.5 * i},0.5,{rng.chisquare(32) + 5:.4f}" for i in range(10)]
+    results.write_text("\n".join(lines) + "\n")
+    return tmp_path, setup, results
+
+
+def _cli(results, setup, *extra):
+    return main(["limits", str(results), "--setup", str(setup), "--catalogue",
+                 str(CATALOGUE), "--target", "Fict Quill", *extra])
+
+
+def test_cli_writes_table_plots_and_resumes(files, capsys, caplog):
+    tmp, setup, results = files
+    out = tmp / "o" / "ul.ecsv"
+    plot = tmp / "o" / "ul.png"
+    assert _cli(results, setup, "--out", str(out), "--plot", str(plot), "--seed", "3") == 0
+    text = capsys.readouterr().out
+    assert "best h0 limit" in text and "age-based" in text
+    assert out.exists() and plot.exists() and (tmp / "o" / "ul_eps.png").exists()
+    assert (tmp / "o" / "cwlimits-store.sqlite").exists()
+    first = out.read_text()
+    assert "seed" in first and "assumptions" in first
+    caplog.set_level("INFO", logger="cwlimits.executor")
+    assert _cli(results, setup, "--out", str(out), "--seed", "3", "--verbose") == 0
+    assert "1 chunks from the store, 0 to compute" in caplog.text
+    table = cwlimits.tables.read_table(out)
+    assert table is not None
+
+
+def test_cli_posterior_plot(files, capsys):
+    tmp, setup, results = files
+    plot = tmp / "post.png"
+    assert _cli(results, setup, "--posterior", "101.2Hz", "--plot", str(plot)) == 0
+    assert plot.exists()
+    assert "credible upper limit" in capsys.readouterr().out
+
+
+@pytest.mark.parametrize("bad", BAD_RESULTS, ids=[p.name for p in BAD_RESULTS])
+def test_cli_bad_results_files(files, capsys, bad):
+    tmp, setup, _ = files
+    out = tmp / "ul.csv"
+    assert _cli(bad, setup, "--out", str(out)) == 2
+    assert "error:" in capsys.readouterr().err
+    assert not out.exists()
+
+
+def test_cli_band_outside_the_noise_model(files, capsys):
+    # advanced-fit is valid from 20 Hz (cwlimits.noise): a 5 Hz band is refused.
+    tmp, setup, _ = files
+    results = tmp / "low.csv"
+    results.write_text("f_lo [Hz],width [Hz],loudest_2F_sum\n5,1,40\n")
+    out = tmp / "ul.csv"
+    assert _cli(results, setup, "--out", str(out)) == 2
+    assert "error:" in capsys.readouterr().err
+    assert not out.exists()
+
+
+@pytest.mark.parametrize("extra", [["--confidence", "1.5"], ["--confidence", "0"],
+                                   ["--posterior", "3"], ["--sampler", "emcee"],
+                                   ["--sampler", "emcee", "--bands", "400Hz"]])
+def test_cli_bad_options(files, capsys, extra):
+    tmp, setup, results = files
+    out = tmp / "ul.csv"
+    assert _cli(results, setup, "--out", str(out), *extra) == 2
+    assert "error:" in capsys.readouterr().err
+    assert not out.exists()
