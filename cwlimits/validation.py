@@ -413,7 +413,6 @@ def injection_campaign(coord, *, detectors="H1", psd=1e-46 * PSD_UNIT, f_ref=100
     else:
         a, b = layout.modulation(coord)
     tau = (layout.times - layout.t_ref).to_value(u.s)
-    df = b_hz / m
     # searched templates: n_bins Fourier bins from the band centre
     lo_bin = -(n_bins // 2)
     n_templates = n_bins
