@@ -98,6 +98,7 @@ _MISMATCH_SEED = 71201       # fixed: the mismatch sample is a quadrature rule
 _R2_NODES = 32               # condensation of the orientation rule (detection._condense)
 _SIGNAL_NODES = 48
 _BAD_LOG_A = 60.0            # ln a of an unreachable confidence (depth ~ 0)
+_R2_SPAN_S = 365.25 * 86400  # span of the antenna-pattern averages of the fast model
 
 
 # ---------------------------------------------------------------------------------------
@@ -282,8 +283,9 @@ class _TargetModel:
     @staticmethod
     def _r2_rule(detectors, coord, start, span_s, weights):
         # Network averages A, B, C weighted by T_d / S_d as in sensitivity.signal_model;
-        # the averages are taken over the longest span (they hardly depend on it beyond a
-        # few sidereal days: JKS 1998 closed forms).
+        # the averages are taken over one year whatever the span (they hardly depend on it
+        # beyond a few sidereal days: JKS 1998 closed forms); the exact evaluation of a
+        # plan uses its own span.
         av = time_averages(detectors, coord, start, span_s * u.s)
         _, w, cosi, psi = orientation_factor_rule(av, order=16, return_nodes=True)
         sin2zeta = np.sin(u.Quantity([d.zeta for d in detectors]).to_value(u.rad)) ** 2
@@ -506,11 +508,7 @@ def optimise_setup(model, budget, span, *, objective="depth", measure="width",
         raise InputError(f"objective must be one of {', '.join(OBJECTIVES)}", value=objective)
     if measure not in MEASURES:
         raise InputError(f"measure must be one of {', '.join(MEASURES)}", value=measure)
-    n_max = int(max(1, min(int(n_seg_max), math.floor(span_s / t_min * (1 + 1e-12)))))
-    if n_max <= _N_GRID_SIZE:
-        n_grid = np.arange(1, n_max + 1)
-    else:
-        n_grid = np.unique(np.rint(np.geomspace(1, n_max, _N_GRID_SIZE)).astype(int))
+    n_grid, n_max = _n_grid(span_s, t_min, n_seg_max)
     fixed_mu = model.mismatch_free
     search = _DepthSearch if objective == "depth" else _BeatSearch
     return search(model, budget_h, span_s, t_min, n_grid, n_max, fixed_mu, measure,
@@ -815,9 +813,12 @@ def _planner(target, noise, span, *, case, band, band_width, detectors, lattice,
     case_target = _case_target(target, case)
     base = _base_setup(band, band_width, detectors, lattice, braking_index, cost_coherent,
                        cost_semicoherent, duty_factor)
-    n_max = min(int(n_seg_max), max(1, math.floor(span_s / t_min * (1 + 1e-12))))
-    model = _TargetModel(base, case_target, noise, span_s, confidence=confidence,
-                         false_alarm=false_alarm, start=start, n_seg_max=n_max)
+    if int(n_seg_max) < 1:
+        raise InputError("n_seg_max must be at least 1", value=n_seg_max)
+    # the fast model does not depend on the span or the budget (the feasible sets then
+    # nest, so the grid optimum never gets worse with more span or budget)
+    model = _TargetModel(base, case_target, noise, _R2_SPAN_S, confidence=confidence,
+                         false_alarm=false_alarm, start=start, n_seg_max=int(n_seg_max))
     h_age = age_limit(case_target.distance, case_target.age)
     return case_target, model, math.log(h_age.value), base
 
@@ -899,7 +900,7 @@ def plan_search(target, noise=DEFAULT_NOISE_MODEL, budget="1e5 h", span="1 yr",
         confidence=confidence, false_alarm=false_alarm, start=start)
     opt = optimise_setup(model, budget, span, objective=objective, measure=measure,
                          log_h_age=log_h_age, t_seg_min=t_seg_min,
-                         n_seg_max=model.n_table[-1], refine=refine)
+                         n_seg_max=n_seg_max, refine=refine)
     return _finish(case_target, model, base, opt, budget, span, objective, measure, case,
                    log_h_age, noise, confidence, false_alarm, start, exact)
 
@@ -1035,10 +1036,11 @@ def _rank_one(chunk, rng, *, targets, noise, span, total_h, per_target_h, steps,
     for which in dict.fromkeys((case, "optimistic", "pessimistic")):
         case_target, model, log_h_age, base = _planner(target, noise, span, case=which,
                                                        **options)
-        search = _BeatSearch(model, per_target_h, _positive_time(span, "span"),
-                             _positive_time(options["t_seg_min"], "t_seg_min"),
-                             _n_grid(model), int(model.n_table[-1]), False, measure,
-                             log_h_age, False)
+        span_s = _positive_time(span, "span")
+        t_min = _positive_time(options["t_seg_min"], "t_seg_min")
+        n_grid, n_max = _n_grid(span_s, t_min, options["n_seg_max"])
+        search = _BeatSearch(model, per_target_h, span_s, t_min, n_grid, n_max, False,
+                             measure, log_h_age, False)
         try:
             opt = search.run()
             rows[which] = (opt.merit, opt)
@@ -1061,11 +1063,12 @@ def _rank_one(chunk, rng, *, targets, noise, span, total_h, per_target_h, steps,
             "n_seg": np.array([best.n if best else 0])}
 
 
-def _n_grid(model):
-    n_max = int(model.n_table[-1])
+def _n_grid(span_s, t_min_s, n_seg_max):
+    """Stage-1 numbers of segments (all up to 30, else 30 log-spaced) and the largest N."""
+    n_max = int(max(1, min(int(n_seg_max), math.floor(span_s / t_min_s * (1 + 1e-12)))))
     if n_max <= _N_GRID_SIZE:
-        return np.arange(1, n_max + 1)
-    return np.unique(np.rint(np.geomspace(1, n_max, _N_GRID_SIZE)).astype(int))
+        return np.arange(1, n_max + 1), n_max
+    return np.unique(np.rint(np.geomspace(1, n_max, _N_GRID_SIZE)).astype(int)), n_max
 
 
 def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", span="1 yr",
