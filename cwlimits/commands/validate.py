@@ -258,7 +258,10 @@ def run(args):
     low, high = result.h0_measured_range
     pct = f"{100 * args.confidence:g}"
     table.meta.update({
-        "target": target.name, "confidence": args.confidence,
+        "target": target.name, "frequency_hz": f_hz,
+        "band_width_hz": float(result.bandwidth.to_value(u.Hz)),
+        "t_seg_s": float(t_seg.to_value(u.s)), "n_seg": n_seg,
+        "confidence": args.confidence,
         "h0_measured": result.h0_measured, "h0_measured_low": low,
         "h0_measured_high": high, "h0_predicted": result.h0_predicted,
         "measured_over_predicted": ratio, "threshold_2F_sum": result.threshold,
