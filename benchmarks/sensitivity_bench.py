@@ -144,9 +144,9 @@ def _wrap_for_memory(table, shapes):
         setattr(owner, name, recorded)
 
     # sensitivity imports these names into its own namespace: wrap them there.
-    for name in ("strain_sensitivity", "signal_model", "count_templates", "band_psd", "time_averages",
-                 "orientation_factor_rule", "estimate_sensitivity", "_mismatch_rule",
-                 "_add_indirect"):
+    for name in ("strain_sensitivity", "signal_model", "count_templates", "band_psd",
+                 "time_averages", "orientation_factor_rule", "estimate_sensitivity",
+                 "_mismatch_rule", "_add_indirect"):
         wrap(sensitivity, name, f"sensitivity.{name}")
     wrap(sensitivity.SignalModel, "signal_rule", "SignalModel.signal_rule")
     for name in ("critical_depth", "false_alarm_threshold", "_solve", "_solve_log_a",
