@@ -73,10 +73,10 @@ SAMPLERS = ("fast", "emcee")
 _LEVELS = np.unique(np.r_[np.linspace(0.0, 1.0, 257), 0.975, 0.99, 0.995, 0.999, 0.9999])
 #: Grid of the normalised amplitude: points below the bulk (log prior), over the bulk
 #: (linear), and in the tail of weak orientations (geometric).
-_N_LOW, _N_BULK, _N_TAIL = 48, 320, 64
+_N_LOW, _N_BULK, _N_TAIL = 40, 200, 40
 #: Observed-statistic grid of the tabulated path; groups of fewer bands are computed
-#: directly.  Interpolation error measured in tests/test_limits.py (<= 2e-4 relative).
-_N_TABLE = 96
+#: directly.  Interpolation error measured in tests/test_limits.py.
+_N_TABLE = 48
 _MIN_TABULATE = 2 * _N_TABLE
 #: Ratio T_data / S_n = 1 s Hz: with it ``marginal_likelihood`` takes ``x`` as ``h0``.
 _UNIT_T = 1.0 * u.s
@@ -250,6 +250,46 @@ def posterior_quantiles(observed, n_seg, c, w, levels=_LEVELS, prior="uniform", 
     return out
 
 
+def _solve_x(obs_sum, n_seg, c, w, confidence):
+    """Loudest-event x = h0 sqrt(T/S): solve_amplitude with T/S = 1 s Hz (one code path)."""
+    rule = QuadratureRule(c, w, name="signal rule")
+    return solve_amplitude(obs_sum, n_seg, _UNIT_T, _UNIT_S, rule, 0.0,
+                           probability=confidence).value
+
+
+def _loudest_event_x(obs_sum, n_seg, c, w, confidence, tabulate=True):
+    """Loudest-event limits in x for many bands; tabulated per shared rule.
+
+    Below ``o_k = chi2.isf(confidence, 4N)`` noise alone exceeds the observation often
+    enough and the limit is 0.  Above it a = x^2 grows linearly in 2F* - o_k (P_det is
+    smooth in a), so a is tabulated against s = sqrt(2F* - o_k) (s = 0 included) and
+    interpolated with a cubic spline.
+    """
+    obs = np.asarray(obs_sum, float)
+    out = np.empty(len(obs))
+    if not tabulate or len(obs) < _MIN_TABULATE:
+        if len(obs):
+            out[:] = _solve_x(obs, n_seg, c, w, confidence)
+        return out
+    o_k = stats.chi2.isf(confidence, 4.0 * n_seg)
+    rows, inverse = np.unique(np.concatenate([c, w], axis=1), axis=0, return_inverse=True)
+    inverse = np.ravel(inverse)
+    k = c.shape[1]
+    for r in range(len(rows)):
+        sel = np.flatnonzero(inverse == r)
+        if len(sel) < _MIN_TABULATE:
+            out[sel] = _solve_x(obs[sel], n_seg, c[sel], w[sel], confidence)
+            continue
+        s = np.sqrt(np.maximum(obs[sel] - o_k, 0.0))
+        s_grid = np.linspace(0.0, max(s.max(), 1e-6), _N_TABLE)
+        a = np.zeros(_N_TABLE)
+        a[1:] = _solve_x(o_k + s_grid[1:] ** 2, n_seg, rows[r, :k], rows[r, k:],
+                         confidence) ** 2
+        spline = interpolate.CubicSpline(s_grid, a)
+        out[sel] = np.sqrt(np.maximum(spline(s), 0.0))
+    return out
+
+
 def _truncated_level(q_table, levels, x_max, confidence):
     """Level of the untruncated quantile function giving the limit under x <= x_max."""
     if x_max is None:
@@ -341,14 +381,11 @@ def _bayes_chunk(chunk, rng, *, n_seg, confidence, prior, tabulate, n_astro, d_n
 
 
 def _frequentist_chunk(chunk, rng, *, n_seg, confidence, d_nom, d_min, d_max,
-                       distance_prior, i_fixed, i_range, n_nodes=64):
+                       distance_prior, i_fixed, i_range, tabulate=True, n_nodes=64):
     """Loudest-event limits of a chunk of bands (deterministic; ``rng`` unused)."""
     del rng
     obs, c, w, scale = chunk["obs"], chunk["c"], chunk["w"], chunk["scale"]
-    rule = QuadratureRule(c, w, name="signal rule")
-    # h0 = sqrt(a S/T): solve with T/S = 1 s Hz and scale back.
-    x_ul = solve_amplitude(obs, n_seg, _UNIT_T, _UNIT_S, rule, 0.0,
-                           probability=confidence).value
+    x_ul = _loudest_event_x(obs, n_seg, c, w, confidence, tabulate)
     h0 = x_ul * scale
     eps_k, alpha_k = chunk["eps_per_h0"], chunk["alpha_per_h0"]
     i_ref = DEFAULT_MOMENT_OF_INERTIA.to_value(u.kg * u.m**2)
@@ -362,20 +399,25 @@ def _frequentist_chunk(chunk, rng, *, n_seg, confidence, d_nom, d_min, d_max,
     d_nodes = _distance_ppf(p, d_nom, d_min, d_max, distance_prior)
     i_nodes = _inertia_ppf(p[::4] if i_range is not None else p[:1], i_fixed, i_range)
     d_ref, i_top = d_nodes.min(), i_nodes.max()
+    # Combine only the distinct rows (bands share a handful of rules), then index.
+    k = c.shape[1]
+    rows, inverse = np.unique(np.concatenate([c, w], axis=1), axis=0, return_inverse=True)
+    inverse = np.ravel(inverse)
+    rule = QuadratureRule(rows[:, :k], rows[:, k:], name="signal rule")
     eps_rule = combine_rules(rule, _population_factor_rule(d_nodes, i_nodes, d_ref, i_top))
-    x_eps = solve_amplitude(obs, n_seg, _UNIT_T, _UNIT_S, eps_rule, 0.0,
-                            probability=confidence).value
-    alpha_rule = combine_rules(rule, _population_factor_rule(d_nodes, i_nodes[:1] * 0 + 1,
-                                                             d_ref, 1.0))
-    x_alpha = solve_amplitude(obs, n_seg, _UNIT_T, _UNIT_S, alpha_rule, 0.0,
-                              probability=confidence).value
+    x_eps = _loudest_event_x(obs, n_seg, eps_rule.nodes[inverse], eps_rule.weights[inverse],
+                             confidence, tabulate)
+    alpha_rule = combine_rules(rule, _population_factor_rule(d_nodes, np.ones(1), d_ref,
+                                                             1.0))
+    x_alpha = _loudest_event_x(obs, n_seg, alpha_rule.nodes[inverse],
+                               alpha_rule.weights[inverse], confidence, tabulate)
     return {"h0": h0, "eps": x_eps * scale * eps_k * d_ref * i_ref / i_top,
             "alpha": x_alpha * scale * alpha_k * d_ref}
 
 
 def _emcee_log_prob(theta, obs_sum, n_seg, a_net, b_net, c_net, mu_nodes, mu_weights,
                     x_top):
-    """log p(x, cosi, psi | 2F*) up to a constant; vectorised over walkers."""
+    """Log posterior of (x, cosi, psi) given 2F*, up to a constant; vectorised over walkers."""
     from .response import _orientation_factor
 
     x, cosi, psi = theta[:, 0], theta[:, 1], theta[:, 2]
@@ -415,7 +457,7 @@ def _run_emcee(obs, n_seg, abc, mu, mu_w, x_top, x_start, rng, n_walkers, n_step
 
 
 def _emcee_chunk(chunk, rng, *, n_seg, confidence, n_walkers, n_steps, burn):
-    """emcee sampling of (x, cos iota, psi) for a chunk of bands (one band per chunk)."""
+    """Sample (x, cos iota, psi) with emcee for a chunk of bands (one band per chunk)."""
     results = {k: [] for k in ("x_ul", "tau", "n_tau", "converged")}
     for b in range(len(chunk["obs"])):
         chain, tau = _run_emcee(chunk["obs"][b], n_seg,
@@ -581,7 +623,7 @@ def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=No
         func = functools.partial(_bayes_chunk, prior=prior, tabulate=tabulate,
                                  n_astro=int(n_astro), **common)
     else:
-        func = functools.partial(_frequentist_chunk, **common)
+        func = functools.partial(_frequentist_chunk, tabulate=tabulate, **common)
     from .executor import map_chunks
 
     run_key = key
@@ -623,8 +665,10 @@ def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=No
 
 
 def _seed_of(rng):
-    """The root seed of a run: None, an int/sequence, a SeedSequence, or 128 bits drawn
-    from a Generator (so that a Generator argument is reproducible from its state)."""
+    """The root seed of a run: None, an int/sequence, or a SeedSequence.
+
+    A Generator gives 128 bits drawn from it, so the run is reproducible from its state.
+    """
     if rng is None or isinstance(rng, np.random.SeedSequence):
         return rng
     if isinstance(rng, np.random.Generator):
@@ -786,7 +830,7 @@ def band_posterior(results, setup, target, band, *, noise=DEFAULT_NOISE_MODEL,
 
 def sample_band(results, setup, target, band, rng=None, *, noise=DEFAULT_NOISE_MODEL,
                 h0_max=None, n_walkers=64, n_steps=6000, burn=500, **model_options):
-    """emcee samples of (h0, cos iota, psi) in one band, with convergence diagnostics.
+    """Draw emcee samples of (h0, cos iota, psi) in one band, with convergence diagnostics.
 
     Parameters
     ----------

@@ -82,7 +82,9 @@ def plot_posterior(h0, density, limit=None, title=None, emcee_samples=None):
     if limit is not None:
         colour, style, _ = PALETTE[1]
         ax.axvline(float(limit), color=colour, ls=style, lw=1, label="upper limit")
-    ax.set_xlim(0, x[np.searchsorted(np.cumsum(y) / np.sum(y), 0.9995)])
+    ax.set_xlim(0, x[min(np.searchsorted(np.cumsum(y) / np.sum(y), 0.9995), len(x) - 1)])
+    ax.xaxis.get_offset_text().set_fontsize(6)
+    ax.yaxis.get_offset_text().set_fontsize(6)
     ax.set_xlabel(r"$h_0$ (dimensionless strain)")
     ax.set_ylabel(r"posterior density $p(h_0 \mid 2\mathcal{F}^*)$ (per unit $h_0$)")
     ax.legend(fontsize=6, loc="best")
@@ -104,6 +106,8 @@ def plot_corner(samples, labels=(r"$h_0$", r"$\cos\iota$", r"$\psi$ [rad]"), tit
         for j in range(k):
             ax = axes[i, j]
             ax.tick_params(labelsize=5)
+            ax.xaxis.get_offset_text().set_fontsize(5)
+            ax.yaxis.get_offset_text().set_fontsize(5)
             if j > i:
                 ax.set_visible(False)
                 continue
