@@ -13,7 +13,12 @@ from cwlimits.errors import InputError
 from cwlimits.fstat import stackslide_fstat
 from cwlimits.store import open_store
 from cwlimits.synthetic import _jks_amplitudes, _signal_from_amplitudes, simulate_noise
-from cwlimits.validation import _campaign_chunk, injection_campaign, simulation_layout
+from cwlimits.validation import (
+    _campaign_chunk,
+    injection_campaign,
+    plot_efficiency,
+    simulation_layout,
+)
 
 SKY = SkyCoord("3h10m", "+20d")  # an arbitrary test direction (not a real object)
 # Binomial counts: |k - n P| / sqrt(n P (1 - P)) below this (>= 3 sigma, BRIEF).
@@ -178,3 +183,18 @@ def test_an_interrupted_campaign_resumes_with_only_the_missing_chunks(tmp_path):
     assert sorted(entry["chunk"] for entry in log) == [0, 1, 2, 3, 4]  # each once
     np.testing.assert_array_equal(resumed.twoF, reference.twoF)
     assert list(resumed.table["n_detected"]) == list(reference.table["n_detected"])
+
+
+def test_efficiency_plot_has_labelled_log_axes_and_the_model(campaign):
+    fig = plot_efficiency(campaign, title="test direction")
+    ax = fig.axes[0]
+    assert ax.get_xscale() == "log"  # amplitudes on a log axis (common practice)
+    assert "h_0" in ax.get_xlabel() and "dimensionless" in ax.get_xlabel()
+    assert "efficiency" in ax.get_ylabel() and "fraction" in ax.get_ylabel()
+    labels = [text.get_text() for text in ax.get_legend().get_texts()]
+    assert any("model" in label for label in labels)
+    assert any("binomial" in label for label in labels)
+    # the model curve is the model's P_det on its grid, increasing from low to high h0
+    line = next(ln for ln in ax.get_lines() if ln.get_label().startswith("model"))
+    y = np.asarray(line.get_ydata())
+    assert np.all(np.diff(y) >= -1e-12) and y[0] < 0.6 and y[-1] > 0.9
