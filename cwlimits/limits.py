@@ -70,7 +70,10 @@ SAMPLERS = ("fast", "emcee")
 
 #: Levels of the tabulated quantile function of each band's posterior (plus the
 #: confidence itself, so the limit never relies on interpolation between levels).
-_LEVELS = np.unique(np.r_[np.linspace(0.0, 1.0, 257), 0.975, 0.99, 0.995, 0.999, 0.9999])
+#: Geometric levels resolve both tails (a prior cut-off deep in a tail, the Monte-Carlo's
+#: largest draws).
+_LEVELS = np.unique(np.r_[np.linspace(0.0, 1.0, 257), np.geomspace(1e-7, 1 / 256, 24),
+                          1 - np.geomspace(1e-7, 1 / 256, 24)])
 #: Grid of the normalised amplitude: points below the bulk (log prior), over the bulk
 #: (linear), and in the tail of weak orientations (geometric).
 _N_LOW, _N_BULK, _N_TAIL = 40, 200, 40
@@ -794,13 +797,13 @@ def _assumptions(sm, results, method, confidence, prior, hmin, hmax, distance_pr
 
 
 def band_posterior(results, setup, target, band, *, noise=DEFAULT_NOISE_MODEL,
-                   prior="uniform", h0_min=None, **model_options):
+                   prior="uniform", h0_min=None, h0_max=None, **model_options):
     """The posterior density of h0 in one band, on its integration grid.
 
     Parameters
     ----------
-    results, setup, target, noise, prior, h0_min, **model_options
-        As in :func:`upper_limits`.
+    results, setup, target, noise, prior, h0_min, h0_max, **model_options
+        As in :func:`upper_limits`; with ``h0_max`` the posterior is truncated there.
     band : int
         Index of the band in the (sorted) results.
 
@@ -825,7 +828,18 @@ def band_posterior(results, setup, target, band, *, noise=DEFAULT_NOISE_MODEL,
     grid, dens, cdf = _posterior_on_grid(arrays["obs"][b], sm.n_seg, arrays["c"][b],
                                          arrays["w"][b], prior, x_min)
     scale = arrays["scale"][b][0]
-    return grid[0] * scale << u.one, dens[0] / scale << u.one, cdf[0]
+    h0, dens, cdf = grid[0] * scale, dens[0] / scale, cdf[0]
+    hmax = _quantity_or_none(h0_max, u.one, "h0_max")
+    if hmax is not None:
+        # Truncated prior: renormalise below the cut-off (the grid point there included).
+        f_max = float(np.interp(hmax, h0, cdf))
+        if not f_max > 0:
+            raise InputError("h0_max leaves no posterior probability", value=hmax)
+        keep = h0 < hmax
+        h0 = np.append(h0[keep], hmax)
+        dens = np.append(dens[keep], np.interp(hmax, grid[0] * scale, dens)) / f_max
+        cdf = np.append(cdf[keep], f_max) / f_max
+    return h0 << u.one, dens << u.one, cdf
 
 
 def sample_band(results, setup, target, band, rng=None, *, noise=DEFAULT_NOISE_MODEL,

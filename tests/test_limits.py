@@ -442,3 +442,27 @@ def test_cli_bad_options(files, capsys, extra):
     assert _cli(results, setup, "--out", str(out), *extra) == 2
     assert "error:" in capsys.readouterr().err
     assert not out.exists()
+
+
+def test_log_uniform_prior_and_cut_offs_through_the_api(target):
+    # A prior ∝ 1/h0 puts more weight at small h0 than a uniform one, so its limit is lower;
+    # an upper cut-off below the uniform limit caps it (common practice).
+    res = _results([40.0, 90.0], width=0.5)
+    uni = upper_limits(res, _setup(), target, "bayes", rng=1)["h0_limit"].value
+    log = upper_limits(res, _setup(), target, "bayes", rng=1, prior="log-uniform",
+                       h0_min=1e-28)["h0_limit"].value
+    cap = 0.5 * uni.min()
+    cut = upper_limits(res, _setup(), target, "bayes", rng=1, h0_max=cap)["h0_limit"].value
+    assert np.all(log < uni)
+    assert np.all(cut < cap) and np.all(cut > 0.8 * cap)
+    # the same band through band_posterior: its CDF at the API's limit is the confidence
+    h0, dens, cdf = band_posterior(res, _setup(), target, 1, prior="log-uniform",
+                                   h0_min=1e-28)
+    assert np.interp(log[1], h0.value, cdf) == pytest.approx(0.95, abs=1e-3)
+    # truncated posterior: band 0 moderately (F(cap) ~ 0.5), band 1 deep in its lower
+    # tail (F(cap) ~ 0.006), where the limit is compared in h0 (the CDF is steep there)
+    h0, dens, cdf = band_posterior(res, _setup(), target, 0, h0_max=cap)
+    assert h0.value[-1] == cap and cdf[-1] == 1.0
+    assert np.interp(cut[0], h0.value, cdf) == pytest.approx(0.95, abs=2e-3)
+    h0, dens, cdf = band_posterior(res, _setup(), target, 1, h0_max=cap)
+    assert cut[1] == pytest.approx(np.interp(0.95, cdf, h0.value), rel=5e-3)

@@ -235,7 +235,7 @@ def _posterior(args, results, setup, target, plot, model_options, options):
     band = _band_index(args.posterior, results, "--posterior")
     h0, density, cdf = limits.band_posterior(
         results, setup, target, band, noise=args.noise, prior=args.prior,
-        h0_min=args.h0_min, **model_options)
+        h0_min=args.h0_min, h0_max=args.h0_max, **model_options)
     limit = float(np.interp(args.confidence, cdf, h0.value))
     samples = None
     if args.sampler == "emcee":
