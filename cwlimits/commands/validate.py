@@ -258,7 +258,8 @@ def run(args):
     low, high = result.h0_measured_range
     pct = f"{100 * args.confidence:g}"
     table.meta.update({
-        "target": target.name, "frequency_hz": f_hz,
+        "title": f"injection campaign for {target.name}", "target": target.name,
+        "frequency_hz": f_hz,
         "band_width_hz": float(result.bandwidth.to_value(u.Hz)),
         "t_seg_s": float(t_seg.to_value(u.s)), "n_seg": n_seg,
         "confidence": args.confidence,
@@ -308,5 +309,11 @@ def _summarise(args, result, target, setup, f_hz, psd, seed_text):
     echo(args, f"h0 at {pct} % detection: measured {sci(result.h0_measured)} ({iv}: "
                f"{sci(low)} to {sci(high)}), predicted {sci(pred)}; measured/predicted = "
                f"{result.h0_measured / pred:.3f} ({low / pred:.3f} to {high / pred:.3f})")
-    echo(args, f"false alarms away from the injections: {result.false_alarms} "
-               f"(expected {result.false_alarms_expected:.3g})")
+    if result.false_alarms_expected > 0:
+        echo(args, f"false alarms away from the injections (beyond their sidereal "
+                   f"sidebands): {result.false_alarms} (expected "
+                   f"{result.false_alarms_expected:.3g})")
+    else:
+        echo(args, "false-alarm check: no searched template lies beyond the injections' "
+                   "sidereal sidebands (4 per sidereal day); give more --templates to "
+                   "check the false-alarm rate")
