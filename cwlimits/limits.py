@@ -358,7 +358,8 @@ def _bayes_chunk(chunk, rng, *, n_seg, confidence, prior, tabulate, n_astro, d_n
     x_ul = _at_levels(q_table, levels, level[:, None])[:, 0]
     h0 = x_ul * scale
     eps_k, alpha_k = chunk["eps_per_h0"], chunk["alpha_per_h0"]  # at 1 kpc, 1e38 kg m^2
-    fixed = (distance_prior == "fixed" or d_max <= d_min) and i_range is None
+    fixed_d = distance_prior == "fixed" or d_max <= d_min
+    fixed = fixed_d and i_range is None
     if fixed:
         eps = h0 * eps_k * d_nom * (DEFAULT_MOMENT_OF_INERTIA.to_value(u.kg * u.m**2)
                                     / i_fixed)
@@ -380,6 +381,9 @@ def _bayes_chunk(chunk, rng, *, n_seg, confidence, prior, tabulate, n_astro, d_n
         eps[s] = np.quantile(hs * eps_k[s, None] * d * (i_ref / inertia), confidence,
                              axis=1)
         alpha[s] = np.quantile(hs * alpha_k[s, None] * d, confidence, axis=1)
+    if fixed_d:
+        # alpha does not depend on I: exact conversion at the fixed distance.
+        alpha = h0 * alpha_k * d_nom
     return {"h0": h0, "eps": eps, "alpha": alpha}
 
 
@@ -400,7 +404,8 @@ def _frequentist_chunk(chunk, rng, *, n_seg, confidence, d_nom, d_min, d_max,
     # the priors; h0 = k I eps / d gives c (d_ref/d)^2 (I/I_top)^2 at (d_ref, I_top).
     p = (np.arange(n_nodes) + 0.5) / n_nodes
     d_nodes = _distance_ppf(p, d_nom, d_min, d_max, distance_prior)
-    i_nodes = _inertia_ppf(p[::4] if i_range is not None else p[:1], i_fixed, i_range)
+    i_nodes = _inertia_ppf((np.arange(16) + 0.5) / 16 if i_range is not None
+                           else np.array([0.5]), i_fixed, i_range)
     d_ref, i_top = d_nodes.min(), i_nodes.max()
     # Combine only the distinct rows (bands share a handful of rules), then index.
     k = c.shape[1]
@@ -660,6 +665,10 @@ def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=No
     table.meta["assumptions"] = _assumptions(sm, results, method, confidence, prior, hmin,
                                              hmax, distance_prior, i_fixed, i_range,
                                              sampler, n_astro, target)
+    table.meta["assumptions"]["seed"] = (
+        "none given (fresh entropy)" if rng is None else
+        f"{rng}" if isinstance(rng, (int, np.integer)) else
+        f"{type(rng).__name__} (128 bits drawn from it)")
     table.meta["method"] = method
     table.meta["confidence"] = confidence
     table.meta["n_seg"] = sm.n_seg
