@@ -169,3 +169,17 @@ def test_cli_unknown_target(in_repo, tmp_path, capsys):
     argv[argv.index("Fict Quill")] = "Nobody"
     assert main(argv) == 2
     assert "unknown target 'Nobody'" in capsys.readouterr().err
+
+
+def test_tabulated_depths_equal_the_direct_solve(target):
+    # the spline table of D(threshold) against a direct solve of every band (same core)
+    from cwlimits.detection import critical_depth, false_alarm_threshold
+    from cwlimits.sensitivity import _TABULATE_MIN, _depths
+
+    setup = _setup(band=(100 * u.Hz, 300 * u.Hz), band_width=1 * u.Hz)
+    model = signal_model(setup, "advanced-fit", target)
+    assert len(model) >= _TABULATE_MIN
+    thr = false_alarm_threshold(0.01, model.n_templates, model.n_seg).value
+    direct = critical_depth(thr, model.n_seg, model.t_data, model.signal_rule(), 0.0,
+                            0.95).value
+    assert np.allclose(_depths(model, thr, 0.95), direct, rtol=1e-7)
