@@ -334,23 +334,35 @@ class _TargetModel:
         if key in _TABLE_CACHE:
             return _TABLE_CACHE[key]
         nt, mt, tt = self.n_table, _MU_TABLE, _LOG10_TRIALS
-        grid = np.stack(np.meshgrid(nt, mt, mt, tt, indexing="ij"), -1).reshape(-1, 4)
-        n, mc, mf, lt = grid.T
-        n = n.astype(int)
+        # The signal rule c = R2 (1 - mu) depends on the mismatches and on whether the
+        # fine grid exists (N > 1), not on N or the trials: build and condense each of
+        # these few rules once (Wette 2012: P_det depends on R2 and mu only through c).
+        mc, mf, multi = (a.ravel() for a in np.meshgrid(mt, mt, [False, True],
+                                                        indexing="ij"))
         mu = (mc[:, None] * self.samples[dc][None]
-              + np.where(n > 1, mf, 0.0)[:, None] * self.samples[df][None])
+              + np.where(multi, mf, 0.0)[:, None] * self.samples[df][None])
         one_minus = 1.0 - np.minimum(mu, 1.0)
-        c = (self.r2_rule.nodes[None, :, None] * one_minus[:, None, :]).reshape(len(n), -1)
-        w = (self.r2_rule.weights[None, :, None]
-             * np.full(one_minus.shape, 1.0 / one_minus.shape[1])[:, None, :]
-             ).reshape(len(n), -1)
-        # rows whose zero-signal weight reaches 1 - confidence cannot reach the confidence
-        ok = np.sum(np.where(c > 0, 0.0, w), axis=1) < 0.5 * (1 - self.confidence)
+        c = (self.r2_rule.nodes[None, :, None] * one_minus[:, None, :]).reshape(len(mc), -1)
+        w = np.broadcast_to(self.r2_rule.weights[None, :, None] / one_minus.shape[1],
+                            (len(mc),) + (self.r2_rule.size, one_minus.shape[1])
+                            ).reshape(len(mc), -1)
+        # rules whose zero-signal weight reaches 1 - confidence cannot reach it at all
+        ok_rule = np.sum(np.where(c > 0, 0.0, w), axis=1) < 0.5 * (1 - self.confidence)
+        rules = combine_rules(QuadratureRule(c, w), 0.0, max_nodes=_SIGNAL_NODES)
+        # rows of the table: (N, mu_c, mu_f, trials) -> index of their rule
+        i_n, i_c, i_f, i_t = (a.ravel() for a in np.meshgrid(
+            np.arange(len(nt)), np.arange(len(mt)), np.arange(len(mt)), np.arange(len(tt)),
+            indexing="ij"))
+        n = nt[i_n]
+        rule_index = (i_c * len(mt) + i_f) * 2 + (n > 1)
+        ok = ok_rule[rule_index]
         log_a = np.full(len(n), _BAD_LOG_A)
         if np.any(ok):
-            thr = false_alarm_threshold(self.false_alarm, 10.0 ** lt[ok], n[ok])
-            depth = critical_depth(thr, n[ok], 1 * u.s, QuadratureRule(c[ok], w[ok]), 0.0,
-                                   self.confidence, max_nodes=_SIGNAL_NODES)
+            sel = rule_index[ok]
+            thr = false_alarm_threshold(self.false_alarm, 10.0 ** tt[i_t[ok]], n[ok])
+            depth = critical_depth(thr, n[ok], 1 * u.s,
+                                   QuadratureRule(rules.nodes[sel], rules.weights[sel]), 0.0,
+                                   self.confidence, max_nodes=None)
             log_a[ok] = -2 * np.log(depth.to_value(u.Hz ** -0.5))
         values = log_a.reshape(len(nt), len(mt), len(mt), len(tt))
         table = interpolate.RegularGridInterpolator(

@@ -125,8 +125,10 @@ def _exhaustive_depth(model, budget_h, span_s, t_min_s, n_t=150):
     shape = (n_max, len(_MU), len(_MU), n_t)
     grid = merit.reshape(shape)
     best = np.unravel_index(int(np.argmax(grid)), shape)
+    # N is searched exhaustively (every integer); the resolution is that of the
+    # continuous axes (mismatches, T)
     steps = []
-    for axis in range(4):
+    for axis in (1, 2, 3):
         for d in (-1, 1):
             j = list(best)
             j[axis] += d
@@ -142,7 +144,8 @@ def test_depth_optimiser_agrees_with_exhaustive_grid(target, budget_h):
     opt = P.optimise_setup(model, budget_h * u.h, SPAN, objective="depth",
                            t_seg_min=1 * u.day)
     grid_best, step = _exhaustive_depth(model, budget_h, span_s, t_min)
-    # within the resolution of the exhaustive grid (its largest neighbouring step)
+    # within the resolution of the exhaustive grid (its largest step in a continuous
+    # variable next to its best point)
     assert grid_best - step <= opt.merit <= grid_best + step
     # constraints: the budget and the span are never broken
     total = model.cost(np.array([opt.t_s]), np.array([opt.n]), np.array([opt.mu_c]),

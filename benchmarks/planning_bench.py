@@ -1,0 +1,103 @@
+"""Time to plan one target and to rank the demo catalogue, against one strain_sensitivity call.
+
+Run:  /work/venv/bin/python benchmarks/planning_bench.py [--quick] [--json FILE]
+
+Baseline (measured in the same run): one :func:`cwlimits.strain_sensitivity` call for a
+setup of the same band (450 bands of 1 Hz, 50-500 Hz; 40 bands with --quick).  Then:
+``plan_search`` of one demo target (depth objective; then beat-age), and ``rank_targets``
+of the whole demo catalogue (fictional targets, ``target_lists/demo.csv``) with the budget
+split over a grid, serially and with 2 worker processes.  Figures are ratios to the
+baseline; the process-level caches of the planner are cleared before each timing.  No
+timing is asserted.
+"""
+
+import argparse
+import json
+import pathlib
+import time
+
+import astropy.units as u
+
+from cwlimits import planning
+from cwlimits.executor import make_executor
+from cwlimits.sensitivity import strain_sensitivity
+from cwlimits.setup import SearchSetup
+from cwlimits.targets import load_targets
+
+HERE = pathlib.Path(__file__).resolve().parent
+CATALOGUE = HERE.parent / "target_lists" / "demo.csv"
+
+
+def _clear():
+    planning._R2_CACHE.clear()
+    planning._TABLE_CACHE.clear()
+
+
+def timed(fn):
+    _clear()
+    t0 = time.perf_counter()
+    out = fn()
+    return out, time.perf_counter() - t0
+
+
+def main(argv=None):
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--quick", action="store_true", help="small sizes (smoke run)")
+    parser.add_argument("--json", metavar="FILE", help="also write the results as JSON")
+    args = parser.parse_args(argv)
+
+    catalogue = load_targets(CATALOGUE)
+    target = catalogue.target("Fict Quill")
+    band = (100 * u.Hz, 140 * u.Hz) if args.quick else (50 * u.Hz, 500 * u.Hz)
+    span = 60 * u.day if args.quick else 1 * u.yr
+    budget = 1e3 * u.h if args.quick else 1e5 * u.h
+    total = 1e4 * u.h if args.quick else 1e6 * u.h
+    steps = 4 if args.quick else 12
+    setup = SearchSetup(t_seg=5 * u.day, n_seg=10, band=band)
+    _, base = timed(lambda: strain_sensitivity(setup, "advanced-fit", target=target))
+
+    plan, t_depth = timed(lambda: planning.plan_search(target, "advanced-fit", budget, span,
+                                                       band=band))
+    beat, t_beat = timed(lambda: planning.plan_search(target, "advanced-fit", budget, span,
+                                                      "beat-age", band=band,
+                                                      case="pessimistic"))
+    kw = dict(band=band, budget_steps=steps)
+    ranking, t_rank = timed(lambda: planning.rank_targets(catalogue, "advanced-fit", total,
+                                                          span, **kw))
+    workers = 2
+    with make_executor(workers=workers) as executor:
+        # start both workers (spawn + import) before timing, as a long run would
+        list(executor.map(time.sleep, [1.0] * workers))
+        _, t_rank2 = timed(lambda: planning.rank_targets(catalogue, "advanced-fit", total,
+                                                         span, executor=executor, **kw))
+
+    figures = {
+        "baseline_strain_sensitivity_s": base,
+        "plan_depth_s": t_depth, "plan_depth_ratio": t_depth / base,
+        "plan_beat_age_s": t_beat, "plan_beat_age_ratio": t_beat / base,
+        "rank_demo_serial_s": t_rank, "rank_demo_serial_ratio": t_rank / base,
+        "rank_demo_2_workers_s": t_rank2, "rank_demo_2_workers_ratio": t_rank2 / base,
+        "n_targets": len(catalogue), "budget_steps": steps,
+        "n_bands": len(setup.bands()[0]), "quick": args.quick,
+        "plan_depth": {"t_seg_day": plan.setup.t_seg.to_value(u.day),
+                       "n_seg": plan.setup.n_seg, "bound": plan.bound,
+                       "depth": plan.merit.value},
+        "plan_beat_age": {"width_hz": beat.merit.value, "bound": beat.bound},
+    }
+    print(f"baseline: one strain_sensitivity call ({figures['n_bands']} bands) "
+          f"{base:.3g} s = 1")
+    print(f"plan one target, depth objective:        {t_depth:.3g} s = "
+          f"{t_depth / base:.3g} x baseline")
+    print(f"plan one target, beat-age objective:     {t_beat:.3g} s = "
+          f"{t_beat / base:.3g} x baseline")
+    print(f"rank {len(catalogue)} demo targets + split ({steps} steps), serial: "
+          f"{t_rank:.3g} s = {t_rank / base:.3g} x baseline")
+    print(f"rank {len(catalogue)} demo targets + split, {workers} workers:     "
+          f"{t_rank2:.3g} s = {t_rank2 / base:.3g} x baseline")
+    if args.json:
+        pathlib.Path(args.json).write_text(json.dumps(figures, indent=2) + "\n")
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
