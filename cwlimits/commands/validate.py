@@ -267,7 +267,8 @@ def run(args):
         "h0_measured_high": high, "h0_predicted": result.h0_predicted,
         "measured_over_predicted": ratio, "threshold_2F_sum": result.threshold,
         "n_templates": result.n_templates, "false_alarms": result.false_alarms,
-        "false_alarms_expected": result.false_alarms_expected, "seed": seed_text})
+        "false_alarms_expected": result.false_alarms_expected,
+        "false_alarm_injections": result.false_alarm_injections, "seed": seed_text})
     title = (f"injection campaign for {target.name}: measured vs predicted detection "
              f"efficiency and h0 at {pct} %")
     _summarise(args, result, target, setup, f_hz, psd, seed_text)
@@ -310,9 +311,9 @@ def _summarise(args, result, target, setup, f_hz, psd, seed_text):
                f"{sci(low)} to {sci(high)}), predicted {sci(pred)}; measured/predicted = "
                f"{result.h0_measured / pred:.3f} ({low / pred:.3f} to {high / pred:.3f})")
     if result.false_alarms_expected > 0:
-        echo(args, f"false alarms away from the injections (beyond their sidereal "
-                   f"sidebands): {result.false_alarms} (expected "
-                   f"{result.false_alarms_expected:.3g})")
+        echo(args, f"false alarms: {result.false_alarms} threshold crossings by templates "
+                   f"beyond the injections' sidereal sidebands (expected "
+                   f"{result.false_alarms_expected:.3g} from the per-template false alarm)")
     else:
         echo(args, "false-alarm check: no searched template lies beyond the injections' "
                    "sidereal sidebands (4 per sidereal day); give more --templates to "
