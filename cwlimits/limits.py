@@ -668,6 +668,8 @@ def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=No
     table.meta["assumptions"]["seed"] = (
         "none given (fresh entropy)" if rng is None else
         f"{rng}" if isinstance(rng, (int, np.integer)) else
+        f"SeedSequence(entropy={rng.entropy}, spawn_key={tuple(rng.spawn_key)})"
+        if isinstance(rng, np.random.SeedSequence) else
         f"{type(rng).__name__} (128 bits drawn from it)")
     table.meta["method"] = method
     table.meta["confidence"] = confidence
