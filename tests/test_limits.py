@@ -487,3 +487,18 @@ def test_inertia_range_lies_between_its_ends(target, method):
     # alpha does not depend on I (Owen 2010 eq. 24)
     assert spread["alpha_limit"][0].value == pytest.approx(at_lo["alpha_limit"][0].value,
                                                            rel=1e-6)
+
+
+@pytest.mark.slow
+def test_two_worker_processes_give_the_same_bits(target):
+    # map_chunks spawns one random stream per chunk from the root seed, so the numbers do
+    # not depend on where chunks run (cwlimits.executor's contract).
+    from cwlimits.executor import make_executor
+
+    res = _results(np.linspace(35, 90, 12), width=0.5)
+    serial = upper_limits(res, _setup(), target, "bayes", rng=7, chunk_size=5)
+    with make_executor(workers=2) as pool:
+        pooled = upper_limits(res, _setup(), target, "bayes", rng=7, chunk_size=5,
+                              executor=pool)
+    for name in ("h0_limit", "eps_limit", "alpha_limit"):
+        assert np.array_equal(serial[name], pooled[name])
