@@ -67,6 +67,7 @@ from .indirect import (  # noqa: E402
     spindown_limit,
 )
 from .lattices import Lattice, nearest_template, sample_mismatch  # noqa: E402
+from .limits import band_posterior, sample_band, upper_limits  # noqa: E402
 from .metric import coherent_metric, refinement_factors, semicoherent_metric  # noqa: E402
 from .noise import (  # noqa: E402
     DEFAULT_NOISE_MODEL,
@@ -197,6 +198,10 @@ __all__ = [
     "noise_levels",
     "measure_unit_costs",
     "injection_campaign",
+    # upper limits
+    "upper_limits",
+    "band_posterior",
+    "sample_band",
     # scale: executor and resumable results
     "map_chunks",
     "make_executor",

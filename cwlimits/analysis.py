@@ -18,27 +18,26 @@ import astropy.units as u
 import numpy as np
 
 from .cost import computing_cost, scan_cost
+from .errors import ConfigError
+from .executor import named_seed
 from .indirect import indirect_limits
+from .limits import band_posterior, upper_limits
 from .noise import get_noise
+from .planning import rank_targets
 from .report import Report, file_sha256
-from .sensitivity import strain_sensitivity
+from .results import load_results
+from .sensitivity import signal_model, strain_sensitivity
 from .setup import load_setup
 from .targets import load_targets
 
-__all__ = ["run_report", "CAUTION"]
+__all__ = ["run_report", "simulate_results", "CAUTION", "STEPS"]
 
 CAUTION = ("Every number in this report is an upper limit or a predicted sensitivity under "
            "the stated assumptions (moment of inertia, distance and age priors, braking-"
            "index range, Gaussian stationary noise), not a detection claim.")
 
 
-def _subset(catalogue, names):
-    if not names:
-        return catalogue, list(catalogue.names)
-    return catalogue, list(names)
-
-
-def run_report(config, *, echo=print, progress=None, simulated=None):
+def run_report(config, *, echo=print, progress=None, simulate=False):
     """Run the analysis of ``config`` and write its report; return the report folder.
 
     Parameters
@@ -47,48 +46,74 @@ def run_report(config, *, echo=print, progress=None, simulated=None):
     echo : callable
         Receives one line of text per step (``print`` by default).
     progress : callable, optional
-        ``progress(n)`` is called after each finished step.
-    simulated : dict, optional
-        Target name -> search results (:class:`~cwlimits.results.SearchResults`) made up
-        by the caller (the demo), used like supplied results and labelled simulated.
+        ``progress(n)`` is called after each finished step (:data:`STEPS` in all).
+    simulate : bool
+        Make up search results for every planned target from the noise distribution
+        (:func:`simulate_results`, seeded from the configuration's seed), labelled as
+        simulated; used by ``cwlimits demo``.
     """
     progress = progress or (lambda n=1: None)
     seed = config["seed"]
-    rng = np.random.default_rng(seed)
     catalogue = load_targets(config["catalogue.path"])
-    _, names = _subset(catalogue, config["catalogue.targets"])
+    if config["catalogue.targets"]:
+        catalogue = catalogue.select(config["catalogue.targets"])
     noise = get_noise(config["noise.model"])
-    inertia = config["indirect.moment_of_inertia"]
-    indirect = indirect_limits(catalogue, config["indirect.braking_index"], inertia,
-                               rng=rng.integers(2**32))
-    keep = np.isin(indirect["name"], names)
-    indirect = indirect[keep]
+    indirect = indirect_limits(catalogue, config["indirect.braking_index"],
+                               config["indirect.moment_of_inertia"],
+                               rng=named_seed(seed, "indirect"))
     echo(f"indirect limits of {len(indirect)} targets")
     progress()
 
-    plans = _plans(config, catalogue, names, noise, echo)
+    ranking, plans = _plans(config, catalogue, noise, echo)
     progress()
 
     sensitivities = {}
-    for name, setup in plans.items():
-        target = catalogue.target(name)
-        sensitivities[name] = strain_sensitivity(
-            setup, noise, target=target, confidence=config["statistics.confidence"],
-            false_alarm=config["statistics.false_alarm"], start=config["data.start"])
+    for name, plan in plans.items():
+        sensitivities[name] = plan["table"] if plan["table"] is not None else \
+            strain_sensitivity(plan["setup"], noise, target=catalogue.target(name),
+                               confidence=config["statistics.confidence"],
+                               false_alarm=config["statistics.false_alarm"],
+                               start=config["data.start"])
         echo(f"predicted sensitivity of {name}: {len(sensitivities[name])} bands")
     progress()
 
-    out = config["output"]
-    title = config["title"]
-    with Report(title, out) as rep:
+    results = {name: load_results(path) for name, path in config["results"].items()}
+    if simulate:
+        for name, plan in plans.items():
+            model = signal_model(plan["setup"], noise, catalogue.target(name),
+                                 start=config["data.start"])
+            results[name] = simulate_results(model, named_seed(seed, f"simulate:{name}"))
+    limits = {}
+    for name, res in results.items():
+        if name not in plans:
+            raise ConfigError(f"results for '{name}', which has no search setup in this "
+                              "analysis (give search.setup, or raise planning.max_targets)",
+                              file=str(config.source))
+        limits[name] = upper_limits(
+            res, plans[name]["setup"], catalogue.target(name), config["limits.method"],
+            config["statistics.confidence"], rng=named_seed(seed, f"limits:{name}"),
+            noise=noise, prior=config["limits.prior"],
+            distance_prior=config["limits.distance_prior"],
+            moment_of_inertia=config["indirect.moment_of_inertia"],
+            start=config["data.start"])
+        echo(f"upper limits of {name}: {len(limits[name])} bands "
+             f"({config['limits.method']})")
+    progress()
+
+    with Report(config["title"], config["output"]) as rep:
         rep.section("About this report", CAUTION, caution=True)
-        if simulated:
+        if simulate:
             rep.section("Simulated search results",
                         "The search results in this report are SIMULATED from the noise "
                         "distribution with a fixed seed; they are not the output of a "
                         "real search.", caution=True)
         _indirect_section(rep, indirect)
-        _plan_sections(rep, config, catalogue, plans, sensitivities, noise)
+        if ranking is not None:
+            _ranking_section(rep, ranking, plans)
+        _plan_sections(rep, catalogue, plans, sensitivities)
+        for name, table in limits.items():
+            _limits_section(rep, config, catalogue.target(name), plans[name]["setup"],
+                            results[name], table, noise, simulated=simulate)
         rep.assumptions(_assumptions(config), heading="Assumptions of the whole analysis")
         record = {"configuration": config.resolved(), "seed": seed,
                   "inputs": {role: {"path": str(path), "sha256": file_sha256(path)}
@@ -98,14 +123,39 @@ def run_report(config, *, echo=print, progress=None, simulated=None):
     return folder
 
 
-def _plans(config, catalogue, names, noise, echo):
-    """The setup of each target that gets a search: a fixed setup for the first targets."""
+#: Steps of :func:`run_report` that call ``progress``.
+STEPS = 5
+
+
+def _plans(config, catalogue, noise, echo):
+    """The setup of each target that gets a search: ranked and planned, or fixed.
+
+    Returns
+    -------
+    ranking : Ranking or None
+    plans : dict of name -> {"setup", "table", "plan"}
+    """
+    limit = config["planning.max_targets"]
     if config["search.setup"] is not None:
         setup = load_setup(config["search.setup"])
-        chosen = names[: config["planning.max_targets"]]
+        chosen = catalogue.names[:limit]
         echo(f"fixed setup {config['search.setup']} for {', '.join(chosen)}")
-        return {name: setup for name in chosen}
-    raise NotImplementedError("planning arrives with issue 7")
+        return None, {name: {"setup": setup, "table": None, "plan": None}
+                      for name in chosen}
+    ranking = rank_targets(
+        catalogue, noise, config["planning.budget"], config["data.span"],
+        band=(config["search.f_min"], config["search.f_max"]),
+        band_width=config["search.band_width"], detectors=tuple(config["data.detectors"]),
+        duty_factor=config["data.duty_factor"], confidence=config["statistics.confidence"],
+        false_alarm=config["statistics.false_alarm"], start=config["data.start"])
+    plans = {}
+    for name in ranking.table["name"]:
+        if name in ranking.plans and len(plans) < limit:
+            plan = ranking.plans[name]
+            plans[name] = {"setup": plan.setup, "table": plan.table, "plan": plan}
+    echo(f"ranked {len(catalogue)} targets; planned searches of "
+         f"{', '.join(plans) or 'none'} within {config['planning.budget']:.4g}")
+    return ranking, plans
 
 
 def _indirect_section(rep, table):
@@ -127,10 +177,31 @@ def _slug(name):
     return keep.lower() or "target"
 
 
-def _plan_sections(rep, config, catalogue, plans, sensitivities, noise):
+def _ranking_section(rep, ranking, plans):
+    from .planning_plots import plot_merit_vs_budget, plot_planned_strain
+
+    rep.section("Ranking and budget split",
+                "Each target's figure of merit is the part of the band where its best "
+                "search at the budget beats its age-based limit (pessimistic distance and "
+                "age); the total budget is split across the targets by an exact dynamic "
+                "programme over a grid of budgets.")
+    rep.table("ranking", ranking.table, caption="Ranking of the targets",
+              assumptions=ranking.assumptions)
+    rep.figure("merit_vs_budget", plot_merit_vs_budget(ranking),
+               caption="Figure of merit of each target against its budget")
+    evaluated = [p["plan"] for p in plans.values()
+                 if p["plan"] is not None and p["plan"].table is not None]
+    if evaluated:
+        rep.figure("planned_strain", plot_planned_strain(evaluated),
+                   caption="Predicted h0 of the planned searches against each target's "
+                           "age-based limit band")
+
+
+def _plan_sections(rep, catalogue, plans, sensitivities):
     from .plots import plot_sensitivity
 
-    for name, setup in plans.items():
+    for name, plan in plans.items():
+        setup = plan["setup"]
         target = catalogue.target(name)
         slug = _slug(name)
         table = sensitivities[name]
@@ -139,7 +210,11 @@ def _plan_sections(rep, config, catalogue, plans, sensitivities, noise):
                     f"{setup.n_seg} segments of {setup.t_seg.to(u.day):.4g}, band "
                     f"{setup.f_min:.4g} to {setup.f_max:.4g}, detectors "
                     f"{', '.join(setup.detectors)}; computing cost "
-                    f"{cost.total.to(u.h).value:.3g} core-hours.")
+                    f"{cost.total.to(u.h).value:.3g} core-hours"
+                    + (f", bounded by the {plan['plan'].bound}" if plan["plan"] else "")
+                    + f". The setup file plan_{slug}.toml reproduces these numbers with "
+                      "'cwlimits sensitivity --setup' and 'cwlimits cost --setup'.")
+        rep.file(f"plan_{slug}.toml", setup.to_toml)
         rep.table(f"sensitivity_{slug}", table,
                   caption=f"Predicted sensitivity per band for {name}")
         rep.figure(f"sensitivity_{slug}", plot_sensitivity(table, title=name),
@@ -150,6 +225,42 @@ def _plan_sections(rep, config, catalogue, plans, sensitivities, noise):
             rep.figure(f"cost_scan_{slug}", _plot_cost_scan(scan, setup, name),
                        caption=f"Computing cost against the segment length for {name}; "
                                "the chosen setup is marked")
+
+
+def _limits_section(rep, config, target, setup, results, table, noise, simulated):
+    from .limits_plots import plot_astrophysical_limits, plot_limits, plot_posterior
+
+    slug = _slug(target.name)
+    kind = "simulated" if simulated else "supplied"
+    rep.section(f"Upper limits for {target.name}",
+                f"{config['limits.method'].capitalize()} upper limits at "
+                f"{config['statistics.confidence']:g} confidence from the {kind} loudest "
+                "statistic of each band, then the ellipticity and r-mode amplitude limits "
+                "over the distance prior.")
+    if simulated:
+        from astropy.table import QTable
+
+        sim = QTable({"f_lo": results.f_lo, "width": results.width,
+                      "loudest_2F_sum": results.loudest, "psd": results.psd})
+        rep.table(f"simulated_results_{slug}", sim,
+                  caption=f"SIMULATED search results for {target.name} (noise only)",
+                  assumptions={"simulated": "loudest of N_t chi-squared(4N) draws per "
+                                            "band; pure Gaussian noise",
+                               "seed": str(config["seed"])})
+    rep.table(f"limits_{slug}", table, caption=f"Upper limits per band for {target.name}")
+    rep.figure(f"limits_{slug}", plot_limits(table, title=target.name),
+               caption=f"Upper limits on h0 for {target.name} against its age-based limit")
+    for k, fig in enumerate(plot_astrophysical_limits(table, title=target.name)):
+        what = ("ellipticity", "r-mode amplitude")[k] if k < 2 else f"panel {k}"
+        rep.figure(f"{('eps', 'alpha')[k] if k < 2 else k}_limits_{slug}", fig,
+                   caption=f"Upper limits on the {what} of {target.name}")
+    best = int(np.argmin(table["h0_limit"].value))
+    h0, density, _ = band_posterior(results, setup, target, best, noise=noise,
+                                    prior=config["limits.prior"], start=config["data.start"])
+    rep.figure(f"posterior_{slug}", plot_posterior(
+        h0, density, limit=table["h0_limit"][best],
+        title=f"{target.name}, band at {table['f_mid'][best]:.5g}"),
+        caption=f"Posterior of h0 in the band of {target.name} with the lowest limit")
 
 
 def _cost_scan(setup, target):
@@ -196,3 +307,35 @@ def _assumptions(config):
                       f"confidence {config['statistics.confidence']:g}",
         "meaning": "upper limits and predictions, not detection claims",
     }
+
+
+def simulate_results(model, rng=None):
+    """Per-band loudest statistics of a search of pure Gaussian noise (for the demo).
+
+    The loudest of N_t independent chi-squared(4N) values has the CDF F(x)^N_t, so with
+    u uniform, x = chi2.isf(1 - u^(1/N_t), 4N), computed as chi2.isf(-expm1(log(u)/N_t))
+    to keep precision for N_t up to 1e15 (order statistics; common practice).
+
+    Parameters
+    ----------
+    model : SignalModel
+        The bands, segments and template counts of the search.
+    rng : None, int or Generator
+
+    Returns
+    -------
+    SearchResults
+        Labelled with the source ``"simulated"``; the noise floor is the model's.
+    """
+    from scipy import stats
+
+    from .results import SearchResults
+
+    rng = np.random.default_rng(rng)
+    u01 = rng.uniform(size=len(model))
+    p_exceed = -np.expm1(np.log(u01) / np.asarray(model.n_templates, float))
+    loudest = stats.chi2.isf(p_exceed, 4 * model.n_seg)
+    return SearchResults(f_lo=model.f_lo, width=model.f_hi - model.f_lo, loudest=loudest,
+                         statistic="sum", psd=model.psd,
+                         n_templates=np.asarray(model.n_templates, float),
+                         source="simulated", rows=np.arange(len(model)) + 2)

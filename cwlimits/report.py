@@ -132,6 +132,13 @@ class Report:
         if info:
             self.assumptions(info, heading=f"Assumptions of {caption or name}")
 
+    def file(self, name, write, caption=""):
+        """Write a file beside the page with ``write(path)`` and link it."""
+        write(self._stage / name)
+        self.files.append(name)
+        self._parts.append(f"<p class='files'>{html.escape(caption or 'File')}: "
+                           f"<a href='{html.escape(name)}'>{html.escape(name)}</a></p>")
+
     def figure(self, name, fig, caption=""):
         """Save ``fig`` as ``name.png`` and ``name.svg`` and show it in the page."""
         from .plots import save_figure

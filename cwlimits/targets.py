@@ -164,6 +164,26 @@ class TargetCatalogue:
             fdot_rot=self.fdot_rot[i] if spin else None, notes=self.notes[i],
             extra=tuple((k, v[i]) for k, v in self.extra.items()))
 
+    def select(self, names):
+        """A catalogue of the named targets only, in the order given.
+
+        Raises
+        ------
+        InputError
+            For a name the catalogue does not have.
+        """
+        index = []
+        for name in names:
+            self.target(name)  # raises a clear error for an unknown name
+            index.append(self.names.index(name))
+        index = np.asarray(index, dtype=int)
+        return TargetCatalogue(
+            [self.names[i] for i in index], self.coord[index], self.distance[index],
+            (self.distance_min[index], self.distance_max[index]), self.age[index],
+            (self.age_min[index], self.age_max[index]), self.f_rot[index],
+            self.fdot_rot[index], [self.notes[i] for i in index],
+            {k: [v[i] for i in index] for k, v in self.extra.items()}, source=self.source)
+
     def to_table(self):
         """The catalogue as an astropy QTable with units (ICRS ra/dec in degrees)."""
         icrs = self.coord.icrs

@@ -1,14 +1,11 @@
 """``cwlimits report``: the whole job from one configuration file to a report."""
 
-from ..analysis import run_report
+from ..analysis import STEPS, run_report
 from ..config import load_config
 from ..progress import progress
 from ._common import add_parser, echo
 
 ORDER = 5
-
-#: Steps of :func:`cwlimits.analysis.run_report` that report progress.
-STEPS = 4
 
 
 def register(subparsers, common):
@@ -31,11 +28,11 @@ def run(args):
     return write(args, config)
 
 
-def write(args, config, simulated=None):
+def write(args, config, simulate=False):
     """Run the report of ``config`` with a progress bar and the usual messages."""
     quiet = getattr(args, "quiet", False)
     with progress(STEPS, "report", enabled=False if quiet else None, unit="step") as update:
         folder = run_report(config, echo=lambda text: echo(args, text), progress=update,
-                            simulated=simulated)
+                            simulate=simulate)
     echo(args, f"wrote the report to {folder / 'index.html'}")
     return 0
