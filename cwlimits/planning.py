@@ -913,13 +913,14 @@ def plan_search(target, noise=DEFAULT_NOISE_MODEL, budget="1e5 h", span="1 yr",
     opt = optimise_setup(model, budget, span, objective=objective, measure=measure,
                          log_h_age=log_h_age, t_seg_min=t_seg_min,
                          n_seg_max=n_seg_max, refine=refine)
-    return _finish(case_target, model, base, opt, budget, span, objective, measure, case,
+    return _finish(case_target, _plan_setup(base, model, opt), opt, budget, span, objective,
+                   measure, case,
                    log_h_age, noise, confidence, false_alarm, start, exact)
 
 
-def _finish(case_target, model, base, opt, budget, span, objective, measure, case,
-            log_h_age, noise, confidence, false_alarm, start, exact):
-    setup = _plan_setup(base, model, opt)
+def _finish(case_target, setup, opt, budget, span, objective, measure, case, log_h_age,
+            noise, confidence, false_alarm, start, exact):
+    """Check the budget exactly, evaluate the plan and assemble the SearchPlan."""
     # Never over budget: the fast cost equals computing_cost to rounding; shrink T by a
     # few parts in 1e9 if rounding put the exact cost a hair above.
     for _ in range(20):
@@ -1075,6 +1076,55 @@ def _rank_one(chunk, rng, *, targets, noise, span, total_h, per_target_h, steps,
             "n_seg": np.array([best.n if best else 0])}
 
 
+_BOUNDS = ("none", "span", "budget", "span+budget", "band", "span+band", "budget+band",
+           "span+budget+band")
+
+
+def _plan_one(chunk, rng, *, targets, funded, budgets_h, noise, span, measure, case,
+              options):
+    """The refined beat-age optimum of one funded target (plain arrays for map_chunks)."""
+    j = int(chunk["index"][0])
+    target = targets[funded[j]]
+    _, model, log_h_age, _ = _planner(target, noise, span, case=case, **options)
+    try:
+        opt = optimise_setup(model, budgets_h[j] * u.h, span, objective="beat-age",
+                             measure=measure, log_h_age=log_h_age,
+                             t_seg_min=options["t_seg_min"],
+                             n_seg_max=options["n_seg_max"])
+    except ComputationError:
+        return {"ok": np.array([False]), "t_s": np.array([np.nan]), "n": np.array([0]),
+                "mu_c": np.array([np.nan]), "mu_f": np.array([np.nan]),
+                "f_lo_hz": np.array([np.nan]), "f_hi_hz": np.array([np.nan]),
+                "merit": np.array([0.0]), "bound": np.array([0])}
+    lft, rgt = opt.window
+    return {"ok": np.array([True]), "t_s": np.array([opt.t_s]), "n": np.array([opt.n]),
+            "mu_c": np.array([opt.mu_c]), "mu_f": np.array([opt.mu_f]),
+            "f_lo_hz": np.array([model.lo[lft]]), "f_hi_hz": np.array([model.hi[rgt - 1]]),
+            "merit": np.array([opt.merit]), "bound": np.array([_BOUNDS.index(opt.bound)])}
+
+
+def _rank_plan(target, found, j, budget_h, span, measure, case, noise, options):
+    """The SearchPlan of a funded target from the arrays of :func:`_plan_one`."""
+    case_target = _case_target(target, case)
+    base = _base_setup(options["band"], options["band_width"], options["detectors"],
+                       options["lattice"], options["braking_index"],
+                       options["cost_coherent"], options["cost_semicoherent"],
+                       options["duty_factor"])
+    setup = base.replace(t_seg=(float(found["t_s"][j]) / 86400.0) << u.day,
+                         n_seg=int(found["n"][j]),
+                         mismatch_coarse=float(found["mu_c"][j]),
+                         mismatch_fine=float(found["mu_f"][j]),
+                         band=(float(found["f_lo_hz"][j]) << u.Hz,
+                               float(found["f_hi_hz"][j]) << u.Hz))
+    opt = _Optimum(float(found["t_s"][j]), int(found["n"][j]), float(found["mu_c"][j]),
+                   float(found["mu_f"][j]), float(found["merit"][j]), np.nan, (0, 0),
+                   _BOUNDS[int(found["bound"][j])], np.nan)
+    log_h_age = math.log(age_limit(case_target.distance, case_target.age).value)
+    return _finish(case_target, setup, opt, budget_h << u.h, span, "beat-age", measure,
+                   case, log_h_age, noise, options["confidence"], options["false_alarm"],
+                   options["start"], True)
+
+
 def _n_grid(span_s, t_min_s, n_seg_max):
     """Stage-1 numbers of segments (all up to 30, else 30 log-spaced) and the largest N."""
     n_max = int(max(1, min(int(n_seg_max), math.floor(span_s / t_min_s * (1 + 1e-12)))))
@@ -1106,7 +1156,9 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
     budget_steps : int
         ``K``: the allocation grid is ``k total_budget / K``, ``k = 0..K``.
     measure : {'width', 'integral'}
-        Beat-age measure of the figure of merit.
+        Beat-age measure of the figure of merit (default ``'integral'``: the width
+        saturates once a target's whole allowed range beats its limit, and then no
+        longer tells targets apart).
     case : {'pessimistic', 'nominal', 'optimistic'}
         Distance/age case of the figure of merit (default pessimistic: ``d_max``,
         ``age_max``).
@@ -1153,6 +1205,10 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
         raise InputError(f"measure must be one of {', '.join(MEASURES)}", value=measure)
     for t in targets:
         _case_values(t, case)
+    span_s = _positive_time(span, "span")
+    if span_s < _positive_time(t_seg_min, "t_seg_min"):
+        raise InputError(f"span {u.Quantity(span)} is shorter than one segment "
+                         f"(t_seg_min = {u.Quantity(t_seg_min)})", value=str(span))
     options = dict(band=band, band_width=band_width, detectors=detectors, lattice=lattice,
                    braking_index=braking_index, cost_coherent=cost_coherent,
                    cost_semicoherent=cost_semicoherent, duty_factor=duty_factor,
@@ -1169,19 +1225,27 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
     order = sorted(range(len(targets)), key=lambda i: (-out["merit_case"][i],
                                                        -out["merit_optimistic"][i],
                                                        names[i]))
+    funded = [i for i in range(len(targets)) if plans and units[i] > 0]
     built = {}
+    if funded:
+        plan_func = functools.partial(_plan_one, targets=targets, funded=funded,
+                                      budgets_h=[total.value * units[i] / steps
+                                                 for i in funded],
+                                      noise=noise, span=span, measure=measure, case=case,
+                                      options=options)
+        found = map_chunks(plan_func, len(funded), chunk_size=1, executor=executor, seed=0,
+                           progress=progress, desc="plans")
+        for j, i in enumerate(funded):
+            if not found["ok"][j]:
+                continue
+            built[targets[i].name] = _rank_plan(targets[i], found, j,
+                                                total.value * units[i] / steps, span,
+                                                measure, case, noise, options)
     rows = []
     for i in order:
         t = targets[i]
         alloc = total.value * units[i] / steps
-        plan = None
-        if plans and units[i] > 0:
-            try:
-                plan = plan_search(t, noise, alloc << u.h, span, "beat-age", measure=measure,
-                                   case=case, **options)
-                built[t.name] = plan
-            except ComputationError:
-                plan = None
+        plan = built.get(t.name)
         opt_lim, pes_lim = limit_range((t.distance_min, t.distance_max),
                                        (t.age_min, t.age_max))
         s = plan.setup if plan else None
