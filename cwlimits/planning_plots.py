@@ -14,9 +14,14 @@ __all__ = ["plot_merit_vs_budget", "plot_planned_strain", "plot_cost_depth"]
 
 
 def _style(k):
+    """Colour, line style and marker of series k; past the palette, shift the styles."""
     from .plots import PALETTE
 
-    return PALETTE[k % len(PALETTE)]
+    colour, _, _ = PALETTE[k % len(PALETTE)]
+    turn = k // len(PALETTE)
+    _, style, _ = PALETTE[(k + turn) % len(PALETTE)]
+    _, _, marker = PALETTE[(k + 2 * turn) % len(PALETTE)]
+    return colour, style, marker
 
 
 def plot_merit_vs_budget(ranking, title=None):
@@ -41,6 +46,7 @@ def plot_merit_vs_budget(ranking, title=None):
                 lw=1, label=name)
     ax.set_xscale("log")
     ax.set_xlabel("computing budget [core-hours]")
+    ax.tick_params(which="both", labelsize=6)
     measure = ranking.assumptions.get("figure_of_merit", "figure of merit")
     ax.set_ylabel("figure of merit [Hz]" + (" (beat-age width)" if "width" in
                                             measure.split(":")[0] else ""))
@@ -68,25 +74,28 @@ def plot_planned_strain(plans, title=None):
     plans = [p for p in plans if p.table is not None]
     if not plans:
         raise InputError("no evaluated plans to plot (plans need exact=True)")
-    fig, ax = new_figure(height_ratio=0.85)
+    fig, ax = new_figure(height_ratio=1.1)
     for k, plan in enumerate(plans):
         colour, style, marker = _style(k)
         table = plan.table
         f = table["f_mid"].to_value(u.Hz)
         ax.plot(f, table["h0"].to_value(u.one), color=colour, ls=style, lw=1.2,
-                label=f"{plan.target}: planned $h_0$")
+                label=plan.target)
         lo = float(table["h0_age_pessimistic"][0].value)
         hi = float(table["h0_age_optimistic"][0].value)
-        ax.fill_between(f, lo, hi, color=colour, alpha=0.15, lw=0)
-        ax.plot(f[[0, -1]], [plan.h_age.value] * 2, color=colour, ls="none",
-                marker=marker, ms=3, label=f"{plan.target}: $h_{{age}}$ ({plan.case}; "
-                                           "band: range)")
+        ax.fill_between(f, lo, hi, color=colour, alpha=0.12, lw=0)
+        ax.plot(f[[0, -1]], [plan.h_age.value] * 2, color=colour, ls=":", lw=0.8,
+                marker=marker, ms=3)
+    ax.plot([], [], color="0.3", ls="-", lw=1.2, label=r"lines: planned $h_0$")
+    ax.plot([], [], color="0.3", ls=":", marker="o", ms=3,
+            label=r"dotted, markers: $h_{age}$ of the case; shading: its range")
     ax.set_xscale("log")
     ax.set_yscale("log")
     ax.set_xlabel("gravitational-wave frequency [Hz]")
     ax.set_ylabel(r"$h_0$ (dimensionless strain)")
     ax.tick_params(which="both", labelsize=6)
-    ax.legend(fontsize=5, loc="best")
+    ax.legend(fontsize=4.5, loc="upper center", ncol=2, bbox_to_anchor=(0.5, -0.18),
+              frameon=False)
     if title:
         ax.set_title(title, fontsize=8)
     return fig
@@ -126,6 +135,7 @@ def plot_cost_depth(plans, title=None):
     ax.set_yscale("log")
     ax.set_xlabel("computing cost [core-hours]")
     ax.set_ylabel(r"geometric-mean sensitivity depth [Hz$^{-1/2}$]")
+    ax.tick_params(which="both", labelsize=6)
     ax.grid(True, which="both", alpha=0.3)
     ax.legend(fontsize=6, loc="best")
     if title:
