@@ -750,6 +750,9 @@ class SearchPlan:
         (the window covers the whole allowed range) or ``'none'``.
     h_age : Quantity ['dimensionless']
         Age-based limit of the case.
+    distance, age : Quantity
+        Distance and age of the case; ``age`` sets the parameter space, so
+        ``computing_cost(plan.setup, plan.age)`` is ``plan.cost``.
     table : QTable or None
         :func:`cwlimits.strain_sensitivity` of the plan (None with ``exact=False``).
     assumptions : dict
@@ -767,6 +770,8 @@ class SearchPlan:
     merit_planned: u.Quantity
     bound: str
     h_age: u.Quantity
+    distance: u.Quantity = None
+    age: u.Quantity = None
     table: QTable | None = None
     assumptions: dict = field(default_factory=dict)
 
@@ -959,7 +964,8 @@ def _finish(case_target, setup, opt, budget, span, objective, measure, case, log
     return SearchPlan(target=getattr(case_target, "name", "target"), setup=setup,
                       objective=objective, measure=measure, case=case, budget=budget,
                       span=u.Quantity(span), cost=cost, merit=merit, merit_planned=planned,
-                      bound=opt.bound, h_age=h_age, table=table, assumptions=assumptions)
+                      bound=opt.bound, h_age=h_age, distance=d, age=age, table=table,
+                      assumptions=assumptions)
 
 
 # ---------------------------------------------------------------------------------------

@@ -367,6 +367,16 @@ def test_plan_file_round_trip_through_cli(tmp_path, target, demo_catalogue_path_
     assert f"total cost: {plan.cost.to_value(u.h):.2e}" in out
 
 
+def test_case_plan_cost_is_reproduced_with_the_case_age(target):
+    # an optimistic/pessimistic plan is for that case's age: computing_cost with it
+    # reproduces the plan's cost exactly, within the budget and the span
+    plan = P.plan_search(target, NOISE, "50 h", SPAN, "beat-age", case="pessimistic",
+                         exact=False, **OPTIONS)
+    assert plan.age == target.age_max and plan.distance == target.distance_max
+    assert computing_cost(plan.setup, plan.age).total == plan.cost <= 50 * u.h
+    assert plan.setup.n_seg * plan.setup.t_seg <= SPAN * (1 + 1e-12)
+
+
 def test_rank_cli_writes_table_plans_and_plots(tmp_path, capsys):
     cat = _twin_catalogue(tmp_path / "twins.csv", 0.5, 5.0)
     del cat
