@@ -29,3 +29,13 @@ def write_file(tmp_path):
             path.write_text(text, encoding="utf-8")
         return path
     return write
+
+
+@pytest.fixture(scope="session")
+def demo_report(tmp_path_factory):
+    """The report of one ``cwlimits demo`` run, shared by the tests that inspect it."""
+    from cwlimits.cli import main
+
+    out = tmp_path_factory.mktemp("demo") / "report"
+    assert main(["-q", "demo", "--out-dir", str(out)]) == 0
+    return out

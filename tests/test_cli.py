@@ -70,14 +70,6 @@ def test_convert_table(tmp_path, write_file):
     assert alpha[1].value == pytest.approx(alpha[0].value / 8)
 
 
-def test_demo_writes_tables(tmp_path, capsys):
-    assert main(["demo", "--out-dir", str(tmp_path / "rep")]) == 0
-    assert "FICTIONAL" in capsys.readouterr().out
-    first = (tmp_path / "rep" / "indirect_limits.csv").read_text()
-    assert main(["-q", "demo", "--out-dir", str(tmp_path / "rep")]) == 0
-    assert (tmp_path / "rep" / "indirect_limits.csv").read_text() == first
-
-
 BAD_CATALOGUES = {
     "missing_column": "name,ra,dec,age\nA,1,2,100\n",
     "bad_coordinate": "name,ra,dec,distance,age\nA,north,2,1,100\n",

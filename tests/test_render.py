@@ -12,8 +12,6 @@ from pathlib import Path
 
 import pytest
 
-from cwlimits.cli import main
-
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 
 
@@ -31,10 +29,8 @@ def screenshot(index_html, png):
 
 
 @pytest.mark.skipif(CHROMIUM is None, reason="headless Chromium is not installed")
-def test_demo_report_renders_in_chromium(tmp_path):
-    out = tmp_path / "demo"
-    assert main(["-q", "demo", "--out-dir", str(out)]) == 0
-    png = screenshot(out / "index.html", tmp_path / "shot.png")
+def test_demo_report_renders_in_chromium(demo_report, tmp_path):
+    png = screenshot(demo_report / "index.html", tmp_path / "shot.png")
     data = png.read_bytes()
     # a PNG file (signature from the PNG specification, ISO/IEC 15948) of real content
     assert data[:8] == b"\x89PNG\r\n\x1a\n" and len(data) > 20000

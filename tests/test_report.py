@@ -1,5 +1,6 @@
 import html.parser
 import json
+import pathlib
 
 import astropy.units as u
 import numpy as np
@@ -96,16 +97,49 @@ def test_strain_curves_axes():
     assert len(ax.get_legend().get_texts()) == 3
 
 
-def test_demo_report_complete_and_reproducible(tmp_path):
-    out = tmp_path / "demo"
-    assert main(["-q", "demo", "--out-dir", str(out)]) == 0
+def test_demo_report_complete_and_reproducible(demo_report, tmp_path, capsys):
+    out = demo_report
     names = sorted(p.name for p in out.iterdir())
+    # issue 8: every table as CSV and ECSV, every figure as PNG and SVG, the run record
     for required in ("index.html", "run_record.json", "indirect_limits.csv",
-                     "indirect_limits.ecsv", "indirect_limits.png", "indirect_limits.svg"):
-        assert required in names
+                     "indirect_limits.ecsv", "indirect_limits.png", "indirect_limits.svg",
+                     "ranking.csv", "ranking.ecsv", "merit_vs_budget.png", "planned_strain.svg"):
+        assert required in names, required
+    for stem in {p.stem for p in out.glob("*.csv")}:
+        assert (out / f"{stem}.ecsv").is_file()
+    for stem in {p.stem for p in out.glob("*.png")}:
+        assert (out / f"{stem}.svg").is_file()
+    assert any(n.startswith("limits_") and n.endswith(".csv") for n in names)
+    assert any(n.startswith("posterior_") and n.endswith(".png") for n in names)
+    assert any(n.startswith("plan_") and n.endswith(".toml") for n in names)
     for link in _parse(out / "index.html").links:
         assert (out / link).is_file()
-    first = {p.name: p.read_bytes() for p in out.iterdir() if p.suffix in (".csv", ".ecsv")}
-    assert main(["-q", "demo", "--out-dir", str(out)]) == 0
-    second = {p.name: p.read_bytes() for p in out.iterdir() if p.suffix in (".csv", ".ecsv")}
-    assert first == second
+    text = (out / "index.html").read_text()
+    assert "SIMULATED" in text and "not a detection claim" in text
+    record = json.loads((out / "run_record.json").read_text())
+    assert record["seed"] == 2026 and len(record["inputs"]["catalogue"]["sha256"]) == 64
+    # a second run with the same seed writes identical tables
+    again = tmp_path / "again"
+    assert main(["demo", "--out-dir", str(again)]) == 0
+    assert "FICTIONAL" in capsys.readouterr().out
+    for table in list(out.glob("*.csv")) + list(out.glob("*.ecsv")):
+        assert (again / table.name).read_bytes() == table.read_bytes(), table.name
+
+
+def test_plan_files_of_the_report_reproduce_its_numbers(demo_report):
+    # issue 8: the report's numbers equal those of the individual commands
+    import astropy.units as u
+
+    from cwlimits.sensitivity import strain_sensitivity
+    from cwlimits.setup import load_setup
+
+    plan = sorted(demo_report.glob("plan_*.toml"))[0]
+    slug = plan.stem[len("plan_"):]
+    table = cwlimits.read_table(demo_report / f"sensitivity_{slug}.csv")
+    catalogue = cwlimits.load_targets(pathlib.Path(__file__).resolve().parent.parent
+                                      / "target_lists" / "demo.csv")
+    name = next(n for n in catalogue.names
+                if "".join(c if c.isalnum() else "_" for c in n).strip("_").lower() == slug)
+    again = strain_sensitivity(load_setup(plan), "advanced-fit", target=catalogue.target(name),
+                               start="2030-01-01T00:00:00")
+    assert np.allclose(table.quantity("h0", u.one), again["h0"], rtol=1e-9)
