@@ -453,3 +453,18 @@ def test_cli_catalogue_without_age(tmp_path, capsys):
     assert rc == 2
     assert "age" in capsys.readouterr().err
     assert not out.exists()
+
+
+def test_plot_axes_have_units_and_log_scales(tmp_path, target):
+    # house style (common practice): labelled axes with units, log axes, a legend
+    from cwlimits.planning_plots import plot_cost_depth, plot_planned_strain
+
+    plans = [P.plan_search(target, NOISE, b * u.h, SPAN, **OPTIONS) for b in (10, 300)]
+    for fig in (plot_cost_depth(plans), plot_planned_strain(plans)):
+        ax = fig.axes[0]
+        assert ax.get_xscale() == "log" and ax.get_yscale() == "log"
+        assert "[" in ax.get_xlabel() and ax.get_ylabel()
+        assert ax.get_legend() is not None
+    with pytest.raises(InputError, match="depth"):
+        plot_cost_depth([P.plan_search(target, NOISE, "10 h", SPAN, "beat-age",
+                                       exact=False, **OPTIONS)])
