@@ -459,7 +459,7 @@ def _best_windows(cost, weight, margin, budget_h):
     left = np.zeros(rows, int)
     right = np.zeros(rows, int)
     for i in range(rows):
-        r = np.searchsorted(csum[i], csum[i, :-1] + budget_h * (1 + 1e-12), side="right") - 1
+        r = np.searchsorted(csum[i], csum[i, :-1] + budget_h, side="right") - 1
         r = np.minimum(r, nb)
         gain = np.where(r > np.arange(nb), wsum[i, r] - wsum[i, :-1], -1.0)
         j = int(np.argmax(gain))
@@ -670,6 +670,9 @@ class _BeatSearch:
                 np.array([mf_b]), self.log_h_age, self.measure)[2][0], -np.inf)
             lft = int(np.argmax(margin))
             rgt = lft + 1
+        # prefix-sum differences round differently from a direct sum: never over budget
+        while rgt - lft > 1 and float(cost[0, lft:rgt].sum()) > self.budget_h:
+            rgt -= 1
         window_cost = float(cost[0, lft:rgt].sum())
         nb = cost.shape[1]
         neighbours = [cost[0, lft - 1]] if lft > 0 else []
