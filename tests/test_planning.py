@@ -293,6 +293,7 @@ def test_allocation_equals_brute_force(seed):
                                                          rng.random((m, k)), axis=1)],
                             axis=1)
     units, total = P.allocate_budget(merits)
+    # brute-force enumeration of every split of the K units (the reference)
     best = max((sum(merits[i, c[i]] for i in range(m)), c)
                for c in itertools.product(range(k + 1), repeat=m) if sum(c) <= k)
     assert total == pytest.approx(best[0], rel=1e-12)
@@ -312,6 +313,8 @@ def _twin_catalogue(path, d_near, d_far):
 
 
 def test_closer_twin_ranks_first_and_order_is_stable(tmp_path):
+    # same sky, age and search: h_age ∝ 1/d (Wette et al. 2008, arXiv:0802.3332, eq. 6),
+    # so the near twin's limit lies 10x higher above the same predicted h0
     cat = _twin_catalogue(tmp_path / "twins.csv", 0.5, 5.0)
     kw = dict(OPTIONS, budget_steps=4, plans=False)
     first = P.rank_targets(cat, NOISE, "400 h", SPAN, **kw)
@@ -339,6 +342,8 @@ def _cli_band():
 def test_plan_file_round_trip_through_cli(tmp_path, target, demo_catalogue_path_module,
                                           capsys):
     cat = str(demo_catalogue_path_module)
+    # the plan file must reproduce the planned numbers through the other commands, bit
+    # for bit (the setup-file contract of cwlimits.setup)
     plan_path = tmp_path / "plan.toml"
     rc = main(["plan", "--catalogue", cat, "--target", "Fict Quill", "--budget", "300 h",
                "--span", "40 day", "--noise", NOISE, "--out", str(plan_path),
