@@ -3,13 +3,12 @@
 Run:  /work/venv/bin/python benchmarks/planning_bench.py [--quick] [--json FILE]
 
 Baseline (measured in the same run): one :func:`cwlimits.strain_sensitivity` call for a
-setup of the same band (450 bands of 1 Hz, 50-500 Hz; 40 bands with --quick).  Then:
-``plan_search`` of one demo target (depth objective; then beat-age), and ``rank_targets``
-of the whole demo catalogue (fictional targets, ``target_lists/demo.csv``) with the budget
-split over a grid, serially and with 2 worker processes (--quick: 10 bands, three targets,
-no worker pool).  Figures are ratios to the
-baseline; the process-level caches of the planner are cleared before each timing.  No
-timing is asserted.
+setup of the same band (450 bands of 1 Hz, 50-500 Hz).  Then: ``plan_search`` of one demo
+target (depth objective; then beat-age), and ``rank_targets`` of the whole demo catalogue
+(fictional targets, ``target_lists/demo.csv``) with the budget split over a grid, serially
+and with 2 worker processes.  ``--quick``: 10 bands, three targets, no worker pool (a smoke
+run of every step).  Figures are ratios to the baseline; the process-level caches of the
+planner are cleared before each timing.  No timing is asserted.
 """
 
 import argparse
