@@ -473,3 +473,17 @@ def test_plot_axes_have_units_and_log_scales(tmp_path, target):
     with pytest.raises(InputError, match="depth"):
         plot_cost_depth([P.plan_search(target, NOISE, "10 h", SPAN, "beat-age",
                                        exact=False, **OPTIONS)])
+
+
+def test_rank_with_workers_gives_the_same_numbers(tmp_path):
+    # map_chunks promises identical results on any executor (executor module contract)
+    from cwlimits.executor import make_executor
+
+    cat = _twin_catalogue(tmp_path / "twins.csv", 1.0, 3.0)
+    kw = dict(OPTIONS, budget_steps=3)
+    serial = P.rank_targets(cat, NOISE, "200 h", SPAN, **kw)
+    with make_executor(workers=2) as executor:
+        pooled = P.rank_targets(cat, NOISE, "200 h", SPAN, executor=executor, **kw)
+    np.testing.assert_array_equal(pooled.merits, serial.merits)
+    for col in ("merit", "budget_allocated", "merit_allocated_exact", "t_seg", "n_seg"):
+        np.testing.assert_array_equal(pooled.table[col], serial.table[col])
