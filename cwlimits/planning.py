@@ -27,9 +27,12 @@ only through ``N``, the mismatches, the dimensions of the two lattices and the n
 trials; ``ln a`` is tabulated once per target on a grid of ``(ln N, ln mu_coarse,
 ln mu_fine, log10 trials)`` and interpolated linearly.  The search is
 
-1. a vectorised grid over ``N`` and the mismatches (and ``T`` for beat-age); for depth
-   the segment length is the largest that fits the budget and the span (cost and depth
-   both grow with ``T`` at fixed ``N``), found by bisection in ``ln T``;
+1. a vectorised grid over ``N`` and the mismatches (both searched in [0.03, 0.5]), and
+   ``T`` for beat-age (absolute lattice ``t_seg_min 2^(j/2)``); for depth the segment
+   length is the largest that fits the budget and the span (cost and depth both grow with
+   ``T`` at fixed ``N``), found by bisection in ``ln T``.  The fast model does not depend
+   on the budget or the span (antenna averages over one year), so the feasible sets nest
+   and this stage never gets worse with more budget or span;
 2. :func:`scipy.optimize.minimize` (Nelder-Mead, bounded) from the best grid point on a
    relaxation with continuous ``N`` (the figure of merit interpolated linearly in
    ``ln N`` between the integer neighbours), then the integer neighbours of the optimum
