@@ -81,6 +81,15 @@ from .noise import (  # noqa: E402
     read_timeseries,
 )
 from .parameter_space import AgeBasedSpace, BoxSpace  # noqa: E402
+from .planning import (  # noqa: E402
+    PowerLawModel,
+    Ranking,
+    SearchPlan,
+    allocate_budget,
+    optimise_setup,
+    plan_search,
+    rank_targets,
+)
 from .response import (  # noqa: E402
     Detector,
     antenna_patterns,
@@ -111,7 +120,7 @@ from .synthetic import (  # noqa: E402
 )
 from .tables import read_table, write_table  # noqa: E402
 from .targets import Target, TargetCatalogue, load_targets  # noqa: E402
-from .validation import injection_campaign  # noqa: E402
+from .validation import CampaignResult, injection_campaign  # noqa: E402
 
 __all__ = [
     "__version__",
@@ -198,6 +207,15 @@ __all__ = [
     "noise_levels",
     "measure_unit_costs",
     "injection_campaign",
+    "CampaignResult",
+    # planning
+    "plan_search",
+    "rank_targets",
+    "SearchPlan",
+    "Ranking",
+    "allocate_budget",
+    "optimise_setup",
+    "PowerLawModel",
     # upper limits
     "upper_limits",
     "band_posterior",

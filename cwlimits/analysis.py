@@ -14,6 +14,8 @@ versions, seed, input hashes) that reruns the same report exactly.  Every step c
 same public functions as the individual commands, so the numbers are theirs.
 """
 
+from dataclasses import replace
+
 import astropy.units as u
 import numpy as np
 
@@ -70,7 +72,7 @@ def run_report(config, *, echo=print, progress=None, simulate=False):
     sensitivities = {}
     for name, plan in plans.items():
         sensitivities[name] = plan["table"] if plan["table"] is not None else \
-            strain_sensitivity(plan["setup"], noise, target=catalogue.target(name),
+            strain_sensitivity(plan["setup"], noise, target=plan["target"],
                                confidence=config["statistics.confidence"],
                                false_alarm=config["statistics.false_alarm"],
                                start=config["data.start"])
@@ -80,7 +82,7 @@ def run_report(config, *, echo=print, progress=None, simulate=False):
     results = {name: load_results(path) for name, path in config["results"].items()}
     if simulate:
         for name, plan in plans.items():
-            model = signal_model(plan["setup"], noise, catalogue.target(name),
+            model = signal_model(plan["setup"], noise, plan["target"],
                                  start=config["data.start"])
             results[name] = simulate_results(model, named_seed(seed, f"simulate:{name}"))
     limits = {}
@@ -90,7 +92,7 @@ def run_report(config, *, echo=print, progress=None, simulate=False):
                               "analysis (give search.setup, or raise planning.max_targets)",
                               file=str(config.source))
         limits[name] = upper_limits(
-            res, plans[name]["setup"], catalogue.target(name), config["limits.method"],
+            res, plans[name]["setup"], plans[name]["target"], config["limits.method"],
             config["statistics.confidence"], rng=named_seed(seed, f"limits:{name}"),
             noise=noise, prior=config["limits.prior"],
             distance_prior=config["limits.distance_prior"],
@@ -110,9 +112,9 @@ def run_report(config, *, echo=print, progress=None, simulate=False):
         _indirect_section(rep, indirect)
         if ranking is not None:
             _ranking_section(rep, ranking, plans)
-        _plan_sections(rep, catalogue, plans, sensitivities)
+        _plan_sections(rep, plans, sensitivities)
         for name, table in limits.items():
-            _limits_section(rep, config, catalogue.target(name), plans[name]["setup"],
+            _limits_section(rep, config, plans[name]["target"], plans[name]["setup"],
                             results[name], table, noise, simulated=simulate)
         rep.assumptions(_assumptions(config), heading="Assumptions of the whole analysis")
         record = {"configuration": config.resolved(), "seed": seed,
@@ -140,19 +142,25 @@ def _plans(config, catalogue, noise, echo):
         setup = load_setup(config["search.setup"])
         chosen = catalogue.names[:limit]
         echo(f"fixed setup {config['search.setup']} for {', '.join(chosen)}")
-        return None, {name: {"setup": setup, "table": None, "plan": None}
-                      for name in chosen}
+        return None, {name: {"setup": setup, "table": None, "plan": None,
+                             "target": catalogue.target(name)} for name in chosen}
     ranking = rank_targets(
         catalogue, noise, config["planning.budget"], config["data.span"],
         band=(config["search.f_min"], config["search.f_max"]),
         band_width=config["search.band_width"], detectors=tuple(config["data.detectors"]),
         duty_factor=config["data.duty_factor"], confidence=config["statistics.confidence"],
-        false_alarm=config["statistics.false_alarm"], start=config["data.start"])
+        false_alarm=config["statistics.false_alarm"], start=config["data.start"],
+        case=config["planning.case"], budget_steps=config["planning.budget_steps"])
     plans = {}
     for name in ranking.table["name"]:
         if name in ranking.plans and len(plans) < limit:
             plan = ranking.plans[name]
-            plans[name] = {"setup": plan.setup, "table": plan.table, "plan": plan}
+            # The plan was made for the case's distance and age (the age also sets the
+            # searched parameter space), so everything about it uses that target.
+            case_target = replace(catalogue.target(name), distance=plan.distance,
+                                  age=plan.age)
+            plans[name] = {"setup": plan.setup, "table": plan.table, "plan": plan,
+                           "target": case_target}
     echo(f"ranked {len(catalogue)} targets; planned searches of "
          f"{', '.join(plans) or 'none'} within {config['planning.budget']:.4g}")
     return ranking, plans
@@ -197,24 +205,26 @@ def _ranking_section(rep, ranking, plans):
                            "age-based limit band")
 
 
-def _plan_sections(rep, catalogue, plans, sensitivities):
+def _plan_sections(rep, plans, sensitivities):
     from .plots import plot_sensitivity
 
     for name, plan in plans.items():
-        setup = plan["setup"]
-        target = catalogue.target(name)
+        setup, target = plan["setup"], plan["target"]
         slug = _slug(name)
         table = sensitivities[name]
-        cost = computing_cost(setup, target)
+        cost = plan["plan"].cost if plan["plan"] is not None else \
+            computing_cost(setup, target).total
+        case = (f" for the {plan['plan'].case} distance {target.distance:.3g} and age "
+                f"{target.age:.4g}" if plan["plan"] is not None else "")
         rep.section(f"Search of {name}",
                     f"{setup.n_seg} segments of {setup.t_seg.to(u.day):.4g}, band "
                     f"{setup.f_min:.4g} to {setup.f_max:.4g}, detectors "
                     f"{', '.join(setup.detectors)}; computing cost "
-                    f"{cost.total.to(u.h).value:.3g} core-hours"
+                    f"{cost.to(u.h).value:.3g} core-hours"
                     + (f", bounded by the {plan['plan'].bound}" if plan["plan"] else "")
                     + f". The setup file plan_{slug}.toml reproduces these numbers with "
-                      "'cwlimits sensitivity --setup' and 'cwlimits cost --setup'.")
-        rep.file(f"plan_{slug}.toml", setup.to_toml)
+                      f"'cwlimits sensitivity --setup' and 'cwlimits cost --setup'{case}.")
+        rep.file(f"plan_{slug}.toml", setup.to_toml, caption=f"Setup file of {name}")
         rep.table(f"sensitivity_{slug}", table,
                   caption=f"Predicted sensitivity per band for {name}")
         rep.figure(f"sensitivity_{slug}", plot_sensitivity(table, title=name),

@@ -48,6 +48,10 @@ CONFIG_KEYS = {
     "planning.objective": ("choice", ("beat-age", "depth"), "beat-age",
                            "what the plans maximise"),
     "planning.max_targets": ("int", None, 3, "at most this many targets get a plan"),
+    "planning.budget_steps": ("int", None, 12,
+                              "grid steps of the budget split (exact dynamic programme)"),
+    "planning.case": ("choice", ("pessimistic", "nominal", "optimistic"), "pessimistic",
+                      "distance and age the ranking and the plans assume"),
     "statistics.false_alarm": ("float", None, 0.01, "false-alarm probability per band"),
     "statistics.confidence": ("float", None, 0.95, "confidence of limits and sensitivity"),
     "limits.method": ("choice", ("bayes", "frequentist"), "bayes", "upper-limit method"),
@@ -213,6 +217,9 @@ def _check(path, values):
     if not 0 < values["search.f_min"] < values["search.f_max"]:
         _fail(path, "search.f_min", "must be positive and below search.f_max",
               str(values["search.f_min"]))
+    if values["planning.budget_steps"] < 1:
+        _fail(path, "planning.budget_steps", "must be at least 1",
+              values["planning.budget_steps"])
     if values["planning.max_targets"] < 1:
         _fail(path, "planning.max_targets", "must be at least 1",
               values["planning.max_targets"])
