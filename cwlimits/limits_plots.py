@@ -86,7 +86,8 @@ def plot_posterior(h0, density, limit=None, title=None, emcee_samples=None):
     ax.xaxis.get_offset_text().set_fontsize(6)
     ax.yaxis.get_offset_text().set_fontsize(6)
     ax.set_xlabel(r"$h_0$ (dimensionless strain)")
-    ax.set_ylabel(r"posterior density $p(h_0 \mid 2\mathcal{F}^*)$ (per unit $h_0$)")
+    ax.set_ylabel(r"posterior density $p(h_0 \mid 2\mathcal{F}^*)$ "
+                  r"[per unit $h_0$, dimensionless]")
     ax.legend(fontsize=6, loc="best")
     if title:
         ax.set_title(title, fontsize=8)
