@@ -47,12 +47,12 @@ from .errors import InputError
 from .lattices import get_lattice
 from .metric import _coherent_metric_scaled, _segments, _semicoherent_metric_scaled
 from .parameter_space import VOLUME_UNITS, AgeBasedSpace, ParameterSpace
+from .plots import PLOT_SUFFIXES
 
 __all__ = ["count_templates", "computing_cost", "CostEstimate", "scan_cost",
            "plot_cost_scan", "resolve_space", "SCAN_QUANTITIES", "PLOT_SUFFIXES"]
 
 #: File types :func:`plot_cost_scan` writes.
-PLOT_SUFFIXES = (".png", ".pdf", ".svg")
 
 #: What :func:`scan_cost` can scan.
 SCAN_QUANTITIES = ("t_seg", "n_seg")
@@ -357,7 +357,7 @@ def plot_cost_scan(scan, quantity, path, *, title=None):
     """
     from pathlib import Path
 
-    from .plots import save_figure
+    from .plots import save_plot
 
     path = Path(path)
     if path.suffix.lower() not in PLOT_SUFFIXES:
@@ -392,8 +392,4 @@ def plot_cost_scan(scan, quantity, path, *, title=None):
     if title:
         ax.set_title(title)
     fig.tight_layout()
-    try:
-        save_figure(fig, path, formats=(path.suffix.lower().lstrip("."),))
-    finally:
-        plt.close(fig)
-    return path
+    return save_plot(fig, path)

@@ -13,9 +13,13 @@ from pathlib import Path
 
 import numpy as np
 
-__all__ = ["COLUMN_WIDTH_IN", "PALETTE", "new_figure", "save_figure", "tidy_log_axes",
+__all__ = ["COLUMN_WIDTH_IN", "PALETTE", "PLOT_SUFFIXES", "new_figure", "save_figure",
+           "save_plot", "tidy_log_axes",
            "plot_indirect_limits",
            "plot_strain_curves", "plot_sensitivity"]
+
+#: File types a ``--plot FILE`` may have (matplotlib picks the format from the suffix).
+PLOT_SUFFIXES = (".png", ".svg", ".pdf")
 
 #: Width of one journal column, inches (common practice: 3.3-3.5 in).
 COLUMN_WIDTH_IN = 3.4
@@ -91,6 +95,18 @@ def save_figure(fig, path, formats=("png", "svg")):
             raise
         written.append(target)
     return written
+
+
+def save_plot(fig, path):
+    """Save ``fig`` to ``path`` in the format of its suffix (atomically) and close it."""
+    import matplotlib.pyplot as plt
+
+    path = Path(path)
+    try:
+        save_figure(fig, path, formats=(path.suffix.lower().lstrip("."),))
+    finally:
+        plt.close(fig)
+    return path
 
 
 def plot_indirect_limits(table, title=None):

@@ -8,6 +8,7 @@ import numpy as np
 
 from ..errors import InputError
 from ..noise import DEFAULT_NOISE_MODEL
+from ..plots import PLOT_SUFFIXES
 from ..results import load_results
 from ..sensitivity import DEFAULT_START
 from ..tables import write_table
@@ -32,7 +33,6 @@ from ._setup_args import add_setup_args, build_setup
 
 ORDER = 60
 
-PLOT_SUFFIXES = (".png", ".svg", ".pdf")
 
 
 def register(subparsers, common):

@@ -19,9 +19,10 @@ from ._common import (
 
 __all__ = ["ORDER", "register", "run", "add_plan_args", "plan_options"]
 
+from ..plots import PLOT_SUFFIXES
+
 ORDER = 70
 
-PLOT_SUFFIXES = (".png", ".svg", ".pdf")
 
 
 def add_plan_args(parser):

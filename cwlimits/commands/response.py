@@ -12,6 +12,7 @@ from astropy.table import QTable
 
 from .. import response as resp
 from ..errors import InputError
+from ..plots import PLOT_SUFFIXES
 from ._common import (
     add_parser,
     add_target_args,
@@ -26,7 +27,6 @@ from ._common import (
 ORDER = 35
 
 _QUANTILES = (0.05, 0.10, 0.25, 0.50, 0.75, 0.90, 0.95)
-_PLOT_SUFFIXES = (".png", ".pdf", ".svg")
 
 
 def register(subparsers, common):
@@ -116,8 +116,8 @@ def _check_plot_path(path):
     if path is None:
         return None
     path = Path(path)
-    if path.suffix.lower() not in _PLOT_SUFFIXES:
-        raise InputError(f"plot file must end in {', '.join(_PLOT_SUFFIXES)}",
+    if path.suffix.lower() not in PLOT_SUFFIXES:
+        raise InputError(f"plot file must end in {', '.join(PLOT_SUFFIXES)}",
                          file=str(path))
     if path.is_dir():
         raise InputError("plot path is a folder", file=str(path))

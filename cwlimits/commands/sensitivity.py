@@ -4,6 +4,7 @@ import astropy.units as u
 import numpy as np
 
 from ..noise import DEFAULT_NOISE_MODEL
+from ..plots import PLOT_SUFFIXES
 from ..sensitivity import DEFAULT_START, strain_sensitivity
 from ..tables import write_table
 from ._common import (
@@ -21,7 +22,6 @@ from ._setup_args import add_setup_args, build_setup
 
 ORDER = 50
 
-PLOT_SUFFIXES = (".png", ".svg", ".pdf")
 
 
 def register(subparsers, common):

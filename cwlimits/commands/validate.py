@@ -39,9 +39,10 @@ from ._execution import (
 
 __all__ = ["ORDER", "register", "run"]
 
+from ..plots import PLOT_SUFFIXES
+
 ORDER = 80
 
-PLOT_SUFFIXES = (".png", ".svg", ".pdf")
 
 _EXAMPLES = [
     "cwlimits validate --catalogue target_lists/demo.csv --target 'Fict Ember' "

@@ -41,7 +41,7 @@ def plot_asd(sources, path, f_min=None, f_max=None, *, n_points=1000, title=None
     """
     from pathlib import Path
 
-    from ..plots import save_figure
+    from ..plots import save_plot
 
     path = Path(path)
     if path.suffix.lower() not in _SUFFIXES:
@@ -78,8 +78,4 @@ def plot_asd(sources, path, f_min=None, f_max=None, *, n_points=1000, title=None
     if title:
         ax.set_title(title)
     fig.tight_layout()
-    try:
-        save_figure(fig, path, formats=(path.suffix.lower().lstrip("."),))
-    finally:
-        plt.close(fig)
-    return path
+    return save_plot(fig, path)
