@@ -115,7 +115,8 @@ def run_report(config, *, echo=print, progress=None, simulate=False):
         _plan_sections(rep, plans, sensitivities)
         for name, table in limits.items():
             _limits_section(rep, config, plans[name]["target"], plans[name]["setup"],
-                            results[name], table, noise, simulated=simulate)
+                            results[name], table, noise, simulated=simulate,
+                            sensitivity=sensitivities[name])
         rep.assumptions(_assumptions(config), heading="Assumptions of the whole analysis")
         record = {"configuration": config.resolved(), "seed": seed,
                   "inputs": {role: {"path": str(path), "sha256": file_sha256(path)}
@@ -237,7 +238,26 @@ def _plan_sections(rep, plans, sensitivities):
                                "the chosen setup is marked")
 
 
-def _limits_section(rep, config, target, setup, results, table, noise, simulated):
+def _plot_predicted_and_measured(sensitivity, limits, name):
+    """Measured h0 limits (points) and the predicted sensitivity (line) with the age band."""
+    from .plots import PALETTE, plot_strain_curves, tidy_log_axes
+
+    bands = [("age-based limit (range)", limits["h0_age_pessimistic"][0].value,
+              limits["h0_age"][0].value, limits["h0_age_optimistic"][0].value)]
+    fig = plot_strain_curves(limits["f_mid"], [("measured upper limit (points)",
+                                                limits["h0_limit"])], bands=bands,
+                             title=name)
+    ax = fig.axes[0]
+    colour, style, _ = PALETTE[1]
+    ax.plot(sensitivity["f_mid"].to_value(u.Hz), sensitivity["h0"].value, color=colour,
+            ls=style, lw=1.2, label="predicted sensitivity")
+    ax.legend(fontsize=6, loc="best")
+    tidy_log_axes(ax)
+    return fig
+
+
+def _limits_section(rep, config, target, setup, results, table, noise, simulated,
+                    sensitivity):
     from .limits_plots import plot_astrophysical_limits, plot_limits, plot_posterior
 
     slug = _slug(target.name)
@@ -260,6 +280,10 @@ def _limits_section(rep, config, target, setup, results, table, noise, simulated
     rep.table(f"limits_{slug}", table, caption=f"Upper limits per band for {target.name}")
     rep.figure(f"limits_{slug}", plot_limits(table, title=target.name),
                caption=f"Upper limits on h0 for {target.name} against its age-based limit")
+    rep.figure(f"predicted_and_measured_{slug}",
+               _plot_predicted_and_measured(sensitivity, table, target.name),
+               caption=f"Measured upper limits and predicted sensitivity of {target.name} "
+                       "against its age-based limit band")
     for k, fig in enumerate(plot_astrophysical_limits(table, title=target.name)):
         what = ("ellipticity", "r-mode amplitude")[k] if k < 2 else f"panel {k}"
         rep.figure(f"{('eps', 'alpha')[k] if k < 2 else k}_limits_{slug}", fig,
