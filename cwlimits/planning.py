@@ -1152,7 +1152,8 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
                  cost_coherent=DEFAULT_UNIT_COSTS["coherent"],
                  cost_semicoherent=DEFAULT_UNIT_COSTS["semicoherent"], duty_factor=1.0,
                  t_seg_min=1 * u.day, n_seg_max=1000, confidence=0.95, false_alarm=0.01,
-                 start=DEFAULT_START, executor=None, progress=False, plans=True):
+                 start=DEFAULT_START, executor=None, progress=False, plans=True,
+                 store=None, key=None):
     """Rank the targets of a catalogue and split a total budget across them.
 
     Parameters
@@ -1178,6 +1179,9 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
         Runs the targets in parallel (:func:`cwlimits.executor.map_chunks`).
     plans : bool
         Build (and evaluate exactly) the plan at each allocated budget.
+    store, key : optional
+        A :class:`cwlimits.store.ResultStore` and the ``(run_id, part)`` key under which
+        each target's figures are committed as it finishes (resumable ranking).
     band, detectors, band_width, lattice, braking_index, cost_coherent, cost_semicoherent
         As in :func:`plan_search` (the beat-age objective is used).
     duty_factor, t_seg_min, n_seg_max, confidence, false_alarm, start
@@ -1229,8 +1233,10 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
     func = functools.partial(_rank_one, targets=targets, noise=noise, span=span,
                              total_h=total.value, per_target_h=per.value, steps=steps,
                              measure=measure, case=case, options=options)
+    # One target per chunk; with a results store (``store``, ``key``) every finished
+    # target is committed, so an interrupted ranking resumes with the missing ones.
     out = map_chunks(func, len(targets), chunk_size=1, executor=executor, seed=0,
-                     progress=progress, desc="targets")
+                     progress=progress, desc="targets", store=store, key=key)
     merits = out["grid"]
     units, _ = allocate_budget(merits)
     names = [t.name for t in targets]

@@ -403,6 +403,26 @@ def test_rank_cli_writes_table_plans_and_plots(tmp_path, capsys):
     assert (tmp_path / "merit.png").exists() and (tmp_path / "plans.png").exists()
 
 
+def test_rank_cli_resumes_from_its_store(tmp_path, capsys):
+    # issue 9: a rerun of the same ranking takes every target from the store
+    # (cwlimits.store: one committed chunk per target) and gives the same table
+    from cwlimits.store import open_store
+
+    _twin_catalogue(tmp_path / "twins.csv", 0.5, 5.0)
+    out = tmp_path / "rank.csv"
+    argv = ["rank", str(tmp_path / "twins.csv"), "--budget", "400 h", "--span", "40 day",
+            "--noise", NOISE, "--steps", "4", "--out", str(out), "-q", *_cli_band()]
+    assert main(argv) == 0
+    first = out.read_text()
+    with open_store(tmp_path) as store:
+        computed = len(store.chunk_log())
+    assert computed == 2
+    assert main(argv) == 0
+    assert out.read_text() == first
+    with open_store(tmp_path) as store:
+        assert len(store.chunk_log()) == computed  # nothing computed twice
+
+
 def test_trade_off_plot(tmp_path, demo_catalogue_path_module):
     rc = main(["plan", "--catalogue", str(demo_catalogue_path_module), "--target",
                "Fict Quill", "--budget", "300 h", "--span", "40 day", "--noise", NOISE,

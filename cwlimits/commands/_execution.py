@@ -28,7 +28,10 @@ def _positive_int(text):
 
 
 def add_executor_args(parser, *, chunk_size=DEFAULT_CHUNK_SIZE):
-    """Add ``--workers N | --scheduler ADDRESS`` and ``--chunk-size N`` to a parser."""
+    """Add ``--workers N | --scheduler ADDRESS`` and ``--chunk-size N`` to a parser.
+
+    With ``chunk_size=None`` the command fixes its own chunks and gets no ``--chunk-size``.
+    """
     group = parser.add_argument_group("execution")
     where = group.add_mutually_exclusive_group()
     where.add_argument("--workers", type=_positive_int, default=None, metavar="N",
@@ -37,6 +40,8 @@ def add_executor_args(parser, *, chunk_size=DEFAULT_CHUNK_SIZE):
     where.add_argument("--scheduler", default=None, metavar="ADDRESS",
                        help="compute on a dask.distributed cluster, e.g. "
                             "tcp://10.0.0.5:8786 (needs: pip install 'cwlimits[dask]')")
+    if chunk_size is None:
+        return group
     group.add_argument("--chunk-size", type=_positive_int, default=chunk_size, metavar="N",
                        help=f"items per chunk of work (default {chunk_size}); part of the "
                             "run configuration: a new value starts a new run")

@@ -1,31 +1,21 @@
 """``cwlimits rank``: rank a catalogue by its best plans and split a total budget."""
 
-import argparse
 import re
+from contextlib import ExitStack
 from pathlib import Path
 
 from ..errors import InputError
-from ..executor import make_executor
 from ..planning import CASES, as_budget, rank_targets
+from ..store import file_hash, open_store
 from ..tables import write_table
 from ..targets import load_targets
 from ._common import add_parser, check_output_path, echo, format_assumptions, format_rows, sci
+from ._execution import add_executor_args, executor_from_args, progress_from_args
 from .plan import PLOT_SUFFIXES, add_plan_args, plan_options
 
 __all__ = ["ORDER", "register", "run"]
 
 ORDER = 75
-
-
-def _workers(text):
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a positive integer (got {text!r})") \
-            from None
-    if value < 1:
-        raise argparse.ArgumentTypeError(f"expected a positive integer (got {text!r})")
-    return value
 
 
 def register(subparsers, common):
@@ -55,8 +45,7 @@ def register(subparsers, common):
     parser.add_argument("--case", choices=CASES, default="pessimistic",
                         help="distance/age case of the figure of merit (default pessimistic)")
     add_plan_args(parser)
-    parser.add_argument("--workers", type=_workers, default=None, metavar="N",
-                        help="compute targets on N local processes (same results)")
+    add_executor_args(parser, chunk_size=None)
     out = parser.add_argument_group("output")
     out.add_argument("--out", metavar="FILE", help="ranking table (.csv or .ecsv)")
     out.add_argument("--plot", metavar="FILE",
@@ -66,6 +55,12 @@ def register(subparsers, common):
     out.add_argument("--plans-dir", metavar="DIR",
                      help="write the plan (setup file) of every funded target here")
     parser.set_defaults(run=run)
+
+
+def _noise_identity(noise):
+    """The noise option for the run configuration: a file by its content, else its name."""
+    path = Path(str(noise))
+    return file_hash(path) if path.is_file() else str(noise)
 
 
 def _slug(name):
@@ -86,17 +81,23 @@ def run(args):
     if args.steps < 1:
         raise InputError("--steps must be at least 1", value=args.steps)
     catalogue = load_targets(args.catalogue)
-    executor = make_executor(workers=args.workers) if args.workers and args.workers > 1 \
-        else None
-    try:
+    options = plan_options(args)
+    config = {"command": "rank", "catalogue": file_hash(args.catalogue),
+              "budget": str(total), "per_target_budget": str(per), "steps": args.steps,
+              "measure": args.measure or "integral", "case": args.case,
+              "span": str(args.span), "noise": _noise_identity(args.noise),
+              **{k: str(v) for k, v in options.items()}}
+    with ExitStack() as stack:
+        # With --out, finished targets are committed to the store of that folder, so a
+        # rerun of the same command resumes (cwlimits.store).
+        store = stack.enter_context(open_store(out.parent)) if out is not None else None
+        key = (store.begin_run(config), "targets") if store is not None else None
+        executor = stack.enter_context(executor_from_args(args))
         ranking = rank_targets(catalogue, args.noise, total, args.span,
                                per_target_budget=per, budget_steps=args.steps,
                                measure=args.measure or "integral", case=args.case,
-                               executor=executor, progress=not args.quiet,
-                               **plan_options(args))
-    finally:
-        if executor is not None:
-            executor.shutdown()
+                               executor=executor, progress=progress_from_args(args),
+                               store=store, key=key, **options)
     table = ranking.table
     headers = ["rank", "target", "merit [Hz]", "optimistic", "pessimistic",
                "budget [core-h]", "T_seg [day]", "N_seg", "band [Hz]", "bound"]
