@@ -13,12 +13,18 @@ def test_help_lists_commands_with_examples(capsys):
         main(["--help"])
     assert info.value.code == 0
     out = capsys.readouterr().out
-    for command in ("demo", "indirect", "convert"):
+    for command in _commands():
         assert command in out
     assert "examples:" in out
 
 
-@pytest.mark.parametrize("command", ["demo", "indirect", "convert"])
+def _commands():
+    from cwlimits.cli import _command_modules
+
+    return [m.__name__.rsplit(".", 1)[1] for m in _command_modules()]
+
+
+@pytest.mark.parametrize("command", _commands())
 def test_every_subcommand_help_shows_an_example(capsys, command):
     with pytest.raises(SystemExit) as info:
         main([command, "--help"])
