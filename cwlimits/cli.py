@@ -30,9 +30,9 @@ examples:
   cwlimits demo                                   # the whole job on the fictional demo
   cwlimits report analysis.toml                   # the whole job on your configuration
   cwlimits indirect target_lists/demo.csv --out limits.ecsv
-  cwlimits sensitivity --catalogue target_lists/demo.csv --target 'Fict Quill' \
+  cwlimits sensitivity --catalogue target_lists/demo.csv --target 'Fict Quill' \\
       --t-seg 10day --n-seg 12 --f-min 50Hz --f-max 500Hz --plot sens.png
-  cwlimits limits results.csv --setup search.toml --catalogue target_lists/demo.csv \
+  cwlimits limits results.csv --setup search.toml --catalogue target_lists/demo.csv \\
       --target 'Fict Quill' --out limits.ecsv
   cwlimits convert --h0 1e-25 --f-gw 200Hz --distance 1kpc
   cwlimits COMMAND --help                         # options and examples of one command
