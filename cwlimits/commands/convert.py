@@ -18,6 +18,8 @@ from ._common import (
     sci,
 )
 
+__all__ = ["ORDER", "register", "run"]
+
 ORDER = 20
 
 

@@ -8,6 +8,8 @@ from ..config import load_config
 from ._common import add_parser, echo
 from .report import write
 
+__all__ = ["ORDER", "register", "run", "demo_config_path"]
+
 ORDER = 0
 
 

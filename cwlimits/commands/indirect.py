@@ -16,6 +16,8 @@ from ._common import (
     sci,
 )
 
+__all__ = ["ORDER", "register", "run"]
+
 ORDER = 10
 
 

@@ -31,6 +31,8 @@ from ._execution import (
 )
 from ._setup_args import add_setup_args, build_setup
 
+__all__ = ["ORDER", "register", "run", "summarise"]
+
 ORDER = 60
 
 

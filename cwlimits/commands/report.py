@@ -5,6 +5,8 @@ from ..config import load_config
 from ..progress import progress
 from ._common import add_parser, echo
 
+__all__ = ["ORDER", "register", "run", "write"]
+
 ORDER = 5
 
 

@@ -24,6 +24,8 @@ from ._common import (
     resolve_target,
 )
 
+__all__ = ["ORDER", "register", "run"]
+
 ORDER = 35
 
 _QUANTILES = (0.05, 0.10, 0.25, 0.50, 0.75, 0.90, 0.95)

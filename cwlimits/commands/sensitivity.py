@@ -20,6 +20,8 @@ from ._common import (
 )
 from ._setup_args import add_setup_args, build_setup
 
+__all__ = ["ORDER", "register", "run", "summarise"]
+
 ORDER = 50
 
 
