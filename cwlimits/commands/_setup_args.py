@@ -10,7 +10,7 @@ from ..errors import InputError
 from ..setup import DEFAULT_UNIT_COSTS, SearchSetup, load_setup
 from ._common import quantity_arg
 
-__all__ = ["add_setup_args", "build_setup"]
+__all__ = ["add_setup_args", "add_signal_model_args", "build_setup"]
 
 # option dest -> SearchSetup field (or a part of one)
 _OVERRIDES = ("t_seg", "n_seg", "span", "duty_factor", "mismatch_coarse", "mismatch_fine",
@@ -52,6 +52,20 @@ def add_setup_args(parser):
     grp.add_argument("--cost-semicoherent", type=quantity_arg(u.s, "unit cost"),
                      metavar="T", help="seconds per semi-coherent template per segment "
                                        f"(default {DEFAULT_UNIT_COSTS['semicoherent']})")
+
+
+def add_signal_model_args(parser):
+    """Add ``--sky``, ``--mismatch`` and ``--start``: the options of the signal model."""
+    from ..sensitivity import DEFAULT_START
+
+    model = parser.add_argument_group("signal model")
+    model.add_argument("--sky", choices=("target", "isotropic"), default="target",
+                       help="orientation factor at the target (default) or all-sky")
+    model.add_argument("--mismatch", choices=("distribution", "mean", "none"),
+                       default="distribution", help="mismatch model (default distribution)")
+    model.add_argument("--start", default=DEFAULT_START,
+                       help=f"start of the data, UTC (default {DEFAULT_START})")
+    return model
 
 
 def build_setup(args, default_band=None, extra_sections=()):

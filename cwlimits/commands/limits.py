@@ -10,7 +10,6 @@ from ..errors import InputError
 from ..noise import DEFAULT_NOISE_MODEL
 from ..plots import PLOT_SUFFIXES
 from ..results import load_results
-from ..sensitivity import DEFAULT_START
 from ..tables import write_table
 from ._common import (
     add_parser,
@@ -29,7 +28,7 @@ from ._execution import (
     executor_from_args,
     progress_from_args,
 )
-from ._setup_args import add_setup_args, build_setup
+from ._setup_args import add_setup_args, add_signal_model_args, build_setup
 
 __all__ = ["ORDER", "register", "run", "summarise"]
 
@@ -101,13 +100,7 @@ def register(subparsers, common):
                        help="emcee walkers (default 64)")
     stats.add_argument("--seed", type=int, default=None,
                        help="seed of the Monte-Carlo and emcee (recorded in the output)")
-    model = parser.add_argument_group("signal model")
-    model.add_argument("--sky", choices=("target", "isotropic"), default="target",
-                       help="orientation factor at the target (default) or all-sky")
-    model.add_argument("--mismatch", choices=("distribution", "mean", "none"),
-                       default="distribution", help="mismatch model (default distribution)")
-    model.add_argument("--start", default=DEFAULT_START,
-                       help=f"start of the data, UTC (default {DEFAULT_START})")
+    add_signal_model_args(parser)
     out = parser.add_argument_group("output")
     out.add_argument("--out", metavar="FILE", help="per-band table (.csv or .ecsv); its "
                                                    "folder holds the resumable run store")

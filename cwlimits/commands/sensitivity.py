@@ -5,7 +5,7 @@ import numpy as np
 
 from ..noise import DEFAULT_NOISE_MODEL
 from ..plots import PLOT_SUFFIXES
-from ..sensitivity import DEFAULT_START, strain_sensitivity
+from ..sensitivity import strain_sensitivity
 from ..tables import write_table
 from ._common import (
     add_parser,
@@ -18,7 +18,7 @@ from ._common import (
     resolve_target,
     sci,
 )
-from ._setup_args import add_setup_args, build_setup
+from ._setup_args import add_setup_args, add_signal_model_args, build_setup
 
 __all__ = ["ORDER", "register", "run", "summarise"]
 
@@ -65,13 +65,7 @@ def register(subparsers, common):
     stats.add_argument("--trials", type=float, default=None,
                        help="effective number of independent templates per band (overrides "
                             "the template count)")
-    model = parser.add_argument_group("signal model")
-    model.add_argument("--sky", choices=("target", "isotropic"), default="target",
-                       help="orientation factor at the target (default) or all-sky")
-    model.add_argument("--mismatch", choices=("distribution", "mean", "none"),
-                       default="distribution", help="mismatch model (default distribution)")
-    model.add_argument("--start", default=DEFAULT_START,
-                       help=f"start of the data, UTC (default {DEFAULT_START})")
+    add_signal_model_args(parser)
     out = parser.add_argument_group("output")
     out.add_argument("--out", metavar="FILE", help="per-band table (.csv or .ecsv)")
     out.add_argument("--plot", metavar="FILE", help="h0(f) against the age-based limit "
