@@ -211,3 +211,20 @@ def test_the_job_script_records_its_configuration(tmp_path):
                                          "chunk_size": 100}
         record = json.loads(store._db.execute("SELECT seed FROM parts").fetchone()[0])
     assert record["entropy"] == 7 and record["spawn_key"] == []
+
+
+def test_store_command_lists_and_clears(tmp_path, capsys):
+    # 'cwlimits store': the runs and chunks a store holds, and deleting it
+    from cwlimits.cli import main
+
+    with open_store(tmp_path) as store:
+        run_id = store.begin_run({"command": "limits", "seed": 1})
+        map_chunks(toy_draws, {"x": np.arange(10.0)}, chunk_size=4, seed=1,
+                   store=store, key=(run_id, "Fict A"))
+    assert main(["store", str(tmp_path)]) == 0
+    out = capsys.readouterr().out
+    assert "limits" in out and "Fict A: 3" in out
+    assert main(["store", str(tmp_path), "--clear"]) == 0
+    assert not (tmp_path / "cwlimits-store.sqlite").exists()
+    assert main(["store", str(tmp_path)]) == 2
+    assert "no results store" in capsys.readouterr().err
