@@ -51,7 +51,8 @@ def plot_merit_vs_budget(ranking, title=None):
     ax.set_ylabel("figure of merit [Hz]" + (" (beat-age width)" if "width" in
                                             measure.split(":")[0] else ""))
     ax.grid(True, which="both", alpha=0.3)
-    ax.legend(fontsize=5, loc="best")
+    # below the axes: with many targets a legend inside hides the curves
+    fig.legend(fontsize=5, loc="outside lower center", ncols=3)
     if title:
         ax.set_title(title, fontsize=8)
     return fig
