@@ -9,12 +9,10 @@ implementation would cost), capped at 1 000 calls (100 with --quick) and scaled 
 to the band count.  Prints both times and their ratio.  No timing is asserted.
 """
 
-import argparse
-import json
-import time
 
 import astropy.units as u
 import numpy as np
+from benchutil import bench_parser, best_time, write_json
 
 from cwlimits.cost import computing_cost, count_templates
 from cwlimits.setup import SearchSetup
@@ -22,20 +20,8 @@ from cwlimits.setup import SearchSetup
 AGE = 1000 * u.yr  # round age of the parameter space (no real object)
 
 
-def best_time(fn, repeats):
-    """Best wall time of ``repeats`` calls (the least disturbed one)."""
-    best = np.inf
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        fn()
-        best = min(best, time.perf_counter() - t0)
-    return best
-
-
 def main(argv=None):
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--quick", action="store_true", help="small sizes (smoke run)")
-    parser.add_argument("--json", metavar="FILE", help="also write the figures as JSON")
+    parser = bench_parser(__doc__)
     args = parser.parse_args(argv)
     sizes, cap, repeats = ((10, 1000), 100, 1) if args.quick else ((10, 1000, 20000), 1000, 3)
 
@@ -48,19 +34,18 @@ def main(argv=None):
     for n in sizes:
         edges = np.linspace(50, 550, n + 1) * u.Hz
         lo, hi = edges[:-1], edges[1:]
-        vec = best_time(lambda lo=lo, hi=hi: computing_cost(setup, AGE, bands=(lo, hi)),
-                        repeats)
+        _, vec = best_time(lambda lo=lo, hi=hi: computing_cost(setup, AGE, bands=(lo, hi)),
+                           repeats)
         m = min(n, cap)
-        loop = best_time(lambda m=m, lo=lo, hi=hi: [
-            count_templates(setup, AGE, bands=(lo[i], hi[i])) for i in range(m)],
-            1) * n / m
+        _, loop = best_time(lambda m=m, lo=lo, hi=hi: [
+            count_templates(setup, AGE, bands=(lo[i], hi[i])) for i in range(m)], 1)
+        loop *= n / m  # the loop's time scaled from its first m bands to all n
         print(f"{n:>7}  {vec * 1e3:>16.2f}  {loop * 1e3:>19.1f}  {loop / vec:>7.0f}x")
         figures.update({f"bands_{n}_vectorised_s": vec, f"bands_{n}_loop_s": loop,
                         f"bands_{n}_speedup": loop / vec})
 
     if args.json:
-        with open(args.json, "w", encoding="utf-8") as handle:
-            json.dump(figures, handle, indent=2)
+        write_json(args.json, figures)
     return 0
 
 

@@ -15,14 +15,12 @@ stage (per detector and segment) and of the semi-coherent sum (per segment), the
 ``cwlimits calibrate`` will feed to the cost model.
 """
 
-import argparse
-import json
 import sys
-import time
 
 import astropy.units as u
 import numpy as np
 from astropy.coordinates import SkyCoord
+from benchutil import bench_parser, best_time, write_json
 
 from cwlimits import fstat as fs
 from cwlimits import synthetic as sy
@@ -30,19 +28,8 @@ from cwlimits import synthetic as sy
 REQUIRED_SPEEDUP = 100.0
 
 
-def best_time(fn, repeats):
-    best, out = np.inf, None
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        out = fn()
-        best = min(best, time.perf_counter() - t0)
-    return out, best
-
-
 def main(argv=None):
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--quick", action="store_true", help="small sizes (smoke run)")
-    parser.add_argument("--json", metavar="FILE", help="also write the results as JSON")
+    parser = bench_parser(__doc__)
     parser.add_argument("--full-direct", action="store_true",
                         help="evaluate the direct sums at every frequency (slow)")
     args = parser.parse_args(argv)
@@ -111,8 +98,7 @@ def main(argv=None):
         "quick": bool(args.quick), "ok": bool(ok),
     }
     if args.json:
-        with open(args.json, "w", encoding="utf-8") as handle:
-            json.dump(result, handle, indent=2)
+        write_json(args.json, result)
     print("OK" if ok else "FAILED: speed-up or agreement below target")
     return 0 if ok else 1
 

@@ -10,13 +10,12 @@ range (300; 30 with --quick).  Prints the time per band of each, their ratio, an
 largest relative difference between the two on the subset.  No timing is asserted.
 """
 
-import argparse
-import json
 import time
 
 import astropy.units as u
 import numpy as np
 import scipy.integrate
+from benchutil import bench_parser, write_json
 
 from cwlimits.noise import band_psd, noise_model
 
@@ -35,9 +34,7 @@ def quad_band_psd(model, lo_hz, hi_hz):
 
 
 def main(argv=None):
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--quick", action="store_true", help="small sizes (smoke run)")
-    parser.add_argument("--json", metavar="FILE", help="also write the figures as JSON")
+    parser = bench_parser(__doc__)
     args = parser.parse_args(argv)
     n_bands, n_base = (2_000, 30) if args.quick else (20_000, 300)
 
@@ -66,8 +63,7 @@ def main(argv=None):
                    "baseline_bands": n_base, "band_psd_us_per_band": t_fast * 1e6,
                    "quad_loop_us_per_band": t_base * 1e6, "speedup": t_base / t_fast,
                    "max_rel_difference": diff, "quick": bool(args.quick)}
-        with open(args.json, "w", encoding="utf-8") as handle:
-            json.dump(figures, handle, indent=2)
+        write_json(args.json, figures)
     return 0
 
 

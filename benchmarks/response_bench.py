@@ -12,13 +12,11 @@ sky positions over 30 days (10 to 1 000 with --quick), and one position, three d
 one year (30 days with --quick).  No timing is asserted.
 """
 
-import argparse
-import json
-import time
 
 import astropy.units as u
 import numpy as np
 from astropy.coordinates import SkyCoord
+from benchutil import bench_parser, best_time, write_json
 
 from cwlimits import response as resp
 
@@ -41,20 +39,8 @@ def brute_a2(detector, coord, span):
     return np.mean(a.value**2, axis=-1)
 
 
-def best_time(fn, repeats):
-    """Best wall time of ``repeats`` calls (the least disturbed) and the last result."""
-    best, out = np.inf, None
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        out = fn()
-        best = min(best, time.perf_counter() - t0)
-    return out, best
-
-
 def main(argv=None):
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--quick", action="store_true", help="small sizes (smoke run)")
-    parser.add_argument("--json", metavar="FILE", help="also write the figures as JSON")
+    parser = bench_parser(__doc__)
     args = parser.parse_args(argv)
     rng = np.random.default_rng(2027)
     sizes = (10, 100, 1000) if args.quick else (10, 100, 1000, 10000)
@@ -100,8 +86,7 @@ def main(argv=None):
                     "network_speedup": t_slow / t_fast, "network_max_abs_diff": diff})
 
     if args.json:
-        with open(args.json, "w", encoding="utf-8") as handle:
-            json.dump(figures, handle, indent=2)
+        write_json(args.json, figures)
     return 0
 
 

@@ -32,6 +32,8 @@ import numpy as np
 HERE = pathlib.Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))  # the working tree's cwlimits, installed or not
 
+from benchutil import best_time  # noqa: E402
+
 from cwlimits import __version__  # noqa: E402
 from cwlimits.executor import chunk_seed, make_executor, map_chunks  # noqa: E402
 
@@ -47,16 +49,6 @@ def trig_sums(chunk, rng, n_freq):
     k = np.arange(1, n_freq + 1, dtype=float)
     phase = rng.uniform(0.0, 2.0 * np.pi, size=x.shape)
     return {"s": np.sin(np.multiply.outer(x, k) + phase[:, None]).sum(axis=1)}
-
-
-def _best_time(run, repeats):
-    """Best wall-clock time of ``repeats`` calls (the least disturbed one) and the result."""
-    best, result = np.inf, None
-    for _ in range(repeats):
-        start = time.perf_counter()
-        result = run()
-        best = min(best, time.perf_counter() - start)
-    return best, result
 
 
 def _raw_chunk(args):
@@ -75,15 +67,15 @@ def executor_speedup(quick):
                   for root in [np.random.SeedSequence(1)]
                   for i, a in enumerate(range(0, n_items, chunk_size))]
 
-    serial_s, serial = _best_time(run, repeats)
+    serial, serial_s = best_time(run, repeats)
     start = time.perf_counter()
     with make_executor(workers=WORKERS) as executor:
         # The first call starts the worker processes (spawned interpreters): timed apart.
         run(executor=executor)
         startup_s = time.perf_counter() - start
-        parallel_s, parallel = _best_time(functools.partial(run, executor=executor), repeats)
+        parallel, parallel_s = best_time(functools.partial(run, executor=executor), repeats)
         # What the machine gives two processes with no cwlimits machinery: the ceiling.
-        bare_s, bare = _best_time(lambda: list(executor.map(_raw_chunk, bare_tasks)),
+        bare, bare_s = best_time(lambda: list(executor.map(_raw_chunk, bare_tasks)),
                                   repeats)
     identical = (serial["s"].tobytes() == parallel["s"].tobytes()
                  == np.concatenate([b["s"] for b in bare]).tobytes())
