@@ -689,6 +689,18 @@ def _time_psd(t_data, psd):
     return t_s, s_n
 
 
+def _amplitude(h0, t_data, psd, purpose):
+    """Validated ``a = h0^2 T_data / S_n`` (via :func:`_rho2`) from user inputs."""
+    h0 = np.asarray(to_value(h0, u.one, "h0"), dtype=float)
+    bad = ~(np.isfinite(h0) & (h0 >= 0))
+    if np.any(bad):
+        raise InputError("h0 must be finite and >= 0", value=_first_bad(h0, bad))
+    t_s, s_n = _time_psd(t_data, psd)
+    if s_n is None:
+        raise InputError(f"psd is required {purpose}")
+    return _rho2(h0, t_s, s_n)
+
+
 def detection_probability(h0, threshold, n_seg, t_data, psd, r2_rule, mismatch_rule=0.0,
                           statistic="sum", method="auto", max_nodes=DEFAULT_MAX_NODES):
     """Probability that a signal of amplitude ``h0`` crosses ``threshold``.
@@ -734,15 +746,8 @@ def detection_probability(h0, threshold, n_seg, t_data, psd, r2_rule, mismatch_r
     Wette 2012, arXiv:1111.5650; Dreissigacker, Prix & Wette 2018, arXiv:1808.02459.
     """
     thr, nseg = _common_inputs(threshold, n_seg, statistic, method)
-    h0 = np.asarray(to_value(h0, u.one, "h0"), dtype=float)
-    bad = ~(np.isfinite(h0) & (h0 >= 0))
-    if np.any(bad):
-        raise InputError("h0 must be finite and >= 0", value=_first_bad(h0, bad))
-    t_s, s_n = _time_psd(t_data, psd)
-    if s_n is None:
-        raise InputError("psd is required to turn h0 into a signal-to-noise ratio")
+    a = _amplitude(h0, t_data, psd, "to turn h0 into a signal-to-noise ratio")
     rule = _signal_rule(r2_rule, mismatch_rule, max_nodes)
-    a = _rho2(h0, t_s, s_n)
     shape = np.broadcast_shapes(a.shape, thr.shape, nseg.shape, rule.batch_shape)
     # Each output element reads its own rule row (rules may carry per-setup batch axes).
     rid = _rule_index(rule, shape).reshape(shape)
@@ -895,16 +900,9 @@ def marginal_likelihood(observed, h0, n_seg, t_data, psd, r2_rule, mismatch_rule
     if np.any(bad):
         raise InputError("observed statistic must be finite and >= 0",
                          value=_first_bad(obs, bad))
-    h0 = np.asarray(to_value(h0, u.one, "h0"), dtype=float)
-    bad = ~(np.isfinite(h0) & (h0 >= 0))
-    if np.any(bad):
-        raise InputError("h0 must be finite and >= 0", value=_first_bad(h0, bad))
-    t_s, s_n = _time_psd(t_data, psd)
-    if s_n is None:
-        raise InputError("psd is required for the likelihood")
+    a = _amplitude(h0, t_data, psd, "for the likelihood")
     obs_sum = _to_sum(obs, nseg, statistic)
     rule = _signal_rule(r2_rule, mismatch_rule, max_nodes)
-    a = _rho2(h0, t_s, s_n)
     shape = np.broadcast_shapes(obs.shape, a.shape, nseg.shape, rule.batch_shape)
     # Same rule rows and the same rho2 = a c as detection_probability: one model for both
     # the frequentist and the Bayesian side.
