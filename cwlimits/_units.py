@@ -10,9 +10,9 @@ import re
 import astropy.units as u
 import numpy as np
 
-from .errors import UnitsMismatchError
+from .errors import InputError, UnitsMismatchError
 
-__all__ = ["to_value", "parse_quantity", "parse_unit", "DIMENSIONLESS"]
+__all__ = ["to_value", "positive_value", "parse_quantity", "parse_unit", "DIMENSIONLESS"]
 
 DIMENSIONLESS = u.dimensionless_unscaled
 
@@ -55,6 +55,20 @@ def to_value(quantity, unit, name, *, allow_bare=False):
             f"not '{quantity.unit}'",
             value=str(quantity),
         ) from None
+
+
+def positive_value(quantity, unit, name):
+    """``quantity`` as floats in ``unit`` (see :func:`to_value`), all positive and finite.
+
+    Raises
+    ------
+    InputError
+        For a value that is not positive and finite (the message names the argument).
+    """
+    value = to_value(quantity, unit, name)
+    if np.any(~np.isfinite(value)) or np.any(value <= 0):
+        raise InputError(f"{name} must be positive and finite", value=str(quantity))
+    return value
 
 
 _BARE_POWER = re.compile(r"(\^|\*\*)\s*(-?[0-9.]+(?:/[0-9.]+)?)")

@@ -21,7 +21,7 @@ import astropy.constants as const
 import astropy.units as u
 import numpy as np
 
-from ._units import to_value
+from ._units import positive_value, to_value
 from .errors import InputError
 from .fiducial import DEFAULT_MOMENT_OF_INERTIA, FIDUCIAL_RMODE_STAR
 
@@ -37,13 +37,6 @@ _G = const.G.si.value
 _C = const.c.si.value
 
 
-def _positive(quantity, unit, name):
-    value = to_value(quantity, unit, name)
-    if np.any(~np.isfinite(value)) or np.any(value <= 0):
-        raise InputError(f"{name} must be positive and finite", value=str(quantity))
-    return value
-
-
 def _strain(h0):
     value = to_value(h0, u.one, "h0")
     if np.any(~np.isfinite(value)) or np.any(value < 0):
@@ -53,9 +46,9 @@ def _strain(h0):
 
 def _eps_per_h0(f_gw, distance, moment_of_inertia):
     """Eps / h0 = c^4 d / (4 pi^2 G I f_gw^2) (JKS 1998, eq. 22)."""
-    f = _positive(f_gw, u.Hz, "f_gw")
-    d = _positive(distance, u.m, "distance")
-    inertia = _positive(moment_of_inertia, u.kg * u.m**2, "moment_of_inertia")
+    f = positive_value(f_gw, u.Hz, "f_gw")
+    d = positive_value(distance, u.m, "distance")
+    inertia = positive_value(moment_of_inertia, u.kg * u.m**2, "moment_of_inertia")
     return _C**4 * d / (4.0 * np.pi**2 * _G * inertia * f**2)
 
 
@@ -108,17 +101,17 @@ def mass_quadrupole(eps, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA):
     Q22 : Quantity ['moment of inertia'] (kg m^2)
     """
     value = to_value(eps, u.one, "eps")
-    inertia = _positive(moment_of_inertia, u.kg * u.m**2, "moment_of_inertia")
+    inertia = positive_value(moment_of_inertia, u.kg * u.m**2, "moment_of_inertia")
     return np.sqrt(15.0 / (8.0 * np.pi)) * inertia * value << u.kg * u.m**2
 
 
 def _alpha_per_h0(f_gw, distance, mass, radius, j_tilde):
     """Alpha / h0 = c^5 d / (sqrt(8 pi/5) G omega^3 M R^3 J~) (Owen 2010, eq. 24)."""
-    omega = 2.0 * np.pi * _positive(f_gw, u.Hz, "f_gw")
-    d = _positive(distance, u.m, "distance")
-    m = _positive(mass, u.kg, "mass")
-    r = _positive(radius, u.m, "radius")
-    j = _positive(j_tilde, u.one, "j_tilde")
+    omega = 2.0 * np.pi * positive_value(f_gw, u.Hz, "f_gw")
+    d = positive_value(distance, u.m, "distance")
+    m = positive_value(mass, u.kg, "mass")
+    r = positive_value(radius, u.m, "radius")
+    j = positive_value(j_tilde, u.one, "j_tilde")
     return _C**5 * d / (np.sqrt(8.0 * np.pi / 5.0) * _G * omega**3 * m * r**3 * j)
 
 

@@ -38,7 +38,7 @@ import astropy.units as u
 import numpy as np
 from astropy.table import QTable
 
-from ._units import to_value
+from ._units import positive_value, to_value
 from .conversions import ellipticity
 from .errors import InputError
 from .fiducial import DEFAULT_MOMENT_OF_INERTIA
@@ -95,18 +95,7 @@ def _energy_limit(fdot_over_f, distance_m, inertia, freq_ratio):
 
 
 def _inertia(moment_of_inertia):
-    inertia = to_value(moment_of_inertia, u.kg * u.m**2, "moment_of_inertia")
-    if np.any(~(inertia > 0)):
-        raise InputError("moment_of_inertia must be positive and finite",
-                         value=moment_of_inertia)
-    return inertia
-
-
-def _positive(quantity, unit, name):
-    value = to_value(quantity, unit, name)
-    if np.any(~np.isfinite(value)) or np.any(value <= 0):
-        raise InputError(f"{name} must be positive and finite", value=str(quantity))
-    return value
+    return positive_value(moment_of_inertia, u.kg * u.m**2, "moment_of_inertia")
 
 
 def spindown_limit(f_rot, fdot_rot, distance, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA,
@@ -148,9 +137,9 @@ def spindown_limit(f_rot, fdot_rot, distance, moment_of_inertia=DEFAULT_MOMENT_O
     >>> round(float(h * 1e24), 2)
     1.43
     """
-    f = _positive(f_rot, u.Hz, "f_rot")
+    f = positive_value(f_rot, u.Hz, "f_rot")
     fdot = np.abs(to_value(fdot_rot, u.Hz / u.s, "fdot_rot"))
-    d = _positive(distance, u.m, "distance")
+    d = positive_value(distance, u.m, "distance")
     return _energy_limit(fdot / f, d, _inertia(moment_of_inertia), kind.freq_ratio) << u.one
 
 
@@ -197,8 +186,8 @@ def age_limit(distance, age, braking_index=None, moment_of_inertia=DEFAULT_MOMEN
     if np.any(~(n > 1)) or np.any(~np.isfinite(n)):
         raise InputError("braking_index must be a finite number larger than 1",
                          value=braking_index)
-    d = _positive(distance, u.m, "distance")
-    tau = _positive(age, u.s, "age")
+    d = positive_value(distance, u.m, "distance")
+    tau = positive_value(age, u.s, "age")
     return _energy_limit(1.0 / ((n - 1.0) * tau), d, _inertia(moment_of_inertia),
                          kind.freq_ratio) << u.one
 
@@ -280,8 +269,8 @@ def sample_limits(distance_range, age_range, *, n_samples=10000, quantiles=(0.05
     n_samples = int(n_samples)
     if n_samples < 1:
         raise InputError("n_samples must be at least 1", value=n_samples)
-    d_lo, d_hi = (_positive(q, u.kpc, "distance range") for q in distance_range)
-    a_lo, a_hi = (_positive(q, u.yr, "age range") for q in age_range)
+    d_lo, d_hi = (positive_value(q, u.kpc, "distance range") for q in distance_range)
+    a_lo, a_hi = (positive_value(q, u.yr, "age range") for q in age_range)
     shape = np.broadcast_shapes(d_lo.shape, d_hi.shape, a_lo.shape, a_hi.shape)
     size = (n_samples, *shape)
     d = _draw(d_lo, d_hi, size, rng, distance_prior, "distance")
