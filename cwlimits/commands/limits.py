@@ -92,8 +92,9 @@ def register(subparsers, common):
     stats.add_argument("--inertia-range", nargs=2, metavar=("I_MIN", "I_MAX"),
                        type=quantity_arg(u.kg * u.m**2, "moment of inertia"),
                        help="moment of inertia uniform in this range instead")
-    stats.add_argument("--draws", type=int, default=4000, metavar="N",
-                       help="Monte-Carlo draws per band for eps and alpha (default 4000)")
+    stats.add_argument("--draws", type=int, default=None, metavar="N",
+                       help="eps and alpha by a Monte Carlo of N draws per band (default: "
+                            "a fixed rule over the distance and I priors)")
     stats.add_argument("--steps", type=int, default=6000, metavar="N",
                        help="emcee steps per walker (default 6000)")
     stats.add_argument("--walkers", type=int, default=64, metavar="N",
@@ -149,7 +150,7 @@ def run(args):
     if args.posterior is not None and plot is None:
         raise InputError("--posterior BAND draws a figure: give --plot FILE too")
     for name in ("draws", "steps", "walkers"):
-        if getattr(args, name) < 1:
+        if getattr(args, name) is not None and getattr(args, name) < 1:
             raise InputError(f"--{name} must be a positive integer", value=getattr(args, name))
     if args.walkers < 8:
         raise InputError("--walkers must be at least 8 (emcee needs more walkers than "
