@@ -479,7 +479,7 @@ def _detection_probability(a, threshold_sum, n_seg, c, w, method="auto"):
 #: cubic.  Measured against the direct sums (method "exact"): the depth moves by <= 2e-7
 #: relative over N = 1..1000 and false alarms 1e-2..1e-40
 #: (tests/test_detection.py::test_interpolated_solve_matches_the_direct_solve).
-_SF_POINTS = 96
+_SF_POINTS = 64
 #: The grid ends at ``u = sqrt(threshold) + _SF_U_MARGIN``: above it
 #: P(2F < threshold) <= P(Z < -10) < 1e-23, and ``sf`` is taken as 1.
 _SF_U_MARGIN = 10.0
@@ -510,22 +510,35 @@ class _SurvivalTable:
         # sf is even in u: the node below 0 mirrors the first node above it.
         self.z = np.concatenate([z[:, 1:2], z], axis=1)
 
-    def mixture(self, a, c, w, rows):
-        """``sum_i w_i sf(a c_i)`` for the elements ``rows`` (``c``, ``w``: their rules)."""
+    def mixture(self, a, sqrt_c, w, rows, block=256):
+        """``sum_i w_i sf(a c_i)`` for the elements ``rows`` (``sqrt_c``, ``w``: their rules,
+        one row each or one row for all).
+
+        Above the grid ``sf`` is read at its top node (``1 - 1e-16``, not 1).  Blocks of
+        ``block`` elements keep the temporaries in cache.
+        """
+        if len(rows) > block:
+            out = np.empty(len(rows))
+            shared = sqrt_c.shape[0] == 1
+            for k in range(0, len(rows), block):
+                s = slice(k, k + block)
+                out[s] = self.mixture(a[s], sqrt_c if shared else sqrt_c[s],
+                                      w if shared else w[s], rows[s], block)
+            return out
         n = _SF_POINTS
-        pos = (np.sqrt(a) * (n - 1) / self.u_top[rows])[:, None] * np.sqrt(c)
-        inside = pos < n - 1
+        pos = (np.sqrt(a) * (n - 1) / self.u_top[rows])[:, None] * sqrt_c
+        np.minimum(pos, n - 1.0, out=pos)
         j = np.minimum(pos.astype(np.intp), n - 2)
-        f = np.where(inside, pos - j, 0.0) + 1.0
-        base = j + (rows * (n + 3))[:, None]
+        f = pos - j
+        f += 1.0
+        j += (rows * (n + 3))[:, None]
         flat = self.z.ravel()
-        y0, y1, y2, y3 = (np.take(flat, base + k) for k in range(4))
+        y0, y1, y2, y3 = (np.take(flat, j + k) for k in range(4))
         # 4-point Lagrange cubic in Newton form, nodes j-1 .. j+2.
-        val = y0 + f * ((y1 - y0) + (f - 1.0) * (0.5 * (y2 - 2.0 * y1 + y0)
-                                                 + (f - 2.0) * (y3 - 3.0 * y2 + 3.0 * y1
-                                                                - y0) / 6.0))
-        sf = np.where(inside, special.ndtr(val), 1.0)
-        return np.sum(w * sf, axis=-1)
+        d3 = (y3 - y0 + 3.0 * (y1 - y2)) / 6.0
+        d2 = 0.5 * (y2 + y0) - y1
+        val = y0 + f * ((y1 - y0) + (f - 1.0) * (d2 + (f - 2.0) * d3))
+        return np.einsum("ij,ij->i", w, special.ndtr(val))
 
 
 def _gaussian_rho2(threshold_sum, n_seg, probability):
@@ -557,7 +570,7 @@ def _initial_log_a(threshold_sum, n_seg, probability, c_sorted, w_cum, c_mean):
 
 
 def _solve_log_a(threshold_sum, n_seg, probability, rule, method="auto", xatol=1e-9,
-                 tabulate=True, interpolate=True):
+                 tabulate=True, interpolate=True, rid=None):
     """Normalised amplitude ``a = h0^2 T_data / S_n`` at which ``P_det = probability``.
 
     Vectorised over the broadcast shape of the inputs and the rule's batch shape with
@@ -578,11 +591,14 @@ def _solve_log_a(threshold_sum, n_seg, probability, rule, method="auto", xatol=1
         ``c = 0`` is at least ``1 - probability``) or the root finder fails.
     """
     shape = np.broadcast_shapes(np.shape(threshold_sum), np.shape(n_seg),
-                                np.shape(probability), rule.batch_shape)
+                                np.shape(probability),
+                                rule.batch_shape if rid is None else np.shape(rid))
     thr = np.broadcast_to(threshold_sum, shape).ravel().astype(float)
     nseg = np.broadcast_to(n_seg, shape).ravel().astype(float)
     prob = np.broadcast_to(probability, shape).ravel().astype(float)
-    rid = _rule_index(rule, shape)
+    # ``rid``: the rule row of each (flattened) element, when not given by broadcasting.
+    rid = _rule_index(rule, shape) if rid is None else np.broadcast_to(
+        np.asarray(rid, np.intp), shape).ravel()
     a = np.zeros(thr.shape)
 
     # Largest reachable probability: the weight of nodes with a signal at all.
@@ -624,10 +640,14 @@ def _root_log_a(thr, nseg, prob, rid, rule, method="auto", xatol=1e-9, interpola
     else:
         # Tabulate each element's survival function in sqrt(rho2) once.
         table = _SurvivalTable(thr, nseg, method)
+        sqrt_c = np.sqrt(rule.c)
+        shared = rule.c.shape[0] == 1
 
         def f(y, thr, nseg, prob, row, elem):
             row = row.astype(np.intp)
-            return table.mixture(np.exp(y), rule.c[row], rule.w[row],
+            if shared:  # one rule for all: no gather
+                return table.mixture(np.exp(y), sqrt_c, rule.w, elem.astype(np.intp)) - prob
+            return table.mixture(np.exp(y), sqrt_c[row], rule.w[row],
                                  elem.astype(np.intp)) - prob
 
     args = (thr, nseg, prob, rid.astype(float), idx.astype(float))

@@ -197,7 +197,7 @@ def _mismatch_rule(setup, counts, mismatch, size):
 
 def signal_model(setup, noise, target=None, bands=None, *, start=DEFAULT_START,
                  sky="target", mismatch="distribution", order=16, mismatch_samples=256,
-                 n_templates=None):
+                 n_templates=None, _cache=None):
     """Per-band inputs of the detection statistics for a setup, noise and target.
 
     Parameters
@@ -224,6 +224,9 @@ def signal_model(setup, noise, target=None, bands=None, *, start=DEFAULT_START,
         Size of the fixed mismatch sample per band.
     n_templates : float or array_like, optional
         Effective number of independent templates per band; overrides the count.
+    _cache : dict, optional
+        Private: pieces shared by many setups (band PSDs, antenna averages, mismatch
+        samples), keyed by what they depend on; :func:`sensitivity_depth` passes one.
 
     Returns
     -------
@@ -244,7 +247,16 @@ def signal_model(setup, noise, target=None, bands=None, *, start=DEFAULT_START,
     sources = _noise_sources(noise, names)
     counts = count_templates(setup, target if target is not None else 1e3 * u.yr, bands)
     lo, hi = counts["f_min"], counts["f_max"]
-    psd_det = u.Quantity([band_psd(s, lo, hi) for s in sources]).to(1 / u.Hz)
+    cache = {} if _cache is None else _cache
+
+    def cached(key, make):
+        if key not in cache:
+            cache[key] = make()
+        return cache[key]
+
+    psd_det = cached(("psd", tuple(names), repr(noise), lo.to_value(u.Hz).tobytes(),
+                      hi.to_value(u.Hz).tobytes()),
+                     lambda: u.Quantity([band_psd(s, lo, hi) for s in sources]).to(1 / u.Hz))
     t_det = (setup.n_seg * setup.t_seg * setup.duty_factor).to(u.s)
     t_data = t_det * len(detectors)
     # Harmonic mean weighted by data time (Cutler & Schutz 2005; Wette 2012).
@@ -254,10 +266,13 @@ def signal_model(setup, noise, target=None, bands=None, *, start=DEFAULT_START,
     sin2zeta = np.sin(u.Quantity([d.zeta for d in detectors]).to_value(u.rad)) ** 2
     span = setup.total_span
     if sky == "target":
-        av = time_averages(detectors, target.coord, start, span)
+        sky_key = ("averages", tuple(names), target.coord.ra.deg, target.coord.dec.deg,
+                   str(start), float(span.to_value(u.s)))
+        av = cached(sky_key, lambda: time_averages(detectors, target.coord, start, span))
         a_d, b_d, c_d = (np.asarray(getattr(av, k).to_value(u.one)) for k in
                          ("A_det", "B_det", "C_det"))
-        _, w, cosi, psi = orientation_factor_rule(av, order=order, return_nodes=True)
+        _, w, cosi, psi = cached(sky_key + (order,), lambda: orientation_factor_rule(
+            av, order=order, return_nodes=True))
         # Network averages per band: A(f) = sum_d w_d(f) sin^2(zeta_d) A_d (response module).
         A, B, C = ((weights * (sin2zeta * x)[:, None]).sum(axis=0) for x in (a_d, b_d, c_d))
         same = np.allclose(weights, weights[:, :1])
@@ -278,8 +293,13 @@ def signal_model(setup, noise, target=None, bands=None, *, start=DEFAULT_START,
                                         sky="isotropic", weights=mean_w)
         r2_rule = QuadratureRule(np.asarray(r2.to_value(u.one)), w, name="R2")
         sky_text = "averaged over an isotropic sky"
-    mismatch_rule, mismatch_index, mismatch_text = _mismatch_rule(setup, counts, mismatch,
-                                                                  mismatch_samples)
+    dims = np.stack([np.asarray(counts["dims_coh"], int),
+                     np.asarray(counts["dims_semi"], int)]) if mismatch != "none" else None
+    mismatch_rule, mismatch_index, mismatch_text = cached(
+        ("mismatch", setup.lattice, setup.mismatch_coarse, setup.mismatch_fine,
+         setup.n_seg > 1, mismatch, mismatch_samples,
+         None if dims is None else dims.tobytes()),
+        lambda: _mismatch_rule(setup, counts, mismatch, mismatch_samples))
     trials = (np.asarray(counts["n_semi"] if setup.n_seg > 1 else counts["n_coh"], float)
               if n_templates is None else
               np.broadcast_to(np.asarray(n_templates, float), (len(lo),)).copy())
@@ -485,36 +505,57 @@ def sensitivity_depth(setups, noise=None, target=None, bands=None, *, confidence
     -------
     Quantity ['1/sqrt(frequency)']
         Shape (n_bands,) for one setup, (n_setups, n_bands) for many.
+
+    Notes
+    -----
+    The pieces setups share (band PSDs, antenna averages and the orientation rule,
+    mismatch samples) are built once; each setup adds its template counts and its
+    distinct signal-rule rows.  Rows equal across setups are merged, and all setups and
+    bands are solved in one vectorised call, so setups sharing a rule are read from the
+    tabulated depth (:func:`cwlimits.detection.critical_depth`).
     """
+    from .detection import _signal_rule, _solve_log_a
     from .noise import DEFAULT_NOISE_MODEL
 
     single = not isinstance(setups, (list, tuple))
     items = [setups] if single else list(setups)
     noise = DEFAULT_NOISE_MODEL if noise is None else noise
-    models = [signal_model(s, noise, target, bands, **model_options) for s in items]
+    _check_probability(confidence, "confidence")
+    _check_probability(false_alarm, "false_alarm")
+    cache = {}
+    models = [signal_model(s, noise, target, bands, _cache=cache, **model_options)
+              for s in items]
     n_bands = {len(m) for m in models}
     if len(n_bands) != 1:
         raise InputError("setups have different numbers of bands; give common 'bands'",
                          value=sorted(n_bands))
-    _check_probability(confidence, "confidence")
-    _check_probability(false_alarm, "false_alarm")
-    # One vectorised solve over all setups and bands: stack the per-band rules.
     nb = n_bands.pop()
-
-    def stack(rules):
-        size = max(r.size for r in rules)
-        nodes = np.stack([np.broadcast_to(_pad(r.nodes, size), (nb, size)) for r in rules])
-        weights = np.stack([np.broadcast_to(_pad(r.weights, size, 0.0), (nb, size))
-                            for r in rules])
-        return QuadratureRule(nodes, weights)
-
-    est = estimate_sensitivity(
-        np.array([m.n_seg for m in models])[:, None],
-        u.Quantity([m.t_data for m in models])[:, None],
-        stack([m.signal_rule() for m in models]), 0.0,
-        false_alarm=false_alarm, n_templates=np.stack([m.n_templates for m in models]),
-        confidence=confidence)
-    depth = np.broadcast_to(est.depth, (len(models), nb), subok=True).to(DEPTH_UNIT)
+    # The distinct rule rows of every setup, merged across setups, and each band's row.
+    per_setup = [m.signal_rule_rows() for m in models]
+    size = max(rows.size for rows, _ in per_setup)
+    row_of, c_rows, w_rows = {}, [], []
+    rid = np.empty((len(models), nb), np.intp)
+    for i, (rows, index) in enumerate(per_setup):
+        c = _pad(rows.nodes.reshape(-1, rows.size), size)
+        w = _pad(rows.weights.reshape(-1, rows.size), size, 0.0)
+        local = np.empty(len(c), np.intp)
+        for r in range(len(c)):
+            key = (c[r].tobytes(), w[r].tobytes())
+            if key not in row_of:
+                row_of[key] = len(c_rows)
+                c_rows.append(c[r])
+                w_rows.append(w[r])
+            local[r] = row_of[key]
+        rid[i] = local[np.broadcast_to(index, (nb,))]
+    rule = _signal_rule(QuadratureRule(np.array(c_rows), np.array(w_rows)), 0.0)
+    n_seg = np.array([m.n_seg for m in models], float)[:, None]
+    thr = np.asarray(false_alarm_threshold(
+        false_alarm, np.stack([m.n_templates for m in models]), n_seg).value)
+    a = _solve_log_a(thr.ravel(), np.broadcast_to(n_seg, thr.shape).ravel(), confidence,
+                     rule, rid=rid.ravel()).reshape(thr.shape)
+    t_data = np.array([m.t_data.to_value(u.s) for m in models])[:, None]
+    with np.errstate(divide="ignore"):
+        depth = np.sqrt(t_data / a) << DEPTH_UNIT
     return depth[0] if single else depth
 
 
