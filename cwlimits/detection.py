@@ -476,10 +476,10 @@ def _detection_probability(a, threshold_sum, n_seg, c, w, method="auto"):
 
 #: Points of the per-element grid in ``u = sqrt(rho2)`` on which the amplitude solver
 #: tabulates the probit of ``ncx2.sf`` (method "auto"); interpolated with the 4-point
-#: cubic.  Measured against the direct sums (method "exact"): the depth moves by <= 2e-7
-#: relative over N = 1..1000 and false alarms 1e-2..1e-40
+#: cubic.  Measured against the direct sums of the same survival functions: the depth
+#: moves by <= 2e-7 relative over N = 1..1000 and 1..1e15 templates
 #: (tests/test_detection.py::test_interpolated_solve_matches_the_direct_solve).
-_SF_POINTS = 64
+_SF_POINTS = 96
 #: The grid ends at ``u = sqrt(threshold) + _SF_U_MARGIN``: above it
 #: P(2F < threshold) <= P(Z < -10) < 1e-23, and ``sf`` is taken as 1.
 _SF_U_MARGIN = 10.0
@@ -670,8 +670,8 @@ def _root_log_a(thr, nseg, prob, rid, rule, method="auto", xatol=1e-9, interpola
 _TABLE_MIN_ELEMENTS = 1024
 #: Node spacing of that table in ln N and in ln q (q = -ln of the per-template false
 #: alarm chi2.sf(threshold; 4N)); bicubic spline (scipy.interpolate.RectBivariateSpline).
-#: Measured against the per-element solve: depth within 2e-6 relative over N = 1..1000
-#: and per-template false alarms 1e-1..1e-40
+#: Measured against the per-element solve: depth within 1.5e-5 relative over N = 1..1000
+#: and 1..1e15 templates at 1 % false alarm (below the 2e-4 of the rule condensation)
 #: (tests/test_detection.py::test_tabulated_depth_matches_the_per_setup_solve).
 _TABLE_STEP = 0.25
 #: The table is split at the degrees of freedom where "auto" switches to Sankaran's

@@ -502,3 +502,63 @@ def test_two_worker_processes_give_the_same_bits(target):
                               executor=pool)
     for name in ("h0_limit", "eps_limit", "alpha_limit"):
         assert np.array_equal(serial[name], pooled[name])
+
+
+# ---------------------------------------------------------------------------------------
+# Fast paths against their reference paths
+# ---------------------------------------------------------------------------------------
+@pytest.mark.parametrize("distance_prior, inertia", [
+    ("uniform", None), ("log-normal", (1e38, 3e38))])
+def test_astro_node_rule_matches_a_large_monte_carlo(target, distance_prior, inertia):
+    # The default eps limit (posterior CDF mixed over Gauss nodes of the priors) against a
+    # hand Monte-Carlo of 10^6 draws (numpy; h0 by inverse CDF of band_posterior, d and I
+    # from scipy.stats, eps by the conversion, JKS 1998 eq. 22); 4 sigma of the sample
+    # quantile (sqrt(p(1-p)/n)/f(q), common practice) plus 1e-3 for the node rule and the
+    # linear CDF.
+    res = _results([60.0], width=0.5)
+    kw = {} if inertia is None else dict(inertia_range=tuple(v * u.kg * u.m**2
+                                                              for v in inertia))
+    t = upper_limits(res, _setup(), target, "bayes", distance_prior=distance_prior, **kw)
+    h0, _, cdf = band_posterior(res, _setup(), target, 0)
+    rng = np.random.default_rng(17)
+    n = 1_000_000
+    hs = np.interp(rng.uniform(size=n), cdf, h0.value)
+    d_lo, d_hi, d0 = (target.distance_min.value, target.distance_max.value,
+                      target.distance.value)
+    if distance_prior == "uniform":
+        d = rng.uniform(d_lo, d_hi, n)
+    else:
+        sigma = max(np.log(d0 / d_lo), np.log(d_hi / d0)) / stats.norm.ppf(0.95)
+        d = stats.lognorm.rvs(sigma, scale=d0, size=n, random_state=rng)
+    i_ratio = 1.0 if inertia is None else 1e38 / rng.uniform(*inertia, n)
+    eps = ellipticity(hs, t["f_mid"][0], d * u.kpc).value * i_ratio
+    q = np.quantile(eps, 0.95)
+    f_q = np.mean(np.abs(eps - q) < 0.02 * q) / (0.04 * q)
+    sigma_q = np.sqrt(0.95 * 0.05 / n) / f_q
+    assert abs(t["eps_limit"][0].value - q) < 4 * sigma_q + 1e-3 * q
+    # alpha (no I) the same way
+    alpha = rmode_amplitude(hs, t["f_mid"][0], d * u.kpc).value
+    qa = np.quantile(alpha, 0.95)
+    fa = np.mean(np.abs(alpha - qa) < 0.02 * qa) / (0.04 * qa)
+    assert abs(t["alpha_limit"][0].value - qa) < 4 * np.sqrt(0.95 * 0.05 / n) / fa + 1e-3 * qa
+
+
+def test_fast_limits_match_the_reference_paths(target):
+    # The tabulated fast path (rule rows + band index, one level per band, node rule over
+    # d) against the reference path (per-band quantile tables, Monte-Carlo of n_astro
+    # draws) on 200 bands sharing one rule: h0 within 1e-6 relative (the same posterior;
+    # measured 3e-9), eps within 4 sigma of the reference's Monte-Carlo error.
+    loudest = np.random.default_rng(3).uniform(30, 90, 200)
+    res = _results(loudest, width=0.01)
+    fast = upper_limits(res, _setup(), target, "bayes")
+    ref = upper_limits(res, _setup(), target, "bayes", rng=4, n_astro=20000, tabulate=False)
+    assert np.allclose(fast["h0_limit"], ref["h0_limit"], rtol=1e-6)
+    # Monte-Carlo quantile error of eps for 20000 draws: ~0.9 % here (sqrt(p(1-p)/n)/f
+    # relative, f of the eps distribution measured in the test above); 4 sigma.
+    assert np.allclose(fast["eps_limit"], ref["eps_limit"], rtol=0.035)
+    assert abs(np.mean(fast["eps_limit"].value / ref["eps_limit"].value - 1)) < 0.035 / 10
+    freq = upper_limits(res, _setup(), target, "frequentist")
+    freq_direct = upper_limits(res, _setup(), target, "frequentist", tabulate=False)
+    # tabulated loudest-event limit against the per-band solve (cubic spline in s)
+    assert np.allclose(freq["h0_limit"], freq_direct["h0_limit"], rtol=1e-5)
+    assert np.allclose(freq["eps_limit"], freq_direct["eps_limit"], rtol=1e-5)
