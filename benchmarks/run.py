@@ -33,6 +33,7 @@ HERE = pathlib.Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))  # the working tree's cwlimits, installed or not
 
 from benchutil import best_time  # noqa: E402
+from goals import evaluate  # noqa: E402
 
 from cwlimits import __version__  # noqa: E402
 from cwlimits.executor import chunk_seed, make_executor, map_chunks  # noqa: E402
@@ -124,6 +125,18 @@ def run_script(script, quick, timeout):
             return f"failed: no valid JSON written ({exc})", None
 
 
+def print_goals(rows, quick):
+    """The table goal / measured / pass of benchmarks/goals.py (not run: '-')."""
+    print("== goals (issue 16)" + (" -- quick sizes: the figures are not the goals' sizes"
+                                    if quick else ""))
+    print(f"{'target':<7} {'goal':<52} {'limit':>14} {'measured':>12} {'pass':>5}")
+    for goal, value, ok in rows:
+        limit = f"{goal.op} {goal.limit * goal.scale:g} {goal.unit}".strip()
+        shown = "-" if value is None else f"{value * goal.scale:.3g}"
+        verdict = "-" if ok is None else ("yes" if ok else "NO")
+        print(f"{goal.target:<7} {goal.text:<52} {limit:>14} {shown:>12} {verdict:>5}")
+
+
 def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--quick", action="store_true",
@@ -167,7 +180,12 @@ def main(argv=None):
             print(f"   map_chunks / bare pool      {result['efficiency_vs_bare_pool']:.2f}")
             print(f"   identical bits: {result['identical_bits']}")
 
+    rows = evaluate(figures)
+    print_goals(rows, args.quick)
     merged = {
+        "goals": [dict(target=g.target, goal=g.text, figure=f"{g.bench}.{g.figure}",
+                       limit=f"{g.op} {g.limit:g}", measured=value, passed=ok)
+                  for g, value, ok in rows],
         "written": datetime.datetime.now(datetime.UTC).isoformat(timespec="seconds"),
         "cwlimits_version": __version__,
         "python": platform.python_version(),

@@ -1,0 +1,52 @@
+"""The speed goals of issue 16: one row per goal, checked against the merged figures.
+
+Each :class:`Goal` names the benchmark script (``NAME`` of ``NAME_bench.py``), the figure
+it reads from that script's JSON, the comparison and the limit.  ``benchmarks/run.py``
+prints the table goal / measured / pass after running the benchmarks.  Add a goal by
+adding a row here (and the figure to its script).
+"""
+
+from typing import NamedTuple
+
+__all__ = ["Goal", "GOALS", "evaluate"]
+
+
+class Goal(NamedTuple):
+    target: str        # issue target, e.g. "16.2"
+    text: str          # the goal as the issue states it
+    bench: str         # benchmark script name
+    figure: str        # key in that script's JSON figures
+    op: str            # "<=", "<" or ">="
+    limit: float
+    unit: str = ""     # unit of the figure as printed
+    scale: float = 1.0  # printed value = figure * scale
+
+
+GOALS = [
+    Goal("16.2", "kernel, setups with distinct rules", "detection", "distinct_us_per_setup",
+         "<=", 100.0, "us/setup"),
+    Goal("16.2", "kernel, setups sharing a signal rule", "detection",
+         "shared_us_per_setup", "<=", 5.0, "us/setup"),
+    Goal("16.2", "kernel vs Monte Carlo at 1 % on h0 (fixed sky)", "detection",
+         "speedup_shared_vs_mc", ">=", 100.0, "x"),
+    Goal("16.3", "Bayesian limits, 1e5 bands, default priors", "limits", "bayes_big_s",
+         "<=", 10.0, "s"),
+    Goal("16.3", "peak memory of that run (whole process)", "limits",
+         "bayes_big_peak_rss_bytes", "<", 1e9, "GB", 1e-9),
+    Goal("16.3", "scaling exponent 3e4 -> 1e5 bands (Bayesian)", "limits",
+         "bayes_scaling_exponent", "<=", 1.05),
+    Goal("16.3", "scaling exponent 3e4 -> 1e5 bands (frequentist)", "limits",
+         "frequentist_scaling_exponent", "<=", 1.05),
+]
+
+_OPS = {"<=": lambda a, b: a <= b, "<": lambda a, b: a < b, ">=": lambda a, b: a >= b}
+
+
+def evaluate(figures, goals=GOALS):
+    """Rows ``(goal, measured or None, passed or None)`` from the merged figures."""
+    rows = []
+    for goal in goals:
+        value = figures.get(goal.bench, {}).get(goal.figure)
+        passed = None if value is None else bool(_OPS[goal.op](value, goal.limit))
+        rows.append((goal, value, passed))
+    return rows
