@@ -11,7 +11,8 @@ confidence.
 
 * Fast side: :func:`cwlimits.detection.critical_depth` with the fixed-sky rule (32 x 32
   Gauss-Legendre x midpoint nodes in cos iota and psi times 64 mismatch nodes, condensed to
-  <= 132 nodes; a 16 x 16 rule is 3 % off at 95 % here, 32 x 32 is 5e-4 off).  Timed for setups sharing that rule (the tabulated path, its table built
+  <= 132 nodes; a 16 x 16 rule is 3 % off at 95 % here, 32 x 32 is 5e-4 off).
+  Timed for setups sharing that rule (the tabulated path, its table built
   inside the timed call) and for setups with distinct rules (each rule scaled by its own
   factor: the per-setup solve).  The "before" figure is the direct reference path of the
   same solver (every survival function summed on every iteration).

@@ -511,8 +511,10 @@ class _SurvivalTable:
         self.z = np.concatenate([z[:, 1:2], z], axis=1)
 
     def mixture(self, a, sqrt_c, w, rows, block=256):
-        """``sum_i w_i sf(a c_i)`` for the elements ``rows`` (``sqrt_c``, ``w``: their rules,
-        one row each or one row for all).
+        """``sum_i w_i sf(a c_i)`` for the elements ``rows``.
+
+        ``sqrt_c``, ``w``: the square roots of the nodes and the weights of their rules,
+        one row per element or one row for all.
 
         Above the grid ``sf`` is read at its top node (``1 - 1e-16``, not 1).  Blocks of
         ``block`` elements keep the temporaries in cache.

@@ -266,8 +266,11 @@ def _solve_x(obs_sum, n_seg, c, w, confidence):
 
 
 def _groups(rid, tabulate, min_size=None):
-    """Bands per rule row: ``(row, bands)`` of the rows used by at least ``min_size``
-    bands (tabulated), and the bands of every other row (computed directly)."""
+    """Group the bands by rule row.
+
+    Returns ``(row, bands)`` of the rows used by at least ``min_size`` bands (to
+    tabulate), and the bands of every other row (computed directly).
+    """
     min_size = _MIN_TABULATE if min_size is None else min_size
     if not tabulate or len(rid) < min_size:
         return [], np.arange(len(rid))
@@ -342,7 +345,7 @@ def _distance_ppf(p, d_nom, d_min, d_max, prior):
 
 
 def _lognormal_sigma(d_nom, d_min, d_max):
-    """sigma of ln d: [d_min, d_max] is the central 90 % (the wider side sets it)."""
+    """Sigma of ln d: [d_min, d_max] is the central 90 % (the wider side sets it)."""
     z = stats.norm.ppf(0.5 + _LOGNORMAL_RANGE_PROBABILITY / 2)
     return max(np.log(d_nom / d_min), np.log(d_max / d_nom)) / z
 
@@ -392,8 +395,9 @@ def _astro_nodes(d_nom, d_min, d_max, distance_prior, i_fixed, i_range):
 
 
 def _mixture_quantile(grid, cdf, top, x_conf, factors, weights, confidence):
-    """Per band, the ``confidence`` quantile of ``x f`` with x from the posterior and f
-    from a fixed rule: the root of ``sum_j v_j min(F(e / f_j), top) / top = confidence``.
+    """Per band, the ``confidence`` quantile of ``x f`` (x posterior, f a fixed rule).
+
+    It is the root of ``sum_j v_j min(F(e / f_j), top) / top = confidence``.
 
     ``F`` is the posterior CDF on its grid (linear interpolation), ``top = F(x_max)`` for
     a truncated prior (1 otherwise) and ``x_conf`` the band's own quantile, which brackets
@@ -428,7 +432,7 @@ def _mixture_quantile(grid, cdf, top, x_conf, factors, weights, confidence):
 
 
 def _bayes_direct(obs, n_seg, c, w, confidence, prior, x_min, x_max, astro):
-    """x limit and the eps and alpha factors (quantiles of x f) of each band, own grid."""
+    """Limit on x and the eps and alpha factors (quantiles of x f) of each band, own grid."""
     grid, _, cdf = _posterior_on_grid(obs, n_seg, c, w, prior, x_min)
     top = (np.ones(len(obs)) if x_max is None else
            _row_inverse(np.asarray(x_max, float)[:, None], grid, cdf)[:, 0])
@@ -696,7 +700,8 @@ def _prepare(results, setup, target, noise, model_options):
     alpha_k = rmode_amplitude(1.0, f_mid, 1 * u.kpc).value
     return results, sm, psd, {
         "obs": np.asarray(results.loudest_sum(sm.n_seg), float), "rid": rid,
-        "rule_c": rule_c, "rule_w": rule_w, "scale": scale, "eps_per_h0": eps_k, "alpha_per_h0": alpha_k}
+        "rule_c": rule_c, "rule_w": rule_w, "scale": scale, "eps_per_h0": eps_k,
+        "alpha_per_h0": alpha_k}
 
 
 def _band_rule(arrays, idx):

@@ -37,7 +37,6 @@ from .detection import (
     QuadratureRule,
     combine_rules,
     critical_depth,
-    estimate_sensitivity,
     false_alarm_threshold,
 )
 from .errors import InputError
