@@ -43,7 +43,7 @@ def _setup(**kw):
 def test_coherent_count_is_theta_mu_sqrtdet_volume():
     # reference: N = theta mu^(-n/2) sqrt(det g) V (Prix 2007, arXiv:0707.0428) with
     # theta(A_3*) from Conway & Sloane and sqrt(det g) = pi^3 T^6/(360 sqrt 105)
-    s = _setup(mismatch_coarse=0.2)
+    s = _setup(mismatch_coherent=0.2)
     row = count_templates(s, 300 * u.yr)[0]
     want = (normalised_thickness_anstar(3) * 0.2 ** -1.5 * coherent_sqrt_det_3(20 * DAY)
             * _volume3(400.0, 500.0, 300 * YR))
@@ -51,12 +51,12 @@ def test_coherent_count_is_theta_mu_sqrtdet_volume():
     assert row["n_coh"] == pytest.approx(want, rel=1e-10)
     assert row["volume_3"].to_value(u.Hz ** 3 / u.s ** 3) == pytest.approx(
         _volume3(400.0, 500.0, 300 * YR), rel=1e-12)
-    zn = count_templates(s.replace(lattice="Zn"), 300 * u.yr)[0]
+    zn = count_templates(s.replace(lattice="cubic"), 300 * u.yr)[0]
     assert zn["n_coh"] / row["n_coh"] == pytest.approx(
         normalised_thickness_zn(3) / normalised_thickness_anstar(3), rel=1e-12)
 
 
-@pytest.mark.parametrize("kind", ["An*", "Zn"])
+@pytest.mark.parametrize("kind", ["covering", "cubic"])
 def test_density_formula_counts_actual_lattice_templates(kind):
     # reference: the definition of the count - the number of templates of an actual bank
     # (cwlimits.lattices.nearest_template) inside a box in (f, fdot) - against
@@ -75,7 +75,7 @@ def test_density_formula_counts_actual_lattice_templates(kind):
     templates, _ = nearest_template(pts, g, mu, kind, origin=lo)
     found = np.unique(np.round((templates - lo) / widths, 9), axis=0)
     inside = np.all((found >= 0) & (found < 1), axis=1).sum()
-    s = _setup(t_seg=1 * u.day, lattice=kind, mismatch_coarse=mu)
+    s = _setup(t_seg=1 * u.day, lattice=kind, mismatch_coherent=mu)
     box = BoxSpace((lo[0] * u.Hz, (lo[0] + widths[0]) * u.Hz),
                    (lo[1] * u.Hz / u.s, (lo[1] + widths[1]) * u.Hz / u.s))
     row = count_templates(s, box, bands=(lo[0] * u.Hz, (lo[0] + widths[0]) * u.Hz))[0]
@@ -100,7 +100,7 @@ def test_count_scaling_t6_f3_tau3():
 def test_semicoherent_over_coherent_is_refinement_product():
     # reference: Pletsch 2010, arXiv:1005.0395: density ratio gamma_1 gamma_2 for N
     # contiguous segments (same mismatch in both stages)
-    s = _setup(n_seg=8, mismatch_coarse=0.3, mismatch_fine=0.3)
+    s = _setup(n_seg=8, mismatch_coherent=0.3, mismatch_semicoherent=0.3)
     row = count_templates(s, 300 * u.yr)[0]
     assert row["dims_semi"] == 3 and row["dims_coh"] == 3
     assert row["n_semi"] / row["n_coh"] == pytest.approx(
@@ -247,8 +247,8 @@ def test_cli_scan_and_plot(tmp_path, capsys):
 @pytest.mark.parametrize("extra, match", [
     (["--braking-index-min", "1"], "braking-index-min"),
     (["--braking-index-min", "5", "--braking-index-max", "3"], "braking-index-max"),
-    (["--mismatch-coarse", "1.5"], "mismatch-coarse"),
-    (["--mismatch-fine", "0"], "mismatch-fine"),
+    (["--mismatch-coherent", "1.5"], "mismatch-coherent"),
+    (["--mismatch-semicoherent", "0"], "mismatch-semicoherent"),
     (["--n-seg", "0"], "n-seg"),
     (["--span", "20day"], "span"),
     (["--age=-5yr"], "age"),

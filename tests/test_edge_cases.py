@@ -65,7 +65,7 @@ def test_extreme_observed_statistics_give_finite_limits(target, loudest, method)
     setup = _coherent()
     model = cwlimits.signal_model(setup, "advanced-fit", target)
     results = SearchResults(f_lo=model.f_lo, width=model.f_hi - model.f_lo,
-                            loudest=np.full(len(model), loudest), statistic="sum",
+                            loudest=np.full(len(model), loudest), convention="total",
                             source="edge", rows=np.arange(len(model)) + 2)
     if method == "bayes" and loudest == 0.0:
         # chi-squared(4N) has zero density at 0, so 2F = 0 has zero likelihood for every

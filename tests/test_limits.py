@@ -51,7 +51,7 @@ def _results(loudest, f0=100.0, width=0.01, psd=None, n_templates=None):
     n = len(loudest)
     return SearchResults(
         f_lo=(f0 + width * np.arange(n)) << u.Hz, width=np.full(n, width) << u.Hz,
-        loudest=loudest, statistic="sum",
+        loudest=loudest, convention="total",
         psd=None if psd is None else np.full(n, psd) << 1 / u.Hz,
         n_templates=n_templates)
 
@@ -307,7 +307,7 @@ def test_frequentist_at_the_threshold_equals_the_sensitivity(target):
     setup = _setup()
     sens = strain_sensitivity(setup, "advanced-fit", target=target, confidence=0.9)
     res = SearchResults(f_lo=sens["f_lo"], width=sens["f_hi"] - sens["f_lo"],
-                        loudest=np.asarray(sens["threshold"].value), statistic="sum")
+                        loudest=np.asarray(sens["threshold"].value), convention="total")
     lim = upper_limits(res, setup, target, "frequentist", confidence=0.9)
     assert np.allclose(lim["h0_limit"].value, sens["h0"].value, rtol=1e-7)
     assert np.array_equal(lim["beats_age"], lim["h0_limit"].value < lim["h0_age"].value)
@@ -376,7 +376,7 @@ def files(tmp_path):
     setup.write_text(SETUP_TOML)
     results = tmp_path / "res.csv"
     rng = np.random.default_rng(4)
-    lines = ["f_lo [Hz],width [Hz],loudest_2F_sum"]
+    lines = ["f_lo [Hz],width [Hz],loudest_2F"]
     lines += [f"{100 + 0.5 * i},0.5,{rng.chisquare(32) + 5:.4f}" for i in range(10)]
     results.write_text("\n".join(lines) + "\n")
     return tmp_path, setup, results
@@ -430,10 +430,24 @@ def test_cli_band_outside_the_noise_model(files, capsys):
     # advanced-fit is valid from 20 Hz (cwlimits.noise): a 5 Hz band is refused.
     tmp, setup, _ = files
     results = tmp / "low.csv"
-    results.write_text("f_lo [Hz],width [Hz],loudest_2F_sum\n5,1,40\n")
+    results.write_text("f_lo [Hz],width [Hz],loudest_2F\n5,1,40\n")
     out = tmp / "ul.csv"
     assert _cli(results, setup, "--out", str(out)) == 2
     assert "error:" in capsys.readouterr().err
+    assert not out.exists()
+
+
+@pytest.mark.parametrize("old, new", [("loudest_2F_sum", "loudest_2F"),
+                                      ("loudest_2F_mean", "loudest_2F_per_segment")])
+def test_cli_retired_statistic_column_names_its_replacement(files, capsys, old, new):
+    # a results table written for an earlier version: exit 2, the message names the new column
+    tmp, setup, _ = files
+    results = tmp / "old.csv"
+    results.write_text(f"f_lo [Hz],width [Hz],{old}\n100,1,40\n")
+    out = tmp / "ul.csv"
+    assert _cli(results, setup, "--out", str(out)) == 2
+    err = capsys.readouterr().err
+    assert err.startswith("error:") and f"'{old}' was renamed" in err and f"'{new}'" in err
     assert not out.exists()
 
 
