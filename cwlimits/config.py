@@ -32,7 +32,7 @@ CONFIG_KEYS = {
     "indirect.braking_index": ("float", None, 5.0, "braking index of the age-based limit"),
     "indirect.moment_of_inertia": ("quantity", "kg m2", 1e38 * u.kg * u.m**2,
                                    "moment of inertia"),
-    "noise.model": ("str", None, "advanced-fit",
+    "noise.model": ("str", None, "second-gen-fit",
                     "noise model name or noise file, used for every detector"),
     "data.detectors": ("list[str]", None, ["H1", "L1"], "detector site codes"),
     "data.span": ("quantity", "day", _REQUIRED, "longest data span a search may use"),

@@ -103,7 +103,7 @@ def test_log_uniform_prior_matches_quad(obs):
 def test_tabulated_path_matches_direct(target):
     # Interpolating the quantile table against 2F* must not move the limit: measured max
     # relative difference ~4e-4 (tolerance 1e-3, the accuracy asked of the posterior).
-    sm = signal_model(_setup(), "advanced-fit", target)
+    sm = signal_model(_setup(), "second-gen-fit", target)
     rule = sm.signal_rule()
     rng = np.random.default_rng(11)
     obs = np.concatenate([rng.chisquare(32, 55), 32 + rng.uniform(0, 400, 55)])
@@ -159,7 +159,7 @@ def simulated(target):
     psd = 1e-46
     rng = np.random.default_rng(2026)
     f_lo = (100 + 0.01 * np.arange(n)) << u.Hz
-    sm = signal_model(setup, "advanced-fit", target, (f_lo, f_lo + 0.01 * u.Hz))
+    sm = signal_model(setup, "second-gen-fit", target, (f_lo, f_lo + 0.01 * u.Hz))
     t_s = sm.t_data.to_value(u.s)
     h_max = 6e-26
     h_true = rng.uniform(0, h_max, n)                    # the Bayesian prior's range
@@ -280,7 +280,7 @@ def test_frequentist_ellipticity_reaches_the_confidence_over_distance(target):
     setup = _setup()
     res = _results([70.0], width=0.5, psd=1e-46)
     t = upper_limits(res, setup, target, "frequentist")
-    sm = signal_model(setup, "advanced-fit", target, (res.f_lo, res.f_hi))
+    sm = signal_model(setup, "second-gen-fit", target, (res.f_lo, res.f_hi))
     rng = np.random.default_rng(5)
     n = 200000
     d = rng.uniform(target.distance_min.value, target.distance_max.value, n) * u.kpc
@@ -305,7 +305,7 @@ def test_frequentist_at_the_threshold_equals_the_sensitivity(target):
     # P_det(h0) = confidence with the threshold as the 'observed' loudest event is the
     # expected-sensitivity definition (Wette 2012): the same numbers.
     setup = _setup()
-    sens = strain_sensitivity(setup, "advanced-fit", target=target, confidence=0.9)
+    sens = strain_sensitivity(setup, "second-gen-fit", target=target, confidence=0.9)
     res = SearchResults(f_lo=sens["f_lo"], width=sens["f_hi"] - sens["f_lo"],
                         loudest=np.asarray(sens["threshold"].value), convention="total")
     lim = upper_limits(res, setup, target, "frequentist", confidence=0.9)
@@ -427,7 +427,7 @@ def test_cli_bad_results_files(files, capsys, bad):
 
 
 def test_cli_band_outside_the_noise_model(files, capsys):
-    # advanced-fit is valid from 20 Hz (cwlimits.noise): a 5 Hz band is refused.
+    # second-gen-fit is valid from 20 Hz (cwlimits.noise): a 5 Hz band is refused.
     tmp, setup, _ = files
     results = tmp / "low.csv"
     results.write_text("f_lo [Hz],width [Hz],loudest_2F\n5,1,40\n")

@@ -27,7 +27,7 @@ from cwlimits.targets import load_targets
 BAND = (100 * u.Hz, 120 * u.Hz)
 OPTIONS = dict(band=BAND, band_width=2 * u.Hz, t_seg_min=1 * u.day)
 SPAN = 40 * u.day
-NOISE = "advanced-fit"
+NOISE = "second-gen-fit"
 
 #: Agreement of the fast planning model with strain_sensitivity: the fast model uses
 #: condensed rules (48 nodes), 256 fixed mismatch draws, antenna averages over one year

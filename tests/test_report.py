@@ -144,6 +144,6 @@ def test_plan_files_of_the_report_reproduce_its_numbers(demo_report):
     # the demo plans for the pessimistic case: farthest distance, oldest age
     target = catalogue.target(name)
     target = dataclasses.replace(target, distance=target.distance_max, age=target.age_max)
-    again = strain_sensitivity(load_setup(plan), "advanced-fit", target=target,
+    again = strain_sensitivity(load_setup(plan), "second-gen-fit", target=target,
                                start="2030-01-01T00:00:00")
     assert np.allclose(table.quantity("h0", u.one), again["h0"], rtol=1e-9)

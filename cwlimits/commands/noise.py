@@ -25,8 +25,8 @@ ORDER = 30
 
 _EXAMPLES = [
     "cwlimits noise --list                                  # the analytic design fits",
-    "cwlimits noise advanced-fit --band 20Hz 2000Hz --step 10Hz",
-    "cwlimits noise third-gen-fit --band 5Hz 500Hz --step 5Hz --out et.csv --plot et.png",
+    "cwlimits noise second-gen-fit --band 20Hz 2000Hz --step 10Hz",
+    "cwlimits noise third-gen-fit --band 5Hz 500Hz --step 5Hz --out gen3.csv --plot gen3.png",
     "cwlimits noise my_asd.csv --band 30Hz 1000Hz --step 1Hz --out bands.ecsv",
     "cwlimits noise curve.txt --kind psd --plot curve.pdf     # headerless two-column file",
     "cwlimits noise --timeseries strain.npy --sample-rate 4096Hz --segment 4s "

@@ -29,6 +29,10 @@ __all__ = ["ORDER", "register", "run"]
 ORDER = 35
 
 _QUANTILES = (0.05, 0.10, 0.25, 0.50, 0.75, 0.90, 0.95)
+#: Column names of the antenna-pattern averages: <a^2>, <b^2>, <ab> over the data and
+#: <a^2><b^2> - <ab>^2: A, B, C and D = AB - C^2 in the notation of Jaranowski, Krolak &
+#: Schutz 1998, gr-qc/9804014 (Sect. III).
+_AVERAGE_COLUMNS = ("mean_a2", "mean_b2", "mean_ab", "determinant")
 
 
 def register(subparsers, common):
@@ -150,7 +154,7 @@ def run(args):
     with resp._QuietTime():
         assumptions = _assumptions(averages, where, args)
         echo(args, f"sky position: {where} (ICRS {coord.to_string('hmsdms')})")
-        headers = ["detector", "weight", "T_data [d]", "A", "B", "C", "D", "mean R^2"]
+        headers = ["detector", "weight", "T_data [d]", *_AVERAGE_COLUMNS, "mean R^2"]
         rows = []
         for i, det in enumerate(detectors):
             a, b, c = (float(x[i]) for x in (averages.A_det, averages.B_det, averages.C_det))
@@ -215,8 +219,11 @@ def _assumptions(averages, where, args):
         "R2": "rho^2 = R^2 h0^2 T_data/S_n (network: h0^2 R^2 sum_d weight_d T_d/S_d); "
               "R^2 = A alpha1 + B alpha2 + 2 C alpha3 with A+ = (1+cosi^2)/2, Ax = cosi, "
               "sin^2(zeta) in the network A, B, C (JKS 1998 gr-qc/9804014)",
-        "A_B_C_rows": "detector rows: JKS <a^2>, <b^2>, <ab> without sin^2(zeta); network "
-                      "row: weighted sum with sin^2(zeta); site columns nan on it",
+        "columns": "mean_a2, mean_b2, mean_ab = the time averages <a^2>, <b^2>, <ab> of the "
+                   "antenna-pattern functions a(t), b(t) (A, B, C of JKS 1998); determinant "
+                   "= mean_a2 mean_b2 - mean_ab^2 (their D)",
+        "average_rows": "detector rows: <a^2>, <b^2>, <ab> without sin^2(zeta); network "
+                        "row: weighted sum with sin^2(zeta); site columns nan on it",
         "R2_quantiles": f"quadrature rule, {args.order}x{args.order} nodes, uniform "
                         "cos(iota) in [-1,1] and psi",
     }
@@ -234,10 +241,10 @@ def _write(out, detectors, averages, network, single, assumptions):
     table["weight"] = list(averages.weights) + [1.0] << u.one
     table["t_data"] = list(averages.t_data.to_value(u.d)) + [
         float(np.sum(averages.t_data.to_value(u.d)))] << u.d
-    for key in ("A", "B", "C"):
+    for key, column in zip(("A", "B", "C"), _AVERAGE_COLUMNS[:3], strict=True):
         per = getattr(averages, f"{key}_det").to_value(u.one)
-        table[key] = list(per) + [float(getattr(averages, key))] << u.one
-    table["D"] = table["A"] * table["B"] - table["C"] ** 2
+        table[column] = list(per) + [float(getattr(averages, key))] << u.one
+    table["determinant"] = table["mean_a2"] * table["mean_b2"] - table["mean_ab"] ** 2
     rows = single + [network]
     table["R2_mean"] = [r["mean"] for r in rows] << u.one
     for j, q in enumerate(_QUANTILES):

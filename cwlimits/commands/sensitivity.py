@@ -36,7 +36,7 @@ def register(subparsers, common):
                     "compared with the target's age-based limit.",
         examples=[
             "cwlimits sensitivity --catalogue target_lists/demo.csv --target 'Fict Ember' "
-            "--setup search.toml --noise advanced-fit --band 50Hz 500Hz",
+            "--setup search.toml --noise second-gen-fit --band 50Hz 500Hz",
             "cwlimits sensitivity --catalogue target_lists/demo.csv --target 'Fict Quill' "
             "--t-seg 10day --n-seg 12 --f-min 50Hz --f-max 500Hz --confidence 0.9 "
             "--out sens.ecsv --plot sens.png",
