@@ -24,8 +24,8 @@ which is 5 G I |fdot|/(2 c^3 d^2 f) for k = 2 (the usual spin-down limit) and
 With |fdot|/f = 1/((n - 1) age) this gives the age-based limit, 5 G I/(8 c^3 d^2 age) for
 k = 2, n = 5 (Wette et al. 2008, eq. 6).
 
-Equation numbers are from memory; the coefficients are checked in the tests against the
-published normalisations.
+Equation numbers are from memory; the tests check the coefficients against published
+coefficients and the closed forms evaluated with astropy's constants.
 
 Assumptions (each printed beside every limit the tool reports): all the rotational energy
 loss goes into gravitational waves; the moment of inertia I (default 1e38 kg m^2); the
@@ -171,10 +171,11 @@ def age_limit(distance, age, braking_index=None, moment_of_inertia=DEFAULT_MOMEN
 
         h_age = (1/d) sqrt(10 G I / ((n - 1) k^2 c^3 age)),
 
-    which for k = 2, n = 5 is (1/d) sqrt(5 G I / (8 c^3 age)) = 1.26e-24 (3.3 kpc/d)
-    (300 yr/age)^(1/2) I_38^(1/2) (Wette et al. 2008, eq. 6).  The braking index enters
-    only through the age-to-spin-down relation; the assumption that all energy is lost to
-    gravitational waves enters through the energy balance.
+    which for k = 2, n = 5 is the closed form (1/d) sqrt(5 G I / (8 c^3 age)) of Wette
+    et al. 2008, eq. 6; with astropy's G and c that is 2.27e-24 (1 kpc/d) (1 kyr/age)^(1/2)
+    I_38^(1/2).  The braking index enters only through the age-to-spin-down relation; the
+    assumption that all energy is lost to gravitational waves enters through the energy
+    balance.
 
     References
     ----------
