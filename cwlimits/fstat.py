@@ -564,7 +564,7 @@ def expected_rho2(data, signal, *, noise="true"):
 
 # ------------------------------------------------------------------------ unit costs
 
-def measure_unit_costs(n_samples=2**14, *, n_seg=16, padding=2, repeats=3, rng=None):
+def measure_unit_costs(n_samples=10_000, *, n_seg=16, padding=2, repeats=3, rng=None):
     """Time the coherent and semi-coherent stages on this machine, per template.
 
     Parameters

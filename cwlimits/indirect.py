@@ -133,9 +133,10 @@ def spindown_limit(f_rot, fdot_rot, distance, moment_of_inertia=DEFAULT_MOMENT_O
     Examples
     --------
     >>> import astropy.units as u
-    >>> h = spindown_limit(29.78 * u.Hz, -3.7e-10 * u.Hz / u.s, 2 * u.kpc)
-    >>> round(float(h * 1e24), 2)
-    1.43
+    >>> # the fictional demo pulsar "Fict Pulsar Cinder" of cwlimits/data/demo.csv
+    >>> h = spindown_limit(23.7 * u.Hz, -4.4e-11 * u.Hz / u.s, 3.9 * u.kpc)
+    >>> round(float(h * 1e25), 2)
+    2.82
     """
     f = positive_value(f_rot, u.Hz, "f_rot")
     fdot = np.abs(to_value(fdot_rot, u.Hz / u.s, "fdot_rot"))

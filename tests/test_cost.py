@@ -325,7 +325,7 @@ def test_cli_spin_box(tmp_path, capsys, demo_catalogue_path):
     table = read_table(out)
     f_lo = table.quantity("f_min", u.Hz)
     f_hi = table.quantity("f_max", u.Hz)
-    f0 = 2 * 18.3                                   # 2 f_rot of the demo row
+    f0 = 2 * 23.7                                   # 2 f_rot of the demo row
     assert f_lo[0].value == pytest.approx(f0 * (1 - 1e-3))
     assert f_hi[-1].value == pytest.approx(f0 * (1 + 1e-3))
     assert "box around the spin" in capsys.readouterr().out

@@ -51,8 +51,8 @@ def register(subparsers, common):
     timing = parser.add_argument_group("timing")
     timing.add_argument("--repeats", type=int, default=5, metavar="N",
                         help="timing repetitions; the fastest is kept (default 5)")
-    timing.add_argument("--samples", type=int, default=2**14, metavar="M",
-                        help="samples per segment of the timed FFT (default 16384)")
+    timing.add_argument("--samples", type=int, default=10_000, metavar="M",
+                        help="samples per segment of the timed FFT (default 10000)")
     timing.add_argument("--segments", type=int, default=16, metavar="N",
                         help="segments of the timed semi-coherent sum (default 16)")
     parser.set_defaults(run=run)

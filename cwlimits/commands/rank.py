@@ -32,7 +32,7 @@ def register(subparsers, common):
         examples=[
             "cwlimits rank target_lists/demo.csv --budget '1e6 h' --span '1 yr' "
             "--out ranking.ecsv --plot merit.png --plans-dir plans",
-            "cwlimits rank cat.csv --budget '300 yr' --span 200day --measure width "
+            "cwlimits rank cat.csv --budget '400 yr' --span 200day --measure width "
             "--case nominal --workers 2"])
     parser.add_argument("catalogue", metavar="CATALOGUE", help="target catalogue (CSV/ECSV)")
     parser.add_argument("--budget", required=True, metavar="TIME",
