@@ -748,8 +748,7 @@ def test_cli_headerless_file_needs_kind(tmp_path, capsys):
 
 
 @pytest.mark.parametrize("old, new", [("advanced-fit", "second-gen-fit"),
-                                      ("initial-fit", "first-gen-fit"),
-                                      ("virgo-fit", "first-gen-3km-fit")])
+                                      ("initial-fit", "first-gen-fit")])
 def test_retired_model_names_name_their_replacement(old, new):
     with pytest.raises(InputError, match=f"was renamed: use '{new}'"):
         get_noise(old)

@@ -306,8 +306,8 @@ def _twin_catalogue(path, d_near, d_far):
         "# FICTIONAL test targets\n"
         "name,ra,dec,distance [kpc],distance_min [kpc],distance_max [kpc],age [yr],"
         "age_min [yr],age_max [yr]\n"
-        f"Fict Far,17h03m11s,-38d21m40s,{d_far},{d_far},{d_far},3000,3000,3000\n"
-        f"Fict Near,17h03m11s,-38d21m40s,{d_near},{d_near},{d_near},3000,3000,3000\n",
+        f"Fict Far,11h41m26s,+08d12m30s,{d_far},{d_far},{d_far},3000,3000,3000\n"
+        f"Fict Near,11h41m26s,+08d12m30s,{d_near},{d_near},{d_near},3000,3000,3000\n",
         encoding="utf-8")
     return load_targets(path)
 

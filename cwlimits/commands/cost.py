@@ -37,7 +37,7 @@ _EXAMPLES = [
     "cwlimits cost --catalogue target_lists/demo.csv --target 'Fict Pulsar Cinder' "
     "--spin-box 1e-3 0.05 --t-seg 1day --n-seg 30 --band-width 0.01Hz",
     "cwlimits cost --age 500yr --t-seg 5day --n-seg 20 --f-min 100Hz --f-max 300Hz "
-    "--mismatch-coherent 0.5 --mismatch-semicoherent 0.2 --lattice Zn --detectors H1,L1,V1",
+    "--mismatch-coherent 0.5 --mismatch-semicoherent 0.2 --lattice cubic --detectors H1,L1,V1",
 ]
 
 def register(subparsers, common):

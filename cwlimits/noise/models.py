@@ -115,8 +115,7 @@ NOISE_MODELS = {
 DEFAULT_NOISE_MODEL = "second-gen-fit"
 
 #: Model names of earlier versions and the names that replaced them.
-_RETIRED_NOISE_MODELS = {"advanced-fit": "second-gen-fit", "initial-fit": "first-gen-fit",
-                         "virgo-fit": "first-gen-3km-fit"}
+_RETIRED_NOISE_MODELS = {"advanced-fit": "second-gen-fit", "initial-fit": "first-gen-fit"}
 
 
 def noise_model(name):
