@@ -15,7 +15,8 @@ The model
   gr-qc/9804014; Wette 2012, arXiv:1111.5650; Dreissigacker, Prix & Wette 2018,
   arXiv:1808.02459).  ``N = 1`` is the fully coherent search.  Every public function takes
   ``convention="total"`` (thresholds and observations on ``2F``, the total over segments)
-  or ``convention="per_segment"`` (on the segment average ``2F / N``); the value is converted to the sum once, at the boundary.
+  or ``convention="per_segment"`` (on the segment average ``2F / N``); the value is
+  converted to the total once, at the boundary.
 * Signal strength.  ``rho2 = R2 h0^2 T_data / S_n (1 - mu)`` with ``R2`` the orientation and
   antenna-pattern factor, ``T_data`` the total data span, ``S_n`` the one-sided noise power
   spectral density and ``mu`` the StackSlide mismatch (Wette 2012; Dreissigacker et al. 2018).

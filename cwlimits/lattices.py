@@ -313,9 +313,9 @@ def sample_mismatch(lattice, n_dims, max_mismatch, size=10000, rng=None):
     Notes
     -----
     The mismatch is the quadratic metric mismatch (valid for small ``mu``).  For a
-    StackSlide search the coherent and semicoherent mismatches add approximately (Prix & Shaltev 2012,
-    arXiv:1201.4321; from memory), so a total can be drawn as the sum of two independent
-    draws.
+    StackSlide search the coherent and semicoherent mismatches add approximately (Prix &
+    Shaltev 2012, arXiv:1201.4321; from memory), so a total can be drawn as the sum of two
+    independent draws.
     """
     kind = lattice.kind if isinstance(lattice, Lattice) else lattice
     return get_lattice(_canonical(kind), int(n_dims)).sample_mismatch(max_mismatch, size, rng)

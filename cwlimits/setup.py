@@ -85,7 +85,8 @@ SETUP_KEYS = {
                              "maximum mismatch of the coherent grid"),
     "grid.mismatch_semicoherent": ("mismatch_semicoherent", "float", None,
                            "maximum mismatch of the semi-coherent grid"),
-    "grid.lattice": ("lattice", "string", None, "template lattice: covering (A_n*) or cubic (Z^n)"),
+    "grid.lattice": ("lattice", "string", None,
+                     "template lattice: covering (A_n*) or cubic (Z^n)"),
     "band.f_min": ("f_min", "quantity", u.Hz, "lower band edge"),
     "band.f_max": ("f_max", "quantity", u.Hz, "upper band edge"),
     "band.width": ("band_width", "quantity", u.Hz, "width of the reporting bands"),
@@ -231,7 +232,8 @@ class SearchSetup:
             _fail("detectors", "a detector is listed twice", list(dets))
         put("detectors", dets)
         put("mismatch_coherent", _unit_interval(self.mismatch_coherent, "mismatch_coherent"))
-        put("mismatch_semicoherent", _unit_interval(self.mismatch_semicoherent, "mismatch_semicoherent"))
+        put("mismatch_semicoherent", _unit_interval(self.mismatch_semicoherent,
+                                                    "mismatch_semicoherent"))
         try:
             put("lattice", _canonical_lattice(self.lattice))
         except InputError as exc:

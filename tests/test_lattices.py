@@ -55,7 +55,8 @@ def test_thickness_matches_conway_sloane(n):
                                                         rel=THICKNESS_TABLE_RTOL.rtol)
 
 
-@pytest.mark.parametrize("kind, n", [("covering", 2), ("covering", 3), ("covering", 4), ("cubic", 3)])
+@pytest.mark.parametrize("kind, n", [("covering", 2), ("covering", 3), ("covering", 4),
+                                     ("cubic", 3)])
 def test_covering_radius_is_one(kind, n):
     # reference: the thickness closed forms assume a covering radius R; here the largest
     # distance to the nearest point is searched numerically (random starts, then
@@ -133,7 +134,8 @@ def test_sampler_z1_distribution():
     assert res.pvalue > 1e-3
 
 
-@pytest.mark.parametrize("kind, n", [("covering", 2), ("covering", 3), ("cubic", 3), ("covering", 4)])
+@pytest.mark.parametrize("kind, n", [("covering", 2), ("covering", 3), ("cubic", 3),
+                                     ("covering", 4)])
 def test_sampler_mean_matches_factor(kind, n):
     # reference: the mean-mismatch factor (SPLAG second moments above); Monte-Carlo with a
     # fixed seed, tolerance 4 standard errors

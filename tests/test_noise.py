@@ -51,10 +51,12 @@ CUTOFFS_HZ = {"second-gen-fit": 20.0, "first-gen-fit": 40.0, "first-gen-3km-fit"
 # First-generation 4 km fit at x = 1: (4.49)^-56 + 0.16 + 0.52 + 0.32 = 1.0 + 4.49^-56, so
 # S_h(150 Hz) = S0 = 9e-46 1/Hz (Arun et al. 2005, gr-qc/0411146; from memory).
 FIRST_GEN_AT_F0 = (9e-46 * (1.0 + 4.49**-56), PSD, 1e-12)
-# First-generation 3 km fit at x = 1: 7.87^-4.8 + 6/17 + 1 + 1 with S0 = 10.2e-46 1/Hz at f0 = 500 Hz
+# First-generation 3 km fit at x = 1: 7.87^-4.8 + 6/17 + 1 + 1 with S0 = 10.2e-46 1/Hz at
+# f0 = 500 Hz
 # (Arun et al. 2005, gr-qc/0411146; from memory).
 FIRST_GEN_3KM_AT_F0 = (10.2e-46 * (7.87**-4.8 + 6 / 17 + 2.0), PSD, 1e-12)
-# Third-generation fit at x = 1: 1 + a1 + a2 (1 + sum b)/(1 + sum c), S0 = 1.449e-52 1/Hz, f0 = 200 Hz
+# Third-generation fit at x = 1: 1 + a1 + a2 (1 + sum b)/(1 + sum c), S0 = 1.449e-52 1/Hz,
+# f0 = 200 Hz
 # (Mishra et al. 2010, arXiv:1005.0304; coefficients from memory).
 THIRD_GEN_AT_F0 = (1.449e-52 * (1 + 185.62 + 232.56 * (1 + 31.18 - 64.72 + 52.24 - 42.16 + 10.17
                                                   + 11.53) / (1 + 13.58 - 36.46 + 18.56
@@ -699,7 +701,8 @@ def test_plot_asd_writes_labelled_log_plot(tmp_path):
     # matplotlib keeps each text element as a comment in the SVG (common practice)
     assert "frequency f [Hz]" in text and "amplitude spectral density" in text
     assert "second-gen-fit" in text and "first-gen-fit" in text
-    assert plot_asd(noise_model("first-gen-3km-fit"), tmp_path / "v.pdf").read_bytes()[:4] == b"%PDF"
+    pdf = plot_asd(noise_model("first-gen-3km-fit"), tmp_path / "v.pdf")
+    assert pdf.read_bytes()[:4] == b"%PDF"
     with pytest.raises(InputError, match="must end in"):
         plot_asd(noise_model("first-gen-3km-fit"), tmp_path / "v.jpg")
 

@@ -13,8 +13,9 @@ from ._common import quantity_arg
 __all__ = ["add_setup_args", "add_signal_model_args", "build_setup"]
 
 # option dest -> SearchSetup field (or a part of one)
-_OVERRIDES = ("t_seg", "n_seg", "span", "duty_factor", "mismatch_coherent", "mismatch_semicoherent",
-              "lattice", "band_width", "cost_coherent", "cost_semicoherent")
+_OVERRIDES = ("t_seg", "n_seg", "span", "duty_factor", "mismatch_coherent",
+              "mismatch_semicoherent", "lattice", "band_width", "cost_coherent",
+              "cost_semicoherent")
 
 
 def add_setup_args(parser):
