@@ -81,9 +81,9 @@ def register(subparsers, common):
 
 
 def _list_models(args):
-    echo(args, f"{'name':<15} {'f_min':>8}  description (default: {DEFAULT_NOISE_MODEL})")
+    echo(args, f"{'name':<18} {'f_min':>8}  description (default: {DEFAULT_NOISE_MODEL})")
     for name, model in NOISE_MODELS.items():
-        echo(args, f"{name:<15} {model.f_min.to_value(u.Hz):>5g} Hz  {model.title}; "
+        echo(args, f"{name:<18} {model.f_min.to_value(u.Hz):>5g} Hz  {model.title}; "
                    f"{model.reference}")
     return 0
 
