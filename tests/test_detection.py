@@ -542,7 +542,7 @@ def test_bad_time_psd_and_others():
         det.critical_depth(20.0, 1, 3 * u.Hz, 0.16)
     with pytest.raises(InputError, match="n_templates"):
         det.false_alarm_threshold(0.01, 0.5, 1)
-    with pytest.raises(InputError, match="statistic"):
+    with pytest.raises(InputError, match="convention must be one of"):
         det.false_alarm_threshold(0.01, 1, 1, convention="max")
     with pytest.raises(InputError, match="mismatch_rule"):
         det.critical_depth(20.0, 1, T_DATA, 0.16, 1.5)
