@@ -58,7 +58,7 @@ from ._toml import load_toml
 from .errors import ConfigError, InputError
 from .lattices import _canonical as _canonical_lattice
 from .parameter_space import check_braking_range
-from .tables import atomic_write
+from ._files import atomic_write
 
 __all__ = ["SearchSetup", "load_setup", "SETUP_KEYS", "DEFAULT_UNIT_COSTS", "FORMAT"]
 
