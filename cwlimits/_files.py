@@ -71,7 +71,7 @@ def atomic_write(path, write, *, binary=False):
     return path
 
 
-def _writable_folder(folder, option, what):
+def _writable_folder(folder, option, what, path=None):
     """Raise unless ``folder`` exists as a writable folder or can be created."""
     probe = Path(folder)
     missing = []
@@ -83,11 +83,28 @@ def _writable_folder(folder, option, what):
     label = f"{option}: " if option else ""
     if not probe.is_dir():
         raise InputError(f"{label}cannot write {what}: {probe} is a file, not a folder",
-                         file=str(folder))
-    if not os.access(probe, os.W_OK | os.X_OK):
-        verb = "create the missing folder" if missing else "write into the folder"
-        raise InputError(f"{label}cannot {verb} {missing[-1] if missing else probe}: "
-                         f"{probe} is not writable", file=str(folder))
+                         file=str(path or folder))
+    verb = "create the missing folder" if missing else "write into the folder"
+    where = missing[-1] if missing else probe
+    if not os.access(probe, os.W_OK | os.X_OK) or not _can_create_in(probe):
+        raise InputError(f"{label}cannot {verb} {where}: {probe} is not writable",
+                         file=str(path or folder))
+
+
+def _can_create_in(folder):
+    """Try to create (and remove) an empty hidden file in ``folder``.
+
+    ``os.access`` does not see every refusal (a read-only file system, a pseudo file
+    system, or a superuser's view of permissions), so the check ends with a real attempt.
+    """
+    probe = Path(folder) / f".cwlimits-probe-{secrets.token_hex(6)}{TEMP_SUFFIX}"
+    try:
+        fd = os.open(probe, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+    except OSError:
+        return False
+    os.close(fd)
+    probe.unlink(missing_ok=True)
+    return True
 
 
 def check_output_file(path, suffixes=(".csv", ".ecsv"), option="--out"):
@@ -111,7 +128,7 @@ def check_output_file(path, suffixes=(".csv", ".ecsv"), option="--out"):
                          "through links, give the real path", file=str(path))
     if path.is_dir():
         raise InputError(f"{label}output path is a folder", file=str(path))
-    _writable_folder(path.parent, option, "the output file")
+    _writable_folder(path.parent, option, "the output file", path)
     return path
 
 

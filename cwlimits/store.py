@@ -602,6 +602,14 @@ class ResultStore:
         return [dict(zip(keys, row, strict=True))
                 for row in self._db.execute(query, (run_id, part))]
 
+    def live_claims(self):
+        """``"pid@host"`` of every other live process holding a claim on a chunk here."""
+        if self._db is None:
+            return []
+        rows = self._db.execute("SELECT DISTINCT pid, host, claimed_at FROM claims")
+        return sorted({f"{pid}@{host}" for pid, host, at in rows
+                       if _claim_is_live(pid, host, at)})
+
     def runs(self):
         """The run ids in the store, oldest first."""
         if self._db is None:

@@ -6,7 +6,7 @@ from pathlib import Path
 
 from ..config import load_config
 from ._common import add_parser, echo
-from .report import write
+from .report import add_overwrite_arg, write
 
 __all__ = ["ORDER", "register", "run", "demo_config_path"]
 
@@ -30,7 +30,9 @@ def register(subparsers, common):
                     "a run record) into the output folder.",
         examples=["cwlimits demo", "cwlimits demo --out-dir /tmp/demo-report --seed 3"])
     parser.add_argument("--out-dir", default="reports/demo", metavar="DIR",
-                        help="output folder (default reports/demo), replaced as a whole")
+                        help="output folder (default reports/demo); a folder cwlimits made "
+                             "is replaced as a whole, any other non-empty one is refused")
+    add_overwrite_arg(parser)
     parser.add_argument("--seed", type=int, default=None,
                         help="seed of every random draw (default: the demo's, 2026)")
     parser.set_defaults(run=run)
@@ -44,4 +46,5 @@ def run(args):
         values = dict(config.values, output=Path(args.out_dir).resolve())
         if args.seed is not None:
             values["seed"] = args.seed
-        return write(args, replace(config, values=values), simulate=True)
+        return write(args, replace(config, values=values), simulate=True,
+                     output_option="--out-dir")
