@@ -54,11 +54,11 @@ from pathlib import Path
 import astropy.units as u
 import numpy as np
 
+from ._files import atomic_write
 from ._toml import load_toml
 from .errors import ConfigError, InputError
 from .lattices import _canonical as _canonical_lattice
 from .parameter_space import check_braking_range
-from ._files import atomic_write
 
 __all__ = ["SearchSetup", "load_setup", "SETUP_KEYS", "DEFAULT_UNIT_COSTS", "FORMAT"]
 

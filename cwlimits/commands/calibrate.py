@@ -5,10 +5,10 @@ from pathlib import Path
 
 import astropy.units as u
 
+from .._files import atomic_write
 from ..errors import InputError
 from ..fstat import measure_unit_costs
 from ..setup import DEFAULT_UNIT_COSTS, SearchSetup, load_setup
-from .._files import atomic_write
 from ._common import add_parser, check_output_path, echo, format_rows
 
 __all__ = ["ORDER", "register", "run", "EXAMPLE_SETUP"]
