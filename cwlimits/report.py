@@ -152,7 +152,7 @@ def check_report_folder(out_dir, overwrite=False, option="output"):
         A symbolic link, a file, a folder that cannot be written, or a folder with files
         cwlimits did not write (without ``overwrite``).
     """
-    out_dir = Path(out_dir)
+    out_dir = Path(os.path.abspath(out_dir))
     check_output_folder(out_dir, option)
     parent = out_dir.parent
     if parent != out_dir:
@@ -275,7 +275,9 @@ class Report:
 
     def __init__(self, title, out_dir, *, overwrite=False):
         self.title = title
-        self.out_dir = Path(out_dir)
+        # Absolute and normalised ("a/.." folded), but links not resolved: a link as the
+        # output must be seen (and refused), never followed.
+        self.out_dir = Path(os.path.abspath(out_dir))
         self.overwrite = overwrite
         check_report_folder(self.out_dir, overwrite)
         self.run_id = uuid.uuid4().hex

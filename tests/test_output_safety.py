@@ -91,7 +91,8 @@ def refused(argv, capsys, *folders):
 
 # --- item 1: a report replaces only a folder cwlimits made ---------------------------------
 
-@pytest.mark.parametrize("output", ["user", "..", "", ".", "cat.csv", "link", "a.toml"])
+@pytest.mark.parametrize("output", ["user", "..", "", ".", "cat.csv", "link", "a.toml",
+                                    "empty-link"])
 def test_report_refuses_an_output_it_did_not_make(project, tmp_path, capsys, output,
                                                   monkeypatch):
     folder, config = project
@@ -100,11 +101,24 @@ def test_report_refuses_an_output_it_did_not_make(project, tmp_path, capsys, out
     (tmp_path / "elsewhere").mkdir()
     (tmp_path / "elsewhere" / "thesis.tex").write_text("precious too\n")
     (folder / "link").symlink_to(tmp_path / "elsewhere", target_is_directory=True)
+    # a link to an empty folder is refused too: cwlimits never writes through a link
+    (tmp_path / "empty").mkdir()
+    (folder / "empty-link").symlink_to(tmp_path / "empty", target_is_directory=True)
     path = config(output)
     monkeypatch.chdir(tmp_path)
     err = refused(["report", str(path)], capsys, tmp_path)
     assert "output" in err
     assert not list(tmp_path.rglob(".*cwlimits-stage*"))  # no staging folder left
+
+
+def test_demo_refuses_a_link_and_a_user_folder(tmp_path, capsys):
+    (tmp_path / "target").mkdir()
+    (tmp_path / "link").symlink_to(tmp_path / "target", target_is_directory=True)
+    (tmp_path / "mine").mkdir()
+    (tmp_path / "mine" / "data.txt").write_text("precious\n")
+    for out in ("link", "mine"):
+        err = refused(["demo", "--out-dir", str(tmp_path / out)], capsys, tmp_path)
+        assert "--out-dir" in err
 
 
 @pytest.mark.parametrize("output", ["..", "", "user"])

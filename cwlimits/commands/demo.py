@@ -1,5 +1,6 @@
 """``cwlimits demo``: the main job on the embedded, fictional demo scenario."""
 
+import os
 from dataclasses import replace
 from importlib import resources
 from pathlib import Path
@@ -43,7 +44,8 @@ def run(args):
                "SIMULATED search results (noise only, fixed seed)")
     with resources.as_file(demo_config_path()) as path:
         config = load_config(path)
-        values = dict(config.values, output=Path(args.out_dir).resolve())
+        # absolute, links not resolved: an output that is a link is refused, not followed
+        values = dict(config.values, output=Path(os.path.abspath(args.out_dir)))
         if args.seed is not None:
             values["seed"] = args.seed
         return write(args, replace(config, values=values), simulate=True,
