@@ -298,14 +298,17 @@ class ResultStore:
     Parameters
     ----------
     path : str or Path
-        The SQLite file; created (with its folder) if missing.  Use :func:`open_store` to
-        get the store of an output folder.
+        The SQLite file.  An existing one is opened (and checked to be a cwlimits store)
+        at once; a missing one is created (with its folder) only when the first part of a
+        run begins (:meth:`begin_part`), so a run refused before any work leaves nothing.
+        Use :func:`open_store` to get the store of an output folder.
 
     Notes
     -----
     Use it as a context manager or call :meth:`close`.  One object belongs to one process
-    (the parent of any workers): it is the only writer, and the first chunk it saves opens
-    a new *session* record (pid, host, time).
+    (the parent of any workers): it is that process's only writer, and the first chunk it
+    claims or saves opens a new *session* record (pid, host, time).  Other processes may
+    work on the same file at the same time (:meth:`claim_chunk`).
     """
 
     def __init__(self, path):

@@ -425,15 +425,19 @@ def test_written_files_take_their_mode_from_the_umask(project, tmp_path, umask, 
                      str(tmp_path / "t" / "x.ecsv")]) == 0
         assert main(["-q", "noise", "advanced-fit", "--band", "20Hz", "30Hz", "--step",
                      "1Hz", "--plot", str(tmp_path / "t" / "asd.svg")]) == 0
-        assert main(["-q", "report", str(config("rep"))]) == 0
+        if umask == 0o022:  # the report (the slow part) once: figures for a web server
+            assert main(["-q", "report", str(config("rep"))]) == 0
     finally:
         os.umask(old)
-    written = [tmp_path / "t" / "x.ecsv", tmp_path / "t" / "asd.svg",
-               *sorted((folder / "rep").iterdir())]
-    assert len(written) > 10
+    written = [tmp_path / "t" / "x.ecsv", tmp_path / "t" / "asd.svg"]
+    folders = [tmp_path / "t"]
+    if umask == 0o022:
+        written += sorted((folder / "rep").iterdir())
+        folders.append(folder / "rep")
+        assert len(written) > 10
     for path in written:
         assert path.stat().st_mode & 0o777 == file_mode, path
-    for path in (tmp_path / "t", folder / "rep"):
+    for path in folders:
         assert path.stat().st_mode & 0o777 == dir_mode, path
     # no temporary file of the writer is left anywhere
     assert not list(tmp_path.rglob("*.cwlimits-tmp"))
