@@ -448,7 +448,8 @@ def test_one_writer_for_every_file(tmp_path):
     # module creates temporary files or writes text or bytes to a path by itself
     import re
 
-    pattern = re.compile(r"mkstemp|mkdtemp|NamedTemporaryFile|\.write_text\(|"
+    pattern = re.compile(r"mkstemp|mkdtemp|NamedTemporaryFile|TemporaryDirectory|"
+                         r"\.write_text\(|"
                          r"\.write_bytes\(|savefig\(\s*(tmp|path)\b")
     offenders = []
     for path in sorted((ROOT / "cwlimits").rglob("*.py")):
