@@ -8,6 +8,7 @@ missing input file or a results file for a target the catalogue does not have is
 anything is written.
 """
 
+import os
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -139,6 +140,10 @@ def _read(path, key, raw, base):
     if kind == "path":
         if not isinstance(raw, str):
             _fail(path, key, "must be a path (a string)", raw)
+        if key == "output":
+            # Not resolve(): an output that is a symbolic link must be seen (and refused
+            # by cwlimits.report), never followed to its target.
+            return Path(os.path.abspath(base / raw))
         return (base / raw).resolve()
     if kind == "list[str]":
         if not (isinstance(raw, list) and all(isinstance(x, str) for x in raw)):

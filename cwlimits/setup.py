@@ -54,11 +54,11 @@ from pathlib import Path
 import astropy.units as u
 import numpy as np
 
+from ._files import atomic_write
 from ._toml import load_toml
 from .errors import ConfigError, InputError
 from .lattices import _canonical as _canonical_lattice
 from .parameter_space import check_braking_range
-from .tables import atomic_write
 
 __all__ = ["SearchSetup", "load_setup", "SETUP_KEYS", "DEFAULT_UNIT_COSTS", "FORMAT"]
 
@@ -400,6 +400,12 @@ class SearchSetup:
 
     def to_toml(self, path):
         """Write the setup as a TOML file that :meth:`from_toml` reads back unchanged."""
+        text = self.toml_text()
+        atomic_write(path, lambda handle: handle.write(text))
+        return Path(path)
+
+    def toml_text(self):
+        """The text of the setup file that :meth:`to_toml` writes."""
         n_min, n_max = self.braking_index
         data = {"t_seg": self.t_seg, "n_seg": self.n_seg, "detectors": list(self.detectors)}
         if self.span is not None:
@@ -424,12 +430,7 @@ class SearchSetup:
                 desc = SETUP_KEYS[f"{section}.{key}"][3]
                 lines.append(f"{key} = {_toml_value(value)}  # {desc}")
             lines.append("")
-
-        def write(handle):
-            handle.write("\n".join(lines))
-
-        atomic_write(path, write)
-        return Path(path)
+        return "\n".join(lines)
 
 
 def load_setup(path, *, extra_sections=()):

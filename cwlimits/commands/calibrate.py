@@ -1,14 +1,12 @@
 """``cwlimits calibrate``: time the F-statistic kernels here and write the unit costs."""
 
-import tempfile
-from pathlib import Path
 
 import astropy.units as u
 
+from .._files import atomic_write
 from ..errors import InputError
 from ..fstat import measure_unit_costs
 from ..setup import DEFAULT_UNIT_COSTS, SearchSetup, load_setup
-from ..tables import atomic_write
 from ._common import add_parser, check_output_path, echo, format_rows
 
 __all__ = ["ORDER", "register", "run", "EXAMPLE_SETUP"]
@@ -100,10 +98,5 @@ def run(args):
 
 def _write_with_note(setup, path, note):
     """Write ``setup`` as TOML with a comment block first (atomically)."""
-    with tempfile.TemporaryDirectory() as tmp:
-        text = setup.to_toml(Path(tmp) / "setup.toml").read_text(encoding="utf-8")
-
-    def write(handle):
-        handle.write(note + text)
-
-    atomic_write(path, write)
+    text = note + setup.toml_text()
+    atomic_write(path, lambda handle: handle.write(text))

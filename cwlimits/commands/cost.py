@@ -137,7 +137,7 @@ def run(args):
     if args.plot is not None:
         if args.scan is None:
             raise InputError("--plot needs --scan (t-seg or segments)")
-        plot = check_output_path(args.plot, PLOT_SUFFIXES)
+        plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     target, what, default_band = _target_space(args)
     setup = build_setup(args, default_band)
     if args.scan:

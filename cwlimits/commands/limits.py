@@ -142,7 +142,7 @@ def run(args):
     from ..store import file_hash, open_store
 
     out = check_output_path(args.out)
-    plot = check_output_path(args.plot, PLOT_SUFFIXES)
+    plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     if not (0.0 < args.confidence < 1.0):
         raise InputError("--confidence must lie strictly between 0 and 1",
                          value=args.confidence)

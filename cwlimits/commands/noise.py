@@ -136,7 +136,7 @@ def run(args):
         return _list_models(args)
     # output paths are checked before any work, so a bad one costs nothing
     out = check_output_path(args.out)
-    plot = check_output_path(args.plot, (".png", ".svg", ".pdf"))
+    plot = check_output_path(args.plot, (".png", ".svg", ".pdf"), "--plot")
     source, assumptions = _source_from_args(args)
     f_lo, f_hi = _band_grid(args, source)
     psd = band_psd(source, f_lo, f_hi)

@@ -109,9 +109,9 @@ def register(subparsers, common):
 def run(args):
     """Run ``cwlimits plan``."""
     out = check_output_path(args.out, (".toml",))
-    table_path = check_output_path(args.table)
-    plot = check_output_path(args.plot, PLOT_SUFFIXES)
-    trade = check_output_path(args.trade_off, PLOT_SUFFIXES)
+    table_path = check_output_path(args.table, option="--table")
+    plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
+    trade = check_output_path(args.trade_off, PLOT_SUFFIXES, "--trade-off")
     budget = as_budget(args.budget)
     target = resolve_target(args)
     options = plan_options(args)

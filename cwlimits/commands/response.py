@@ -1,9 +1,7 @@
 """``cwlimits response``: a network's response to a CW source at a sky position."""
 
-import os
+import io
 import re
-import tempfile
-from pathlib import Path
 
 import astropy.units as u
 import numpy as np
@@ -11,6 +9,7 @@ from astropy.coordinates import SkyCoord
 from astropy.table import QTable
 
 from .. import response as resp
+from .._files import atomic_write
 from ..errors import InputError
 from ..plots import PLOT_SUFFIXES
 from ._common import (
@@ -118,22 +117,10 @@ def _sky_position(args):
     return coord, f"RA {args.ra}, Dec {args.dec}"
 
 
-def _check_plot_path(path):
-    if path is None:
-        return None
-    path = Path(path)
-    if path.suffix.lower() not in PLOT_SUFFIXES:
-        raise InputError(f"plot file must end in {', '.join(PLOT_SUFFIXES)}",
-                         file=str(path))
-    if path.is_dir():
-        raise InputError("plot path is a folder", file=str(path))
-    return path
-
-
 def run(args):
     """Run ``cwlimits response``; return the exit code."""
     out = check_output_path(args.out)
-    plot = _check_plot_path(args.plot)
+    plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     extra = resp.load_detectors(args.detector_file) if args.detector_file else None
     detectors = resp.get_detectors(args.detectors, extra)
     coord, where = _sky_position(args)
@@ -174,20 +161,14 @@ def run(args):
                                                                      strict=True)))
         echo(args)
         echo(args, format_assumptions(assumptions))
-        # The figure goes to a temporary file first and is renamed only once the table
-        # is written, so a failure leaves neither behind.
-        pending = _plot(plot, detectors, coord, averages.start) if plot is not None else None
-        try:
-            if out is not None:
-                _write(out, detectors, averages, network, single, assumptions)
-        except BaseException:
-            if pending is not None:
-                pending.unlink(missing_ok=True)
-            raise
+        # The figure is drawn into memory first and written only once the table is, so
+        # a failure leaves neither behind.
+        figure = _plot(plot, detectors, coord, averages.start) if plot is not None else None
         if out is not None:
+            _write(out, detectors, averages, network, single, assumptions)
             echo(args, f"wrote {out}")
-        if pending is not None:
-            os.replace(pending, plot)
+        if figure is not None:
+            atomic_write(plot, lambda handle: handle.write(figure), binary=True)
             echo(args, f"wrote {plot}")
     return 0
 
@@ -281,17 +262,9 @@ def _plot(path, detectors, coord, start):
     ax.grid(True, alpha=0.3)
     ax.legend(fontsize="small", ncol=2)
     fig.tight_layout()
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=path.suffix, dir=path.parent)
-    os.close(fd)
-    mask = os.umask(0)
-    os.umask(mask)
-    os.chmod(tmp, 0o666 & ~mask)  # mkstemp makes the file private; use the usual mode
+    buffer = io.BytesIO()
     try:
-        fig.savefig(tmp, format=path.suffix.lstrip(".").lower())
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+        fig.savefig(buffer, format=path.suffix.lstrip(".").lower())
     finally:
         plt.close(fig)
-    return Path(tmp)
+    return buffer.getvalue()

@@ -76,7 +76,7 @@ def register(subparsers, common):
 
 def run(args):
     out = check_output_path(args.out)
-    plot = check_output_path(args.plot, PLOT_SUFFIXES)
+    plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     target = resolve_target(args)
     setup = build_setup(args)
     if args.band is not None:
