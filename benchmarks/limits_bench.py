@@ -49,7 +49,7 @@ def _inputs(n_bands):
     loudest = rng.chisquare(32, n_bands) + rng.uniform(0, 40, n_bands)
     res = SearchResults(f_lo=(100 + width * np.arange(n_bands)) << u.Hz,
                         width=np.full(n_bands, width) << u.Hz, loudest=loudest,
-                        statistic="sum")
+                        convention="total")
     return res, setup, target
 
 
