@@ -20,6 +20,7 @@ import pkgutil
 import sys
 
 from . import __version__
+from ._sizes import allow_large
 from .errors import CwlimitsError
 
 __all__ = ["main", "build_parser"]
@@ -55,10 +56,23 @@ def build_parser():
                             help="log what is done; show tracebacks of internal errors")
         target.add_argument("-q", "--quiet", action="store_true", default=default,
                             help="no progress bars or summaries, only errors")
+        target.add_argument("--allow-large", action="store_true", default=default,
+                            help="lift the soft size limits (README: size limits) for a "
+                                 "legitimately large run")
     subparsers = parser.add_subparsers(dest="command", metavar="COMMAND")
     for module in _command_modules():
         module.register(subparsers, common)
+    for sub in subparsers.choices.values():
+        _note_bare_units(sub)
     return parser
+
+
+def _note_bare_units(parser):
+    """Say in ``--help`` which unit a bare number takes, for every quantity option."""
+    for action in parser._actions:
+        unit = getattr(action.type, "bare_unit", None)
+        if unit is not None and action.help and "bare number" not in action.help:
+            action.help += f" [a bare number is in {unit}]"
 
 
 def _command_modules():
@@ -80,7 +94,8 @@ def main(argv=None):
     logging.basicConfig(level=logging.INFO if args.verbose else logging.WARNING,
                         format="%(levelname)s %(name)s: %(message)s")
     try:
-        return int(args.run(args) or 0)
+        with allow_large(bool(getattr(args, "allow_large", False))):
+            return int(args.run(args) or 0)
     except CwlimitsError as exc:
         print(f"error: {exc}", file=sys.stderr)
         return 2

@@ -4,10 +4,13 @@ import argparse
 import sys
 from pathlib import Path
 
+import astropy.units as u
+
 from .._units import parse_quantity
 from ..errors import InputError
 
-__all__ = ["add_parser", "quantity_arg", "check_output_path", "echo"]
+__all__ = ["add_parser", "quantity_arg", "seed_arg", "number_arg", "check_output_path",
+           "echo"]
 
 
 def add_parser(subparsers, common, name, *, help, description, examples):
@@ -26,6 +29,40 @@ def quantity_arg(unit, name):
         except InputError as exc:
             raise argparse.ArgumentTypeError(exc.reason + f" (got {text!r})") from None
     parse.__name__ = f"quantity in {unit}"
+    parse.bare_unit = u.Unit(unit).to_string()
+    return parse
+
+
+def seed_arg(text):
+    """An argparse ``type`` for ``--seed``: a whole number >= 0, as numpy's seeds are."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(
+            f"must be a whole number >= 0 (got {text!r})") from None
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"must be a whole number >= 0 (got {text!r})")
+    return value
+
+
+def number_arg(least, *, integer=False, strict=False):
+    """An argparse ``type``: a finite number >= ``least`` (> with ``strict``).
+
+    The error shows the value as the user typed it.
+    """
+    def parse(text):
+        kind = "a whole number" if integer else "a finite number"
+        bound = f"{'>' if strict else '>='} {least:g}"
+        try:
+            value = int(text) if integer else float(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"must be {kind} {bound} (got {text!r})") \
+                from None
+        if not (value == value and abs(value) != float("inf")) or value < least or (
+                strict and value == least):
+            raise argparse.ArgumentTypeError(f"must be {kind} {bound} (got {text!r})")
+        return value
+    parse.__name__ = "whole number" if integer else "number"
     return parse
 
 

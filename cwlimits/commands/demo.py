@@ -5,7 +5,7 @@ from importlib import resources
 from pathlib import Path
 
 from ..config import load_config
-from ._common import add_parser, echo
+from ._common import add_parser, echo, seed_arg
 from .report import write
 
 __all__ = ["ORDER", "register", "run", "demo_config_path"]
@@ -31,7 +31,7 @@ def register(subparsers, common):
         examples=["cwlimits demo", "cwlimits demo --out-dir /tmp/demo-report --seed 3"])
     parser.add_argument("--out-dir", default="reports/demo", metavar="DIR",
                         help="output folder (default reports/demo), replaced as a whole")
-    parser.add_argument("--seed", type=int, default=None,
+    parser.add_argument("--seed", type=seed_arg, default=None,
                         help="seed of every random draw (default: the demo's, 2026)")
     parser.set_defaults(run=run)
 

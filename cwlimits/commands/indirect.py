@@ -14,6 +14,7 @@ from ._common import (
     format_rows,
     quantity_arg,
     sci,
+    seed_arg,
 )
 
 __all__ = ["ORDER", "register", "run"]
@@ -45,7 +46,7 @@ def register(subparsers, common):
                         default=None, metavar="F",
                         help="gravitational-wave frequencies for the ellipticity columns "
                              "(default 100 300 1000 Hz)")
-    parser.add_argument("--seed", type=int, default=None,
+    parser.add_argument("--seed", type=seed_arg, default=None,
                         help="add Monte-Carlo quantiles over the distance and age ranges, "
                              "with this seed")
     parser.add_argument("--samples", type=int, default=10000,

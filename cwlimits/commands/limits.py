@@ -21,6 +21,7 @@ from ._common import (
     quantity_arg,
     resolve_target,
     sci,
+    seed_arg,
 )
 from ._execution import (
     add_executor_args,
@@ -98,7 +99,7 @@ def register(subparsers, common):
                        help="emcee steps per walker (default 6000)")
     stats.add_argument("--walkers", type=int, default=64, metavar="N",
                        help="emcee walkers (default 64)")
-    stats.add_argument("--seed", type=int, default=None,
+    stats.add_argument("--seed", type=seed_arg, default=None,
                        help="seed of the Monte-Carlo and emcee (recorded in the output)")
     add_signal_model_args(parser)
     out = parser.add_argument_group("output")

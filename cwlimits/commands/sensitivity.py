@@ -14,6 +14,7 @@ from ._common import (
     echo,
     format_assumptions,
     format_rows,
+    number_arg,
     quantity_arg,
     resolve_target,
     sci,
@@ -62,7 +63,7 @@ def register(subparsers, common):
     stats.add_argument("--statistic", choices=("sum", "mean"), default="sum",
                        help="convention of --threshold and of the output: 2F summed over "
                             "segments (default) or averaged over them")
-    stats.add_argument("--trials", type=float, default=None,
+    stats.add_argument("--trials", type=number_arg(1), default=None,
                        help="effective number of independent templates per band (overrides "
                             "the template count)")
     add_signal_model_args(parser)

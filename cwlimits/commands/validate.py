@@ -29,6 +29,7 @@ from ._common import (
     quantity_arg,
     resolve_target,
     sci,
+    seed_arg,
 )
 from ._execution import (
     add_executor_args,
@@ -105,7 +106,7 @@ def register(subparsers, common):
                           f"{DEFAULT_NOISE_MODEL})")
     sim.add_argument("--start", default=DEFAULT_START,
                      help=f"start of the data, UTC (default {DEFAULT_START})")
-    sim.add_argument("--seed", type=int, metavar="N",
+    sim.add_argument("--seed", type=seed_arg, metavar="N",
                      help="random seed (default: fresh; recorded in the output)")
     st = parser.add_argument_group("statistics")
     st.add_argument("--confidence", type=float, default=0.9,
