@@ -47,7 +47,7 @@ SIZE_LIMITS = {
     "emcee": (100_000_000, 40, "emcee samples",
               "limits --walkers x --steps per band"),
     "scan_steps": (10_000, 2_000, "scan steps", "cost --scan-steps"),
-    "quadrature": (10_000, 2_000, "quadrature nodes", "response --order"),
+    "quadrature": (1_000_000, 200, "quadrature nodes", "response --order squared"),
 }
 
 _ALLOW = contextvars.ContextVar("cwlimits_allow_large", default=False)

@@ -5,6 +5,7 @@ from pathlib import Path
 
 import astropy.units as u
 
+from .._sizes import check_size
 from ..errors import InputError
 from ..fstat import measure_unit_costs
 from ..setup import DEFAULT_UNIT_COSTS, SearchSetup, load_setup
@@ -65,6 +66,8 @@ def run(args):
                                ("--segments", args.segments, 1)):
         if value < least:
             raise InputError(f"{name} must be at least {least}", value=value)
+    check_size("samples", args.samples * args.segments,
+               f"--samples {args.samples} x --segments {args.segments}")
     setup = load_setup(args.setup) if args.setup else None
     measured = measure_unit_costs(args.samples, n_seg=args.segments, repeats=args.repeats)
     coherent = measured["coherent"].to(u.s)

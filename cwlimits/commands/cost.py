@@ -5,6 +5,7 @@ import math
 import astropy.units as u
 import numpy as np
 
+from .._sizes import check_size
 from ..cost import PLOT_SUFFIXES, computing_cost, plot_cost_scan, scan_cost
 from ..errors import InputError
 from ..parameter_space import BoxSpace
@@ -105,6 +106,7 @@ def _scan_values(args, setup):
     steps = args.scan_steps
     if steps < 2:
         raise InputError("--scan-steps must be at least 2", value=steps)
+    check_size("scan_steps", steps, f"--scan-steps {steps}")
     if args.scan == "t-seg":
         if args.scan_range:
             lo, hi = (quantity_arg(u.day, "scan range")(x) for x in args.scan_range)

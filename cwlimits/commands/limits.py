@@ -6,6 +6,7 @@ from pathlib import Path
 import astropy.units as u
 import numpy as np
 
+from .._sizes import check_size
 from ..errors import InputError
 from ..noise import DEFAULT_NOISE_MODEL
 from ..plots import PLOT_SUFFIXES
@@ -172,6 +173,15 @@ def run(args):
             raise InputError("--sampler emcee needs --bands (emcee is slow): e.g. --bands 0,5")
         bands = sorted({_band_index(t, results, "--bands") for t in args.bands.split(",")
                         if t.strip()})
+    for option, value, least in (("--walkers", args.walkers, 2), ("--steps", args.steps, 1),
+                                 ("--draws", args.draws, 1)):
+        if value < least:
+            raise InputError(f"{option} must be at least {least}", value=value)
+    check_size("samples", args.draws * len(results), f"--draws {args.draws} for "
+               f"{len(results)} bands")
+    if bands:
+        check_size("emcee", args.walkers * args.steps * len(bands),
+                   f"--walkers {args.walkers} x --steps {args.steps} for {len(bands)} bands")
     kwargs = dict(options, sampler=args.sampler, sampler_bands=bands,
                   n_walkers=args.walkers, n_steps=args.steps, n_astro=args.draws,
                   **model_options)

@@ -4,6 +4,7 @@ import re
 from contextlib import ExitStack
 from pathlib import Path
 
+from .._sizes import check_size
 from ..errors import InputError
 from ..planning import CASES, as_budget, rank_targets
 from ..store import file_hash, open_store
@@ -80,6 +81,7 @@ def run(args):
         if args.per_target_budget else None
     if args.steps < 1:
         raise InputError("--steps must be at least 1", value=args.steps)
+    check_size("budget_steps", args.steps, f"--steps {args.steps}")
     catalogue = load_targets(args.catalogue)
     options = plan_options(args)
     config = {"command": "rank", "catalogue": file_hash(args.catalogue),

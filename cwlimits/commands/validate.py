@@ -6,6 +6,7 @@ from pathlib import Path
 import astropy.units as u
 import numpy as np
 
+from .._sizes import check_size
 from ..errors import InputError
 from ..noise import DEFAULT_NOISE_MODEL, NOISE_MODELS, get_noise
 from ..sensitivity import DEFAULT_START
@@ -148,6 +149,10 @@ def _check_numbers(args):
             raise InputError(f"{name} must lie strictly between 0 and 1", value=value)
     if args.seed is not None and args.seed < 0:
         raise InputError("--seed must be a non-negative integer", value=args.seed)
+    steps = len(args.h0) if args.h0 is not None else args.h0_steps
+    check_size("injections", args.injections * steps,
+               f"--injections {args.injections} at {steps} h0 values")
+    check_size("templates", args.templates, f"--templates {args.templates}")
 
 
 def _setup(args):
