@@ -156,7 +156,7 @@ def _read(path, key, raw, base):
         try:
             return parse_quantity(raw, unit, key, require_unit=True)
         except InputError as exc:
-            _fail(path, key, exc.reason, raw)
+            _fail(path, key, exc.reason.removeprefix(f"{key}: "), raw)
     if kind == "path":
         if not isinstance(raw, str):
             _fail(path, key, "must be a path (a string)", raw)
