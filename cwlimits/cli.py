@@ -13,15 +13,19 @@ arguments, runs the command and turns errors into exit codes:
 """
 
 import argparse
+import contextlib
 import importlib
 import logging
 import os
 import pkgutil
 import sys
+import warnings
+
+from erfa import ErfaWarning  # pyerfa, astropy's own dependency
 
 from . import __version__
 from ._sizes import allow_large
-from .errors import CwlimitsError
+from .errors import CwlimitsError, CwlimitsWarning
 
 __all__ = ["main", "build_parser"]
 
@@ -84,6 +88,25 @@ def _command_modules():
     return sorted(modules, key=lambda m: (m.ORDER, m.__name__))
 
 
+@contextlib.contextmanager
+def _user_warnings():
+    """Warnings as the user sees them: ours as one ``warning: ...`` line, raw ones silenced.
+
+    numpy's RuntimeWarnings (overflow, invalid value) and ERFA's "dubious year" are
+    silenced: every result is checked for finiteness where it is made, and what matters
+    becomes a message of ours (a :class:`~cwlimits.errors.CwlimitsWarning` or an error).
+    """
+    def show(message, category, filename, lineno, file=None, line=None):
+        print(f"warning: {message}", file=sys.stderr)
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        warnings.simplefilter("ignore", ErfaWarning)
+        warnings.simplefilter("always", CwlimitsWarning)
+        warnings.showwarning = show
+        yield
+
+
 def main(argv=None):
     """Run the command line; return the exit code."""
     parser = build_parser()
@@ -94,7 +117,7 @@ def main(argv=None):
     logging.basicConfig(level=logging.INFO if args.verbose else logging.WARNING,
                         format="%(levelname)s %(name)s: %(message)s")
     try:
-        with allow_large(bool(getattr(args, "allow_large", False))):
+        with allow_large(bool(getattr(args, "allow_large", False))), _user_warnings():
             return int(args.run(args) or 0)
     except CwlimitsError as exc:
         print(f"error: {exc}", file=sys.stderr)

@@ -139,6 +139,11 @@ def _suffixed(path, suffix):
     return path.with_name(f"{path.stem}_{suffix}{path.suffix}")
 
 
+def _ratio(value):
+    """A ratio in 3 digits; '-' where the band has no limit (an empty cell)."""
+    return "-" if not np.isfinite(value) else f"{value:.3g}"
+
+
 def run(args):
     from .. import limits
     from ..store import file_hash, open_store
@@ -279,7 +284,7 @@ def summarise(args, table, title):
     headers = ["f_mid [Hz]", "2F*", "h0 limit", "eps limit", "alpha limit", "h0_age / h0"]
     lines = [[f"{table['f_mid'][i].value:.6g}", f"{table['loudest_2F_sum'][i].value:.5g}",
               sci(table["h0_limit"][i].value), sci(table["eps_limit"][i].value),
-              sci(table["alpha_limit"][i].value), f"{table['age_ratio'][i].value:.3g}"]
+              sci(table["alpha_limit"][i].value), _ratio(table['age_ratio'][i].value)]
              for i in rows]
     echo(args, f"{title}: {n} bands from {table['f_lo'][0]:.6g} to {table['f_hi'][-1]:.6g}")
     echo(args, format_rows(headers, lines))
