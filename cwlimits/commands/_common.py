@@ -9,8 +9,8 @@ import astropy.units as u
 from .._units import parse_quantity
 from ..errors import InputError
 
-__all__ = ["add_parser", "quantity_arg", "seed_arg", "number_arg", "check_output_path",
-           "echo"]
+__all__ = ["add_parser", "quantity_arg", "seed_arg", "number_arg", "refuse_overflow",
+           "check_output_path", "echo"]
 
 
 def add_parser(subparsers, common, name, *, help, description, examples):
@@ -64,6 +64,22 @@ def number_arg(least, *, integer=False, strict=False):
         return value
     parse.__name__ = "whole number" if integer else "number"
     return parse
+
+
+def refuse_overflow(table, hint):
+    """Raise an InputError if a numeric column of ``table`` holds inf (an overflow).
+
+    An empty (NaN) cell means "not applicable" and is allowed; an infinite one would be
+    printed and written as a number, so the run stops before any output with ``hint``.
+    """
+    import numpy as np
+
+    for name in table.colnames:
+        values = np.asarray(getattr(table[name], "value", table[name]))
+        if values.dtype.kind == "f" and np.any(np.isinf(values)):
+            row = int(np.flatnonzero(np.isinf(values))[0])
+            raise InputError(f"the result overflows the floating-point range (column "
+                             f"'{name}', row {row + 1} is infinite): {hint}")
 
 
 def check_output_path(path, suffixes=(".csv", ".ecsv")):

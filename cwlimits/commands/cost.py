@@ -18,6 +18,7 @@ from ._common import (
     format_assumptions,
     format_rows,
     quantity_arg,
+    refuse_overflow,
     resolve_target,
     sci,
 )
@@ -145,11 +146,13 @@ def run(args):
     if args.scan:
         quantity, values = _scan_values(args, setup)
         table = scan_cost(setup, target, quantity, values)
+        refuse_overflow(table, _OVERFLOW_HINT)
         _print_scan(args, table, quantity, what)
         title = f"computing cost against {quantity} for {what}"
     else:
         estimate = computing_cost(setup, target)
         table = estimate.table
+        refuse_overflow(table, _OVERFLOW_HINT)
         _print_bands(args, estimate, setup, what)
         title = f"template counts and computing cost for {what}"
     echo(args)
@@ -161,6 +164,11 @@ def run(args):
         plot_cost_scan(table, quantity, plot, title=title)
         echo(args, f"wrote {plot}")
     return 0
+
+
+_OVERFLOW_HINT = ("the template count grows as mismatch^(-dim/2); with these inputs (--mismatch-"
+                  "coarse/--mismatch-fine, the band, the age or spin-down box) it exceeds what a "
+                  "double can hold, so no search of this setup is possible")
 
 
 def _band_rows(table, idx):
