@@ -36,7 +36,7 @@ SIZE_LIMITS = {
     "budget_steps": (10_000, 8_000, "budget steps",
                      "planning.budget_steps (configuration), rank --steps; one plan per "
                      "step and target, the exact split is quadratic in the steps"),
-    "frequencies": (10_000_000, 64, "frequency points",
+    "frequencies": (200_000, 2_000, "frequency points",
                     "noise --band / --step; a few floats per point"),
     "injections": (1_000_000, 20_000, "injections",
                    "validate --injections x --h0-steps; one simulated search each"),

@@ -58,6 +58,7 @@ __all__ = [
     "SAMPLERS",
     "ChainWarning",
     "upper_limits",
+    "check_bayes_range",
     "band_posterior",
     "posterior_quantiles",
     "sample_band",
@@ -543,8 +544,22 @@ def _observed_where(results, index):
                 value=float(results.loudest[index]))
 
 
-def _check_bayes_range(results, obs_sum, n_seg):
-    """Refuse bands outside the range of the Bayesian grid, naming file and row."""
+def check_bayes_range(results, obs_sum, n_seg):
+    """Refuse bands outside the range of the Bayesian grid, naming file and row.
+
+    Parameters
+    ----------
+    results : SearchResults
+    obs_sum : ndarray
+        The loudest 2F per band in the summed convention.
+    n_seg : int
+
+    Raises
+    ------
+    InputError
+        A loudest 2F whose noise-only density underflows (2F = 0: the likelihood is zero
+        for every h0) or one above :data:`BAYES_MAX_2F` (a candidate, not a limit).
+    """
     df = 4.0 * n_seg
     with np.errstate(divide="ignore"):
         log_noise = stats.chi2.logpdf(obs_sum, df)
@@ -680,7 +695,7 @@ def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=No
         raise InputError("the emcee sampler needs the target's sky position (sky='target')")
     results, sm, psd, arrays = _prepare(results, setup, target, noise, model_options)
     if method == "bayes":
-        _check_bayes_range(results, arrays["obs"], sm.n_seg)
+        check_bayes_range(results, arrays["obs"], sm.n_seg)
     n = len(results)
     # The seed goes to map_chunks, which spawns one stream per chunk (SeedSequence), so the
     # numbers do not depend on the executor; None keeps the entropy recorded in a store.
@@ -900,7 +915,7 @@ def band_posterior(results, setup, target, band, *, noise=DEFAULT_NOISE_MODEL,
     """
     _check_choice(prior, PRIORS, "prior")
     results, sm, psd, arrays = _prepare(results, setup, target, noise, model_options)
-    _check_bayes_range(results, arrays["obs"], sm.n_seg)
+    check_bayes_range(results, arrays["obs"], sm.n_seg)
     if not (0 <= int(band) < len(results)):
         raise InputError(f"band must be an index 0..{len(results) - 1}", value=band)
     b = slice(int(band), int(band) + 1)
@@ -951,7 +966,7 @@ def sample_band(results, setup, target, band, rng=None, *, noise=DEFAULT_NOISE_M
     """
     rng = np.random.default_rng(rng)
     results, sm, _, arrays = _prepare(results, setup, target, noise, model_options)
-    _check_bayes_range(results, arrays["obs"], sm.n_seg)
+    check_bayes_range(results, arrays["obs"], sm.n_seg)
     if not (0 <= int(band) < len(results)):
         raise InputError(f"band must be an index 0..{len(results) - 1}", value=band)
     idx = np.array([int(band)])

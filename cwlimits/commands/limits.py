@@ -1,5 +1,6 @@
 """``cwlimits limits``: upper limits on h0, ellipticity and r-mode amplitude per band."""
 
+import sys
 import warnings
 from pathlib import Path
 
@@ -164,6 +165,9 @@ def run(args):
     results = load_results(args.results)
     target = resolve_target(args)
     setup = build_setup(args)
+    if args.method == "bayes" or args.posterior is not None:
+        # before the results store is opened: nothing is written for a band out of range
+        limits.check_bayes_range(results, results.loudest_sum(setup.n_seg), setup.n_seg)
     model_options = dict(sky=args.sky, mismatch=args.mismatch, start=args.start)
     options = dict(noise=args.noise, prior=args.prior, h0_min=args.h0_min,
                    h0_max=args.h0_max, distance_prior=args.distance_prior,
@@ -178,10 +182,6 @@ def run(args):
             raise InputError("--sampler emcee needs --bands (emcee is slow): e.g. --bands 0,5")
         bands = sorted({_band_index(t, results, "--bands") for t in args.bands.split(",")
                         if t.strip()})
-    for option, value, least in (("--walkers", args.walkers, 2), ("--steps", args.steps, 1),
-                                 ("--draws", args.draws, 1)):
-        if value < least:
-            raise InputError(f"{option} must be at least {least}", value=value)
     check_size("samples", args.draws * len(results), f"--draws {args.draws} for "
                f"{len(results)} bands")
     if bands:
@@ -216,7 +216,7 @@ def run(args):
                     executor=executor, chunk_size=args.chunk_size,
                     progress=progress_from_args(args), **kwargs)
     for w in caught:
-        echo(args, f"warning: {w.message}")
+        print(f"warning: {w.message}", file=sys.stderr)
     table.meta["assumptions"]["seed"] = (
         f"{args.seed}" if args.seed is not None else
         "none given: fresh entropy (recorded in the run store of the output folder)")

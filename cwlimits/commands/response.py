@@ -126,7 +126,7 @@ def _angle(text, option, bare_unit):
                 angle = Angle(text, unit=bare_unit)
         value = float(angle.deg)
     except (ValueError, TypeError, u.UnitsError, AstropyWarning) as exc:
-        raise InputError(f"{option}: cannot read an angle ({exc}); e.g. --ra 12h30m "
+        raise InputError(f"{option}: cannot read the sky position ({exc}); e.g. --ra 12h30m "
                          "--dec -45d", value=text) from None
     if not np.isfinite(value) or np.ndim(angle.deg) != 0:
         raise InputError(f"{option}: needs one finite angle", value=text)
