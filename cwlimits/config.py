@@ -244,22 +244,22 @@ def _check(path, values, found):
         _fail(path, "data.detectors", exc.reason, written("data.detectors"))
     for key in ("statistics.false_alarm", "statistics.confidence"):
         if not 0 < values[key] < 1:
-            _fail(path, key, "must lie strictly between 0 and 1", values[key])
+            _fail(path, key, "must lie strictly between 0 and 1", written(key))
     if not 0 < values["data.duty_factor"] <= 1:
-        _fail(path, "data.duty_factor", "must lie in (0, 1]", values["data.duty_factor"])
+        _fail(path, "data.duty_factor", "must lie in (0, 1]", written("data.duty_factor"))
     if not values["indirect.braking_index"] > 1:
         _fail(path, "indirect.braking_index", "must be larger than 1",
-              values["indirect.braking_index"])
+              written("indirect.braking_index"))
     for key in ("data.span", "planning.budget", "indirect.moment_of_inertia",
                 "search.band_width"):
         if not values[key].value > 0:
-            _fail(path, key, "must be positive", str(values[key]))
+            _fail(path, key, "must be positive", written(key))
     if not 0 < values["search.f_min"] < values["search.f_max"]:
         _fail(path, "search.f_min", "must be positive and below search.f_max",
-              str(values["search.f_min"]))
+              written("search.f_min"))
     if values["planning.budget_steps"] < 1:
         _fail(path, "planning.budget_steps", "must be at least 1",
-              values["planning.budget_steps"])
+              written("planning.budget_steps"))
     with allow_large(values["allow_large"]):
         for kind, key, count in (
                 ("budget_steps", "planning.budget_steps", values["planning.budget_steps"]),
@@ -273,13 +273,14 @@ def _check(path, values, found):
                                   value=written(key)) from None
     if values["planning.max_targets"] < 1:
         _fail(path, "planning.max_targets", "must be at least 1",
-              values["planning.max_targets"])
+              written("planning.max_targets"))
     for key in ("catalogue.path", "search.setup"):
         if values[key] is not None and not Path(values[key]).is_file():
-            _fail(path, key, "file not found", str(values[key]))
+            _fail(path, key, f"file not found (looked for {values[key]})", written(key))
     for name, file in values["results"].items():
         if not Path(file).is_file():
-            _fail(path, f"results.{name}", "file not found", str(file))
+            _fail(path, f"results.{name}", f"file not found (looked for {file})",
+                  found.get("results", {}).get(name, str(file)))
     from .targets import load_targets
 
     catalogue = load_targets(values["catalogue.path"])

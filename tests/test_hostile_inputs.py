@@ -341,3 +341,24 @@ def test_trials_zero_shows_the_value_as_written(capsys, tmp_path, demo_catalogue
                   "--f-max", "60Hz", "--trials", "0"], capsys, tmp_path,
                  "argument --trials", "'0'")
     assert "np.float64" not in err
+
+
+def test_unknown_detector_names_the_option_or_the_setup_key(tmp_path, capsys,
+                                                           demo_catalogue_path):
+    common = ["sensitivity", "--catalogue", str(demo_catalogue_path), "--target",
+              "Fict Quill"]
+    _fails(common + ["--detectors", "Q7", "--t-seg", "10day", "--n-seg", "3", "--f-min",
+                     "50Hz", "--f-max", "60Hz"], capsys, tmp_path, "--detectors", "'Q7'")
+    setup = tmp_path / "s.toml"
+    setup.write_text('[data]\nt_seg = "10 day"\nn_seg = 4\ndetectors = ["Q7"]\n[band]\n'
+                     'f_min = "50 Hz"\nf_max = "60 Hz"\n')
+    _fails(common + ["--setup", str(setup)], capsys, tmp_path, str(setup),
+           "key 'data.detectors'", "['Q7']")
+
+
+def test_configuration_shows_the_value_as_written(tmp_path, capsys, demo_catalogue_path,
+                                                  monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    path = tmp_path / "a.toml"
+    path.write_text(f'[catalogue]\npath = "{demo_catalogue_path}"\n[data]\nspan = "-1 yr"\n')
+    _fails(["report", str(path)], capsys, tmp_path, "key 'data.span'", "'-1 yr'")

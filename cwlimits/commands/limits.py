@@ -164,7 +164,7 @@ def run(args):
                          "twice the 3 parameters)", value=args.walkers)
     results = load_results(args.results)
     target = resolve_target(args)
-    setup = build_setup(args)
+    setup = build_setup(args, known_sites=True)
     if args.method == "bayes" or args.posterior is not None:
         # before the results store is opened: nothing is written for a band out of range
         limits.check_bayes_range(results, results.loudest_sum(setup.n_seg), setup.n_seg)

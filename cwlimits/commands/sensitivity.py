@@ -78,7 +78,7 @@ def run(args):
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES)
     target = resolve_target(args)
-    setup = build_setup(args)
+    setup = build_setup(args, known_sites=True)
     if args.band is not None:
         setup = setup.replace(band=tuple(args.band))
     table = strain_sensitivity(
