@@ -28,7 +28,7 @@ def test_ten_thousand_bands_on_a_local_cluster_equal_serial():
     options = dict(method="bayes", rng=9, n_astro=200, chunk_size=2500)
     serial = cwlimits.upper_limits(results, setup, target, **options)
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
-                                  dashboard_address=None) as cluster, \
+                                  dashboard_address=":0") as cluster, \
             distributed.Client(cluster, set_as_default=False) as client:
         clustered = cwlimits.upper_limits(results, setup, target, executor=client, **options)
     for column in ("h0_limit", "eps_limit", "alpha_limit"):
