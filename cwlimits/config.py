@@ -9,6 +9,7 @@ catalogue does not have is a :class:`~cwlimits.errors.ConfigError` that names th
 and the key, raised before anything is written.
 """
 
+import os
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -36,7 +37,7 @@ CONFIG_KEYS = {
     "indirect.braking_index": ("float", None, 5.0, "braking index of the age-based limit"),
     "indirect.moment_of_inertia": ("quantity", "kg m2", 1e38 * u.kg * u.m**2,
                                    "moment of inertia"),
-    "noise.model": ("noise", None, "advanced-fit",
+    "noise.model": ("noise", None, "second-gen-fit",
                     "noise model name, or a noise file (relative to the configuration), "
                     "used for every detector"),
     "data.detectors": ("list[str]", None, ["H1", "L1"], "detector site codes"),
@@ -160,6 +161,10 @@ def _read(path, key, raw, base):
     if kind == "path":
         if not isinstance(raw, str):
             _fail(path, key, "must be a path (a string)", raw)
+        if key == "output":
+            # Not resolve(): an output that is a symbolic link must be seen (and refused
+            # by cwlimits.report), never followed to its target.
+            return Path(os.path.abspath(base / raw))
         return (base / raw).resolve()
     if kind == "list[str]":
         if not (isinstance(raw, list) and all(isinstance(x, str) for x in raw)):

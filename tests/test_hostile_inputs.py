@@ -180,9 +180,9 @@ def test_convert_overflow_is_an_error(capsys, tmp_path):
 
 def test_cost_overflow_is_an_error(capsys, tmp_path):
     out = tmp_path / "c.csv"
-    err = _fails(COST[:7] + ["--f-max", "60Hz", "--n-seg", "12", "--mismatch-fine",
+    err = _fails(COST[:7] + ["--f-max", "60Hz", "--n-seg", "12", "--mismatch-semicoherent",
                              "5e-324", "--out", str(out)], capsys, tmp_path, "overflows",
-                 "--mismatch-fine")
+                 "--mismatch-semicoherent")
     assert "RuntimeWarning" not in err
 
 
@@ -194,7 +194,7 @@ def _limits_files(tmp_path, second):
     setup = tmp_path / "s.toml"
     setup.write_text(SETUP_TOML)
     results = tmp_path / "res.csv"
-    results.write_text(f"f_lo [Hz],width [Hz],loudest_2F_sum\n100,0.5,40\n100.5,0.5,"
+    results.write_text(f"f_lo [Hz],width [Hz],loudest_2F\n100,0.5,40\n100.5,0.5,"
                        f"{second}\n")
     return setup, results
 
@@ -239,7 +239,7 @@ def test_bayes_loud_band_is_a_candidate(tmp_path, capsys, demo_catalogue_path):
     setup, results = _limits_files(tmp_path, "1e8")
     out = tmp_path / "ul.csv"
     _fails(_limits(setup, results, demo_catalogue_path, "--out", str(out)), capsys,
-           tmp_path, str(results), "row 3", "loudest_2F_sum", "candidate", "frequentist")
+           tmp_path, str(results), "row 3", "loudest_2F", "candidate", "frequentist")
     # the frequentist path gives a limit for the same band
     assert main(_limits(setup, results, demo_catalogue_path, "--method", "frequentist",
                         "--out", str(out))) == 0
@@ -258,7 +258,7 @@ def test_bayes_zero_statistic_names_file_and_row(tmp_path, capsys, demo_catalogu
     setup, results = _limits_files(tmp_path, "0")
     out = tmp_path / "ul.csv"
     _fails(_limits(setup, results, demo_catalogue_path, "--out", str(out)), capsys,
-           tmp_path, str(results), "row 3", "column 'loudest_2F_sum'", "impossible")
+           tmp_path, str(results), "row 3", "column 'loudest_2F'", "impossible")
     plot = tmp_path / "post.png"
     _fails(_limits(setup, results, demo_catalogue_path, "--posterior", "100.7Hz", "--plot",
                    str(plot)), capsys, tmp_path, str(results), "row 3")

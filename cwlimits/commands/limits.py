@@ -60,7 +60,7 @@ def register(subparsers, common):
             "--target A --posterior 101.3Hz --plot post.png"])
     parser.add_argument("results", metavar="RESULTS",
                         help="results table (CSV/ECSV): f_lo or f_mid, width, "
-                             "loudest_2F_sum or loudest_2F_mean, optional psd/asd, "
+                             "loudest_2F or loudest_2F_per_segment, optional psd/asd, "
                              "n_templates")
     add_target_args(parser)
     add_setup_args(parser)
@@ -150,7 +150,7 @@ def run(args):
     from ..store import file_hash, open_store
 
     out = check_output_path(args.out)
-    plot = check_output_path(args.plot, PLOT_SUFFIXES)
+    plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     if not (0.0 < args.confidence < 1.0):
         raise InputError("--confidence must lie strictly between 0 and 1",
                          value=args.confidence)
@@ -167,7 +167,7 @@ def run(args):
     setup = build_setup(args, known_sites=True)
     if args.method == "bayes" or args.posterior is not None:
         # before the results store is opened: nothing is written for a band out of range
-        limits.check_bayes_range(results, results.loudest_sum(setup.n_seg), setup.n_seg)
+        limits.check_bayes_range(results, results.loudest_total(setup.n_seg), setup.n_seg)
     model_options = dict(sky=args.sky, mismatch=args.mismatch, start=args.start)
     options = dict(noise=args.noise, prior=args.prior, h0_min=args.h0_min,
                    h0_max=args.h0_max, distance_prior=args.distance_prior,
@@ -282,7 +282,7 @@ def summarise(args, table, title):
     n = len(table)
     rows = np.unique(np.linspace(0, n - 1, min(n, 15)).round().astype(int))
     headers = ["f_mid [Hz]", "2F*", "h0 limit", "eps limit", "alpha limit", "h0_age / h0"]
-    lines = [[f"{table['f_mid'][i].value:.6g}", f"{table['loudest_2F_sum'][i].value:.5g}",
+    lines = [[f"{table['f_mid'][i].value:.6g}", f"{table['loudest_2F'][i].value:.5g}",
               sci(table["h0_limit"][i].value), sci(table["eps_limit"][i].value),
               sci(table["alpha_limit"][i].value), _ratio(table['age_ratio'][i].value)]
              for i in rows]
