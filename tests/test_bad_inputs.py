@@ -24,7 +24,8 @@ RESULTS = sorted((BAD / "results").iterdir())
 NOISE = sorted((BAD / "noise").iterdir())
 TIMESERIES = sorted((BAD / "timeseries").iterdir())
 CONFIGS = sorted((BAD / "config").iterdir())
-#: Command lines (one per file; {ROOT}, {BAD} and {TMP} are filled in) of issue 14: sizes,
+#: Command lines (the first line of a file; {ROOT}, {BAD} and {TMP} are filled in; then
+#: ``expect: TEXT`` lines the error must contain) of issue 14: sizes,
 #: coordinates, overflow, the Bayesian range, option values.  Inputs they name are in
 #: cli_inputs/.
 COMMAND_LINES = sorted((BAD / "cli").glob("*.args"))
@@ -90,7 +91,9 @@ def test_bad_command_line(path, tmp_path, capsys, monkeypatch):
     import shlex
 
     monkeypatch.chdir(tmp_path)
-    argv = shlex.split(path.read_text().format(ROOT=ROOT, BAD=BAD, TMP=tmp_path))
+    command, *rest = path.read_text().splitlines()
+    argv = shlex.split(command.format(ROOT=ROOT, BAD=BAD, TMP=tmp_path))
+    expected = [line.removeprefix("expect: ") for line in rest if line.startswith("expect: ")]
     try:
         code = main(argv)
     except SystemExit as exc:  # argparse refuses an option value before any work
@@ -98,6 +101,7 @@ def test_bad_command_line(path, tmp_path, capsys, monkeypatch):
     err = capsys.readouterr().err
     assert code == 2, err
     assert "error: " in err and "Traceback" not in err and "internal error" not in err
+    assert all(text in err for text in expected), (expected, err)  # the right error
     assert list(tmp_path.iterdir()) == []
 
 
