@@ -183,8 +183,9 @@ def run(args):
             raise InputError("--sampler emcee needs --bands (emcee is slow): e.g. --bands 0,5")
         bands = sorted({_band_index(t, results, "--bands") for t in args.bands.split(",")
                         if t.strip()})
-    check_size("samples", args.draws * len(results), f"--draws {args.draws} for "
-               f"{len(results)} bands")
+    if args.draws is not None:  # the Monte-Carlo reference path only
+        check_size("samples", args.draws * len(results), f"--draws {args.draws} for "
+                   f"{len(results)} bands")
     if bands:
         check_size("emcee", args.walkers * args.steps * len(bands),
                    f"--walkers {args.walkers} x --steps {args.steps} for {len(bands)} bands")
