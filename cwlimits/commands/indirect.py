@@ -1,6 +1,7 @@
 """``cwlimits indirect``: the indirect amplitude limits of every target of a catalogue."""
 
 import astropy.units as u
+import numpy as np
 
 from ..fiducial import DEFAULT_MOMENT_OF_INERTIA
 from ..indirect import DEFAULT_EPS_FREQUENCIES, indirect_limits
@@ -63,7 +64,7 @@ def run(args):
     eps_columns = [c for c in table.colnames if c.startswith("eps_age_")]
     headers = ["target", "d [kpc]", "age [yr]", "h0_age", "optimistic", "pessimistic",
                "h0_spindown", *eps_columns]
-    rows = [[r["name"], f"{r['distance'].value:.3g}", f"{r['age'].value:.4g}",
+    rows = [[r["name"], f"{r['distance'].value:.3g}", _age_cell(r),
              sci(r["h0_age"]), sci(r["h0_age_optimistic"]), sci(r["h0_age_pessimistic"]),
              sci(r["h0_spindown"]), *[sci(r[c]) for c in eps_columns]] for r in table]
     echo(args, f"indirect limits for {len(table)} targets of {args.catalogue}")
@@ -75,3 +76,10 @@ def run(args):
                     assumptions=table.meta["assumptions"])
         echo(args, f"wrote {out}")
     return 0
+
+
+def _age_cell(row):
+    """The age, or for a known pulsar without one its characteristic age, so marked."""
+    if np.isfinite(row["age"].value):
+        return f"{row['age'].value:.4g}"
+    return f"{row['age_characteristic'].to_value(u.yr):.3g} (char.)"
