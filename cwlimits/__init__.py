@@ -100,6 +100,7 @@ from .response import (  # noqa: E402
     orientation_factor_samples,
     time_averages,
 )
+from .pulsars import targeted_sensitivity  # noqa: E402
 from .results import SearchResults, load_results  # noqa: E402
 from .sensitivity import (  # noqa: E402
     SignalModel,
@@ -216,6 +217,8 @@ __all__ = [
     "allocate_budget",
     "optimise_setup",
     "PowerLawModel",
+    # known pulsars
+    "targeted_sensitivity",
     # upper limits
     "upper_limits",
     "band_posterior",
