@@ -22,7 +22,7 @@ from scipy import special, stats
 from ..errors import InputError
 from .likelihood import known_noise_log_likelihood, orientation_coefficients
 
-__all__ = ["OrientationPrior", "H0_PRIORS", "h0_grid", "grid_posterior_known",
+__all__ = ["OrientationPrior", "H0_PRIORS", "h0_grid", "grid_posterior_known", "zoom_window",
            "quantile_from_grid", "DEFAULT_GRID"]
 
 H0_PRIORS = ("uniform", "log-uniform")
@@ -91,13 +91,15 @@ class OrientationPrior:
              "deg) wrapped onto [0, 90) deg")
         return f"{c}; {p}"
 
-    def cosi_nodes(self, n):
-        """Nodes and weights (summing to 1) of the cos iota prior."""
+    def cosi_nodes(self, n, window=None):
+        """Nodes and weights (summing to 1) of the cos iota prior (within ``window``)."""
         if self.cosi is None:
             lo, hi = -1.0, 1.0
         else:
             lo = max(-1.0, self.cosi - 6 * self.cosi_err)
             hi = min(1.0, self.cosi + 6 * self.cosi_err)
+        if window is not None:
+            lo, hi = max(lo, window[0]), min(hi, window[1])
         x, w = special.roots_legendre(n)
         nodes = lo + (hi - lo) * (x + 1) / 2
         w = w * (hi - lo) / 2
@@ -105,8 +107,18 @@ class OrientationPrior:
             w = w * stats.norm.pdf(nodes, self.cosi, self.cosi_err)
         return nodes, w / w.sum()
 
-    def psi_nodes(self, n):
-        """Nodes (rad, in [0, pi/2) or a window around the centre) and weights."""
+    def psi_nodes(self, n, window=None):
+        """Nodes (rad, in [0, pi/2) or a window) and weights.
+
+        A ``window`` (lo, hi) narrower than the period puts Gauss-Legendre nodes on it
+        (the likelihood and the prior are periodic, so it may cross 0).
+        """
+        if window is not None and window[1] - window[0] < _PSI_PERIOD:
+            x, w = special.roots_legendre(n)
+            nodes = window[0] + (window[1] - window[0]) * (x + 1) / 2
+            if self.psi_rad is not None:
+                w = w * _wrapped_normal(nodes, self.psi_rad, self.psi_err_rad)
+            return nodes, w / w.sum()
         if self.psi_rad is None or 6 * self.psi_err_rad >= _PSI_PERIOD / 2:
             nodes = (np.arange(n) + 0.5) * _PSI_PERIOD / n
             w = np.ones(n)
@@ -126,20 +138,23 @@ def _wrapped_normal(x, centre, width):
     return stats.norm.pdf(np.asarray(x)[None] + k * _PSI_PERIOD, centre, width).sum(axis=0)
 
 
-def h0_grid(h_max, n, prior="uniform", h_min=None):
+def h0_grid(h_max, n, prior="uniform", h_min=None, window=None):
     """The h0 points and the prior density on them (unnormalised).
 
     Uniform prior: even points on [0, h_max].  Log-uniform: even in ln h0 on
-    [h_min, h_max] with density 1/h0.
+    [h_min, h_max] with density 1/h0.  A ``window`` (lo, hi) restricts the points to
+    where the posterior has its mass (the zoom of :func:`zoom_window`).
     """
     if prior == "uniform":
-        h = np.linspace(0.0, h_max, n)
+        lo, hi = (0.0, h_max) if window is None else window
+        h = np.linspace(lo, hi, n)
         return h, np.ones(n)
     if prior == "log-uniform":
         if h_min is None or not 0 < h_min < h_max:
             raise InputError("a log-uniform h0 prior needs 0 < h0_min below the grid's top "
                              f"({h_max:.3g})", value=h_min)
-        h = np.geomspace(h_min, h_max, n)
+        lo, hi = (h_min, h_max) if window is None else (max(h_min, window[0]), window[1])
+        h = np.geomspace(lo, hi, n)
         return h, 1.0 / h
     raise InputError(f"h0 prior must be one of {', '.join(H0_PRIORS)}", value=prior)
 
@@ -152,8 +167,32 @@ def h0_top(p, q, u, v, s_aa, s_bb, s_ab):
     return float(np.max(np.abs(x) / y + _H_TAIL / np.sqrt(y), axis=None))
 
 
+def zoom_window(nodes, mass, lower, upper, period=None, floor=1e-9):
+    """The interval holding the nodes with mass above ``floor`` x the largest, widened by
+    two node spacings and clipped to [lower, upper]; None if that is most of the range.
+
+    For a periodic parameter (``period``) the window is centred on the heaviest node and
+    may cross the ends.
+    """
+    nodes, mass = np.asarray(nodes, float), np.asarray(mass, float)
+    keep = mass > floor * mass.max()
+    spacing = (upper - lower) / len(nodes)
+    if period is not None:
+        centre = nodes[np.argmax(mass)]
+        dist = np.angle(np.exp(2j * np.pi * (nodes - centre) / period)) * period / (2 * np.pi)
+        half = np.max(np.abs(dist[keep])) + 2 * spacing
+        if 2 * half > 0.6 * period:
+            return None
+        return (centre - half, centre + half)
+    lo = max(lower, nodes[keep].min() - 2 * spacing)
+    hi = min(upper, nodes[keep].max() + 2 * spacing)
+    if hi - lo > 0.6 * (upper - lower):
+        return None
+    return (lo, hi)
+
+
 def grid_posterior_known(u, v, s_aa, s_bb, s_ab, prior, *, h0_prior="uniform", h0_min=None,
-                         h_max=None, grid=None, harmonic="22"):
+                         h_max=None, grid=None, harmonic="22", windows=None):
     """Posterior on the (h0, cosi, psi) grid for weighted sums, phi0 integrated.
 
     ``u``, ``v`` may carry a leading batch axis (noise draws): the result then has it too.
@@ -165,8 +204,9 @@ def grid_posterior_known(u, v, s_aa, s_bb, s_ab, prior, *, h0_prior="uniform", h
     ``cosi_w``, ``psi_w``.
     """
     grid = dict(DEFAULT_GRID, **(grid or {}))
-    c, wc = prior.cosi_nodes(grid["n_cosi"])
-    s, ws = prior.psi_nodes(grid["n_psi"])
+    windows = windows or {}
+    c, wc = prior.cosi_nodes(grid["n_cosi"], windows.get("cosi"))
+    s, ws = prior.psi_nodes(grid["n_psi"], windows.get("psi"))
     p, q = orientation_coefficients(c[:, None], s[None, :], harmonic)
     u, v = np.asarray(u), np.asarray(v)
     batch = u.shape
@@ -179,7 +219,7 @@ def grid_posterior_known(u, v, s_aa, s_bb, s_ab, prior, *, h0_prior="uniform", h
     out_post = np.empty(batch + (grid["n_h0"], len(c), len(s)))
     for idx in np.ndindex(batch):
         h, ph = h0_grid(float(h_max[idx] if h_max.ndim else h_max), grid["n_h0"], h0_prior,
-                        h0_min)
+                        h0_min, windows.get("h0"))
         logl = known_noise_log_likelihood(h[:, None, None], p[None], q[None], u[idx],
                                           v[idx], s_aa, s_bb, s_ab)
         logl -= logl.max()
