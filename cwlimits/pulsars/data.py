@@ -370,7 +370,8 @@ def from_band_data(band, target, *, harmonic=2.0, average=None, doppler=True):
 
 def simulate_pulsar_signal(target, detectors, start, n_stretches, stretch_length, *,
                            h0, cosi, psi, phi0, psd, sample=600 * u.s, gap_fraction=0.0,
-                           doppler=True, rng=None, harmonic=2.0):
+                           max_gap=0.5, doppler=True, demodulate=None, rng=None,
+                           harmonic=2.0):
     """Simulated down-converted data of a known pulsar (noiseless signal, sigma set).
 
     The signal is made the long way, to exercise the Doppler modulation: band data of
@@ -398,6 +399,14 @@ def simulate_pulsar_signal(target, detectors, start, n_stretches, stretch_length
         Spacing of the output samples.
     gap_fraction : float
         Fraction of the stretches dropped at random (gaps), in [0, 0.9].
+    max_gap : float
+        Gaps between stretches are uniform in [0, max_gap] stretch lengths (0: back to
+        back).
+    doppler : bool
+        Inject with the Doppler modulation.
+    demodulate : bool, optional
+        Remove it when down-converting (default: as ``doppler``; False shows what is
+        lost without it).
     rng : None, int or Generator
     """
     from ..synthetic import BandData, CWSignal, inject
@@ -416,7 +425,7 @@ def simulate_pulsar_signal(target, detectors, start, n_stretches, stretch_length
     # Doppler |v/c| < 1.1e-4 plus the spin-down over the span, with room
     length_s = float(to_value(stretch_length, u.s, "stretch_length"))
     dt_out = float(to_value(sample, u.s, "sample"))
-    span = length_s * n_str * 1.5
+    span = length_s * n_str * (1 + max_gap)
     drift = abs(k * target.fdot_rot.to_value(u.Hz / u.s)) * span
     bw = max(1 / 60, 4 * (1.1e-4 * f_gw + drift))
     per_out = max(1, int(round(dt_out * bw)))
@@ -426,7 +435,9 @@ def simulate_pulsar_signal(target, detectors, start, n_stretches, stretch_length
         raise InputError(f"the simulation needs {n_samp * n_det * n_str} band samples; at "
                          f"most {MAX_SAMPLES}: shorten it or sample less often")
     # stretches separated by random gaps of up to half a stretch, some dropped entirely
-    gaps = rng.uniform(0.0, 0.5, n_str) * length_s
+    if not 0 <= max_gap <= 10:
+        raise InputError("max_gap must lie in [0, 10] stretch lengths", value=max_gap)
+    gaps = rng.uniform(0.0, max_gap, n_str) * length_s
     starts = start + np.cumsum(np.concatenate([[0.0], (length_s + gaps)[:-1]]))
     kept = rng.uniform(size=n_str) >= gap_fraction
     kept[0] = True
@@ -442,7 +453,8 @@ def simulate_pulsar_signal(target, detectors, start, n_stretches, stretch_length
     signal = CWSignal(target.coord, h0, cosi, psi_rad * u.rad, phi_rad * u.rad,
                       f_gw * u.Hz, k * target.fdot_rot, fddot * u.Hz / u.s**2)
     band = inject(band, signal, doppler=doppler)
-    data = from_band_data(band, target, harmonic=k, average=per_out, doppler=doppler)
+    data = from_band_data(band, target, harmonic=k, average=per_out,
+                          doppler=doppler if demodulate is None else demodulate)
     return DownConvertedData(data.detector, data.time_s, data.value, data.sigma,
                              data.stretch, "simulated (fictional) known-pulsar data")
 
