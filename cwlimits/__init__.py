@@ -90,6 +90,7 @@ from .planning import (  # noqa: E402
     plan_search,
     rank_targets,
 )
+from .pulsars import pulsar_posterior, targeted_sensitivity  # noqa: E402
 from .response import (  # noqa: E402
     Detector,
     antenna_patterns,
@@ -100,7 +101,6 @@ from .response import (  # noqa: E402
     orientation_factor_samples,
     time_averages,
 )
-from .pulsars import targeted_sensitivity  # noqa: E402
 from .results import SearchResults, load_results  # noqa: E402
 from .sensitivity import (  # noqa: E402
     SignalModel,
@@ -219,6 +219,7 @@ __all__ = [
     "PowerLawModel",
     # known pulsars
     "targeted_sensitivity",
+    "pulsar_posterior",
     # upper limits
     "upper_limits",
     "band_posterior",

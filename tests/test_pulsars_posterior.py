@@ -78,7 +78,8 @@ def test_upper_limit_coverage_over_300_trials(clean):
     t = _pulsar()
     rng = np.random.default_rng(17)
     top = 6e-25
-    covered = 0
+    levels = np.array([0.5, 0.9, 0.95])
+    covered = np.zeros(3)
     n = 300
     for _ in range(n):
         h0, cosi = rng.uniform(0, top), rng.uniform(-1, 1)
@@ -86,8 +87,10 @@ def test_upper_limit_coverage_over_300_trials(clean):
         data = add_noise(clean.replace_values(clean.model_signal(t.coord, h0, cosi, psi,
                                                                  phi0)), rng)
         post = pulsar_posterior(data, t, noise="given", h0_max=top, grid=COARSE)
-        covered += post.upper_limit >= h0
-    assert abs(covered / n - 0.95) < 3 * math.sqrt(0.95 * 0.05 / n)
+        covered += [post.quantile(q) >= h0 for q in levels]
+        assert post.upper_limit == post.quantile(0.95)
+    # every quantile, not only the 95 % one (the same binomial 3 sigma)
+    assert np.all(np.abs(covered / n - levels) < 3 * np.sqrt(levels * (1 - levels) / n))
 
 
 def test_grid_and_emcee_agree(clean):

@@ -7,9 +7,20 @@ subpackage follows the job for such a star: which frequencies its spin implies
 upper limit from them (:mod:`.posterior`).  Figures are in :mod:`.plots`.
 """
 
+from .data import (
+    DownConvertedData,
+    add_noise,
+    read_down_converted,
+    simulate_pulsar_signal,
+    write_down_converted,
+)
 from .emission import DUAL_HARMONIC, RMODE, SINGLE_HARMONIC, EmissionModel, get_emission, harmonics
 from .expected import targeted_sensitivity
 from .grid import OrientationPrior
+from .posterior import PulsarPosterior, limit_table, pulsar_posterior, spindown_ratios
 
 __all__ = ["EmissionModel", "SINGLE_HARMONIC", "DUAL_HARMONIC", "RMODE", "get_emission",
-           "harmonics", "targeted_sensitivity", "OrientationPrior"]
+           "harmonics", "targeted_sensitivity", "OrientationPrior", "DownConvertedData",
+           "read_down_converted", "write_down_converted", "simulate_pulsar_signal",
+           "add_noise", "pulsar_posterior", "PulsarPosterior", "limit_table",
+           "spindown_ratios"]

@@ -96,6 +96,7 @@ class DownConvertedData:
 
     @property
     def n_stretches(self):
+        """Number of stretches."""
         return int(self.stretch.max()) + 1 if len(self) else 0
 
     @property
@@ -409,8 +410,8 @@ def simulate_pulsar_signal(target, detectors, start, n_stretches, stretch_length
         lost without it).
     rng : None, int or Generator
     """
-    from ..synthetic import BandData, CWSignal, inject
     from ..response import get_detectors
+    from ..synthetic import BandData, CWSignal, inject
 
     rng = np.random.default_rng(rng)
     dets = get_detectors(detectors)

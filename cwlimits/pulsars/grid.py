@@ -168,8 +168,10 @@ def h0_top(p, q, u, v, s_aa, s_bb, s_ab):
 
 
 def zoom_window(nodes, mass, lower, upper, period=None, floor=1e-9):
-    """The interval holding the nodes with mass above ``floor`` x the largest, widened by
-    two node spacings and clipped to [lower, upper]; None if that is most of the range.
+    """The interval where a marginal has its mass (None if that is most of the range).
+
+    The nodes with mass above ``floor`` x the largest, widened by two node spacings and
+    clipped to [lower, upper].
 
     For a periodic parameter (``period``) the window is centred on the heaviest node and
     may cross the ends.

@@ -6,7 +6,8 @@ Data heterodyned with the pulsar's full phase model (spin, spin-down, Doppler) a
 low-passed are, for one detector at sample k (Dupuis & Woan 2005, arXiv:gr-qc/0508096,
 eq. 4, for a complex heterodyne without a factor 2),
 
-    B_k = y_k + n_k,   y_k = (h0/4)(1 + cos^2 iota) F+_k e^{i phi0} - (i h0/2) cos iota Fx_k e^{i phi0},
+    B_k = y_k + n_k,
+    y_k = (h0/4)(1 + cos^2 iota) F+_k e^{i phi0} - (i h0/2) cos iota Fx_k e^{i phi0},
 
 with F+ = a cos 2psi + b sin 2psi and Fx = b cos 2psi - a sin 2psi (Jaranowski, Krolak &
 Schutz 1998, gr-qc/9804014, eqs. 10-11; a, b include the sin(zeta) of the arms).  Written
@@ -111,7 +112,7 @@ def _xy(p, q, u, v, s_aa, s_bb, s_ab):
 
 
 def known_noise_log_likelihood(h0, p, q, u, v, s_aa, s_bb, s_ab):
-    """ln L (up to a constant) with phi0 marginalised, for 1/sigma^2-weighted sums.
+    """Ln L (up to a constant) with phi0 marginalised, for 1/sigma^2-weighted sums.
 
     ``h0`` broadcasts against ``p`` and ``q``; ``u ... s_ab`` are scalars (or broadcast).
     ln L = ln I0(h0 |X|) - h0^2 Y / 2 (module notes), with the exponentially scaled Bessel
@@ -123,7 +124,7 @@ def known_noise_log_likelihood(h0, p, q, u, v, s_aa, s_bb, s_ab):
 
 
 def student_log_likelihood(h0, phi0, p, q, sums):
-    """ln L (up to a constant) with the noise of every stretch marginalised (Student-t).
+    """Ln L (up to a constant) with the noise of every stretch marginalised (Student-t).
 
     ``h0``, ``phi0``, ``p``, ``q`` broadcast together; the stretches are summed over.
     ln L = -sum_j m_j ln(S_BB,j - 2 h0 Re(e^{-i phi0} X_j) + h0^2 Y_j) (Dupuis & Woan 2005,

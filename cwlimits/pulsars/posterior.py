@@ -48,8 +48,8 @@ from .grid import (
 )
 from .likelihood import orientation_coefficients, student_log_likelihood
 
-__all__ = ["PulsarPosterior", "pulsar_posterior", "limit_table", "spindown_ratios", "NOISE_MODES", "SAMPLERS",
-           "HARMONICS"]
+__all__ = ["PulsarPosterior", "pulsar_posterior", "limit_table", "spindown_ratios",
+           "NOISE_MODES", "SAMPLERS", "HARMONICS"]
 
 NOISE_MODES = ("student-t", "given", "estimated")
 SAMPLERS = ("grid", "emcee")
@@ -95,6 +95,7 @@ class PulsarPosterior:
 
     @property
     def amplitude_name(self):
+        """'h0' or 'C21': what the limit is on."""
         return "h0" if self.harmonic == "22" else "C21"
 
     def quantile(self, level):
