@@ -283,3 +283,30 @@ def test_cli_detector_not_in_the_setup(files, tmp_path, capsys):
                  "--setup", str(setup), "--out", str(out)]) == 2
     err = capsys.readouterr().err
     assert "not in the setup" in err and "'L1'" in err and not out.exists()
+
+
+@pytest.mark.parametrize("harmonic", ["22", "21"])
+def test_heterodyned_form_against_the_time_domain_formula(harmonic):
+    # Build h(t) from the published time-domain formulas and heterodyne it numerically:
+    # l = m = 2: h = F+ h0 (1 + cos^2 i)/2 cos Phi + Fx h0 cos i sin Phi (JKS 1998, eqs.
+    # 20-22); l = 2, m = 1: h = -C21 [F+ sin i cos i cos Phi + Fx sin i sin Phi] (Jones
+    # 2015; Pitkin et al. 2015, eq. 2).  Averaging h e^{-i Phi} over whole cycles keeps the
+    # positive-frequency part, which must equal amp e^{i phi0} (a P + b Q) of
+    # cwlimits.pulsars.likelihood (up to the overall sign of the m = 1 term, a phase).
+    from cwlimits.pulsars.likelihood import orientation_coefficients
+
+    amp, cosi, psi, phi0 = 1.0, 0.3, 0.7, 0.4
+    sini = math.sqrt(1 - cosi**2)
+    a, b = 0.37, -0.21  # antenna functions, constant over the few cycles averaged
+    fp = a * math.cos(2 * psi) + b * math.sin(2 * psi)
+    fx = b * math.cos(2 * psi) - a * math.sin(2 * psi)
+    phase = phi0 + 2 * np.pi * np.arange(4000) / 400  # ten whole cycles
+    if harmonic == "22":
+        h = fp * amp * (1 + cosi**2) / 2 * np.cos(phase) + fx * amp * cosi * np.sin(phase)
+    else:
+        h = -amp * (fp * sini * cosi * np.cos(phase) + fx * sini * np.sin(phase))
+    numeric = np.mean(h * np.exp(-1j * (phase - phi0)))
+    p, q = orientation_coefficients(cosi, psi, harmonic)
+    model = amp * np.exp(1j * phi0) * (a * p + b * q)
+    sign = 1 if harmonic == "22" else -1
+    assert numeric == pytest.approx(sign * model, rel=1e-9, abs=1e-12)
