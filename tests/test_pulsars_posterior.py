@@ -310,3 +310,25 @@ def test_heterodyned_form_against_the_time_domain_formula(harmonic):
     model = amp * np.exp(1j * phi0) * (a * p + b * q)
     sign = 1 if harmonic == "22" else -1
     assert numeric == pytest.approx(sign * model, rel=1e-9, abs=1e-12)
+
+
+def test_band_data_input_with_gaps():
+    # cwlimits.synthetic band data (noise of two levels, random gaps inside the segments),
+    # a Doppler-modulated signal injected: pulsar_posterior down-converts it itself
+    from cwlimits.pulsars.data import from_band_data
+    from cwlimits.synthetic import CWSignal, inject, simulate_noise
+
+    t = _pulsar()
+    starts = START + np.arange(8) * 5 * 3600.0
+    psd = np.array([[1e-46] * 4 + [3e-46] * 4, [2e-46] * 8]) / u.Hz
+    band = simulate_noise("H1,L1", psd, 60 * u.Hz, 0.05 * u.Hz, 4 * u.hour, starts * u.s,
+                          t_ref=START * u.s, duty=0.8, rng=4)
+    signal = CWSignal(t.coord, 4e-25, 0.2, 0.3 * u.rad, 2.0 * u.rad, 60 * u.Hz,
+                      2 * t.fdot_rot)
+    band = inject(band, signal, doppler=True)
+    direct = pulsar_posterior(band, t, noise="given")
+    by_hand = pulsar_posterior(from_band_data(band, t), t, noise="given")
+    assert direct.upper_limit == by_hand.upper_limit
+    lo, hi = direct.interval("h0", 0.98)
+    assert lo < 4e-25 < hi
+    assert np.mean(band.mask) < 0.9  # the gaps are there
