@@ -157,3 +157,43 @@ def test_cli_targeted(tmp_path, capsys):
     assert main(["targeted", "--catalogue", str(cat), "--target", "P",
                  "--out", str(bad)]) == 2
     assert "--span" in capsys.readouterr().err and not bad.exists()
+
+
+def test_summary_of_every_known_pulsar_and_the_figure(tmp_path, capsys):
+    from cwlimits.cli import main
+    from cwlimits.pulsars.data import add_noise, simulate_pulsar_signal, write_down_converted
+    from cwlimits.pulsars.summary import known_pulsar_summary, sensitivity_curve
+
+    cat = tmp_path / "c.csv"
+    cat.write_text("name,ra,dec,distance [kpc],age [yr],f_rot [Hz],fdot_rot [Hz/s]\n"
+                   "P,40,20,1.5,,30,-4e-11\nR,100,-30,0.8,,11,-2e-11\nQ,20,5,1,900,,\n")
+    catalogue = cwlimits.load_targets(cat)
+    p = catalogue.target("P")
+    data = add_noise(simulate_pulsar_signal(p, "H1,L1", 1.3e9, 6, 4 * u.hour, h0=0.0,
+                                            cosi=0.0, psi=0.0, phi0=0.0, psd=1e-46,
+                                            rng=0), 1)
+    setup = _setup(30)
+    table = known_pulsar_summary(catalogue, setup, data={"P": data}, n_noise=50, rng=0)
+    assert list(table["name"]) == ["P", "R"]  # Q has no known spin
+    assert list(table["limit_source"]) == ["measured", "predicted"]
+    # the ratios belong to the reported limit: (h_UL / h_sd)^2 (energy in h0^2)
+    assert table["spindown_fraction"][0] == pytest.approx(
+        (table["h95_measured"][0] / table["h0_spindown"][0]) ** 2)
+    assert table["ratio_spindown"][1] == pytest.approx(
+        table["h95_predicted"][1] / table["h0_spindown"][1])
+    # the curve h95(f) = K / sqrt(sum_d T_d / S_d(f)) reproduces a targeted row at its
+    # own f_gw (the same K and the same noise)
+    k = float(table["factor_k"][0])
+    curve = sensitivity_curve(setup, cwlimits.DEFAULT_NOISE_MODEL, k, table["f_gw"][:1])
+    assert curve[0].value == pytest.approx(table["h95_predicted"][0], rel=1e-9)
+    path = write_down_converted(data, tmp_path / "p.csv")
+    out, plot = tmp_path / "known.csv", tmp_path / "known.png"
+    assert main(["targeted", "--catalogue", str(cat), "--all", "--span", "30day",
+                 "--data", f"P={path}", "--noise-draws", "30", "--out", str(out),
+                 "--plot", str(plot)]) == 0
+    assert "known pulsars of" in capsys.readouterr().out
+    assert out.exists() and plot.stat().st_size > 0
+    bad = tmp_path / "bad.csv"
+    assert main(["targeted", "--catalogue", str(cat), "--all", "--span", "30day",
+                 "--data", f"Q={path}", "--out", str(bad)]) == 2
+    assert "not known pulsars" in capsys.readouterr().err and not bad.exists()

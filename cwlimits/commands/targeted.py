@@ -9,7 +9,6 @@ from ..pulsars.expected import DEFAULT_N_NOISE, DEFAULT_N_SIGMA, KINDS, targeted
 from ..tables import write_table
 from ._common import (
     add_parser,
-    add_target_args,
     check_output_path,
     echo,
     format_assumptions,
@@ -44,8 +43,23 @@ def register(subparsers, common):
             "Cinder' --span 365day --detectors H1,L1",
             "cwlimits targeted --catalogue cat.csv --target A --span 180day --kind "
             "narrow-band --fractional-width 1e-3 --out nb.ecsv",
-            "cwlimits targeted --catalogue cat.csv --target A --span 1yr --emission dual"])
-    add_target_args(parser)
+            "cwlimits targeted --catalogue cat.csv --target A --span 1yr --emission dual",
+            "cwlimits targeted --catalogue cat.csv --all --span 1yr --data A=a.csv "
+            "--out known.csv --plot known.png"])
+    parser.add_argument("--catalogue", metavar="FILE", required=True,
+                        help="target catalogue (CSV or ECSV)")
+    which = parser.add_mutually_exclusive_group(required=True)
+    which.add_argument("--target", metavar="NAME", help="one known pulsar of the catalogue")
+    which.add_argument("--all", action="store_true",
+                       help="every known pulsar of the catalogue: one table (predicted and, "
+                            "with --data, measured limits) and the limits-against-frequency "
+                            "figure (--plot)")
+    parser.add_argument("--data", metavar="NAME=FILE", action="append", default=[],
+                        help="with --all: down-converted data of a pulsar (repeatable); "
+                             "adds its measured limit")
+    parser.add_argument("--plot", metavar="FILE",
+                        help="with --all: limits against f_gw with the spin-down limits and "
+                             "the expected curve of the span (.png/.svg/.pdf)")
     add_setup_args(parser)
     parser.add_argument("--noise", default=DEFAULT_NOISE_MODEL, metavar="MODEL_OR_FILE",
                         help=f"noise model name or noise file (default {DEFAULT_NOISE_MODEL})")
@@ -81,21 +95,91 @@ def register(subparsers, common):
     parser.set_defaults(run=run)
 
 
-def run(args):
-    out = check_output_path(args.out)
-    target = resolve_target(args)
-    if not target.has_spin:
-        raise InputError(f"target '{target.name}' has no known spin (f_rot, fdot_rot); "
-                         "use 'cwlimits sensitivity' for a directed search",
-                         file=args.catalogue)
+def _setup_for(args, f_gw):
     if args.setup is None:
         if args.span is None:
             raise InputError("give --span (the coherent length of the search) or --setup")
         # one coherent segment as long as the span
         args.t_seg = args.t_seg or args.span
         args.n_seg = args.n_seg or 1
-    f_gw = 2 * target.f_rot
-    setup = build_setup(args, default_band=(0.5 * f_gw, 2.5 * f_gw))
+    return build_setup(args, default_band=(0.5 * f_gw, 2.5 * f_gw))
+
+
+def _run_all(args, out, plot):
+    import numpy as np
+
+    from ..plots import save_plot
+    from ..pulsars.plots import plot_known_pulsars
+    from ..pulsars.summary import known_pulsar_summary, sensitivity_curve
+    from ..targets import load_targets
+
+    catalogue = load_targets(args.catalogue)
+    data = {}
+    for item in args.data:
+        name, sep, path = item.partition("=")
+        if not sep or not name or not path:
+            raise InputError("--data takes NAME=FILE", value=item)
+        data[name] = path
+    spins = [t.f_rot for t in catalogue if t.has_spin]
+    if not spins:
+        raise InputError("the catalogue has no known pulsar (rows with f_rot and fdot_rot)",
+                         file=args.catalogue)
+    setup = _setup_for(args, 2 * min(spins))
+    for name, path in data.items():
+        from ..pulsars.data import read_down_converted
+
+        data[name] = read_down_converted(path, detectors=setup.detectors)
+    table = known_pulsar_summary(catalogue, setup, args.noise, data=data,
+                                 confidence=args.confidence, n_noise=args.noise_draws,
+                                 rng=args.seed, start=args.start)
+    info = dict(table.meta["assumptions"], seed=str(args.seed))
+    headers = ["name", "f_rot [Hz]", "f_gw [Hz]", "kind", "h_sd", "h95 predicted",
+               "h95 measured", "h95/h_sd", "fraction", "eps", "Q22 [kg m2]"]
+    rows = [[r["name"], f"{r['f_rot'].value:.6g}", f"{r['f_gw'].value:.6g}", r["kind"],
+             sci(r["h0_spindown"]), sci(r["h95_predicted"]), sci(r["h95_measured"]),
+             sci(r["ratio_spindown"]), sci(r["spindown_fraction"]), sci(r["eps_limit"]),
+             sci(r["q22_limit"].value)] for r in table]
+    echo(args, f"known pulsars of {args.catalogue}")
+    echo(args, format_rows(headers, rows))
+    echo(args)
+    echo(args, format_assumptions(info))
+    if plot is not None:
+        from ..noise import get_noise
+
+        f = np.asarray(table["f_gw"].value)
+        sources = (list(args.noise.values()) if isinstance(args.noise, dict)
+                   else [args.noise])
+        lo = max([0.7 * f.min()] + [get_noise(n).f_min.to_value(u.Hz) for n in sources])
+        hi = min([1.4 * f.max()] + [get_noise(n).f_max.to_value(u.Hz) for n in sources])
+        grid = np.geomspace(lo, max(hi, lo * 1.01), 60) * u.Hz
+        targeted = np.asarray(table["kind"]) == "targeted"
+        k = float(np.median(np.asarray(table["factor_k"])[targeted if targeted.any()
+                                                          else slice(None)]))
+        curve = sensitivity_curve(setup, args.noise, k, grid)
+        save_plot(plot_known_pulsars(table, grid, curve, title="known pulsars"), plot)
+        echo(args, f"wrote {plot}")
+    if out is not None:
+        write_table(table, out, title="known pulsars: predicted and measured limits",
+                    assumptions=info)
+        echo(args, f"wrote {out}")
+    return 0
+
+
+def run(args):
+    from ..plots import PLOT_SUFFIXES
+
+    out = check_output_path(args.out)
+    plot = check_output_path(args.plot, PLOT_SUFFIXES)
+    if not args.all and (args.data or plot is not None):
+        raise InputError("--data and --plot go with --all")
+    if args.all:
+        return _run_all(args, out, plot)
+    target = resolve_target(args)
+    if not target.has_spin:
+        raise InputError(f"target '{target.name}' has no known spin (f_rot, fdot_rot); "
+                         "use 'cwlimits sensitivity' for a directed search",
+                         file=args.catalogue)
+    setup = _setup_for(args, 2 * target.f_rot)
     if args.fractional_width is not None and not 0 < args.fractional_width < 0.5:
         raise InputError("--fractional-width must lie in (0, 0.5)",
                          value=args.fractional_width)

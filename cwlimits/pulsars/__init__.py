@@ -18,9 +18,10 @@ from .emission import DUAL_HARMONIC, RMODE, SINGLE_HARMONIC, EmissionModel, get_
 from .expected import targeted_sensitivity
 from .grid import OrientationPrior
 from .posterior import PulsarPosterior, limit_table, pulsar_posterior, spindown_ratios
+from .summary import known_pulsar_summary, sensitivity_curve
 
 __all__ = ["EmissionModel", "SINGLE_HARMONIC", "DUAL_HARMONIC", "RMODE", "get_emission",
            "harmonics", "targeted_sensitivity", "OrientationPrior", "DownConvertedData",
            "read_down_converted", "write_down_converted", "simulate_pulsar_signal",
            "add_noise", "pulsar_posterior", "PulsarPosterior", "limit_table",
-           "spindown_ratios"]
+           "spindown_ratios", "known_pulsar_summary", "sensitivity_curve"]

@@ -6,9 +6,9 @@ that choose no backend (save them with :func:`cwlimits.plots.save_plot`).
 
 import numpy as np
 
-from ..plots import COLUMN_WIDTH_IN, PALETTE, new_figure
+from ..plots import COLUMN_WIDTH_IN, PALETTE, new_figure, tidy_log_axes
 
-__all__ = ["plot_pulsar_posterior", "plot_pulsar_corner"]
+__all__ = ["plot_pulsar_posterior", "plot_pulsar_corner", "plot_known_pulsars"]
 
 _LABELS = {"h0": r"$h_0$", "cosi": r"$\cos\iota$", "psi": r"$\psi$ (rad)",
            "phi0": r"$\phi_0$ (rad)"}
@@ -90,4 +90,45 @@ def plot_pulsar_corner(posterior, title=None):
                 ax.set_ylabel(_LABELS[pi], fontsize=7)
     if title:
         fig.suptitle(title, fontsize=8)
+    return fig
+
+
+def plot_known_pulsars(table, curve_f=None, curve_h=None, title=None):
+    """The standard figure: limits against f_gw, each pulsar's spin-down limit marked.
+
+    Parameters
+    ----------
+    table : QTable
+        From :func:`cwlimits.pulsars.summary.known_pulsar_summary`.
+    curve_f, curve_h : Quantity arrays, optional
+        The expected sensitivity curve of the span (``sensitivity_curve``).
+    """
+    fig, ax = new_figure(height_ratio=0.95)
+    f = np.asarray(table["f_gw"].value)
+    if curve_f is not None:
+        colour, style, _ = PALETTE[2]
+        ax.plot(np.asarray(curve_f.value), np.asarray(curve_h.value), color=colour,
+                ls=style, lw=1, label="expected 95 % limit of the span")
+    colour, _, marker = PALETTE[4]
+    ax.plot(f, table["h0_spindown"], ls="none", marker="v", color=colour, ms=5,
+            label="spin-down limit")
+    colour, _, marker = PALETTE[0]
+    ax.plot(f, table["h95_predicted"], ls="none", marker="o", mfc="none", color=colour,
+            ms=4, label="predicted 95 % limit")
+    measured = np.isfinite(np.asarray(table["h95_measured"], float))
+    if measured.any():
+        colour, _, marker = PALETTE[1]
+        ax.plot(f[measured], np.asarray(table["h95_measured"])[measured], ls="none",
+                marker="*", color=colour, ms=6, label="measured 95 % limit")
+    for fi, lo, hi in zip(f, table["h95_predicted"], table["h0_spindown"], strict=True):
+        ax.plot([fi, fi], [lo, hi], color="0.7", lw=0.5)
+    ax.set_xscale("log")
+    ax.set_yscale("log")
+    ax.set_xlabel(r"gravitational-wave frequency $f_{\rm gw}$ (Hz)")
+    ax.set_ylabel(r"strain amplitude $h_0$ (dimensionless)")
+    tidy_log_axes(ax)
+    # below the axes: the markers sit anywhere in the panel
+    fig.legend(fontsize=6, loc="outside lower center", ncols=2, frameon=False)
+    if title:
+        ax.set_title(title, fontsize=8)
     return fig
