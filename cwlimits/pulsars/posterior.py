@@ -239,7 +239,7 @@ def pulsar_posterior(data, target, *, noise="student-t", h0_prior="uniform", h0_
         if not windows:
             break
     info = _assumptions(data, target, noise, h0_prior, h0_min, prior, sampler, harmonic,
-                        h_max, grid)
+                        h_max, grid, h0_max is not None and h_max == float(h0_max))
     post = PulsarPosterior(target.name, harmonic, float(confidence), marg, pairs, None,
                            "grid", noise, info)
     if sampler == "emcee":
@@ -390,7 +390,7 @@ def _draw(marginal, n, rng):
 
 
 def _assumptions(data, target, noise, h0_prior, h0_min, prior, sampler, harmonic, h_max,
-                 grid):
+                 grid, top_given=False):
     noise_text = {
         "student-t": "Gaussian within each stretch, sigma unknown and marginalised with a "
                      "Jeffreys prior (Student-t, Dupuis & Woan 2005, eq. 6)",
@@ -406,8 +406,10 @@ def _assumptions(data, target, noise, h0_prior, h0_min, prior, sampler, harmonic
                      "l = 2, m = 1 at f_rot (amplitude C21; Jones 2015, Pitkin et al. 2015)"),
         "noise": noise_text,
         "priors": f"{amp} {h0_prior}" + (f" from {h0_min:.3g}" if h0_min else " from 0")
-                  + f" to {h_max:.3g} (the grid's top: the likelihood is below "
-                  "exp(-40) of its peak there); phi0 uniform; " + prior.describe(),
+                  + f" to {h_max:.3g} " + ("(h0_max)" if top_given else
+                                           "(where the likelihood is below exp(-40) of "
+                                           "its peak)") + "; phi0 uniform; "
+                  + prior.describe(),
         "method": f"{sampler}: " + ("product grid " + ", ".join(f"{k}={v}" for k, v in
                                                                  grid.items())
                                     if sampler == "grid" else "emcee ensemble"),
