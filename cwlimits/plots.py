@@ -7,11 +7,11 @@ figures stay readable in greyscale.  Functions return the :class:`matplotlib.fig
 saving is the caller's business (see :func:`save_figure`).
 """
 
-import os
-import tempfile
 from pathlib import Path
 
 import numpy as np
+
+from ._files import atomic_write
 
 __all__ = ["COLUMN_WIDTH_IN", "PALETTE", "PLOT_SUFFIXES", "new_figure", "save_figure",
            "save_plot", "tidy_log_axes",
@@ -76,23 +76,17 @@ def tidy_log_axes(ax):
 def save_figure(fig, path, formats=("png", "svg")):
     """Save ``fig`` as ``path`` with each extension of ``formats``; return the paths.
 
-    Each file is written beside its destination under a temporary name and renamed, so a
-    reader never sees half a figure and a failure leaves nothing behind.
+    Each file goes through :func:`cwlimits._files.atomic_write` (a temporary file beside
+    its destination, renamed when complete, with the umask's mode), so a reader never sees
+    half a figure and a failure leaves nothing behind.
     """
     path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
     written = []
     for fmt in formats:
         target = path.with_suffix(f".{fmt}")
-        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp",
-                                   dir=target.parent)
-        os.close(fd)
-        try:
-            fig.savefig(tmp, format=fmt, metadata={"Date": None} if fmt == "svg" else None)
-            os.replace(tmp, target)
-        except BaseException:
-            Path(tmp).unlink(missing_ok=True)
-            raise
+        metadata = {"Date": None} if fmt == "svg" else None
+        atomic_write(target, lambda handle, fmt=fmt, metadata=metadata: fig.savefig(
+            handle, format=fmt, metadata=metadata), binary=True)
         written.append(target)
     return written
 

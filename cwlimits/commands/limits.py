@@ -57,7 +57,7 @@ def register(subparsers, common):
             "--target A --posterior 101.3Hz --plot post.png"])
     parser.add_argument("results", metavar="RESULTS",
                         help="results table (CSV/ECSV): f_lo or f_mid, width, "
-                             "loudest_2F_sum or loudest_2F_mean, optional psd/asd, "
+                             "loudest_2F or loudest_2F_per_segment, optional psd/asd, "
                              "n_templates")
     add_target_args(parser)
     add_setup_args(parser)
@@ -142,7 +142,7 @@ def run(args):
     from ..store import file_hash, open_store
 
     out = check_output_path(args.out)
-    plot = check_output_path(args.plot, PLOT_SUFFIXES)
+    plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     if not (0.0 < args.confidence < 1.0):
         raise InputError("--confidence must lie strictly between 0 and 1",
                          value=args.confidence)
@@ -266,7 +266,7 @@ def summarise(args, table, title):
     n = len(table)
     rows = np.unique(np.linspace(0, n - 1, min(n, 15)).round().astype(int))
     headers = ["f_mid [Hz]", "2F*", "h0 limit", "eps limit", "alpha limit", "h0_age / h0"]
-    lines = [[f"{table['f_mid'][i].value:.6g}", f"{table['loudest_2F_sum'][i].value:.5g}",
+    lines = [[f"{table['f_mid'][i].value:.6g}", f"{table['loudest_2F'][i].value:.5g}",
               sci(table["h0_limit"][i].value), sci(table["eps_limit"][i].value),
               sci(table["alpha_limit"][i].value), f"{table['age_ratio'][i].value:.3g}"]
              for i in rows]

@@ -5,7 +5,7 @@ from ..config import load_config
 from ..progress import progress
 from ._common import add_parser, echo
 
-__all__ = ["ORDER", "register", "run", "write"]
+__all__ = ["ORDER", "register", "run", "write", "add_overwrite_arg"]
 
 ORDER = 5
 
@@ -22,7 +22,17 @@ def register(subparsers, common):
         examples=["cwlimits report analysis.toml",
                   "cwlimits report analysis.toml --quiet"])
     parser.add_argument("config", metavar="CONFIG", help="analysis configuration (TOML)")
+    add_overwrite_arg(parser)
     parser.set_defaults(run=run)
+
+
+def add_overwrite_arg(parser):
+    """Add ``--overwrite`` (shared by ``report`` and ``demo``)."""
+    parser.add_argument("--overwrite", action="store_true",
+                        help="write the report into an existing folder that holds other "
+                             "files (they are kept; only files listed in the folder's "
+                             "cwlimits-manifest.json are deleted).  Without it, such a "
+                             "folder is refused; a folder cwlimits made is replaced")
 
 
 def run(args):
@@ -30,11 +40,12 @@ def run(args):
     return write(args, config)
 
 
-def write(args, config, simulate=False):
+def write(args, config, simulate=False, output_option=None):
     """Run the report of ``config`` with a progress bar and the usual messages."""
     quiet = getattr(args, "quiet", False)
     with progress(STEPS, "report", enabled=False if quiet else None, unit="step") as update:
         folder = run_report(config, echo=lambda text: echo(args, text), progress=update,
-                            simulate=simulate)
+                            simulate=simulate, overwrite=getattr(args, "overwrite", False),
+                            output_option=output_option)
     echo(args, f"wrote the report to {folder / 'index.html'}")
     return 0

@@ -187,7 +187,7 @@ def _frequency(args, setup, band_hz):
 def run(args):
     """Run ``cwlimits validate``."""
     out = check_output_path(args.out)
-    plot = check_output_path(args.plot, PLOT_SUFFIXES)
+    plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     _check_numbers(args)
     target = resolve_target(args)
     setup = _setup(args)
