@@ -87,8 +87,8 @@ def run(args):
     from ..pulsars.posterior import limit_table, pulsar_posterior
 
     out = check_output_path(args.out)
-    plot = check_output_path(args.plot, PLOT_SUFFIXES)
-    corner = check_output_path(args.corner, PLOT_SUFFIXES)
+    plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
+    corner = check_output_path(args.corner, PLOT_SUFFIXES, "--corner")
     if len({p for p in (out, plot, corner) if p is not None}) < sum(
             p is not None for p in (out, plot, corner)):
         raise InputError("--out, --plot and --corner must be different files")

@@ -169,7 +169,7 @@ def run(args):
     from ..plots import PLOT_SUFFIXES
 
     out = check_output_path(args.out)
-    plot = check_output_path(args.plot, PLOT_SUFFIXES)
+    plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     if not args.all and (args.data or plot is not None):
         raise InputError("--data and --plot go with --all")
     if args.all:
