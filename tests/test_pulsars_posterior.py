@@ -344,3 +344,16 @@ def test_band_data_input_with_gaps():
     lo, hi = direct.interval("h0", 0.98)
     assert lo < 4e-25 < hi
     assert np.mean(band.mask) < 0.9  # the gaps are there
+
+
+@pytest.mark.parametrize("grid, words", [
+    ({"n_h0": 3}, "from 4 to 4000"),
+    ({"n_psi": 2.5}, "from 4 to 4000"),
+    ({"n_tilt": 10}, "unknown grid size"),
+    ({"n_h0": 4000, "n_cosi": 4000, "n_psi": 4000}, "more than"),
+])
+def test_grid_sizes_are_bounded_before_allocating(clean, grid, words):
+    from cwlimits.errors import InputError
+
+    with pytest.raises(InputError, match=words):
+        pulsar_posterior(clean, _pulsar(), noise="given", grid=grid)

@@ -23,7 +23,7 @@ from ..errors import InputError
 from .likelihood import known_noise_log_likelihood, orientation_coefficients
 
 __all__ = ["OrientationPrior", "H0_PRIORS", "h0_grid", "grid_posterior_known", "zoom_window",
-           "quantile_from_grid", "DEFAULT_GRID"]
+           "quantile_from_grid", "DEFAULT_GRID", "MAX_GRID_POINTS", "check_grid"]
 
 H0_PRIORS = ("uniform", "log-uniform")
 
@@ -194,6 +194,36 @@ def zoom_window(nodes, mass, lower, upper, period=None, floor=1e-9):
     return (lo, hi)
 
 
+#: Largest grid (points of the 4-D product) accepted: about 0.3 GB of complex working arrays.
+MAX_GRID_POINTS = 20_000_000
+
+
+def check_grid(grid):
+    """The grid sizes with the defaults filled in, each checked (4 to 4000, bounded product).
+
+    Raises
+    ------
+    InputError
+        For an unknown key, a size that is not an integer in [4, 4000], or a product of
+        the sizes above :data:`MAX_GRID_POINTS`.
+    """
+    grid = dict(grid or {})
+    unknown = sorted(set(grid) - set(DEFAULT_GRID))
+    if unknown:
+        raise InputError(f"unknown grid size(s) {', '.join(unknown)}; the sizes are "
+                         f"{', '.join(DEFAULT_GRID)}")
+    out = dict(DEFAULT_GRID, **grid)
+    for key, value in out.items():
+        if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or not (
+                4 <= value <= 4000):
+            raise InputError(f"grid size {key} must be an integer from 4 to 4000",
+                             value=value)
+    if np.prod([int(v) for v in out.values()], dtype=float) > MAX_GRID_POINTS:
+        raise InputError(f"the grid has more than {MAX_GRID_POINTS} points; use fewer",
+                         value=out)
+    return {k: int(v) for k, v in out.items()}
+
+
 def grid_posterior_known(u, v, s_aa, s_bb, s_ab, prior, *, h0_prior="uniform", h0_min=None,
                          h_max=None, grid=None, harmonic="22", windows=None):
     """Posterior on the (h0, cosi, psi) grid for weighted sums, phi0 integrated.
@@ -206,7 +236,7 @@ def grid_posterior_known(u, v, s_aa, s_bb, s_ab, prior, *, h0_prior="uniform", h
     (batch..., n_h0, n_cosi, n_psi) normalised to sum 1 including the node weights, and
     ``cosi_w``, ``psi_w``.
     """
-    grid = dict(DEFAULT_GRID, **(grid or {}))
+    grid = check_grid(grid)
     windows = windows or {}
     c, wc = prior.cosi_nodes(grid["n_cosi"], windows.get("cosi"))
     s, ws = prior.psi_nodes(grid["n_psi"], windows.get("psi"))

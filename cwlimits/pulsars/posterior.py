@@ -35,11 +35,11 @@ from ..fiducial import DEFAULT_MOMENT_OF_INERTIA
 from ..indirect import spindown_limit
 from .data import DownConvertedData, stretch_sums
 from .grid import (
-    DEFAULT_GRID,
     H0_PRIORS,
     OrientationPrior,
     _h0_weights,
     _wrapped_normal,
+    check_grid,
     grid_posterior_known,
     h0_grid,
     h0_top,
@@ -203,7 +203,7 @@ def pulsar_posterior(data, target, *, noise="student-t", h0_prior="uniform", h0_
     prior = (OrientationPrior.from_target(target) if orientation == "catalogue"
              else OrientationPrior())
     sums = _sums_for(data, target, noise)
-    grid = dict(DEFAULT_GRID, **(grid or {}))
+    grid = check_grid(grid)
     w = 1.0 / sums.sigma**2
     uw, vw = np.sum(w * sums.u), np.sum(w * sums.v)
     saa, sbb, sab = (float(np.sum(w * x)) for x in (sums.s_aa, sums.s_bb_pat, sums.s_ab))
