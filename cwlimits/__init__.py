@@ -13,6 +13,7 @@ try:
 except PackageNotFoundError:  # pragma: no cover - running from a source tree
     __version__ = "0+unknown"
 
+from ._sizes import allow_large  # noqa: E402
 from .conversions import (  # noqa: E402
     ellipticity,
     mass_quadrupole,
@@ -41,8 +42,10 @@ from .errors import (  # noqa: E402
     ComputationError,
     ConfigError,
     CwlimitsError,
+    CwlimitsWarning,
     InputError,
     OutOfRangeError,
+    SizeLimitError,
     TableError,
     UnitsMismatchError,
 )
@@ -247,4 +250,8 @@ __all__ = [
     "UnitsMismatchError",
     "OutOfRangeError",
     "ComputationError",
+    "SizeLimitError",
+    "CwlimitsWarning",
+    # size limits (README: "Size limits")
+    "allow_large",
 ]

@@ -6,7 +6,7 @@
 
 import astropy.units as u
 
-from ..errors import InputError
+from ..errors import ConfigError, InputError
 from ..setup import DEFAULT_UNIT_COSTS, SearchSetup, load_setup
 from ._common import quantity_arg
 
@@ -69,8 +69,27 @@ def add_signal_model_args(parser):
     return model
 
 
-def build_setup(args, default_band=None, extra_sections=()):
-    """The :class:`SearchSetup` of ``--setup FILE`` with the options applied."""
+def build_setup(args, default_band=None, extra_sections=(), *, known_sites=False):
+    """The :class:`SearchSetup` of ``--setup FILE`` with the options applied.
+
+    With ``known_sites`` (commands that need the antenna patterns) every detector must be
+    a built-in site; the error names ``--detectors`` or the setup file and its key.
+    """
+    setup = _build_setup(args, default_band, extra_sections)
+    if known_sites:
+        from ..response import get_detectors
+
+        try:
+            get_detectors(list(setup.detectors))
+        except InputError as exc:
+            if args.detectors is not None:
+                raise InputError(f"--detectors: {exc.reason}", value=args.detectors) from None
+            raise ConfigError(f"key 'data.detectors': {exc.reason}", file=args.setup,
+                              value=list(setup.detectors)) from None
+    return setup
+
+
+def _build_setup(args, default_band, extra_sections):
     base = (load_setup(args.setup, extra_sections=extra_sections) if args.setup
             else None)
     given = {name: getattr(args, name) for name in _OVERRIDES

@@ -4,6 +4,7 @@
 import astropy.units as u
 
 from .._files import atomic_write
+from .._sizes import check_size
 from ..errors import InputError
 from ..fstat import measure_unit_costs
 from ..setup import DEFAULT_UNIT_COSTS, SearchSetup, load_setup
@@ -63,6 +64,8 @@ def run(args):
                                ("--segments", args.segments, 1)):
         if value < least:
             raise InputError(f"{name} must be at least {least}", value=value)
+    check_size("samples", args.samples * args.segments,
+               f"--samples {args.samples} x --segments {args.segments}")
     setup = load_setup(args.setup) if args.setup else None
     measured = measure_unit_costs(args.samples, n_seg=args.segments, repeats=args.repeats)
     coherent = measured["coherent"].to(u.s)

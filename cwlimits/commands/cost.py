@@ -5,6 +5,7 @@ import math
 import astropy.units as u
 import numpy as np
 
+from .._sizes import check_size
 from ..cost import PLOT_SUFFIXES, computing_cost, plot_cost_scan, scan_cost
 from ..errors import InputError
 from ..parameter_space import BoxSpace
@@ -17,6 +18,7 @@ from ._common import (
     format_assumptions,
     format_rows,
     quantity_arg,
+    refuse_overflow,
     resolve_target,
     sci,
 )
@@ -105,6 +107,7 @@ def _scan_values(args, setup):
     steps = args.scan_steps
     if steps < 2:
         raise InputError("--scan-steps must be at least 2", value=steps)
+    check_size("scan_steps", steps, f"--scan-steps {steps}")
     if args.scan == "t-seg":
         if args.scan_range:
             lo, hi = (quantity_arg(u.day, "scan range")(x) for x in args.scan_range)
@@ -143,11 +146,13 @@ def run(args):
     if args.scan:
         quantity, values = _scan_values(args, setup)
         table = scan_cost(setup, target, quantity, values)
+        refuse_overflow(table, _OVERFLOW_HINT)
         _print_scan(args, table, quantity, what)
         title = f"computing cost against {quantity} for {what}"
     else:
         estimate = computing_cost(setup, target)
         table = estimate.table
+        refuse_overflow(table, _OVERFLOW_HINT)
         _print_bands(args, estimate, setup, what)
         title = f"template counts and computing cost for {what}"
     echo(args)
@@ -159,6 +164,11 @@ def run(args):
         plot_cost_scan(table, quantity, plot, title=title)
         echo(args, f"wrote {plot}")
     return 0
+
+
+_OVERFLOW_HINT = ("the template count grows as mismatch^(-dim/2); with these inputs (--mismatch-"
+                  "coherent/--mismatch-semicoherent, the band, the age or spin-down box) it "
+                  "exceeds what a double can hold, so no search of this setup is possible")
 
 
 def _band_rows(table, idx):

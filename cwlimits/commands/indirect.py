@@ -3,6 +3,8 @@
 import astropy.units as u
 import numpy as np
 
+from .._sizes import check_size
+from ..errors import InputError
 from ..fiducial import DEFAULT_MOMENT_OF_INERTIA
 from ..indirect import DEFAULT_EPS_FREQUENCIES, indirect_limits
 from ..tables import write_table
@@ -15,6 +17,7 @@ from ._common import (
     format_rows,
     quantity_arg,
     sci,
+    seed_arg,
 )
 
 __all__ = ["ORDER", "register", "run"]
@@ -46,7 +49,7 @@ def register(subparsers, common):
                         default=None, metavar="F",
                         help="gravitational-wave frequencies for the ellipticity columns "
                              "(default 100 300 1000 Hz)")
-    parser.add_argument("--seed", type=int, default=None,
+    parser.add_argument("--seed", type=seed_arg, default=None,
                         help="add Monte-Carlo quantiles over the distance and age ranges, "
                              "with this seed")
     parser.add_argument("--samples", type=int, default=10000,
@@ -58,6 +61,11 @@ def register(subparsers, common):
 def run(args):
     out = check_output_path(args.out)
     catalogue = load_targets(args.catalogue)
+    if args.seed is not None:
+        if args.samples < 1:
+            raise InputError("--samples must be at least 1", value=args.samples)
+        check_size("samples", args.samples * len(catalogue),
+                   f"--samples {args.samples} for {len(catalogue)} targets")
     freqs = DEFAULT_EPS_FREQUENCIES if not args.eps_at else u.Quantity(args.eps_at)
     table = indirect_limits(catalogue, args.braking_index, args.moment_of_inertia,
                             eps_frequencies=freqs, rng=args.seed, n_samples=args.samples)

@@ -3,6 +3,7 @@
 import astropy.units as u
 import numpy as np
 
+from .._sizes import check_size
 from ..noise import DEFAULT_NOISE_MODEL
 from ..planning import CASES, MEASURES, OBJECTIVES, as_budget, plan_search
 from ..tables import write_table
@@ -58,6 +59,12 @@ def add_plan_args(parser):
 def plan_options(args):
     """Keyword arguments of plan_search / rank_targets from the shared options."""
     dets = tuple(d.strip() for d in args.detectors.split(",") if d.strip())
+    # sizes named by their options, before any planning (README: size limits)
+    check_size("segments", max(args.n_seg_max, 1), f"--n-seg-max {args.n_seg_max}")
+    width = args.band_width.to_value(u.Hz)
+    if args.band and width > 0:
+        lo, hi = (f.to_value(u.Hz) for f in args.band)
+        check_size("bands", abs(hi - lo) / width, f"--band-width {args.band_width}")
     return dict(band=tuple(args.band) if args.band else None, detectors=dets,
                 band_width=args.band_width, lattice=args.lattice,
                 t_seg_min=args.t_seg_min, n_seg_max=args.n_seg_max,

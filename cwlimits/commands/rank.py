@@ -4,6 +4,7 @@ import re
 from contextlib import ExitStack
 from pathlib import Path
 
+from .._sizes import check_size
 from ..errors import InputError
 from ..planning import CASES, as_budget, rank_targets
 from ..store import file_hash, open_store
@@ -86,7 +87,13 @@ def run(args):
         if args.per_target_budget else None
     if args.steps < 1:
         raise InputError("--steps must be at least 1", value=args.steps)
+    check_size("budget_steps", args.steps, f"--steps {args.steps}")
     catalogue = load_targets(args.catalogue)
+    if plans_dir is not None:
+        # The plan file of every target that may get one, checked before any work.
+        for target in catalogue:
+            check_output_path(plans_dir / f"{_slug(target.name)}.toml", (".toml",),
+                              "--plans-dir")
     options = plan_options(args)
     config = {"command": "rank", "catalogue": file_hash(args.catalogue),
               "budget": str(total), "per_target_budget": str(per), "steps": args.steps,

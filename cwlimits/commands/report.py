@@ -1,5 +1,6 @@
 """``cwlimits report``: the whole job from one configuration file to a report."""
 
+from .._sizes import allow_large, large_allowed
 from ..analysis import STEPS, run_report
 from ..config import load_config
 from ..progress import progress
@@ -43,7 +44,9 @@ def run(args):
 def write(args, config, simulate=False, output_option=None):
     """Run the report of ``config`` with a progress bar and the usual messages."""
     quiet = getattr(args, "quiet", False)
-    with progress(STEPS, "report", enabled=False if quiet else None, unit="step") as update:
+    large = config["allow_large"] or large_allowed()
+    with allow_large(large), progress(STEPS, "report", enabled=False if quiet else None,
+                                      unit="step") as update:
         folder = run_report(config, echo=lambda text: echo(args, text), progress=update,
                             simulate=simulate, overwrite=getattr(args, "overwrite", False),
                             output_option=output_option)

@@ -2,14 +2,17 @@
 
 import io
 import re
+import warnings
 
 import astropy.units as u
 import numpy as np
-from astropy.coordinates import SkyCoord
+from astropy.coordinates import Angle, SkyCoord
 from astropy.table import QTable
+from astropy.utils.exceptions import AstropyWarning
 
 from .. import response as resp
 from .._files import atomic_write
+from .._sizes import check_size
 from ..errors import InputError
 from ..plots import PLOT_SUFFIXES
 from ._common import (
@@ -103,18 +106,34 @@ def _sky_position(args):
         return target.coord, f"target {target.name} in {args.catalogue}"
     if not (args.ra and args.dec):
         raise InputError("give a sky position: --ra and --dec, or --catalogue and --target")
+    ra = _angle(args.ra, "--ra", u.hourangle if ":" in args.ra else u.deg)
+    dec = _angle(args.dec, "--dec", u.deg)
+    # Out-of-range angles are errors, as in catalogues: astropy would wrap 25h to 01h.
+    if not 0 <= ra.deg < 360 * (1 - 1e-15):
+        raise InputError("--ra: right ascension must lie in [0h, 24h) = [0, 360) deg",
+                         value=args.ra)
+    if not -90 <= dec.deg <= 90:
+        raise InputError("--dec: declination must lie in [-90, 90] deg", value=args.dec)
+    return SkyCoord(ra, dec), f"RA {args.ra}, Dec {args.dec}"
+
+
+def _angle(text, option, bare_unit):
+    """``text`` as an astropy Angle: with its own unit, else in ``bare_unit``."""
     try:
-        if ":" in args.ra:
-            coord = SkyCoord(args.ra, args.dec, unit=(u.hourangle, u.deg))
-        else:
+        with warnings.catch_warnings():
+            # astropy warns about 24h or 75 minutes and goes on; for us that is bad input
+            warnings.simplefilter("error", AstropyWarning)
             try:
-                coord = SkyCoord(args.ra, args.dec)
+                angle = Angle(text)
             except (u.UnitsError, ValueError):
-                coord = SkyCoord(args.ra, args.dec, unit=(u.deg, u.deg))
-    except (ValueError, TypeError, u.UnitsError) as exc:
-        raise InputError(f"cannot read the sky position ({exc}); e.g. --ra 12h30m "
-                         "--dec -45d", value=f"{args.ra} {args.dec}") from None
-    return coord, f"RA {args.ra}, Dec {args.dec}"
+                angle = Angle(text, unit=bare_unit)
+        value = float(angle.deg)
+    except (ValueError, TypeError, u.UnitsError, AstropyWarning) as exc:
+        raise InputError(f"{option}: cannot read the sky position ({exc}); e.g. --ra 12h30m "
+                         "--dec -45d", value=text) from None
+    if not np.isfinite(value) or np.ndim(angle.deg) != 0:
+        raise InputError(f"{option}: needs one finite angle", value=text)
+    return angle
 
 
 def run(args):
@@ -124,6 +143,9 @@ def run(args):
     extra = resp.load_detectors(args.detector_file) if args.detector_file else None
     detectors = resp.get_detectors(args.detectors, extra)
     coord, where = _sky_position(args)
+    if args.order < 1:
+        raise InputError("--order must be at least 1", value=args.order)
+    check_size("quadrature", float(args.order) ** 2, f"--order {args.order}")
     duty = _numbers(args.duty, "duty")
     weights = None if args.weights is None else _numbers(args.weights, "weights")
     averages = resp.time_averages(detectors, coord, args.start, args.span, duty=duty,
@@ -242,6 +264,8 @@ def _plot(path, detectors, coord, start):
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
+    from ..plots import figure_metadata
+
     hours = np.linspace(0.0, resp.SIDEREAL_DAY.to_value(u.h), 289)
     times = start + hours * u.h
     # Okabe-Ito colours plus line styles and markers: readable in greyscale too.
@@ -264,7 +288,8 @@ def _plot(path, detectors, coord, start):
     fig.tight_layout()
     buffer = io.BytesIO()
     try:
-        fig.savefig(buffer, format=path.suffix.lstrip(".").lower())
+        fmt = path.suffix.lstrip(".").lower()
+        fig.savefig(buffer, format=fmt, metadata=figure_metadata(fmt))
     finally:
         plt.close(fig)
     return buffer.getvalue()

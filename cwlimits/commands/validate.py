@@ -6,6 +6,7 @@ from pathlib import Path
 import astropy.units as u
 import numpy as np
 
+from .._sizes import check_size
 from ..errors import InputError
 from ..noise import DEFAULT_NOISE_MODEL, NOISE_MODELS, get_noise
 from ..sensitivity import DEFAULT_START
@@ -29,6 +30,7 @@ from ._common import (
     quantity_arg,
     resolve_target,
     sci,
+    seed_arg,
 )
 from ._execution import (
     add_executor_args,
@@ -105,7 +107,7 @@ def register(subparsers, common):
                           f"{DEFAULT_NOISE_MODEL})")
     sim.add_argument("--start", default=DEFAULT_START,
                      help=f"start of the data, UTC (default {DEFAULT_START})")
-    sim.add_argument("--seed", type=int, metavar="N",
+    sim.add_argument("--seed", type=seed_arg, metavar="N",
                      help="random seed (default: fresh; recorded in the output)")
     st = parser.add_argument_group("statistics")
     st.add_argument("--confidence", type=float, default=0.9,
@@ -147,6 +149,10 @@ def _check_numbers(args):
             raise InputError(f"{name} must lie strictly between 0 and 1", value=value)
     if args.seed is not None and args.seed < 0:
         raise InputError("--seed must be a non-negative integer", value=args.seed)
+    steps = len(args.h0) if args.h0 is not None else args.h0_steps
+    check_size("injections", args.injections * steps,
+               f"--injections {args.injections} at {steps} h0 values")
+    check_size("templates", args.templates, f"--templates {args.templates}")
 
 
 def _setup(args):
