@@ -60,6 +60,7 @@ import numpy as np
 from astropy.table import QTable
 from scipy import interpolate, optimize
 
+from . import _defaults
 from ._units import to_value
 from .cost import _sqrt_dets, computing_cost
 from .detection import QuadratureRule, combine_rules, critical_depth, false_alarm_threshold
@@ -78,11 +79,11 @@ __all__ = ["OBJECTIVES", "MEASURES", "CASES", "DEFAULT_BAND", "SearchPlan", "Ran
            "rank_targets"]
 
 #: Objectives of :func:`plan_search`.
-OBJECTIVES = ("depth", "beat-age")
+OBJECTIVES = _defaults.OBJECTIVES
 #: Measures of the beat-age objective.
-MEASURES = ("width", "integral")
+MEASURES = _defaults.MEASURES
 #: Distance/age cases: nominal, (d_min, age_min), (d_max, age_max).
-CASES = ("nominal", "optimistic", "pessimistic")
+CASES = _defaults.CASES
 #: Default band (depth objective) or allowed range (beat-age objective).
 DEFAULT_BAND = (50 * u.Hz, 1000 * u.Hz)
 

@@ -13,13 +13,15 @@ from pathlib import Path
 
 import numpy as np
 
+from . import _defaults
+
 __all__ = ["COLUMN_WIDTH_IN", "PALETTE", "PLOT_SUFFIXES", "new_figure", "save_figure",
            "save_plot", "tidy_log_axes",
            "plot_indirect_limits",
            "plot_strain_curves", "plot_sensitivity"]
 
 #: File types a ``--plot FILE`` may have (matplotlib picks the format from the suffix).
-PLOT_SUFFIXES = (".png", ".svg", ".pdf")
+PLOT_SUFFIXES = _defaults.PLOT_SUFFIXES
 
 #: Width of one journal column, inches (common practice: 3.3-3.5 in).
 COLUMN_WIDTH_IN = 3.4

@@ -4,7 +4,6 @@ import argparse
 import sys
 from pathlib import Path
 
-from .._units import parse_quantity
 from ..errors import InputError
 
 __all__ = ["add_parser", "quantity_arg", "check_output_path", "echo"]
@@ -19,8 +18,14 @@ def add_parser(subparsers, common, name, *, help, description, examples):
 
 
 def quantity_arg(unit, name):
-    """An argparse ``type`` that reads ``"1.5 kpc"`` (or a bare number in ``unit``)."""
+    """An argparse ``type`` that reads ``"1.5 kpc"`` (or a bare number in ``unit``).
+
+    ``unit`` may be a string (``"kpc"``): astropy is imported when a value is parsed, not
+    when the parser is built, so that ``--help`` starts quickly.
+    """
     def parse(text):
+        from .._units import parse_quantity
+
         try:
             return parse_quantity(text, unit, name)
         except InputError as exc:

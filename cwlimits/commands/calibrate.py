@@ -3,21 +3,23 @@
 import tempfile
 from pathlib import Path
 
-import astropy.units as u
-
 from ..errors import InputError
-from ..fstat import measure_unit_costs
-from ..setup import DEFAULT_UNIT_COSTS, SearchSetup, load_setup
-from ..tables import atomic_write
 from ._common import add_parser, check_output_path, echo, format_rows
 
-__all__ = ["ORDER", "register", "run", "EXAMPLE_SETUP"]
+__all__ = ["ORDER", "register", "run", "example_setup"]
 
 ORDER = 85
 
-#: The segments and band of a new setup file written without ``--setup`` (the example of
-#: the README's setup file); the header of the file says they are placeholders.
-EXAMPLE_SETUP = {"t_seg": 10 * u.day, "n_seg": 12, "band": (50 * u.Hz, 500 * u.Hz)}
+
+def example_setup():
+    """The segments and band of a new setup file written without ``--setup``.
+
+    The example of the README's setup file; the header of the file says they are
+    placeholders.  (A function, so that building the parser needs no astropy.)
+    """
+    import astropy.units as u
+
+    return {"t_seg": 10 * u.day, "n_seg": 12, "band": (50 * u.Hz, 500 * u.Hz)}
 
 _EXAMPLES = [
     "cwlimits calibrate",
@@ -60,6 +62,11 @@ def register(subparsers, common):
 
 def run(args):
     """Run ``cwlimits calibrate``."""
+    import astropy.units as u
+
+    from ..fstat import measure_unit_costs
+    from ..setup import DEFAULT_UNIT_COSTS, SearchSetup, load_setup
+
     out = check_output_path(args.out, (".toml",))
     for name, value, least in (("--repeats", args.repeats, 1), ("--samples", args.samples, 16),
                                ("--segments", args.segments, 1)):
@@ -89,7 +96,7 @@ def run(args):
         echo(args, "(nothing written: give --out FILE.toml to write a setup file)")
         return 0
     if setup is None:
-        new = SearchSetup(**EXAMPLE_SETUP, cost_coherent=coherent,
+        new = SearchSetup(**example_setup(), cost_coherent=coherent,
                           cost_semicoherent=semicoherent)
         _write_with_note(new, out, _PLACEHOLDER_NOTE)
     else:
@@ -100,6 +107,8 @@ def run(args):
 
 def _write_with_note(setup, path, note):
     """Write ``setup`` as TOML with a comment block first (atomically)."""
+    from ..tables import atomic_write
+
     with tempfile.TemporaryDirectory() as tmp:
         text = setup.to_toml(Path(tmp) / "setup.toml").read_text(encoding="utf-8")
 

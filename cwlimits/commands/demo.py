@@ -4,7 +4,6 @@ from dataclasses import replace
 from importlib import resources
 from pathlib import Path
 
-from ..config import load_config
 from ._common import add_parser, echo
 from .report import write
 
@@ -37,6 +36,8 @@ def register(subparsers, common):
 
 
 def run(args):
+    from ..config import load_config
+
     echo(args, "cwlimits demo: FICTIONAL targets (invented; they match no real object), "
                "SIMULATED search results (noise only, fixed seed)")
     with resources.as_file(demo_config_path()) as path:

@@ -1,11 +1,7 @@
 """``cwlimits indirect``: the indirect amplitude limits of every target of a catalogue."""
 
-import astropy.units as u
 
-from ..fiducial import DEFAULT_MOMENT_OF_INERTIA
-from ..indirect import DEFAULT_EPS_FREQUENCIES, indirect_limits
-from ..tables import write_table
-from ..targets import load_targets
+from .. import _defaults
 from ._common import (
     add_parser,
     check_output_path,
@@ -38,10 +34,10 @@ def register(subparsers, common):
     parser.add_argument("catalogue", metavar="CATALOGUE", help="target catalogue (CSV/ECSV)")
     parser.add_argument("--braking-index", type=float, default=None, metavar="N",
                         help="braking index of the age-based limit (default 5)")
-    parser.add_argument("--moment-of-inertia", type=quantity_arg(u.kg * u.m**2,
-                        "moment of inertia"), default=DEFAULT_MOMENT_OF_INERTIA,
+    parser.add_argument("--moment-of-inertia", type=quantity_arg("kg m2",
+                        "moment of inertia"), default=_defaults.MOMENT_OF_INERTIA_TEXT,
                         metavar="Q", help="default 1e38 kg m2")
-    parser.add_argument("--eps-at", type=quantity_arg(u.Hz, "frequency"), nargs="+",
+    parser.add_argument("--eps-at", type=quantity_arg("Hz", "frequency"), nargs="+",
                         default=None, metavar="F",
                         help="gravitational-wave frequencies for the ellipticity columns "
                              "(default 100 300 1000 Hz)")
@@ -55,6 +51,12 @@ def register(subparsers, common):
 
 
 def run(args):
+    import astropy.units as u
+
+    from ..indirect import DEFAULT_EPS_FREQUENCIES, indirect_limits
+    from ..tables import write_table
+    from ..targets import load_targets
+
     out = check_output_path(args.out)
     catalogue = load_targets(args.catalogue)
     freqs = DEFAULT_EPS_FREQUENCIES if not args.eps_at else u.Quantity(args.eps_at)

@@ -4,11 +4,8 @@ import re
 from contextlib import ExitStack
 from pathlib import Path
 
+from .._defaults import CASES
 from ..errors import InputError
-from ..planning import CASES, as_budget, rank_targets
-from ..store import file_hash, open_store
-from ..tables import write_table
-from ..targets import load_targets
 from ._common import add_parser, check_output_path, echo, format_assumptions, format_rows, sci
 from ._execution import add_executor_args, executor_from_args, progress_from_args
 from .plan import PLOT_SUFFIXES, add_plan_args, plan_options
@@ -59,6 +56,8 @@ def register(subparsers, common):
 
 def _noise_identity(noise):
     """The noise option for the run configuration: a file by its content, else its name."""
+    from ..store import file_hash
+
     path = Path(str(noise))
     return file_hash(path) if path.is_file() else str(noise)
 
@@ -69,6 +68,11 @@ def _slug(name):
 
 def run(args):
     """Run ``cwlimits rank``."""
+    from ..planning import as_budget, rank_targets
+    from ..store import file_hash, open_store
+    from ..tables import write_table
+    from ..targets import load_targets
+
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES)
     plot_plans = check_output_path(args.plot_plans, PLOT_SUFFIXES)

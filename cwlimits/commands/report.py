@@ -1,8 +1,6 @@
 """``cwlimits report``: the whole job from one configuration file to a report."""
 
-from ..analysis import STEPS, run_report
-from ..config import load_config
-from ..progress import progress
+from .._defaults import REPORT_STEPS
 from ._common import add_parser, echo
 
 __all__ = ["ORDER", "register", "run", "write"]
@@ -26,14 +24,19 @@ def register(subparsers, common):
 
 
 def run(args):
+    from ..config import load_config
+
     config = load_config(args.config)
     return write(args, config)
 
 
 def write(args, config, simulate=False):
     """Run the report of ``config`` with a progress bar and the usual messages."""
+    from ..analysis import run_report
+    from ..progress import progress
+
     quiet = getattr(args, "quiet", False)
-    with progress(STEPS, "report", enabled=False if quiet else None, unit="step") as update:
+    with progress(REPORT_STEPS, "report", enabled=False if quiet else None, unit="step") as update:
         folder = run_report(config, echo=lambda text: echo(args, text), progress=update,
                             simulate=simulate)
     echo(args, f"wrote the report to {folder / 'index.html'}")

@@ -16,6 +16,7 @@ third-gen-fit      Einstein-Telescope-like (ET-B) design       200 Hz     1 Hz  
 =================  ==========================================  =========  =====  ==========
 """
 
+from .. import _defaults
 from ..errors import InputError
 from ._base import NoiseSource
 
@@ -110,7 +111,7 @@ NOISE_MODELS = {
 }
 
 #: The model used when none is given (the embedded default of the demo).
-DEFAULT_NOISE_MODEL = "advanced-fit"
+DEFAULT_NOISE_MODEL = _defaults.DEFAULT_NOISE_MODEL
 
 
 def noise_model(name):
