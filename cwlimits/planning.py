@@ -58,7 +58,7 @@ from dataclasses import dataclass, field
 import astropy.units as u
 import numpy as np
 from astropy.table import QTable
-from scipy import interpolate, optimize
+from scipy import optimize
 
 from . import _defaults
 from ._units import to_value
@@ -234,6 +234,38 @@ def _trim(cache, size=64):
         cache.clear()
 
 
+def _cell(grid, x):
+    """Index of the grid cell of ``x`` (edge cells beyond the ends) and the fraction in it."""
+    i = np.clip(np.searchsorted(grid, x, side="right") - 1, 0, len(grid) - 2)
+    return i, (x - grid[i]) / (grid[i + 1] - grid[i])
+
+
+def _interpolate(axes, values, points):
+    """Multilinear interpolation over the leading ``points.shape[-1]`` axes of ``values``.
+
+    Returns ``(n_points,) + values.shape[d:]``: the trailing axes are kept.  Beyond the grid
+    the edge cells extrapolate linearly, as scipy's ``RegularGridInterpolator`` with
+    ``fill_value=None`` does (tests compare the two).
+    """
+    d = points.shape[-1]
+    cells = [_cell(axes[k], points[:, k]) for k in range(d)]
+    out = 0.0
+    for corner in np.ndindex(*(2,) * d):
+        weight = 1.0
+        for (_, t), bit in zip(cells, corner, strict=True):
+            weight = weight * (t if bit else 1.0 - t)
+        index = tuple(i + bit for (i, _), bit in zip(cells, corner, strict=True))
+        out = out + weight.reshape((-1,) + (1,) * (values.ndim - d)) * values[index]
+    return out
+
+
+def _interpolate_last(grid, rows, x):
+    """Linear interpolation of each row of ``rows`` (on ``grid``) at its own ``x``."""
+    i, t = _cell(grid, x)
+    k = np.arange(len(x))
+    return rows[k, i] * (1.0 - t) + rows[k, i + 1] * t
+
+
 class _TargetModel:
     """Cost and depth per reporting band of a setup family for one target and noise."""
 
@@ -333,7 +365,10 @@ class _TargetModel:
         return self.cost_info(t_s, n, mu_c, mu_f)[0]
 
     def _table(self, dc, df):
-        """Interpolator of ln a over (ln N, ln mu_c, ln mu_f, log10 trials) for dims (dc, df)."""
+        """Grid axes and values of ln a over (ln N, ln mu_c, ln mu_f, log10 trials), dims (dc, df).
+
+        Interpolated multilinearly (with linear extrapolation) by :func:`_interpolate`.
+        """
         key = self._table_key + (dc, df)
         if key in _TABLE_CACHE:
             return _TABLE_CACHE[key]
@@ -369,9 +404,7 @@ class _TargetModel:
                                    self.confidence, max_nodes=None)
             log_a[ok] = -2 * np.log(depth.to_value(u.Hz ** -0.5))
         values = log_a.reshape(len(nt), len(mt), len(mt), len(tt))
-        table = interpolate.RegularGridInterpolator(
-            (np.log(nt), np.log(mt), np.log(mt), tt), values, bounds_error=False,
-            fill_value=None)
+        table = ((np.log(nt), np.log(mt), np.log(mt), tt), values)
         _trim(_TABLE_CACHE)
         _TABLE_CACHE[key] = table
         return table
@@ -393,7 +426,16 @@ class _TargetModel:
         keys = d_coh * 4 + d_semi
         for key in np.unique(keys):
             sel = keys == key
-            log_a[sel] = self._table(int(key // 4), int(key % 4))(pts[sel])
+            rows = np.flatnonzero(sel.any(axis=1))
+            # per candidate first (N and the mismatches do not vary across bands), then
+            # along the trials axis per band: the same multilinear interpolation
+            per_row = _interpolate(*self._table(int(key // 4), int(key % 4)),
+                                   pts[rows, 0, :3])
+            row_of = np.empty(shape[0], np.intp)
+            row_of[rows] = np.arange(len(rows))
+            r, b = np.nonzero(sel)
+            log_a[r, b] = _interpolate_last(_LOG10_TRIALS, per_row[row_of[r]],
+                                            pts[r, b, 3])
         t_data = n * t_s * self.duty * self.n_det
         return 0.5 * (np.log(t_data)[:, None] - log_a)
 

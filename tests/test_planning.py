@@ -507,3 +507,47 @@ def test_rank_with_workers_gives_the_same_numbers(tmp_path):
     np.testing.assert_array_equal(pooled.merits, serial.merits)
     for col in ("merit", "budget_allocated", "merit_allocated_exact", "t_seg", "n_seg"):
         np.testing.assert_array_equal(pooled.table[col], serial.table[col])
+
+
+# ---------------------------------------------------------------------------------------
+# Fast paths against their slow references
+# ---------------------------------------------------------------------------------------
+
+#: Interpolating per candidate in (N, mu_c, mu_f) and then per band along the trials axis
+#: is the same multilinear interpolation as one 4-d interpolation (it is separable), so
+#: only rounding differs; ln a is ~1-60.
+TABLE_INTERPOLATION_ATOL = 1e-10
+
+
+def test_separable_table_interpolation_equals_scipy_4d_interpolation(target):
+    from scipy.interpolate import RegularGridInterpolator
+
+    _, model, _, _ = _model(target, "nominal")
+    rng = np.random.default_rng(16)
+    c = 60
+    t_s = rng.uniform(0.5, 12.0, c) * 86400.0
+    n = rng.integers(1, 60, c)
+    n[:5] = 1                                # no fine grid: the coarse dimension is used
+    mu_c, mu_f = rng.uniform(0.01, 0.7, c), rng.uniform(0.01, 0.7, c)  # also beyond edges
+    info = model.cost_info(t_s, n, mu_c, mu_f)
+    fast = model.log_depth(t_s, n, mu_c, mu_f, info)
+    # The previous implementation: one 4-d scipy interpolation of every (candidate, band).
+    _, trials, d_coh, d_semi = info
+    d_semi = np.where(n[:, None] > 1, d_semi, d_coh)
+    shape = trials.shape
+    lo, hi = P._MU_TABLE[[0, -1]]
+    pts = np.stack([np.broadcast_to(np.log(n)[:, None], shape),
+                    np.broadcast_to(np.log(np.clip(mu_c, lo, hi))[:, None], shape),
+                    np.broadcast_to(np.log(np.clip(mu_f, lo, hi))[:, None], shape),
+                    np.clip(np.log10(trials), P._LOG10_TRIALS[0], P._LOG10_TRIALS[-1])], -1)
+    log_a = np.empty(shape)
+    pairs = {(int(a), int(b)) for a, b in zip(d_coh.ravel(), d_semi.ravel(), strict=True)}
+    for dc, df in pairs:
+        sel = (d_coh == dc) & (d_semi == df)
+        axes, values = model._table(dc, df)
+        # Reference library: scipy.interpolate.RegularGridInterpolator (linear).
+        log_a[sel] = RegularGridInterpolator(axes, values, bounds_error=False,
+                                             fill_value=None)(pts[sel])
+    ref = 0.5 * (np.log(n * t_s * model.duty * model.n_det)[:, None] - log_a)
+    assert len(pairs) >= 2  # several lattice-dimension tables are exercised
+    np.testing.assert_allclose(fast, ref, rtol=0, atol=TABLE_INTERPOLATION_ATOL)
