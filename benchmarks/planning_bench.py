@@ -18,7 +18,7 @@ import time
 
 import astropy.units as u
 
-from cwlimits import planning
+from cwlimits import planning, response
 from cwlimits.executor import make_executor
 from cwlimits.sensitivity import strain_sensitivity
 from cwlimits.setup import SearchSetup
@@ -31,6 +31,7 @@ CATALOGUE = HERE.parent / "target_lists" / "demo.csv"
 def _clear():
     planning._R2_CACHE.clear()
     planning._TABLE_CACHE.clear()
+    response._cached_gast_moments.cache_clear()  # the sidereal-time moments too
 
 
 def timed(fn):
@@ -92,6 +93,16 @@ def main(argv=None):
                        "depth": plan.merit.value},
         "plan_beat_age": {"width_hz": beat.merit.value, "bound": beat.bound},
     }
+    # Issue 16, target 5 (quiet 2-core machine): one plan_search <= 0.3 s, the demo
+    # catalogue ranked in <= 3 s; full sizes only.
+    figures["goals"] = [] if args.quick else [
+        {"target": "5. plan_search, one target (depth)", "goal": "<= 0.3 s",
+         "measured": f"{t_depth:.2f} s", "pass": bool(t_depth <= 0.3)},
+        {"target": "5. plan_search, one target (beat-age)", "goal": "<= 0.3 s",
+         "measured": f"{t_beat:.2f} s", "pass": bool(t_beat <= 0.3)},
+        {"target": f"5. rank_targets, {len(targets)} demo targets", "goal": "<= 3 s",
+         "measured": f"{t_rank:.2f} s serial, {t_rank2:.2f} s with {workers} workers",
+         "pass": bool(min(t_rank, t_rank2) <= 3.0)}]
     print(f"baseline: one strain_sensitivity call ({figures['n_bands']} bands) "
           f"{base:.3g} s = 1")
     print(f"plan one target, depth objective:        {t_depth:.3g} s = "
