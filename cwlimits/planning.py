@@ -552,15 +552,22 @@ def _best_windows(cost, weight, margin, budget_h):
     wsum = np.concatenate([np.zeros((rows, 1)), np.cumsum(weight, axis=1)], axis=1)
     isum = np.concatenate([np.zeros((rows, 1)), np.cumsum(np.maximum(margin, 0), axis=1)],
                           axis=1)
-    value = np.zeros(rows)
-    left = np.zeros(rows, int)
-    right = np.zeros(rows, int)
-    for i in range(rows):
-        r = np.searchsorted(csum[i], csum[i, :-1] + budget_h, side="right") - 1
-        r = np.minimum(r, nb)
-        gain = np.where(r > np.arange(nb), wsum[i, r] - wsum[i, :-1], -1.0)
-        j = int(np.argmax(gain))
-        value[i], left[i], right[i] = gain[j], j, r[j]
+    # r[i, j]: last band edge affordable from band j on, i.e. a row-wise
+    # searchsorted(csum[i], csum[i, j] + budget, side="right") - 1.  Both the running
+    # sums and the queries are sorted (NaN last), so one stable sort of each row's sums
+    # followed by its queries ranks them all at once: the sums at or below a query come
+    # before it, and its rank minus its own index counts them.
+    reach = csum[:, :-1] + budget_h
+    order = np.argsort(np.concatenate([csum, reach], axis=1), axis=1, kind="stable")
+    rank = np.empty_like(order)
+    np.put_along_axis(rank, order, np.arange(order.shape[1])[None], axis=1)
+    r = rank[:, nb + 1:] - np.arange(nb)[None] - 1
+    r = np.minimum(r, nb)
+    gain = np.where(r > np.arange(nb)[None], np.take_along_axis(wsum, r, axis=1)
+                    - wsum[:, :-1], -1.0)
+    left = np.argmax(gain, axis=1)                   # the first best window of each row
+    value = gain[np.arange(rows), left]
+    right = r[np.arange(rows), left]
     closest = np.max(np.where(cost <= budget_h, margin, -np.inf), axis=1)
     deeper = isum[np.arange(rows), right] - isum[np.arange(rows), left]
     return value, left, right, np.where(value > 0, deeper, closest)

@@ -595,3 +595,39 @@ def test_shared_shape_tables_match_the_targets_own_tables(catalogue, name, monke
     assert finite.mean() > 0.9
     np.testing.assert_allclose(np.exp(fast[finite]), np.exp(slow[finite]),
                                rtol=SHARED_SHAPE_RTOL)
+
+
+def _best_windows_loop(cost, weight, margin, budget_h):
+    # The previous implementation, row by row with numpy.searchsorted (the reference).
+    rows, nb = cost.shape
+    csum = np.concatenate([np.zeros((rows, 1)), np.cumsum(cost, axis=1)], axis=1)
+    wsum = np.concatenate([np.zeros((rows, 1)), np.cumsum(weight, axis=1)], axis=1)
+    isum = np.concatenate([np.zeros((rows, 1)), np.cumsum(np.maximum(margin, 0), axis=1)],
+                          axis=1)
+    value, left, right = np.zeros(rows), np.zeros(rows, int), np.zeros(rows, int)
+    for i in range(rows):
+        r = np.searchsorted(csum[i], csum[i, :-1] + budget_h, side="right") - 1
+        r = np.minimum(r, nb)
+        gain = np.where(r > np.arange(nb), wsum[i, r] - wsum[i, :-1], -1.0)
+        j = int(np.argmax(gain))
+        value[i], left[i], right[i] = gain[j], j, r[j]
+    closest = np.max(np.where(cost <= budget_h, margin, -np.inf), axis=1)
+    deeper = isum[np.arange(rows), right] - isum[np.arange(rows), left]
+    return value, left, right, np.where(value > 0, deeper, closest)
+
+
+@pytest.mark.parametrize("rows, nb", [(70, 23), (8, 400)])
+def test_vectorised_best_windows_equal_the_row_loop(rows, nb):
+    rng = np.random.default_rng(12)
+    cost = rng.lognormal(0.0, 1.5, (rows, nb))
+    cost[5] = np.nan                                  # an infeasible candidate
+    cost[6, 10:] = np.nan
+    cost[4] = 1e9                                     # nothing affordable
+    cost[3, 2:6] = 0.0                                # ties in the running sums
+    weight = rng.uniform(0.0, 2.0, (rows, nb)) * (rng.uniform(size=(rows, nb)) > 0.3)
+    margin = rng.normal(0.0, 1.0, (rows, nb))
+    for budget in (0.5, 3.0, 40.0):
+        ours = P._best_windows(cost, weight, margin, budget)
+        ref = _best_windows_loop(cost, weight, margin, budget)
+        for a, b in zip(ours, ref, strict=True):
+            np.testing.assert_array_equal(a, b)
