@@ -54,7 +54,7 @@ def main(argv=None):
 
     def fft_path():
         fa, fb = fs._coherent_stage(wz, a, b, fdot, dt, length)
-        return fs._twoF(fa, fb, A[:, None], B[:, None], C[:, None])[0]
+        return fs._two_f(fa, fb, A[:, None], B[:, None], C[:, None])[0]
 
     two_fft, t_fft = best_time(fft_path, 5)
     offsets = np.fft.fftshift(np.fft.fftfreq(length, d=dt))
@@ -63,7 +63,7 @@ def main(argv=None):
 
     def direct_path():
         fa, fb = fs._direct_filters(wz, a, b, offsets[pick], fdot, dt)
-        return fs._twoF(fa, fb, A[:, None], B[:, None], C[:, None])[0]
+        return fs._two_f(fa, fb, A[:, None], B[:, None], C[:, None])[0]
 
     two_dir, t_dir_sub = best_time(direct_path, 1 if args.full_direct else 2)
     t_dir = t_dir_sub * length / n_sub

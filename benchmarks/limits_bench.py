@@ -48,9 +48,9 @@ def main():
     loudest = rng.chisquare(32, n_bands) + rng.uniform(0, 40, n_bands)
     res = SearchResults(f_lo=(100 + width * np.arange(n_bands)) << u.Hz,
                         width=np.full(n_bands, width) << u.Hz, loudest=loudest,
-                        statistic="sum")
+                        convention="total")
     sub = SearchResults(f_lo=res.f_lo[:n_direct], width=res.width[:n_direct],
-                        loudest=loudest[:n_direct], statistic="sum")
+                        loudest=loudest[:n_direct], convention="total")
 
     direct, t_direct = _timed(lambda: upper_limits(sub, setup, target, "bayes", rng=1,
                                                    tabulate=False))

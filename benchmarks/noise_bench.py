@@ -19,7 +19,7 @@ from benchutil import bench_parser, write_json
 
 from cwlimits.noise import band_psd, noise_model
 
-MODEL = "advanced-fit"
+MODEL = "second-gen-fit"
 BAND_WIDTH_HZ = 0.1
 
 

@@ -58,15 +58,15 @@ def main(argv=None):
     # --quick: three targets and no worker pool (a smoke run of every step)
     targets = list(catalogue)[:3] if args.quick else catalogue
     setup = SearchSetup(t_seg=5 * u.day, n_seg=6, band=band, band_width=width)
-    _, base = timed(lambda: strain_sensitivity(setup, "advanced-fit", target=target))
+    _, base = timed(lambda: strain_sensitivity(setup, "second-gen-fit", target=target))
 
-    plan, t_depth = timed(lambda: planning.plan_search(target, "advanced-fit", budget, span,
+    plan, t_depth = timed(lambda: planning.plan_search(target, "second-gen-fit", budget, span,
                                                        band=band, band_width=width))
-    beat, t_beat = timed(lambda: planning.plan_search(target, "advanced-fit", budget, span,
+    beat, t_beat = timed(lambda: planning.plan_search(target, "second-gen-fit", budget, span,
                                                       "beat-age", band=band, band_width=width,
                                                       case="pessimistic"))
     kw = dict(band=band, band_width=width, budget_steps=steps)
-    ranking, t_rank = timed(lambda: planning.rank_targets(targets, "advanced-fit", total,
+    ranking, t_rank = timed(lambda: planning.rank_targets(targets, "second-gen-fit", total,
                                                           span, **kw))
     workers = 2
     t_rank2 = float("nan")
@@ -75,7 +75,7 @@ def main(argv=None):
             # start both workers (spawn + import) before timing, as a long run would
             list(executor.map(time.sleep, [1.0] * workers))
             _, t_rank2 = timed(lambda: planning.rank_targets(
-                targets, "advanced-fit", total, span, executor=executor, **kw))
+                targets, "second-gen-fit", total, span, executor=executor, **kw))
 
     ratio2 = None if args.quick else t_rank2 / base
     figures = {

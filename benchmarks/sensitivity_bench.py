@@ -4,7 +4,7 @@ Run:  /work/venv/bin/python benchmarks/sensitivity_bench.py [--quick] [--json FI
       /work/venv/bin/python benchmarks/sensitivity_bench.py --profile-memory 100000
 
 One curve :func:`cwlimits.sensitivity.strain_sensitivity` with the embedded design fit
-("advanced-fit") for the fictional demo target "Fict Quill" of ``target_lists/demo.csv``
+("second-gen-fit") for the fictional demo target "Fict Quill" of ``target_lists/demo.csv``
 and a 12 x 10-day StackSlide setup (H1, L1; 300-day span), over 10 000 and 100 000 equal
 bands between 50 and 550 Hz (1 000 and 5 000 with --quick).
 
@@ -71,7 +71,7 @@ def child(n_bands, out):
     setup, target, bands = _inputs(n_bands)
     rss_before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * KIB
     t0 = time.perf_counter()
-    table = strain_sensitivity(setup, "advanced-fit", target=target, bands=bands)
+    table = strain_sensitivity(setup, "second-gen-fit", target=target, bands=bands)
     wall = time.perf_counter() - t0
     h0 = table["h0"].value
     pathlib.Path(out).write_text(json.dumps({
@@ -169,7 +169,7 @@ def profile_memory(n_bands):
     _wrap_for_memory(table, shapes)
     tracemalloc.start()
     t0 = time.perf_counter()
-    sensitivity.strain_sensitivity(setup, "advanced-fit", target=target, bands=bands)
+    sensitivity.strain_sensitivity(setup, "second-gen-fit", target=target, bands=bands)
     wall = time.perf_counter() - t0
     tracemalloc.stop()
     mb = 1e6
@@ -207,13 +207,13 @@ def main(argv=None):
 
     sizes = (1_000, 5_000) if args.quick else (10_000, 100_000)
     base = run_child(BASELINE_BANDS)
-    print(f"strain_sensitivity, advanced-fit, {TARGET} (fictional), N_seg = 12 x 10 d, "
+    print(f"strain_sensitivity, second-gen-fit, {TARGET} (fictional), N_seg = 12 x 10 d, "
           f"H1+L1, bands of equal width in {F_LO_HZ:g}-{F_HI_HZ:g} Hz; one fresh "
           "process per size")
     print("peak RSS: os.wait4 ru_maxrss of that process (interpreter and imports included)")
     print(f"{'bands':>8} {'call [s]':>9} {'x base':>7} {'peak RSS [MB]':>14} {'x base':>7} "
           f"{'above base [MB]':>16} {'before call [MB]':>17}")
-    figures = {"target": TARGET, "noise": "advanced-fit", "f_lo_hz": F_LO_HZ,
+    figures = {"target": TARGET, "noise": "second-gen-fit", "f_lo_hz": F_LO_HZ,
                "f_hi_hz": F_HI_HZ, "memory_measure": "os.wait4 ru_maxrss of a fresh "
                "subprocess per size (peak RSS, includes interpreter and imports)",
                "limit_bytes": LIMIT_BYTES, "quick": bool(args.quick)}

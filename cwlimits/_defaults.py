@@ -12,7 +12,7 @@ __all__ = ["DEFAULT_NOISE_MODEL", "OBJECTIVES", "MEASURES", "CASES", "PLOT_SUFFI
            "REPORT_STEPS", "builtin_detector_names"]
 
 #: The noise model used when none is given (cwlimits.noise.models).
-DEFAULT_NOISE_MODEL = "advanced-fit"
+DEFAULT_NOISE_MODEL = "second-gen-fit"
 #: Planning objectives, beat-age measures and distance/age cases (cwlimits.planning).
 OBJECTIVES = ("depth", "beat-age")
 MEASURES = ("width", "integral")

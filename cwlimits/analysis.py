@@ -27,7 +27,7 @@ from .indirect import indirect_limits
 from .limits import band_posterior, upper_limits
 from .noise import get_noise
 from .planning import rank_targets
-from .report import Report, file_sha256
+from .report import Report, check_report_folder, file_sha256
 from .results import load_results
 from .sensitivity import signal_model, strain_sensitivity
 from .setup import load_setup
@@ -40,7 +40,8 @@ CAUTION = ("Every number in this report is an upper limit or a predicted sensiti
            "index range, Gaussian stationary noise), not a detection claim.")
 
 
-def run_report(config, *, echo=print, progress=None, simulate=False):
+def run_report(config, *, echo=print, progress=None, simulate=False, overwrite=False,
+               output_option=None):
     """Run the analysis of ``config`` and write its report; return the report folder.
 
     Parameters
@@ -54,8 +55,23 @@ def run_report(config, *, echo=print, progress=None, simulate=False):
         Make up search results for every planned target from the noise distribution
         (:func:`simulate_results`, seeded from the configuration's seed), labelled as
         simulated; used by ``cwlimits demo``.
+    overwrite : bool
+        Add the report to an existing output folder that holds other files (only the
+        files of its old cwlimits manifest are deleted); see :mod:`cwlimits.report`.
+    output_option : str, optional
+        How the user named the output folder, for error messages (default: the
+        configuration key ``output`` of the configuration file).
+
+    Raises
+    ------
+    InputError
+        Before any work, if the output folder may not or cannot be written
+        (:func:`cwlimits.report.check_report_folder`).
     """
     progress = progress or (lambda n=1: None)
+    # The output folder is checked first: a refused or unwritable one costs no work.
+    check_report_folder(config["output"], overwrite,
+                        output_option or f"key 'output' of {config.source}")
     seed = config["seed"]
     catalogue = load_targets(config["catalogue.path"])
     if config["catalogue.targets"]:
@@ -103,7 +119,7 @@ def run_report(config, *, echo=print, progress=None, simulate=False):
              f"({config['limits.method']})")
     progress()
 
-    with Report(config["title"], config["output"]) as rep:
+    with Report(config["title"], config["output"], overwrite=overwrite) as rep:
         rep.section("About this report", CAUTION, caution=True)
         if simulate:
             rep.section("Simulated search results",
@@ -272,7 +288,7 @@ def _limits_section(rep, config, target, setup, results, table, noise, simulated
         from astropy.table import QTable
 
         sim = QTable({"f_lo": results.f_lo, "width": results.width,
-                      "loudest_2F_sum": results.loudest, "psd": results.psd})
+                      "loudest_2F": results.loudest, "psd": results.psd})
         rep.table(f"simulated_results_{slug}", sim,
                   caption=f"SIMULATED search results for {target.name} (noise only)",
                   assumptions={"simulated": "loudest of N_t chi-squared(4N) draws per "
@@ -371,6 +387,6 @@ def simulate_results(model, rng=None):
     p_exceed = -np.expm1(np.log(u01) / np.asarray(model.n_templates, float))
     loudest = stats.chi2.isf(p_exceed, 4 * model.n_seg)
     return SearchResults(f_lo=model.f_lo, width=model.f_hi - model.f_lo, loudest=loudest,
-                         statistic="sum", psd=model.psd,
+                         convention="total", psd=model.psd,
                          n_templates=np.asarray(model.n_templates, float),
                          source="simulated", rows=np.arange(len(model)) + 2)

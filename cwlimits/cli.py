@@ -84,8 +84,32 @@ def _command_modules():
     return sorted(modules, key=lambda m: (m.ORDER, m.__name__))
 
 
+#: Options of earlier versions and the options that replaced them.
+RETIRED_OPTIONS = {
+    "--mismatch-coarse": "--mismatch-coherent",
+    "--mismatch-fine": "--mismatch-semicoherent",
+    "--statistic": "--convention (values 'total' and 'per_segment')",
+}
+
+
+def _retired_option(argv):
+    """The first option of an earlier version in ``argv``, or None."""
+    for token in argv:
+        if token == "--":
+            break
+        name = token.split("=", 1)[0]
+        if name in RETIRED_OPTIONS:
+            return name
+    return None
+
+
 def main(argv=None):
     """Run the command line; return the exit code."""
+    argv = sys.argv[1:] if argv is None else list(argv)
+    old = _retired_option(argv)
+    if old is not None:
+        print(f"error: option {old} was renamed: use {RETIRED_OPTIONS[old]}", file=sys.stderr)
+        return 2
     parser = build_parser()
     args = parser.parse_args(argv)
     if not getattr(args, "run", None):

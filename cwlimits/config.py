@@ -8,6 +8,7 @@ missing input file or a results file for a target the catalogue does not have is
 anything is written.
 """
 
+import os
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -32,7 +33,7 @@ CONFIG_KEYS = {
     "indirect.braking_index": ("float", None, 5.0, "braking index of the age-based limit"),
     "indirect.moment_of_inertia": ("quantity", "kg m2", 1e38 * u.kg * u.m**2,
                                    "moment of inertia"),
-    "noise.model": ("str", None, "advanced-fit",
+    "noise.model": ("str", None, "second-gen-fit",
                     "noise model name or noise file, used for every detector"),
     "data.detectors": ("list[str]", None, ["H1", "L1"], "detector site codes"),
     "data.span": ("quantity", "day", _REQUIRED, "longest data span a search may use"),
@@ -139,6 +140,10 @@ def _read(path, key, raw, base):
     if kind == "path":
         if not isinstance(raw, str):
             _fail(path, key, "must be a path (a string)", raw)
+        if key == "output":
+            # Not resolve(): an output that is a symbolic link must be seen (and refused
+            # by cwlimits.report), never followed to its target.
+            return Path(os.path.abspath(base / raw))
         return (base / raw).resolve()
     if kind == "list[str]":
         if not (isinstance(raw, list) and all(isinstance(x, str) for x in raw)):

@@ -20,9 +20,9 @@ reported (``dims_coh``, ``dims_semi``).  A band that contains any of the space h
 one template; a band outside the space (a box space) has none.
 
 Stages.  The coherent stage uses the metric of one segment of length ``T`` with maximum
-mismatch ``mismatch_coarse``; its count is per segment.  The semi-coherent stage uses the
+mismatch ``mismatch_coherent``; its count is per segment.  The semi-coherent stage uses the
 average of the segment metrics in common coordinates (Pletsch 2010, arXiv:1005.0395) with
-``mismatch_fine``.
+``mismatch_semicoherent``.
 
 Cost (in hours of one CPU core; astropy unit ``h``):
 
@@ -166,8 +166,8 @@ def count_templates(setup, target_or_space, bands=None):
     coh = _sqrt_dets(_coherent_metric_scaled(0.0, n_dims), t, n_dims)
     _, off, mask = _segments(setup.t_seg, None, setup.segment_mid_times)
     semi = _sqrt_dets(_semicoherent_metric_scaled(off, mask, n_dims), t, n_dims)
-    n_coh, d_coh = _stage(coh, thickness, setup.mismatch_coarse, volumes)
-    n_semi, d_semi = _stage(semi, thickness, setup.mismatch_fine, volumes)
+    n_coh, d_coh = _stage(coh, thickness, setup.mismatch_coherent, volumes)
+    n_semi, d_semi = _stage(semi, thickness, setup.mismatch_semicoherent, volumes)
     table = QTable()
     table["f_min"] = lo.ravel() << u.Hz
     table["f_max"] = hi.ravel() << u.Hz

@@ -14,8 +14,9 @@ The model
   ``rho2 = sum_k rho2_k`` when a signal is present (Jaranowski, Krolak & Schutz 1998,
   gr-qc/9804014; Wette 2012, arXiv:1111.5650; Dreissigacker, Prix & Wette 2018,
   arXiv:1808.02459).  ``N = 1`` is the fully coherent search.  Every public function takes
-  ``statistic="sum"`` (thresholds and observations on ``2F``) or ``statistic="mean"`` (on the
-  segment average ``2F / N``); the value is converted to the sum once, at the boundary.
+  ``convention="total"`` (thresholds and observations on ``2F``, the total over segments)
+  or ``convention="per_segment"`` (on the segment average ``2F / N``); the value is
+  converted to the total once, at the boundary.
 * Signal strength.  ``rho2 = R2 h0^2 T_data / S_n (1 - mu)`` with ``R2`` the orientation and
   antenna-pattern factor, ``T_data`` the total data span, ``S_n`` the one-sided noise power
   spectral density and ``mu`` the StackSlide mismatch (Wette 2012; Dreissigacker et al. 2018).
@@ -76,7 +77,7 @@ _SANKARAN_PDF_MIN_DF = 1000
 #: (16 equal-probability x 48 logarithmic cells, two nodes each; see ``_condense``).
 DEFAULT_MAX_NODES = 132
 
-_STATISTICS = ("sum", "mean")
+_CONVENTIONS = ("total", "per_segment")
 _METHODS = ("auto", "exact")
 
 
@@ -87,10 +88,11 @@ def _first_bad(values, bad):
     return values[bad].flat[0] if np.any(bad) else None
 
 
-def _check_statistic(statistic):
-    if statistic not in _STATISTICS:
-        raise InputError(f"statistic must be one of {_STATISTICS}: 'sum' for 2F = sum_k 2F_k, "
-                         "'mean' for the segment average 2F/N", value=statistic)
+def _check_convention(convention):
+    if convention not in _CONVENTIONS:
+        raise InputError(f"convention must be one of {_CONVENTIONS}: 'total' for "
+                         "2F = sum_k 2F_k over the segments, 'per_segment' for the segment "
+                         "average 2F/N", value=convention)
 
 
 def _check_method(method):
@@ -125,14 +127,14 @@ def _check_n_seg(n_seg):
     return n_seg
 
 
-def _to_sum(values, n_seg, statistic):
-    """Convert a statistic given in the ``statistic`` convention to the sum ``2F``."""
-    _check_statistic(statistic)
-    return values * n_seg if statistic == "mean" else values
+def _to_sum(values, n_seg, convention):
+    """Convert a statistic given in the ``convention`` to the sum ``2F``."""
+    _check_convention(convention)
+    return values * n_seg if convention == "per_segment" else values
 
 
-def _from_sum(values, n_seg, statistic):
-    return values / n_seg if statistic == "mean" else values
+def _from_sum(values, n_seg, convention):
+    return values / n_seg if convention == "per_segment" else values
 
 
 # ---------------------------------------------------------------------------------------
@@ -615,7 +617,7 @@ def _likelihood(observed_sum, a, n_seg, c, w, method="exact"):
 # ---------------------------------------------------------------------------------------
 # Public API
 # ---------------------------------------------------------------------------------------
-def false_alarm_threshold(false_alarm, n_templates=1, n_seg=1, statistic="sum"):
+def false_alarm_threshold(false_alarm, n_templates=1, n_seg=1, convention="total"):
     """Threshold on the StackSlide statistic for a false-alarm probability over a band.
 
     Parameters
@@ -627,7 +629,7 @@ def false_alarm_threshold(false_alarm, n_templates=1, n_seg=1, statistic="sum"):
         ``false_alarm`` is per template.
     n_seg : int or array_like, optional
         Number of segments ``N`` (1 = fully coherent).
-    statistic : {"sum", "mean"}
+    convention : {"total", "per_segment"}
         Return the threshold on ``2F = sum_k 2F_k`` or on the segment average ``2F / N``.
 
     Returns
@@ -639,7 +641,7 @@ def false_alarm_threshold(false_alarm, n_templates=1, n_seg=1, statistic="sum"):
     ------
     InputError
         ``false_alarm`` outside (0, 1), ``n_templates < 1``, ``n_seg`` not a whole number >= 1
-        or an unknown ``statistic``.
+        or an unknown ``convention``.
 
     Notes
     -----
@@ -657,7 +659,7 @@ def false_alarm_threshold(false_alarm, n_templates=1, n_seg=1, statistic="sum"):
     >>> round(float(false_alarm_threshold(0.01).value), 4)
     13.2767
     """
-    _check_statistic(statistic)
+    _check_convention(convention)
     p = _check_open_unit(to_value(false_alarm, u.one, "false_alarm"), "false_alarm")
     n_t = np.asarray(to_value(n_templates, u.one, "n_templates"), dtype=float)
     bad = ~(np.isfinite(n_t) & (n_t >= 1))
@@ -667,17 +669,17 @@ def false_alarm_threshold(false_alarm, n_templates=1, n_seg=1, statistic="sum"):
     # Noise-only 2F over N segments has 4N degrees of freedom (four amplitude parameters
     # maximised per segment; JKS 1998).
     thr = _threshold_from_log_p(_log_p_template(p, n_t), 4.0 * nseg)
-    return _from_sum(thr, nseg, statistic) << u.one
+    return _from_sum(thr, nseg, convention) << u.one
 
 
-def _common_inputs(threshold, n_seg, statistic, method):
+def _common_inputs(threshold, n_seg, convention, method):
     _check_method(method)
     nseg = _check_n_seg(to_value(n_seg, u.one, "n_seg"))
     thr = np.asarray(to_value(threshold, u.one, "threshold"), dtype=float)
     bad = ~(np.isfinite(thr) & (thr >= 0))
     if np.any(bad):
         raise InputError("threshold must be finite and >= 0", value=_first_bad(thr, bad))
-    return _to_sum(thr, nseg, statistic), nseg
+    return _to_sum(thr, nseg, convention), nseg
 
 
 def _time_psd(t_data, psd):
@@ -702,7 +704,7 @@ def _amplitude(h0, t_data, psd, purpose):
 
 
 def detection_probability(h0, threshold, n_seg, t_data, psd, r2_rule, mismatch_rule=0.0,
-                          statistic="sum", method="auto", max_nodes=DEFAULT_MAX_NODES):
+                          convention="total", method="auto", max_nodes=DEFAULT_MAX_NODES):
     """Probability that a signal of amplitude ``h0`` crosses ``threshold``.
 
     Parameters
@@ -710,7 +712,7 @@ def detection_probability(h0, threshold, n_seg, t_data, psd, r2_rule, mismatch_r
     h0 : float or array_like or Quantity ['dimensionless']
         Strain amplitude (>= 0).
     threshold : float or array_like or Quantity ['dimensionless']
-        Threshold in the ``statistic`` convention (a false-alarm threshold, or an observed
+        Threshold in the ``convention`` (a false-alarm threshold, or an observed
         loudest statistic for upper limits).
     n_seg : int or array_like
         Number of segments ``N``.
@@ -723,7 +725,7 @@ def detection_probability(h0, threshold, n_seg, t_data, psd, r2_rule, mismatch_r
         Distribution of ``R2`` (orientation and antenna-pattern factor).
     mismatch_rule : QuadratureRule, (nodes, weights), float or array of samples, optional
         Distribution of the StackSlide mismatch ``mu`` in [0, 1]; a float is a fixed value.
-    statistic : {"sum", "mean"}
+    convention : {"total", "per_segment"}
         Convention of ``threshold``.
     method : {"auto", "exact"}
         ``"exact"`` always uses ``scipy.stats.ncx2.sf``; ``"auto"`` uses Sankaran's
@@ -745,7 +747,7 @@ def detection_probability(h0, threshold, n_seg, t_data, psd, r2_rule, mismatch_r
     ----------
     Wette 2012, arXiv:1111.5650; Dreissigacker, Prix & Wette 2018, arXiv:1808.02459.
     """
-    thr, nseg = _common_inputs(threshold, n_seg, statistic, method)
+    thr, nseg = _common_inputs(threshold, n_seg, convention, method)
     a = _amplitude(h0, t_data, psd, "to turn h0 into a signal-to-noise ratio")
     rule = _signal_rule(r2_rule, mismatch_rule, max_nodes)
     shape = np.broadcast_shapes(a.shape, thr.shape, nseg.shape, rule.batch_shape)
@@ -756,16 +758,16 @@ def detection_probability(h0, threshold, n_seg, t_data, psd, r2_rule, mismatch_r
     return p << u.one
 
 
-def _solve(threshold, n_seg, r2_rule, mismatch_rule, probability, statistic, method,
+def _solve(threshold, n_seg, r2_rule, mismatch_rule, probability, convention, method,
            max_nodes):
-    thr, nseg = _common_inputs(threshold, n_seg, statistic, method)
+    thr, nseg = _common_inputs(threshold, n_seg, convention, method)
     prob = _check_open_unit(to_value(probability, u.one, "confidence"), "confidence")
     rule = _signal_rule(r2_rule, mismatch_rule, max_nodes)
     return _solve_log_a(thr, nseg, prob, rule, method)
 
 
 def solve_amplitude(threshold, n_seg, t_data, psd, r2_rule, mismatch_rule=0.0,
-                    probability=0.9, statistic="sum", method="auto",
+                    probability=0.9, convention="total", method="auto",
                     max_nodes=DEFAULT_MAX_NODES):
     """Amplitude ``h0`` at which the detection probability above ``threshold`` is ``probability``.
 
@@ -798,13 +800,13 @@ def solve_amplitude(threshold, n_seg, t_data, psd, r2_rule, mismatch_rule=0.0,
     t_s, s_n = _time_psd(t_data, psd)
     if s_n is None:
         raise InputError("psd is required to return h0; use critical_depth for the depth")
-    a = _solve(threshold, n_seg, r2_rule, mismatch_rule, probability, statistic, method,
+    a = _solve(threshold, n_seg, r2_rule, mismatch_rule, probability, convention, method,
                max_nodes)
     return _h0_from_normalised(a, t_s, s_n) << u.one
 
 
 def critical_depth(threshold, n_seg, t_data, r2_rule, mismatch_rule=0.0, confidence=0.9,
-                   statistic="sum", method="auto", max_nodes=DEFAULT_MAX_NODES):
+                   convention="total", method="auto", max_nodes=DEFAULT_MAX_NODES):
     """Sensitivity depth ``D = sqrt(S_n) / h0`` at which ``P_det = confidence``.
 
     Vectorised: ``threshold``, ``n_seg``, ``t_data``, ``confidence`` and the rules' batch
@@ -813,7 +815,7 @@ def critical_depth(threshold, n_seg, t_data, r2_rule, mismatch_rule=0.0, confide
     Parameters
     ----------
     threshold : float or array_like or Quantity ['dimensionless']
-        Threshold in the ``statistic`` convention.
+        Threshold in the ``convention``.
     n_seg : int or array_like
         Number of segments ``N``.
     t_data : Quantity ['time']
@@ -822,7 +824,7 @@ def critical_depth(threshold, n_seg, t_data, r2_rule, mismatch_rule=0.0, confide
         As in :func:`detection_probability`.
     confidence : float or array_like
         Detection probability to reach (1 - false dismissal), in (0, 1).
-    statistic, method, max_nodes
+    convention, method, max_nodes
         As in :func:`detection_probability`.
 
     Returns
@@ -849,28 +851,28 @@ def critical_depth(threshold, n_seg, t_data, r2_rule, mismatch_rule=0.0, confide
     arXiv:1111.5650.
     """
     t_s, _ = _time_psd(t_data, None)
-    a = _solve(threshold, n_seg, r2_rule, mismatch_rule, confidence, statistic, method,
+    a = _solve(threshold, n_seg, r2_rule, mismatch_rule, confidence, convention, method,
                max_nodes)
     with np.errstate(divide="ignore"):
         return np.sqrt(t_s / a) << DEPTH_UNIT
 
 
 def marginal_likelihood(observed, h0, n_seg, t_data, psd, r2_rule, mismatch_rule=0.0,
-                        statistic="sum", log=False, method="exact",
+                        convention="total", log=False, method="exact",
                         max_nodes=DEFAULT_MAX_NODES):
     """Density of an observed statistic given ``h0``, marginalised over orientation and mismatch.
 
     Parameters
     ----------
     observed : float or array_like or Quantity ['dimensionless']
-        Observed statistic in the ``statistic`` convention (>= 0).
+        Observed statistic in the ``convention`` (>= 0).
     h0 : float or array_like or Quantity ['dimensionless']
         Amplitudes (e.g. a grid, broadcast against ``observed`` and the setup).
     n_seg, t_data, psd, r2_rule, mismatch_rule, max_nodes
         As in :func:`detection_probability`.
-    statistic : {"sum", "mean"}
-        Convention of ``observed``; the density is per unit of that statistic (for "mean"
-        it is ``N`` times the density of the sum at ``N * observed``).
+    convention : {"total", "per_segment"}
+        Convention of ``observed``; the density is per unit of that statistic (for
+        "per_segment" it is ``N`` times the density of the sum at ``N * observed``).
     log : bool
         Return the natural log of the density.
     method : {"exact", "auto"}
@@ -901,7 +903,7 @@ def marginal_likelihood(observed, h0, n_seg, t_data, psd, r2_rule, mismatch_rule
         raise InputError("observed statistic must be finite and >= 0",
                          value=_first_bad(obs, bad))
     a = _amplitude(h0, t_data, psd, "for the likelihood")
-    obs_sum = _to_sum(obs, nseg, statistic)
+    obs_sum = _to_sum(obs, nseg, convention)
     rule = _signal_rule(r2_rule, mismatch_rule, max_nodes)
     shape = np.broadcast_shapes(obs.shape, a.shape, nseg.shape, rule.batch_shape)
     # Same rule rows and the same rho2 = a c as detection_probability: one model for both
@@ -909,7 +911,7 @@ def marginal_likelihood(observed, h0, n_seg, t_data, psd, r2_rule, mismatch_rule
     rid = _rule_index(rule, shape).reshape(shape)
     dens = _likelihood(np.broadcast_to(obs_sum, shape), np.broadcast_to(a, shape),
                        np.broadcast_to(nseg, shape), rule.c[rid], rule.w[rid], method)
-    if statistic == "mean":
+    if convention == "per_segment":
         # Change of variable 2F = N x: p_x(x) = N p_2F(N x).
         dens = dens * np.broadcast_to(nseg, shape)
     if log:
@@ -925,9 +927,9 @@ class SensitivityEstimate:
     Attributes
     ----------
     threshold : Quantity ['dimensionless']
-        Threshold in the ``statistic`` convention.
-    statistic : str
-        ``"sum"`` (2F) or ``"mean"`` (2F/N).
+        Threshold in the ``convention``.
+    convention : str
+        ``"total"`` (2F summed over segments) or ``"per_segment"`` (2F/N).
     n_seg : ndarray
         Number of segments.
     n_templates : ndarray or None
@@ -945,7 +947,7 @@ class SensitivityEstimate:
     """
 
     threshold: u.Quantity
-    statistic: str
+    convention: str
     n_seg: np.ndarray
     n_templates: np.ndarray | None
     false_alarm: np.ndarray | None
@@ -966,13 +968,13 @@ class SensitivityEstimate:
         shape = np.broadcast_shapes(*(np.shape(v) for v in cols.values()))
         table = QTable({k: np.broadcast_to(v, shape, subok=True).ravel()
                         for k, v in cols.items()})
-        table.meta["assumptions"] = dict(self.assumptions, statistic=self.statistic)
+        table.meta["assumptions"] = dict(self.assumptions, convention=self.convention)
         return table
 
 
 def estimate_sensitivity(n_seg, t_data, r2_rule, mismatch_rule=0.0, *, psd=None,
                          false_alarm=None, n_templates=1, threshold=None, confidence=0.9,
-                         statistic="sum", method="auto", max_nodes=DEFAULT_MAX_NODES):
+                         convention="total", method="auto", max_nodes=DEFAULT_MAX_NODES):
     """Expected sensitivity of a StackSlide search: threshold, depth and h0 per band.
 
     Give either ``false_alarm`` (with ``n_templates``) or a ``threshold`` on the statistic.
@@ -992,10 +994,10 @@ def estimate_sensitivity(n_seg, t_data, r2_rule, mismatch_rule=0.0, *, psd=None,
     n_templates : float or array_like
         Independent templates per band (trials correction).
     threshold : float or array_like, optional
-        Threshold in the ``statistic`` convention, instead of ``false_alarm``.
+        Threshold in the ``convention``, instead of ``false_alarm``.
     confidence : float or array_like
         Detection probability, in (0, 1).
-    statistic, method, max_nodes
+    convention, method, max_nodes
         As in :func:`detection_probability`.
 
     Returns
@@ -1019,14 +1021,14 @@ def estimate_sensitivity(n_seg, t_data, r2_rule, mismatch_rule=0.0, *, psd=None,
         raise InputError("give exactly one of false_alarm (with n_templates) or threshold")
     nseg = _check_n_seg(to_value(n_seg, u.one, "n_seg"))
     if threshold is None:
-        threshold = false_alarm_threshold(false_alarm, n_templates, nseg, statistic)
+        threshold = false_alarm_threshold(false_alarm, n_templates, nseg, convention)
         fa = np.asarray(to_value(false_alarm, u.one, "false_alarm"), dtype=float)
         n_t = np.asarray(to_value(n_templates, u.one, "n_templates"), dtype=float)
     else:
         threshold = np.asarray(to_value(threshold, u.one, "threshold"), float) << u.one
         fa = n_t = None
     depth = critical_depth(threshold, nseg, t_data, r2_rule, mismatch_rule, confidence,
-                           statistic, method, max_nodes)
+                           convention, method, max_nodes)
     h0 = None
     if psd is not None:
         _, s_n = _time_psd(t_data, psd)
@@ -1041,7 +1043,7 @@ def estimate_sensitivity(n_seg, t_data, r2_rule, mismatch_rule=0.0, *, psd=None,
         "method": method,
     }
     return SensitivityEstimate(
-        threshold=threshold << u.one, statistic=statistic, n_seg=nseg,
+        threshold=threshold << u.one, convention=convention, n_seg=nseg,
         n_templates=n_t, false_alarm=fa,
         confidence=np.asarray(to_value(confidence, u.one, "confidence"), float),
         depth=depth, h0=h0, assumptions=assumptions)

@@ -407,9 +407,14 @@ def map_chunks(func, items, *, chunk_size=DEFAULT_CHUNK_SIZE, executor=None, see
               "on %s", label, n_items, len(bounds), chunk_size, len(done), len(todo),
               type(executor or SerialExecutor()).__name__)
 
-    tasks = ((func, i, {name: array[bounds[i][0]:bounds[i][1]]
-                        for name, array in arrays.items()}, chunk_seed(root, i))
-             for i in todo)
+    def task(i):
+        return (func, i, {name: array[bounds[i][0]:bounds[i][1]]
+                          for name, array in arrays.items()}, chunk_seed(root, i))
+
+    if store is None:
+        tasks = (task(i) for i in todo)
+    else:
+        tasks = _shared_tasks(store, run_id, part, todo, task, label)
     if _is_dask_client(executor):
         completed = _completed_dask(executor, tasks, _window(executor))
     else:
@@ -436,6 +441,8 @@ def map_chunks(func, items, *, chunk_size=DEFAULT_CHUNK_SIZE, executor=None, see
         _log.info("%s: %d chunks computed in %.3g s", label, len(todo),
                   time.perf_counter() - started)
 
+    # Chunks not computed here were in the store already or committed meanwhile by
+    # another process working on the same run (see _shared_tasks).
     parts = [results[i] if i in results else store.load_chunk(run_id, part, i)
              for i in range(len(bounds))]
     if names is None:
@@ -443,6 +450,40 @@ def map_chunks(func, items, *, chunk_size=DEFAULT_CHUNK_SIZE, executor=None, see
     for i, chunk_result in enumerate(parts):
         _check_result(chunk_result, i, names)
     return {name: np.concatenate([p[name] for p in parts]) for name in names}
+
+
+#: Seconds between looks at the store while another process computes a claimed chunk.
+_CLAIM_POLL_S = 0.2
+
+
+def _shared_tasks(store, run_id, part, todo, task, label):
+    """The tasks of the chunks this process should compute, claimed in the store.
+
+    A chunk another live process has claimed is skipped at first; once every other chunk
+    has been handed out, this waits until those are committed (they are then read from the
+    store) or their claimer has gone (they are then computed here).
+    """
+    waiting = []
+    for i in todo:
+        state = store.claim_chunk(run_id, part, i)
+        if state == "mine":
+            yield task(i)
+        elif state == "taken":
+            waiting.append(i)
+    if waiting:
+        _log.info("%s: %d chunks are being computed by another process; waiting for them",
+                  label, len(waiting))
+    while waiting:
+        still = []
+        for i in waiting:
+            state = store.claim_chunk(run_id, part, i)
+            if state == "mine":
+                yield task(i)
+            elif state == "taken":
+                still.append(i)
+        waiting = still
+        if waiting:
+            time.sleep(_CLAIM_POLL_S)
 
 
 @contextlib.contextmanager

@@ -177,7 +177,7 @@ def _abc(w, a, b):
             np.sum(w * a * b, axis=(0, 2)))
 
 
-def _twoF(fa, fb, A, B, C):
+def _two_f(fa, fb, A, B, C):
     """2F = 4 (B |Fa|^2 + A |Fb|^2 - 2 C Re(Fa Fb*)) / D (module notes; JKS 1998 eq. 37)."""
     D = A * B - C * C
     return 4.0 * (B * np.abs(fa) ** 2 + A * np.abs(fb) ** 2
@@ -206,10 +206,10 @@ def _coherent_stage(wz, a, b, fdot, dt, length):
     return np.fft.fftshift(fa * shift, axes=-1), np.fft.fftshift(fb * shift, axes=-1)
 
 
-def _semicoherent_stage(twoF_k, shifts, start, n_out):
+def _semicoherent_stage(two_f_k, shifts, start, n_out):
     """sum_k 2F_k[start + j + s_k] for j < n_out: the StackSlide sum (nearest bin)."""
     index = start + np.arange(n_out)[None, :] + shifts[:, None]
-    return np.take_along_axis(twoF_k, index, axis=-1).sum(axis=0)
+    return np.take_along_axis(two_f_k, index, axis=-1).sum(axis=0)
 
 
 def _direct_filters(wz, a, b, df_hz, fdot, dt, chunk=256):
@@ -245,9 +245,9 @@ class FstatResult:
     frequency : Quantity ['frequency'], shape (n_f,)
         Template frequencies at the reference time ``t_ref``.
     fdot : Quantity ['frequency / time'], shape (n_fdot,)
-    twoF : Quantity ['dimensionless'], shape (n_fdot, n_f)
+    two_f : Quantity ['dimensionless'], shape (n_fdot, n_f)
         2F_sum = sum_k 2F_k; chi^2 with 4 N degrees of freedom in Gaussian noise.
-    twoF_segments : ndarray or None
+    two_f_segments : ndarray or None
         Per-segment 2F_k at the shifted bins, shape (n_fdot, n_seg, n_f), if kept.
     n_seg, n_det : int
     t_ref : Quantity ['time']
@@ -260,8 +260,8 @@ class FstatResult:
 
     frequency: u.Quantity
     fdot: u.Quantity
-    twoF: u.Quantity
-    twoF_segments: object
+    two_f: u.Quantity
+    two_f_segments: object
     n_seg: int
     n_det: int
     t_ref: u.Quantity
@@ -270,10 +270,10 @@ class FstatResult:
     assumptions: dict
 
     def loudest(self):
-        """The loudest template: dict with ``frequency``, ``fdot`` and ``twoF``."""
-        i, j = np.unravel_index(np.argmax(self.twoF.value), self.twoF.shape)
+        """The loudest template: dict with ``frequency``, ``fdot`` and ``two_f``."""
+        i, j = np.unravel_index(np.argmax(self.two_f.value), self.two_f.shape)
         return {"frequency": self.frequency[j], "fdot": self.fdot[i],
-                "twoF": self.twoF[i, j]}
+                "two_f": self.two_f[i, j]}
 
 
 def _fft_length(m, padding, fft_length):
@@ -372,11 +372,11 @@ def stackslide_fstat(data, coord, fdot=0.0 * FDOT_UNIT, *, f_min=None, f_max=Non
     per_seg = np.empty((fdots.size, data.n_seg, n_out)) if keep_segments else None
     for i, fd in enumerate(fdots):
         fa, fb = _coherent_stage(wz, a, b, fd, dt, length)
-        twoF_k = _twoF(fa, fb, A[:, None], B[:, None], C[:, None])
-        out[i] = _semicoherent_stage(twoF_k, shifts[i], lo, n_out)
+        two_f_k = _two_f(fa, fb, A[:, None], B[:, None], C[:, None])
+        out[i] = _semicoherent_stage(two_f_k, shifts[i], lo, n_out)
         if keep_segments:
             index = lo + np.arange(n_out)[None, :] + shifts[i][:, None]
-            per_seg[i] = np.take_along_axis(twoF_k, index, axis=-1)
+            per_seg[i] = np.take_along_axis(two_f_k, index, axis=-1)
     assumptions = {
         "statistic": "StackSlide 2F = sum over segments of the JKS 1998 F-statistic "
                      "(gr-qc/9804014), chi^2 with 4 N_seg degrees of freedom in noise",
@@ -451,7 +451,7 @@ class AmplitudeEstimate:
 
     Attributes
     ----------
-    twoF : float
+    two_f : float
         Coherent 2F over all segments and detectors (chi^2_4 in noise).
     amplitudes : ndarray, shape (4,)
         A^mu = M^-1 x (JKS 1998).
@@ -461,7 +461,7 @@ class AmplitudeEstimate:
     psi, phi0 : Quantity ['angle']
     """
 
-    twoF: float
+    two_f: float
     amplitudes: np.ndarray
     fisher: np.ndarray
     h0: float
@@ -564,7 +564,7 @@ def expected_rho2(data, signal, *, noise="true"):
 
 # ------------------------------------------------------------------------ unit costs
 
-def measure_unit_costs(n_samples=2**14, *, n_seg=16, padding=2, repeats=3, rng=None):
+def measure_unit_costs(n_samples=10_000, *, n_seg=16, padding=2, repeats=3, rng=None):
     """Time the coherent and semi-coherent stages on this machine, per template.
 
     Parameters
@@ -607,15 +607,15 @@ def measure_unit_costs(n_samples=2**14, *, n_seg=16, padding=2, repeats=3, rng=N
     for _ in range(repeats):
         t0 = time.perf_counter()
         fa, fb = _coherent_stage(wz, a, b, 1e-9, dt, length)
-        twoF = _twoF(fa, fb, A[:, None], B[:, None], C[:, None])
+        two_f = _two_f(fa, fb, A[:, None], B[:, None], C[:, None])
         best_coh = min(best_coh, time.perf_counter() - t0)
-    twoF_k = np.repeat(twoF, n_seg, axis=0) * rng.uniform(0.5, 1.5, (n_seg, 1))
+    two_f_k = np.repeat(two_f, n_seg, axis=0) * rng.uniform(0.5, 1.5, (n_seg, 1))
     shifts = rng.integers(0, 8, n_seg)
     n_out = length - 8
     best_semi = math.inf
     for _ in range(repeats):
         t0 = time.perf_counter()
-        _semicoherent_stage(twoF_k, shifts, 0, n_out)
+        _semicoherent_stage(two_f_k, shifts, 0, n_out)
         best_semi = min(best_semi, time.perf_counter() - t0)
     return {"coherent": best_coh / length * u.s,
             "semicoherent": best_semi / (n_seg * n_out) * u.s,

@@ -24,8 +24,8 @@ which is 5 G I |fdot|/(2 c^3 d^2 f) for k = 2 (the usual spin-down limit) and
 With |fdot|/f = 1/((n - 1) age) this gives the age-based limit, 5 G I/(8 c^3 d^2 age) for
 k = 2, n = 5 (Wette et al. 2008, eq. 6).
 
-Equation numbers are from memory; the coefficients are checked in the tests against the
-published normalisations.
+Equation numbers are from memory; the tests check the coefficients against published
+coefficients and the closed forms evaluated with astropy's constants.
 
 Assumptions (each printed beside every limit the tool reports): all the rotational energy
 loss goes into gravitational waves; the moment of inertia I (default 1e38 kg m^2); the
@@ -133,9 +133,10 @@ def spindown_limit(f_rot, fdot_rot, distance, moment_of_inertia=DEFAULT_MOMENT_O
     Examples
     --------
     >>> import astropy.units as u
-    >>> h = spindown_limit(29.78 * u.Hz, -3.7e-10 * u.Hz / u.s, 2 * u.kpc)
-    >>> round(float(h * 1e24), 2)
-    1.43
+    >>> # the fictional demo pulsar "Fict Pulsar Cinder" of cwlimits/data/demo.csv
+    >>> h = spindown_limit(23.7 * u.Hz, -4.4e-11 * u.Hz / u.s, 3.9 * u.kpc)
+    >>> round(float(h * 1e25), 2)
+    2.82
     """
     f = positive_value(f_rot, u.Hz, "f_rot")
     fdot = np.abs(to_value(fdot_rot, u.Hz / u.s, "fdot_rot"))
@@ -171,10 +172,11 @@ def age_limit(distance, age, braking_index=None, moment_of_inertia=DEFAULT_MOMEN
 
         h_age = (1/d) sqrt(10 G I / ((n - 1) k^2 c^3 age)),
 
-    which for k = 2, n = 5 is (1/d) sqrt(5 G I / (8 c^3 age)) = 1.26e-24 (3.3 kpc/d)
-    (300 yr/age)^(1/2) I_38^(1/2) (Wette et al. 2008, eq. 6).  The braking index enters
-    only through the age-to-spin-down relation; the assumption that all energy is lost to
-    gravitational waves enters through the energy balance.
+    which for k = 2, n = 5 is the closed form (1/d) sqrt(5 G I / (8 c^3 age)) of Wette
+    et al. 2008, eq. 6; with astropy's G and c that is 2.27e-24 (1 kpc/d) (1 kyr/age)^(1/2)
+    I_38^(1/2).  The braking index enters only through the age-to-spin-down relation; the
+    assumption that all energy is lost to gravitational waves enters through the energy
+    balance.
 
     References
     ----------

@@ -52,11 +52,12 @@ from .errors import InputError
 __all__ = ["Lattice", "LATTICE_NAMES", "get_lattice", "sample_mismatch", "ball_volume",
            "nearest_template"]
 
-#: Accepted lattice names (case-insensitive) and the canonical name each maps to.
-LATTICE_NAMES = {
-    "an*": "An*", "ans": "An*", "a_n*": "An*", "anstar": "An*", "an-star": "An*",
-    "zn": "Zn", "z^n": "Zn", "hypercubic": "Zn", "cubic": "Zn",
-}
+#: Accepted lattice names (case-insensitive): 'covering' is A_n* (the thinnest covering
+#: lattice in low dimensions), 'cubic' is the hypercubic Z^n.
+LATTICE_NAMES = {"covering": "covering", "cubic": "cubic"}
+
+#: Names used by earlier versions of cwlimits, rejected with a message naming the new one.
+_RETIRED_LATTICE_NAMES = {"an*": "covering", "zn": "cubic"}
 
 
 def ball_volume(n):
@@ -67,9 +68,12 @@ def ball_volume(n):
 
 def _canonical(name):
     key = str(name).strip().lower()
+    if key in _RETIRED_LATTICE_NAMES:
+        raise InputError(f"the lattice name {name!r} is no longer accepted; it is now called "
+                         f"'{_RETIRED_LATTICE_NAMES[key]}'", value=name)
     if key not in LATTICE_NAMES:
-        raise InputError("unknown lattice; use 'An*' (A_n*, the thinnest covering in low "
-                         "dimensions) or 'Zn' (hypercubic)", value=name)
+        raise InputError("unknown lattice; use 'covering' (A_n*, the thinnest covering in "
+                         "low dimensions) or 'cubic' (hypercubic Z^n)", value=name)
     return LATTICE_NAMES[key]
 
 
@@ -129,7 +133,7 @@ class Lattice:
     Parameters
     ----------
     kind : str
-        ``"An*"`` or ``"Zn"`` (aliases in :data:`LATTICE_NAMES`).
+        ``"covering"`` or ``"cubic"`` (case-insensitive).
     n_dims : int
         Dimension, >= 1.
 
@@ -164,14 +168,14 @@ class Lattice:
     @property
     def _native_radius(self):
         n = self.n_dims
-        if self.kind == "Zn":
+        if self.kind == "cubic":
             return math.sqrt(n) / 2
         return math.sqrt(n * (n + 2) / (12 * (n + 1)))
 
     @property
     def _native_generator(self):
         n = self.n_dims
-        if self.kind == "Zn":
+        if self.kind == "cubic":
             return np.eye(n)
         # projections of e_1..e_n onto the hyperplane, in its orthonormal basis
         return np.eye(n + 1)[:n] @ _hyperplane_basis(n)
@@ -203,7 +207,7 @@ class Lattice:
     @property
     def mean_mismatch_factor(self):
         """Mean of ``|x - p|^2 / R^2`` over the Voronoi cell (1/3 for Z^n)."""
-        if self.kind == "Zn":
+        if self.kind == "cubic":
             return 1.0 / 3.0
         return _anstar_mean_factor(self.n_dims)
 
@@ -231,7 +235,7 @@ class Lattice:
             raise InputError(f"points must have a last axis of length {self.n_dims}",
                              value=x.shape)
         r = self._native_radius
-        if self.kind == "Zn":
+        if self.kind == "cubic":
             return np.rint(x * r) / r
         basis = _hyperplane_basis(self.n_dims)
         y = (x * r) @ basis.T
@@ -269,7 +273,7 @@ class Lattice:
 @functools.cache
 def _anstar_mean_factor(n, log2_points=16, seed=20100517):
     """Mean of |x-p|^2/R^2 over A_n*'s Voronoi cell by scrambled-Sobol integration."""
-    lat = Lattice("An*", n)
+    lat = Lattice("covering", n)
     u = qmc.Sobol(d=n, scramble=True, seed=seed).random_base2(log2_points)
     x = u @ lat.generator
     return float(((x - lat.nearest_point(x)) ** 2).sum(axis=-1).mean())
@@ -277,7 +281,7 @@ def _anstar_mean_factor(n, log2_points=16, seed=20100517):
 
 @functools.cache
 def get_lattice(name, n_dims):
-    """The :class:`Lattice` ``name`` ('An*' or 'Zn') in ``n_dims`` dimensions (cached)."""
+    """The :class:`Lattice` ``name`` ('covering' or 'cubic') in ``n_dims`` dimensions (cached)."""
     return Lattice(name, int(n_dims))
 
 
@@ -289,7 +293,7 @@ def sample_mismatch(lattice, n_dims, max_mismatch, size=10000, rng=None):
     Parameters
     ----------
     lattice : str or Lattice
-        ``"An*"`` or ``"Zn"`` (ignored if a :class:`Lattice` is given, except for its kind).
+        ``"covering"`` or ``"cubic"`` (of a :class:`Lattice` only its kind is used).
     n_dims : int
         Dimension of the template bank (the ``n_dims_coh`` / ``n_dims_semi`` columns of
         :func:`cwlimits.cost.count_templates`).
@@ -309,15 +313,15 @@ def sample_mismatch(lattice, n_dims, max_mismatch, size=10000, rng=None):
     Notes
     -----
     The mismatch is the quadratic metric mismatch (valid for small ``mu``).  For a
-    StackSlide search the coarse and fine mismatches add approximately (Prix & Shaltev 2012,
-    arXiv:1201.4321; from memory), so a total can be drawn as the sum of two independent
-    draws.
+    StackSlide search the coherent and semicoherent mismatches add approximately (Prix &
+    Shaltev 2012, arXiv:1201.4321; from memory), so a total can be drawn as the sum of two
+    independent draws.
     """
     kind = lattice.kind if isinstance(lattice, Lattice) else lattice
     return get_lattice(_canonical(kind), int(n_dims)).sample_mismatch(max_mismatch, size, rng)
 
 
-def nearest_template(points, metric, max_mismatch, lattice="An*", origin=None):
+def nearest_template(points, metric, max_mismatch, lattice="covering", origin=None):
     """Nearest template of a lattice bank laid out with a constant metric.
 
     The bank is the lattice in whitened coordinates ``w = L^T (lambda - origin) /
@@ -333,7 +337,7 @@ def nearest_template(points, metric, max_mismatch, lattice="An*", origin=None):
     max_mismatch : float
         Maximum mismatch ``mu_max`` in (0, 1].
     lattice : str
-        ``"An*"`` or ``"Zn"``.
+        ``"covering"`` or ``"cubic"``.
     origin : array_like (n,), optional
         A template of the bank (default: the first point).
 

@@ -210,7 +210,7 @@ def posterior_quantiles(observed, n_seg, c, w, levels=_LEVELS, prior="uniform", 
     Parameters
     ----------
     observed : ndarray, shape (B,)
-        Loudest statistic, summed convention (2F summed over segments).
+        Loudest statistic, total convention (2F summed over segments).
     n_seg : int
     c, w : ndarray, shape (B, K)
         Nodes and weights of the signal-factor rule c = R2 (1 - mu) of each band.
@@ -521,7 +521,7 @@ def _prepare(results, setup, target, noise, model_options):
     eps_k = ellipticity(1.0, f_mid, 1 * u.kpc).value
     alpha_k = rmode_amplitude(1.0, f_mid, 1 * u.kpc).value
     return results, sm, psd, {
-        "obs": np.asarray(results.loudest_sum(sm.n_seg), float), "c": c, "w": w,
+        "obs": np.asarray(results.loudest_total(sm.n_seg), float), "c": c, "w": w,
         "scale": scale, "eps_per_h0": eps_k, "alpha_per_h0": alpha_k}
 
 
@@ -575,7 +575,7 @@ def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=No
     Returns
     -------
     astropy.table.QTable
-        Per band: ``f_lo``, ``f_hi``, ``f_mid`` [Hz], ``psd`` [1/Hz], ``loudest_2F_sum``,
+        Per band: ``f_lo``, ``f_hi``, ``f_mid`` [Hz], ``psd`` [1/Hz], ``loudest_2F``,
         ``n_templates``, ``h0_limit``, ``eps_limit``, ``alpha_limit``, the age-based
         comparison columns (``h0_age``, ``age_ratio``, ``beats_age`` ...) and with a known
         spin ``h0_spindown``, ``spindown_ratio``, ``beats_spindown``; with emcee
@@ -642,7 +642,7 @@ def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=No
     table = QTable()
     table["f_lo"], table["f_hi"], table["f_mid"] = results.f_lo, results.f_hi, results.f_mid
     table["psd"] = psd
-    table["loudest_2F_sum"] = arrays["obs"] << u.one
+    table["loudest_2F"] = arrays["obs"] << u.one
     table["n_templates"] = (results.n_templates if results.n_templates is not None
                             else sm.n_templates)
     table["h0_limit"] = out["h0"] << u.one

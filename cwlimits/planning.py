@@ -3,7 +3,7 @@
 Two questions decide whether and how to search a young neutron star of known age:
 
 * **depth**: at a fixed computing cost ``C0`` and a maximum data span ``T_max``, which
-  segment length ``T``, number of segments ``N`` and coarse/fine mismatches give the
+  segment length ``T``, number of segments ``N`` and coherent/semicoherent mismatches give the
   greatest sensitivity depth over a fixed band (the problem of Prix & Shaltev 2012,
   arXiv:1201.4321)?  The figure of merit is the width-weighted mean of ``ln D(f)`` over
   the band, reported as the geometric-mean depth ``D_eff = exp(<ln D>)``.
@@ -24,8 +24,8 @@ The cost per band is evaluated by a vectorised copy of :func:`cwlimits.cost.coun
 equal it).  The depth ``D = sqrt(T_data / a)``, with ``a = h0^2 T_data / S_n`` solving
 ``P_det = confidence`` (:func:`cwlimits.detection.critical_depth`), depends on the setup
 only through ``N``, the mismatches, the dimensions of the two lattices and the number of
-trials; ``ln a`` is tabulated on a grid of ``(ln N, ln mu_coarse, ln mu_fine, log10
-trials)`` and interpolated linearly.  The tables are built once per process for the
+trials; ``ln a`` is tabulated on a grid of ``(ln N, ln mu_coherent, ln mu_semicoherent,
+log10 trials)`` and interpolated linearly.  The tables are built once per process for the
 canonical orientation-factor shape (``A = B``, ``C = 0``, which long observations
 approach; JKS 1998) and shifted by ``-ln`` of each target's mean ``R^2`` (exact for a
 scaled rule; within 0.5 % in depth of tables built from the target's own rule, tested),
@@ -429,7 +429,7 @@ class _TargetModel:
             return _TABLE_CACHE[key]
         nt, mt, tt = self.n_table, _MU_TABLE, _LOG10_TRIALS
         # The signal rule c = R2 (1 - mu) depends on the mismatches and on whether the
-        # fine grid exists (N > 1), not on N or the trials: build and condense each of
+        # semicoherent grid exists (N > 1), not on N or the trials: build and condense each of
         # these few rules once (Wette 2012: P_det depends on R2 and mu only through c).
         mc, mf, multi = (a.ravel() for a in np.meshgrid(mt, mt, [False, True],
                                                         indexing="ij"))
@@ -475,7 +475,7 @@ class _TargetModel:
                         np.broadcast_to(np.log(np.clip(mu_f, *_MU_TABLE[[0, -1]]))[:, None],
                                         shape),
                         np.clip(np.log10(trials), _LOG10_TRIALS[0], _LOG10_TRIALS[-1])], -1)
-        # the fine lattice plays no part for N = 1: use the coarse dimension for its key
+        # the semicoherent lattice plays no part for N = 1: use the coherent dimension for its key
         d_semi = np.where(n[:, None] > 1, d_semi, d_coh)
         log_a = np.empty(shape)
         keys = d_coh * 4 + d_semi
@@ -955,13 +955,13 @@ def _plan_setup(base, model, opt):
     lft, rgt = opt.window
     band = ((model.lo[lft] << u.Hz), (model.hi[rgt - 1] << u.Hz))
     return base.replace(t_seg=(opt.t_s / 86400.0) << u.day, n_seg=int(opt.n),
-                        mismatch_coarse=float(opt.mu_c), mismatch_fine=float(opt.mu_f),
+                        mismatch_coherent=float(opt.mu_c), mismatch_semicoherent=float(opt.mu_f),
                         band=band)
 
 
 def plan_search(target, noise=DEFAULT_NOISE_MODEL, budget="1e5 h", span="1 yr",
                 objective="depth", *, band=None, measure="width", case="nominal",
-                detectors=("H1", "L1"), band_width=1 * u.Hz, lattice="An*",
+                detectors=("H1", "L1"), band_width=1 * u.Hz, lattice="covering",
                 braking_index=(2.0, 7.0), cost_coherent=DEFAULT_UNIT_COSTS["coherent"],
                 cost_semicoherent=DEFAULT_UNIT_COSTS["semicoherent"], duty_factor=1.0,
                 t_seg_min=1 * u.day, n_seg_max=1000, confidence=0.95, false_alarm=0.01,
@@ -1229,8 +1229,8 @@ def _rank_plan(target, found, j, budget_h, span, measure, case, noise, options):
                        options["duty_factor"])
     setup = base.replace(t_seg=(float(found["t_s"][j]) / 86400.0) << u.day,
                          n_seg=int(found["n"][j]),
-                         mismatch_coarse=float(found["mu_c"][j]),
-                         mismatch_fine=float(found["mu_f"][j]),
+                         mismatch_coherent=float(found["mu_c"][j]),
+                         mismatch_semicoherent=float(found["mu_f"][j]),
                          band=(float(found["f_lo_hz"][j]) << u.Hz,
                                float(found["f_hi_hz"][j]) << u.Hz))
     opt = _Optimum(float(found["t_s"][j]), int(found["n"][j]), float(found["mu_c"][j]),
@@ -1253,7 +1253,7 @@ def _n_grid(span_s, t_min_s, n_seg_max):
 def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", span="1 yr",
                  *, per_target_budget=None, budget_steps=12, measure="integral",
                  case="pessimistic", band=None, detectors=("H1", "L1"),
-                 band_width=1 * u.Hz, lattice="An*", braking_index=(2.0, 7.0),
+                 band_width=1 * u.Hz, lattice="covering", braking_index=(2.0, 7.0),
                  cost_coherent=DEFAULT_UNIT_COSTS["coherent"],
                  cost_semicoherent=DEFAULT_UNIT_COSTS["semicoherent"], duty_factor=1.0,
                  t_seg_min=1 * u.day, n_seg_max=1000, confidence=0.95, false_alarm=0.01,
@@ -1298,7 +1298,7 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
         ``table`` columns: ``rank``, ``name``, ``merit`` (case, at the per-target budget)
         [Hz], ``merit_optimistic``, ``merit_pessimistic`` [Hz], ``h_age_optimistic``,
         ``h_age_pessimistic``, ``budget_allocated`` [h], ``merit_allocated`` [Hz],
-        ``t_seg`` [day], ``n_seg``, ``mismatch_coarse``, ``mismatch_fine``, ``f_min``,
+        ``t_seg`` [day], ``n_seg``, ``mismatch_coherent``, ``mismatch_semicoherent``, ``f_min``,
         ``f_max`` [Hz], ``cost`` [h], ``bound`` (of the allocated plan).
 
     Notes
@@ -1381,8 +1381,8 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
             "merit_allocated_exact": plan.merit.value if plan else np.nan,
             "t_seg": s.t_seg.to_value(u.day) if s else np.nan,
             "n_seg": s.n_seg if s else 0,
-            "mismatch_coarse": s.mismatch_coarse if s else np.nan,
-            "mismatch_fine": s.mismatch_fine if s else np.nan,
+            "mismatch_coherent": s.mismatch_coherent if s else np.nan,
+            "mismatch_semicoherent": s.mismatch_semicoherent if s else np.nan,
             "f_min": s.f_min.to_value(u.Hz) if s else np.nan,
             "f_max": s.f_max.to_value(u.Hz) if s else np.nan,
             "cost": plan.cost.to_value(u.h) if plan else 0.0,
@@ -1394,8 +1394,8 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
                       ("merit_pessimistic", u.Hz), ("h_age_optimistic", u.one),
                       ("h_age_pessimistic", u.one), ("budget_allocated", u.h),
                       ("merit_allocated", u.Hz), ("merit_allocated_exact", u.Hz),
-                      ("t_seg", u.day), ("n_seg", None), ("mismatch_coarse", None),
-                      ("mismatch_fine", None), ("f_min", u.Hz), ("f_max", u.Hz),
+                      ("t_seg", u.day), ("n_seg", None), ("mismatch_coherent", None),
+                      ("mismatch_semicoherent", None), ("f_min", u.Hz), ("f_max", u.Hz),
                       ("cost", u.h)):
         values = np.array([r[col] for r in rows])
         table[col] = values << unit if unit is not None else values

@@ -7,13 +7,12 @@ figures stay readable in greyscale.  Functions return the :class:`matplotlib.fig
 saving is the caller's business (see :func:`save_figure`).
 """
 
-import os
-import tempfile
 from pathlib import Path
 
 import numpy as np
 
 from . import _defaults
+from ._files import atomic_write
 
 __all__ = ["COLUMN_WIDTH_IN", "PALETTE", "PLOT_SUFFIXES", "new_figure", "save_figure",
            "save_plot", "tidy_log_axes",
@@ -78,40 +77,30 @@ def tidy_log_axes(ax):
 def save_figure(fig, path, formats=("png", "svg")):
     """Save ``fig`` as ``path`` with each extension of ``formats``; return the paths.
 
-    Each file is written beside its destination under a temporary name and renamed, so a
-    reader never sees half a figure and a failure leaves nothing behind.
+    Each file goes through :func:`cwlimits._files.atomic_write` (a temporary file beside
+    its destination, renamed when complete, with the umask's mode), so a reader never sees
+    half a figure and a failure leaves nothing behind.
 
     The layout (constrained layout, most of the cost of a save) is solved once, by the
     first save; the later formats reuse its positions instead of solving it again, and
     the figure gets its layout engine back afterwards.
     """
     path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
     written = []
     engine = fig.get_layout_engine()
     try:
         for k, fmt in enumerate(formats):
             if k == 1 and engine is not None:
                 fig.set_layout_engine("none")  # keep the positions the first save found
-            written.append(_save_one(fig, path, fmt))
+            target = path.with_suffix(f".{fmt}")
+            metadata = {"Date": None} if fmt == "svg" else None
+            atomic_write(target, lambda handle, fmt=fmt, metadata=metadata: fig.savefig(
+                handle, format=fmt, metadata=metadata), binary=True)
+            written.append(target)
     finally:
         if engine is not None and fig.get_layout_engine() is not engine:
             fig.set_layout_engine(engine)
     return written
-
-
-def _save_one(fig, path, fmt):
-    """Write ``fig`` to ``path`` with suffix ``fmt``, atomically; return the path."""
-    target = path.with_suffix(f".{fmt}")
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
-    os.close(fd)
-    try:
-        fig.savefig(tmp, format=fmt, metadata={"Date": None} if fmt == "svg" else None)
-        os.replace(tmp, target)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
-    return target
 
 
 def save_plot(fig, path):

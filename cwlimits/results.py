@@ -2,22 +2,24 @@
 
 A results table is a CSV or ECSV file with one row per frequency band:
 
-=====================  =========  ==================================================
-column                 unit       meaning
-=====================  =========  ==================================================
-``f_lo`` or ``f_mid``  Hz         lower edge, or centre, of the band (one of them)
-``width``              Hz         band width (> 0)
-``loudest_2F_sum``     --         loudest StackSlide statistic, summed over segments
-or ``loudest_2F_mean``            ... or averaged over segments (2F / N_seg)
-``psd`` (or ``asd``)   1/Hz       optional: the band's noise floor S_n (or sqrt S_n)
-``n_templates``        --         optional: templates searched in the band
-=====================  =========  ==================================================
+=============================  =====  ================================================
+column                         unit   meaning
+=============================  =====  ================================================
+``f_lo`` or ``f_mid``          Hz     lower edge, or centre, of the band (one of them)
+``width``                      Hz     band width (> 0)
+``loudest_2F``                 --     loudest StackSlide statistic, the total over the
+                                      segments ``2F = sum_k 2F_k``
+or ``loudest_2F_per_segment``         ... or the same divided by the number of segments
+``psd`` (or ``asd``)           1/Hz   optional: the band's noise floor S_n (or sqrt S_n)
+``n_templates``                --     optional: templates searched in the band
+=============================  =====  ================================================
 
-The name of the statistic column states its convention, so a summed value can never be
-read as an average.  Internally the summed convention is used everywhere.  Every row is
-validated: a non-finite statistic, a negative width, a negative statistic, bands that
-overlap or a noise floor that is not positive are errors naming the file, row, column and
-value; nothing is skipped.
+The name of the statistic column states its convention, so a total can never be read as a
+per-segment average.  Internally the total is used everywhere.  Every row is validated: a
+non-finite statistic, a negative width, a negative statistic, bands that overlap or a noise
+floor that is not positive are errors naming the file, row, column and value; nothing is
+skipped.  A column name of an earlier version of cwlimits (``loudest_2F_sum``,
+``loudest_2F_mean``) is an error naming the column that replaced it.
 """
 
 from dataclasses import dataclass, field
@@ -28,10 +30,14 @@ import numpy as np
 from .errors import TableError
 from .tables import read_table
 
-__all__ = ["SearchResults", "load_results", "STATISTIC_COLUMNS"]
+__all__ = ["SearchResults", "load_results", "STATISTIC_COLUMNS", "RETIRED_RESULT_COLUMNS"]
 
 #: Accepted names of the loudest-statistic column, and the convention each declares.
-STATISTIC_COLUMNS = {"loudest_2F_sum": "sum", "loudest_2F_mean": "mean"}
+STATISTIC_COLUMNS = {"loudest_2F": "total", "loudest_2F_per_segment": "per_segment"}
+
+#: Column names of earlier versions, rejected with a message naming their replacement.
+RETIRED_RESULT_COLUMNS = {"loudest_2F_sum": "loudest_2F",
+                          "loudest_2F_mean": "loudest_2F_per_segment"}
 
 
 @dataclass(frozen=True)
@@ -43,9 +49,10 @@ class SearchResults:
     f_lo, width : Quantity ['frequency']
         Lower band edges and widths, sorted by frequency.
     loudest : ndarray
-        The loudest value of the statistic in each band, in the convention ``statistic``.
-    statistic : {'sum', 'mean'}
-        'sum': 2F summed over segments; 'mean': averaged over segments (2F / N_seg).
+        The loudest value of the statistic in each band, in the ``convention``.
+    convention : {'total', 'per_segment'}
+        'total': 2F summed over the segments; 'per_segment': that total divided by the
+        number of segments (2F / N_seg).
     psd : Quantity ['1/Hz'] or None
         The band's noise floor, if the table gives it.
     n_templates : ndarray or None
@@ -59,7 +66,7 @@ class SearchResults:
     f_lo: u.Quantity
     width: u.Quantity
     loudest: np.ndarray
-    statistic: str
+    convention: str
     psd: u.Quantity | None = None
     n_templates: np.ndarray | None = None
     source: str = ""
@@ -78,9 +85,9 @@ class SearchResults:
         """Band centres."""
         return self.f_lo + self.width / 2
 
-    def loudest_sum(self, n_seg):
-        """The loudest statistic in the summed convention, for ``n_seg`` segments."""
-        return self.loudest * n_seg if self.statistic == "mean" else self.loudest
+    def loudest_total(self, n_seg):
+        """The loudest statistic as the total over ``n_seg`` segments."""
+        return self.loudest * n_seg if self.convention == "per_segment" else self.loudest
 
 
 def load_results(path):
@@ -108,11 +115,14 @@ def load_results(path):
         f_lo = raw.quantity("f_mid", u.Hz, positive=True) - width / 2
         for i in np.flatnonzero(f_lo.value <= 0):
             raw.fail("band reaches below 0 Hz", i, "f_mid", raw.text("f_mid")[i])
+    for old, new in RETIRED_RESULT_COLUMNS.items():
+        if raw.has(old):
+            raw.fail(f"column '{old}' was renamed: call it '{new}'", column=old)
     present = [c for c in STATISTIC_COLUMNS if raw.has(c)]
     if len(present) != 1:
-        raw.fail("give the loudest statistic in exactly one column: 'loudest_2F_sum' "
-                 "(summed over segments) or 'loudest_2F_mean' (averaged over segments)",
-                 column="loudest_2F_sum")
+        raw.fail("give the loudest statistic in exactly one column: 'loudest_2F' (the total "
+                 "over the segments) or 'loudest_2F_per_segment' (that total divided by the "
+                 "number of segments)", column="loudest_2F")
     stat_column = present[0]
     loudest = raw.quantity(stat_column, u.one).value
     for i in np.flatnonzero(loudest < 0):
@@ -142,7 +152,7 @@ def load_results(path):
                          column=position, value=raw.text(position)[order[k + 1]])
     return SearchResults(
         f_lo=lo << u.Hz, width=wd << u.Hz, loudest=loudest[order],
-        statistic=STATISTIC_COLUMNS[stat_column],
+        convention=STATISTIC_COLUMNS[stat_column],
         psd=None if psd is None else psd[order],
         n_templates=None if n_templates is None else n_templates[order],
         source=raw.path, rows=lines)

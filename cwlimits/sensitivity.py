@@ -157,38 +157,38 @@ def _noise_sources(noise, detectors):
 
 def _mismatch_rule(setup, counts, mismatch, size):
     """Mismatch of a signal at a random place relative to both grids, per band."""
-    coarse, fine = setup.mismatch_coarse, setup.mismatch_fine
+    mu_coh, mu_semi = setup.mismatch_coherent, setup.mismatch_semicoherent
     n_bands = len(counts)
     if mismatch == "none":
         return (QuadratureRule.fixed([0.0], name="mismatch"), np.zeros(n_bands, int),
                 "none (perfect template match)")
     dims_coh = np.asarray(counts["dims_coh"], int)
     dims_semi = np.asarray(counts["dims_semi"], int)
-    stages = ("coarse",) if setup.n_seg == 1 else ("coarse", "fine")
+    stages = ("coherent",) if setup.n_seg == 1 else ("coherent", "semicoherent")
     if mismatch == "mean":
         from .lattices import get_lattice
 
         mean = np.array([get_lattice(setup.lattice, int(d)).mean_mismatch_factor
-                         for d in dims_coh]) * coarse
+                         for d in dims_coh]) * mu_coh
         if setup.n_seg > 1:
             mean = mean + np.array([get_lattice(setup.lattice, int(d)).mean_mismatch_factor
-                                    for d in dims_semi]) * fine
+                                    for d in dims_semi]) * mu_semi
         return (QuadratureRule.fixed(np.minimum(mean, 1.0), name="mismatch"),
                 np.arange(n_bands), f"fixed at the lattice mean of the {' + '.join(stages)} "
                 "grid(s)")
     if mismatch != "distribution":
         raise InputError("mismatch must be 'distribution', 'mean' or 'none'", value=mismatch)
     # Signals uniform relative to each lattice; the StackSlide mismatch is taken as the sum
-    # of the coarse and fine mismatches (Prix & Shaltev 2012, arXiv:1201.4321, Sect. 3,
-    # from memory), capped at 1.  Fully coherent (N = 1): the coarse grid only.
+    # of the coherent and semicoherent mismatches (Prix & Shaltev 2012, arXiv:1201.4321, Sect. 3,
+    # from memory), capped at 1.  Fully coherent (N = 1): the coherent grid only.
     pairs, index = np.unique(np.stack([dims_coh, dims_semi], axis=1), axis=0,
                              return_inverse=True)
     nodes = np.empty((len(pairs), size))
     rng = np.random.default_rng(_MISMATCH_SEED)
     for k, (dc, ds) in enumerate(pairs):
-        mu = sample_mismatch(setup.lattice, int(dc), coarse, size=size, rng=rng)
+        mu = sample_mismatch(setup.lattice, int(dc), mu_coh, size=size, rng=rng)
         if setup.n_seg > 1:
-            mu = mu + sample_mismatch(setup.lattice, int(ds), fine, size=size, rng=rng)
+            mu = mu + sample_mismatch(setup.lattice, int(ds), mu_semi, size=size, rng=rng)
         nodes[k] = np.minimum(mu, 1.0)
     return (QuadratureRule.from_samples(nodes, name="mismatch"), np.ravel(index),
             f"distribution of signals uniform relative to the {setup.lattice} "
@@ -318,7 +318,7 @@ def _check_probability(value, name):
 
 def strain_sensitivity(setup, noise, bands=None, target=None, *, confidence=0.95,
                        false_alarm=0.01, threshold=None, false_alarm_scope="band",
-                       statistic="sum", model=None, **model_options):
+                       convention="total", model=None, **model_options):
     """Expected h0 sensitivity and depth per band of a directed search.
 
     Parameters
@@ -336,9 +336,9 @@ def strain_sensitivity(setup, noise, bands=None, target=None, *, confidence=0.95
         False-alarm probability of each band (``false_alarm_scope='band'``) or of the
         whole search (``'search'``: the trials are all the templates of all bands).
     threshold : float, optional
-        A threshold on the statistic instead of a false alarm (in ``statistic``
-        convention).
-    statistic : {'sum', 'mean'}
+        A threshold on the statistic instead of a false alarm (in the
+        ``convention`` given).
+    convention : {'total', 'per_segment'}
         Convention of ``threshold`` and of the threshold column.
     model : SignalModel, optional
         A model already built by :func:`signal_model` (then ``model_options`` are unused).
@@ -373,17 +373,17 @@ def strain_sensitivity(setup, noise, bands=None, target=None, *, confidence=0.95
         len(sm), sm.n_templates.sum())
     if threshold is None:
         threshold_sum = np.asarray(false_alarm_threshold(false_alarm, trials, sm.n_seg,
-                                                         "sum").value, float)
+                                                         "total").value, float)
     else:
         given = np.asarray(getattr(threshold, "value", threshold), float)
-        threshold_sum = np.broadcast_to(given * (sm.n_seg if statistic == "mean" else 1),
+        threshold_sum = np.broadcast_to(given * (sm.n_seg if convention == "per_segment" else 1),
                                         (len(sm),)).astype(float)
     depth = _depths(sm, threshold_sum, confidence)
     table = QTable()
     table["f_lo"], table["f_hi"], table["f_mid"] = sm.f_lo, sm.f_hi, sm.f_mid
     table["psd"] = sm.psd
     table["n_templates"] = sm.n_templates
-    table["threshold"] = (threshold_sum / sm.n_seg if statistic == "mean"
+    table["threshold"] = (threshold_sum / sm.n_seg if convention == "per_segment"
                           else threshold_sum) << u.one
     table["depth"] = depth << DEPTH_UNIT
     table["h0"] = np.sqrt(sm.psd.to_value(1 / u.Hz)) / depth << u.one
@@ -393,8 +393,8 @@ def strain_sensitivity(setup, noise, bands=None, target=None, *, confidence=0.95
                       f"{1 - confidence:g})",
         "threshold": (f"false alarm {false_alarm:g} per {false_alarm_scope}"
                       if threshold is None else f"given threshold {threshold:g}")
-                     + f"; statistic convention '{statistic}' "
-                       f"({'2F summed over' if statistic == 'sum' else '2F averaged over'}"
+                     + f"; 2F convention '{convention}' "
+                       f"({'2F summed over' if convention == 'total' else '2F averaged over'}"
                        " segments)",
         "meaning": "expected sensitivity of the search, not a measured limit",
     })

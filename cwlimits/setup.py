@@ -2,7 +2,7 @@
 
 :class:`SearchSetup` is one value that describes a semi-coherent (StackSlide) search: how
 many coherent segments of which length, which detectors, the maximum mismatch of the
-coarse (per-segment, coherent) and fine (semi-coherent) template grids and their lattice,
+coherent (per-segment) and semicoherent template grids and their lattice,
 the frequency band and the width of the reporting bands, the braking-index range of the
 age-based parameter space, and the per-template unit costs.  It is validated when it is
 built.
@@ -26,9 +26,9 @@ and ``band.f_max`` are required)::
     duty_factor = 1.0             # fraction of each segment with data, (0, 1]
 
     [grid]
-    mismatch_coarse = 0.3         # maximum mismatch of the coherent grid, (0, 1]
-    mismatch_fine = 0.3           # maximum mismatch of the semi-coherent grid, (0, 1]
-    lattice = "An*"               # "An*" or "Zn"
+    mismatch_coherent = 0.3         # maximum mismatch of the coherent grid, (0, 1]
+    mismatch_semicoherent = 0.3           # maximum mismatch of the semi-coherent grid, (0, 1]
+    lattice = "covering"          # "covering" (A_n*) or "cubic" (Z^n)
 
     [band]
     f_min = "50 Hz"               # lower edge of the searched band (frequency)
@@ -55,11 +55,11 @@ import astropy.units as u
 import numpy as np
 
 from . import _defaults
+from ._files import atomic_write
 from ._toml import load_toml
 from .errors import ConfigError, InputError
 from .lattices import _canonical as _canonical_lattice
 from .parameter_space import check_braking_range
-from .tables import atomic_write
 
 __all__ = ["SearchSetup", "load_setup", "SETUP_KEYS", "DEFAULT_UNIT_COSTS", "FORMAT"]
 
@@ -82,11 +82,12 @@ SETUP_KEYS = {
     "data.mid_times": ("mid_times", "quantities", u.s,
                        "segment mid-times from the start of the span (optional)"),
     "data.duty_factor": ("duty_factor", "float", None, "fraction of time with data"),
-    "grid.mismatch_coarse": ("mismatch_coarse", "float", None,
+    "grid.mismatch_coherent": ("mismatch_coherent", "float", None,
                              "maximum mismatch of the coherent grid"),
-    "grid.mismatch_fine": ("mismatch_fine", "float", None,
+    "grid.mismatch_semicoherent": ("mismatch_semicoherent", "float", None,
                            "maximum mismatch of the semi-coherent grid"),
-    "grid.lattice": ("lattice", "string", None, "template lattice: An* or Zn"),
+    "grid.lattice": ("lattice", "string", None,
+                     "template lattice: covering (A_n*) or cubic (Z^n)"),
     "band.f_min": ("f_min", "quantity", u.Hz, "lower band edge"),
     "band.f_max": ("f_max", "quantity", u.Hz, "upper band edge"),
     "band.width": ("band_width", "quantity", u.Hz, "width of the reporting bands"),
@@ -97,6 +98,9 @@ SETUP_KEYS = {
     "unit_cost.semicoherent": ("cost_semicoherent", "quantity", u.s,
                                "cost per template and segment (semi-coherent stage)"),
 }
+#: Keys of earlier versions, rejected with a message naming the key that replaced them.
+RETIRED_SETUP_KEYS = {"grid.mismatch_coarse": "grid.mismatch_coherent",
+                      "grid.mismatch_fine": "grid.mismatch_semicoherent"}
 _REQUIRED = ("data.t_seg", "data.n_seg", "band.f_min", "band.f_max")
 # field of a validation error -> the TOML key to name in a ConfigError
 _FIELD_KEY = {spec[0]: key for key, spec in SETUP_KEYS.items()}
@@ -154,11 +158,11 @@ class SearchSetup:
         ``(f_min, f_max)`` of the searched gravitational-wave band, ``0 < f_min < f_max``.
     detectors : sequence of str
         Detector site codes (two characters, e.g. ``"H1"``); default ``("H1", "L1")``.
-    mismatch_coarse, mismatch_fine : float
+    mismatch_coherent, mismatch_semicoherent : float
         Maximum mismatch of the coherent and semi-coherent grids, in (0, 1]; default 0.3
         (a round value, not an optimum).
     lattice : str
-        ``"An*"`` (default) or ``"Zn"``.
+        ``"covering"`` (default) or ``"cubic"``.
     band_width : Quantity ['frequency']
         Width of the reporting bands (default 1 Hz); the last band may be narrower.
     braking_index : (float, float)
@@ -186,9 +190,9 @@ class SearchSetup:
     n_seg: int
     band: tuple
     detectors: tuple = ("H1", "L1")
-    mismatch_coarse: float = 0.3
-    mismatch_fine: float = 0.3
-    lattice: str = "An*"
+    mismatch_coherent: float = 0.3
+    mismatch_semicoherent: float = 0.3
+    lattice: str = "covering"
     band_width: u.Quantity = 1 * u.Hz
     braking_index: tuple = (2.0, 7.0)
     cost_coherent: u.Quantity = field(default_factory=lambda: DEFAULT_UNIT_COSTS["coherent"])
@@ -228,8 +232,9 @@ class SearchSetup:
         if len(set(dets)) != len(dets):
             _fail("detectors", "a detector is listed twice", list(dets))
         put("detectors", dets)
-        put("mismatch_coarse", _unit_interval(self.mismatch_coarse, "mismatch_coarse"))
-        put("mismatch_fine", _unit_interval(self.mismatch_fine, "mismatch_fine"))
+        put("mismatch_coherent", _unit_interval(self.mismatch_coherent, "mismatch_coherent"))
+        put("mismatch_semicoherent", _unit_interval(self.mismatch_semicoherent,
+                                                    "mismatch_semicoherent"))
         try:
             put("lattice", _canonical_lattice(self.lattice))
         except InputError as exc:
@@ -355,8 +360,8 @@ class SearchSetup:
                         f"({'contiguous' if self.contiguous else 'with gaps'}, span "
                         f"{self.total_span:.6g})",
             "detectors": ",".join(self.detectors),
-            "grid": f"{self.lattice} lattice, maximum mismatch {self.mismatch_coarse:g} "
-                    f"(coherent) and {self.mismatch_fine:g} (semi-coherent)",
+            "grid": f"{self.lattice} lattice, maximum mismatch {self.mismatch_coherent:g} "
+                    f"(coherent) and {self.mismatch_semicoherent:g} (semi-coherent)",
             "braking_index": f"{n_min:g} to {n_max:g}",
             "unit_costs": f"{self.cost_coherent} per coherent template per detector per "
                           f"segment; {self.cost_semicoherent} per semi-coherent template "
@@ -396,6 +401,12 @@ class SearchSetup:
 
     def to_toml(self, path):
         """Write the setup as a TOML file that :meth:`from_toml` reads back unchanged."""
+        text = self.toml_text()
+        atomic_write(path, lambda handle: handle.write(text))
+        return Path(path)
+
+    def toml_text(self):
+        """The text of the setup file that :meth:`to_toml` writes."""
         n_min, n_max = self.braking_index
         data = {"t_seg": self.t_seg, "n_seg": self.n_seg, "detectors": list(self.detectors)}
         if self.span is not None:
@@ -405,8 +416,8 @@ class SearchSetup:
         data["duty_factor"] = self.duty_factor
         sections = {
             "data": data,
-            "grid": {"mismatch_coarse": self.mismatch_coarse,
-                     "mismatch_fine": self.mismatch_fine, "lattice": self.lattice},
+            "grid": {"mismatch_coherent": self.mismatch_coherent,
+                     "mismatch_semicoherent": self.mismatch_semicoherent, "lattice": self.lattice},
             "band": {"f_min": self.f_min, "f_max": self.f_max, "width": self.band_width},
             "spin_down": {"braking_index_min": n_min, "braking_index_max": n_max},
             "unit_cost": {"coherent": self.cost_coherent,
@@ -420,12 +431,7 @@ class SearchSetup:
                 desc = SETUP_KEYS[f"{section}.{key}"][3]
                 lines.append(f"{key} = {_toml_value(value)}  # {desc}")
             lines.append("")
-
-        def write(handle):
-            handle.write("\n".join(lines))
-
-        atomic_write(path, write)
-        return Path(path)
+        return "\n".join(lines)
 
 
 def load_setup(path, *, extra_sections=()):
@@ -469,6 +475,9 @@ def _read_document(doc, path, extra):
     for section in sections:
         for key, value in doc.get(section, {}).items():
             full = f"{section}.{key}"
+            if full in RETIRED_SETUP_KEYS:
+                raise ConfigError(f"key '{full}' was renamed: write "
+                                  f"'{RETIRED_SETUP_KEYS[full]}' instead", file=path)
             if full not in SETUP_KEYS:
                 allowed = ", ".join(k.split(".")[1] for k in SETUP_KEYS
                                     if k.startswith(section + "."))

@@ -23,6 +23,16 @@ Only the parent process writes (workers return their results to it).  The file u
 SQLite's write-ahead log; a transaction that was not committed when the process died is
 rolled back when the file is next opened, as SQLite guarantees.
 
+Two processes running the same command on one store share the work: before computing a
+chunk, a process *claims* it (:meth:`ResultStore.claim_chunk`); the other skips chunks that
+are claimed by a live process or finished, and reads them from the store once they are
+committed.  No chunk is computed twice unless its claimer dies first.
+
+The file is created only when the first part of a run begins (after every input was
+accepted), so a command refused for bad input leaves no store behind.  It is marked as
+ours by an ``identity`` row in its ``meta`` table (:func:`is_store`); ``cwlimits store
+--clear`` deletes nothing else.
+
 Final tables are not kept here: they are written with :func:`cwlimits.tables.write_table`
 (atomically, with units and assumptions) from the arrays this store gives back.
 """
@@ -44,13 +54,18 @@ import numpy as np
 from . import _defaults
 from .errors import ComputationError, ConfigError, InputError
 
-__all__ = ["ResultStore", "open_store", "config_hash", "canonical_json", "file_hash",
-           "STORE_NAME"]
+__all__ = ["ResultStore", "open_store", "is_store", "config_hash", "canonical_json",
+           "file_hash", "STORE_NAME"]
 
 #: File name of the store inside an output folder.
 STORE_NAME = _defaults.STORE_NAME
 
 _SCHEMA_VERSION = "1"
+#: Value of the ``identity`` row of the ``meta`` table: what marks an SQLite file as ours.
+STORE_IDENTITY = "cwlimits results store"
+#: Seconds a claim from another host stays live (its process cannot be checked from here).
+CLAIM_TIMEOUT_S = 6 * 3600.0
+_SQLITE_HEADER = b"SQLite format 3\x00"
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
 CREATE TABLE IF NOT EXISTS runs (
@@ -71,6 +86,10 @@ CREATE TABLE IF NOT EXISTS chunk_arrays (
     run_id TEXT NOT NULL, part TEXT NOT NULL, chunk INTEGER NOT NULL, name TEXT NOT NULL,
     position INTEGER NOT NULL, data BLOB NOT NULL,
     PRIMARY KEY (run_id, part, chunk, name));
+CREATE TABLE IF NOT EXISTS claims (
+    run_id TEXT NOT NULL, part TEXT NOT NULL, chunk INTEGER NOT NULL,
+    session_id INTEGER NOT NULL, pid INTEGER NOT NULL, host TEXT NOT NULL,
+    claimed_at TEXT NOT NULL, PRIMARY KEY (run_id, part, chunk));
 CREATE TABLE IF NOT EXISTS chunk_log (
     run_id TEXT NOT NULL, part TEXT NOT NULL, chunk INTEGER NOT NULL,
     session_id INTEGER NOT NULL, finished_at TEXT NOT NULL);
@@ -79,6 +98,61 @@ CREATE TABLE IF NOT EXISTS chunk_log (
 
 def _now():
     return datetime.datetime.now(datetime.UTC).isoformat(timespec="microseconds")
+
+
+def _meta(db, key):
+    row = db.execute("SELECT value FROM meta WHERE key = ?", (key,)).fetchone()
+    return None if row is None else row[0]
+
+
+def _pid_alive(pid):
+    try:
+        os.kill(int(pid), 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:  # exists, owned by someone else
+        return True
+    except OSError:
+        return False
+    return True
+
+
+def _claim_is_live(pid, host, claimed_at):
+    """Whether the process that claimed a chunk may still be computing it."""
+    if host == socket.gethostname():
+        return pid != os.getpid() and _pid_alive(pid)
+    age = datetime.datetime.now(datetime.UTC) - datetime.datetime.fromisoformat(claimed_at)
+    return age.total_seconds() < CLAIM_TIMEOUT_S
+
+
+def is_store(path):
+    """Whether ``path`` is verifiably a cwlimits results store (never modifies it).
+
+    It must be a regular file (not a link) that starts with the SQLite header and holds
+    the ``meta`` table with this store's identity (or, for stores written before the
+    identity row, its schema row and the ``runs`` and ``chunks`` tables).
+    """
+    path = Path(path)
+    if path.is_symlink() or not path.is_file():
+        return False
+    try:
+        with open(path, "rb") as handle:
+            if handle.read(len(_SQLITE_HEADER)) != _SQLITE_HEADER:
+                return False
+        db = sqlite3.connect(f"{path.resolve().as_uri()}?mode=ro", uri=True, timeout=5.0)
+    except (OSError, sqlite3.Error):
+        return False
+    try:
+        tables = {name for (name,) in db.execute(
+            "SELECT name FROM sqlite_master WHERE type = 'table'")}
+        if not {"meta", "runs", "chunks"} <= tables:
+            return False
+        identity, schema = _meta(db, "identity"), _meta(db, "schema")
+        return identity == STORE_IDENTITY or (identity is None and schema is not None)
+    except sqlite3.Error:
+        return False
+    finally:
+        db.close()
 
 
 # --- configuration hashing ------------------------------------------------------------
@@ -225,48 +299,76 @@ class ResultStore:
     Parameters
     ----------
     path : str or Path
-        The SQLite file; created (with its folder) if missing.  Use :func:`open_store` to
-        get the store of an output folder.
+        The SQLite file.  An existing one is opened (and checked to be a cwlimits store)
+        at once; a missing one is created (with its folder) only when the first part of a
+        run begins (:meth:`begin_part`), so a run refused before any work leaves nothing.
+        Use :func:`open_store` to get the store of an output folder.
 
     Notes
     -----
     Use it as a context manager or call :meth:`close`.  One object belongs to one process
-    (the parent of any workers): it is the only writer, and the first chunk it saves opens
-    a new *session* record (pid, host, time).
+    (the parent of any workers): it is that process's only writer, and the first chunk it
+    claims or saves opens a new *session* record (pid, host, time).  Other processes may
+    work on the same file at the same time (:meth:`claim_chunk`).
     """
 
     def __init__(self, path):
         self.path = Path(path)
+        self._db = None
+        self._session = None
+        # Runs begun before the file exists: written when the first part begins, so a run
+        # refused for bad input (before any work) leaves no store behind (issue 14).
+        self._pending_runs = {}
+        if self.path.exists() or self.path.is_symlink():
+            self._connect()
+
+    def _connect(self):
+        """Open (creating if missing) the SQLite file and check that it is a store of ours."""
         try:
             self.path.parent.mkdir(parents=True, exist_ok=True)
             # timeout: wait for another cwlimits process that is writing the same store.
-            self._db = sqlite3.connect(self.path, timeout=60.0, isolation_level=None)
+            db = sqlite3.connect(self.path, timeout=60.0, isolation_level=None)
         except (OSError, sqlite3.Error) as exc:
             raise InputError(f"cannot open the results store: {exc}",
                              file=str(self.path)) from None
         try:
+            existing = {name for (name,) in db.execute(
+                "SELECT name FROM sqlite_master WHERE type = 'table'")}
+            if existing and not {"meta", "runs", "chunks"} <= existing:
+                raise sqlite3.DatabaseError("an SQLite file without the cwlimits tables")
             # WAL: readers (a progress check, a test) never block the writer; FULL sync
             # makes every committed chunk durable.  Chunks are large, so commits are rare.
-            self._db.execute("PRAGMA journal_mode=WAL")
-            self._db.execute("PRAGMA synchronous=FULL")
-            self._db.execute("PRAGMA foreign_keys=ON")
-            with self._transaction():
+            db.execute("PRAGMA journal_mode=WAL")
+            db.execute("PRAGMA synchronous=FULL")
+            db.execute("PRAGMA foreign_keys=ON")
+            with _Transaction(db):
                 for statement in filter(str.strip, _SCHEMA.split(";")):
-                    self._db.execute(statement)
-                self._db.execute("INSERT OR IGNORE INTO meta VALUES ('schema', ?)",
-                                 (_SCHEMA_VERSION,))
-            (version,) = self._db.execute(
-                "SELECT value FROM meta WHERE key = 'schema'").fetchone()
+                    db.execute(statement)
+                db.execute("INSERT OR IGNORE INTO meta VALUES ('schema', ?)",
+                           (_SCHEMA_VERSION,))
+                db.execute("INSERT OR IGNORE INTO meta VALUES ('identity', ?)",
+                           (STORE_IDENTITY,))
+            version = _meta(db, "schema")
         except sqlite3.DatabaseError as exc:
-            self._db.close()
+            db.close()
             raise InputError(f"not a cwlimits results store ({exc}); remove it or choose "
                              "another output folder", file=str(self.path)) from None
         if version != _SCHEMA_VERSION:
-            self._db.close()
+            db.close()
             raise InputError(f"results store has schema version {version}, this cwlimits "
                              f"reads version {_SCHEMA_VERSION}; choose another output folder",
                              file=str(self.path))
-        self._session = None
+        self._db = db
+        for run_id, text in self._pending_runs.items():
+            with self._transaction():
+                self._db.execute("INSERT OR IGNORE INTO runs VALUES (?, ?, ?)",
+                                 (run_id, text, _now()))
+        self._pending_runs = {}
+
+    def _require_db(self):
+        if self._db is None:
+            self._connect()
+        return self._db
 
     # context manager and transactions
     def __enter__(self):
@@ -276,11 +378,30 @@ class ResultStore:
         self.close()
 
     def close(self):
-        """Close the database connection (committed chunks are already safe)."""
+        """Close the database connection (committed chunks are already safe).
+
+        Claims of this session on chunks it did not finish are released, so another
+        process can compute them at once.
+        """
+        if self._db is None:
+            return
+        if self._session is not None:
+            try:
+                with self._transaction():
+                    self._db.execute("DELETE FROM claims WHERE session_id = ?",
+                                     (self._session,))
+            except sqlite3.Error:  # a dead claim is also recognised by its pid later
+                pass
         self._db.close()
+        self._db = None
 
     def _transaction(self):
-        return _Transaction(self._db)
+        return _Transaction(self._require_db())
+
+    @property
+    def exists(self):
+        """Whether the store's file has been created (it is, when the first part begins)."""
+        return self._db is not None
 
     @property
     def session_id(self):
@@ -291,6 +412,7 @@ class ResultStore:
         if self._session is None:
             from . import __version__
 
+            self._require_db()
             with self._transaction():
                 cursor = self._db.execute(
                     "INSERT INTO sessions (pid, host, started_at, cwlimits_version) "
@@ -315,6 +437,9 @@ class ResultStore:
 
         full = {"config": config, "cwlimits_version": __version__}
         run_id = config_hash(full)
+        if self._db is None:
+            self._pending_runs[run_id] = canonical_json(full)
+            return run_id
         with self._transaction():
             self._db.execute("INSERT OR IGNORE INTO runs VALUES (?, ?, ?)",
                              (run_id, canonical_json(full), _now()))
@@ -322,6 +447,10 @@ class ResultStore:
 
     def run_config(self, run_id):
         """The configuration recorded for a run, as parsed JSON."""
+        if run_id in self._pending_runs:
+            return json.loads(self._pending_runs[run_id])["config"]
+        if self._db is None:
+            raise InputError(f"no run {run_id!r} in the results store", file=str(self.path))
         row = self._db.execute("SELECT config FROM runs WHERE run_id = ?",
                                (run_id,)).fetchone()
         if row is None:
@@ -358,14 +487,18 @@ class ResultStore:
             not fit.  The run configuration must include everything that changes results.
         """
         self.run_config(run_id)  # raises for an unknown run
-        row = self._db.execute(
-            "SELECT n_items, chunk_size, seed FROM parts WHERE run_id = ? AND part = ?",
-            (run_id, part)).fetchone()
-        if row is None:
-            with self._transaction():
+        self._require_db()  # the file is created here, once the inputs were accepted
+        # Read and insert in one write transaction: two processes starting the same part
+        # at once agree on one record (and so on one seed).
+        with self._transaction():
+            row = self._db.execute(
+                "SELECT n_items, chunk_size, seed FROM parts WHERE run_id = ? AND part = ?",
+                (run_id, part)).fetchone()
+            if row is None:
                 self._db.execute("INSERT INTO parts VALUES (?, ?, ?, ?, ?, ?)",
                                  (run_id, part, int(n_items), int(chunk_size),
                                   _seed_record(seed), _now()))
+        if row is None:
             return seed
         stored_n, stored_size, stored_seed = row
         for label, stored, now in (("number of items", stored_n, n_items),
@@ -385,6 +518,8 @@ class ResultStore:
     # chunks
     def finished_chunks(self, run_id, part=""):
         """The set of chunk indices of a part that are in the store."""
+        if self._db is None:
+            return set()
         rows = self._db.execute("SELECT chunk FROM chunks WHERE run_id = ? AND part = ?",
                                 (run_id, part))
         return {index for (index,) in rows}
@@ -406,10 +541,47 @@ class ResultStore:
                  for name, position, blob in blobs])
             self._db.execute("INSERT INTO chunk_log VALUES (?, ?, ?, ?, ?)",
                              (run_id, part, index, session, finished))
+            self._db.execute("DELETE FROM claims WHERE run_id = ? AND part = ? AND chunk = ?",
+                             (run_id, part, index))
+
+    def claim_chunk(self, run_id, part, index):
+        """Claim chunk ``index`` of a part for this process, unless it is done or taken.
+
+        Two processes running the same command on one store share the work: each claims
+        a chunk before computing it, and skips the chunks the other has claimed or
+        finished (:func:`cwlimits.executor.map_chunks` waits for those at the end and
+        reads them from the store).
+
+        Returns
+        -------
+        str
+            ``"done"`` (committed, by anyone), ``"taken"`` (claimed by another live
+            process) or ``"mine"`` (claimed now by this one: compute it).
+
+        Notes
+        -----
+        A claim is live while its process runs: on this host, while its pid exists (and
+        is not this process's own earlier session); a claim from another host, for
+        :data:`CLAIM_TIMEOUT_S` seconds.  Claims of a closed store are released.
+        """
+        session = self._ensure_session()
+        with self._transaction():
+            if self._db.execute("SELECT 1 FROM chunks WHERE run_id = ? AND part = ? AND "
+                                "chunk = ?", (run_id, part, index)).fetchone():
+                return "done"
+            row = self._db.execute(
+                "SELECT session_id, pid, host, claimed_at FROM claims WHERE run_id = ? AND "
+                "part = ? AND chunk = ?", (run_id, part, index)).fetchone()
+            if row is not None and row[0] != session and _claim_is_live(*row[1:]):
+                return "taken"
+            self._db.execute("INSERT OR REPLACE INTO claims VALUES (?, ?, ?, ?, ?, ?, ?)",
+                             (run_id, part, index, session, os.getpid(),
+                              socket.gethostname(), _now()))
+        return "mine"
 
     def load_chunk(self, run_id, part, index):
         """The arrays of one chunk, in the order they were returned, as a dict."""
-        rows = self._db.execute(
+        rows = [] if self._db is None else self._db.execute(
             "SELECT name, data FROM chunk_arrays WHERE run_id = ? AND part = ? AND chunk = ?"
             " ORDER BY position", (run_id, part, index)).fetchall()
         if not rows:
@@ -429,11 +601,23 @@ class ResultStore:
                  "AND (?2 IS NULL OR l.part = ?2) ORDER BY l.rowid")
         keys = ("run_id", "part", "chunk", "session_id", "pid", "host", "started_at",
                 "finished_at")
+        if self._db is None:
+            return []
         return [dict(zip(keys, row, strict=True))
                 for row in self._db.execute(query, (run_id, part))]
 
+    def live_claims(self):
+        """``"pid@host"`` of every other live process holding a claim on a chunk here."""
+        if self._db is None:
+            return []
+        rows = self._db.execute("SELECT DISTINCT pid, host, claimed_at FROM claims")
+        return sorted({f"{pid}@{host}" for pid, host, at in rows
+                       if _claim_is_live(pid, host, at)})
+
     def runs(self):
         """The run ids in the store, oldest first."""
+        if self._db is None:
+            return list(self._pending_runs)
         return [run_id for (run_id,) in
                 self._db.execute("SELECT run_id FROM runs ORDER BY created_at, run_id")]
 

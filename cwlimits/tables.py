@@ -9,8 +9,8 @@ Every table cwlimits writes carries units and the assumptions behind its numbers
 * **ECSV** (astropy's self-describing format): units in the column metadata, the
   assumptions in the table metadata under ``assumptions``.
 
-A table is written to a temporary file beside its destination and renamed, so no reader
-ever sees half a file and a failed run leaves nothing behind.
+A table is written by the one atomic writer of cwlimits (:func:`cwlimits._files.atomic_write`):
+to a temporary file beside its destination, renamed when complete, with the umask's mode.
 
 Reading is the mirror image: :func:`read_table` gives a :class:`RawTable` of text cells with
 the file line of every row, and :meth:`RawTable.quantity` turns a column into a Quantity,
@@ -20,19 +20,18 @@ raising errors that name the file, row, column and value.
 import csv
 import io
 import math
-import os
 import re
-import tempfile
 from pathlib import Path
 
 import astropy.units as u
 import numpy as np
 from astropy.table import MaskedColumn, Table
 
+from ._files import atomic_write
 from ._units import parse_unit
 from .errors import InputError, TableError
 
-__all__ = ["RawTable", "read_table", "write_table", "atomic_write", "neutralise_cell"]
+__all__ = ["RawTable", "read_table", "write_table", "neutralise_cell"]
 
 _HEADER = re.compile(r"^\s*(?P<name>[^\[\]]*?)\s*(?:\[(?P<unit>[^\[\]]*)\])?\s*$")
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
@@ -254,24 +253,6 @@ def _read_ecsv(path, text, error):
                          for i, v in enumerate(np.asarray(col).tolist())]
         units[name] = col.unit
     return RawTable(path, columns, units, lines, dict(table.meta), error)
-
-
-def atomic_write(path, write):
-    """Call ``write(file_object)`` on a temporary file, then rename it to ``path``.
-
-    The temporary file lives beside ``path``, so the rename is atomic; on any error it is
-    removed and ``path`` is left as it was.
-    """
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="") as handle:
-            write(handle)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
 
 
 def _cell(value):

@@ -8,8 +8,8 @@ column                    default unit meaning
 ========================  ===========  ========================================================
 ``name``                  --           unique name of the target (required)
 ``ra``, ``dec``           deg          sky position (ICRS): degrees, or sexagesimal text such
-                                       as ``05h34m31.9s`` / ``+22d00m52s`` or ``05:34:31.9`` /
-                                       ``+22:00:52`` (RA in hours, Dec in degrees)
+                                       as ``04h12m37s`` / ``+31d47m10s`` or ``04:12:37`` /
+                                       ``+31:47:10`` (RA in hours, Dec in degrees)
 ``l``, ``b``              deg          galactic position, instead of ``ra``/``dec``
 ``distance``              kpc          nominal distance (required)
 ``distance_min/_max``     kpc          optional range; one side missing means the nominal value
@@ -302,13 +302,13 @@ def _angle(table, i, column, cell):
         angle = (value * default).to(u.deg)
     else:
         # Sexagesimal: RA in hours (common practice), everything else in degrees; a cell
-        # that names its own unit ('12h30m', '83.6d') keeps it.
+        # that names its own unit ('12h30m', '63.2d') keeps it.
         unit = u.hourangle if column == "ra" else u.deg
         try:
             angle = Angle(cell, unit=unit).to(u.deg)
         except (ValueError, u.UnitsError):
             table.fail("cannot read this as an angle (degrees, or sexagesimal such as "
-                       "'05h34m31.9s' / '+22d00m52s' / '05:34:31.9')", i, column, cell)
+                       "'04h12m37s' / '+31d47m10s' / '04:12:37')", i, column, cell)
     if column in ("dec", "b") and abs(angle.to_value(u.deg)) > 90:
         table.fail("latitude must lie in [-90, 90] degrees", i, column, cell)
     if column in ("ra", "l") and not 0 <= angle.to_value(u.deg) < 360 + 1e-9:

@@ -37,7 +37,7 @@ from . import detection as det
 from ._units import to_value
 from .errors import InputError
 from .executor import map_chunks
-from .fstat import _abc, _coherent_stage, _semicoherent_stage, _twoF
+from .fstat import _abc, _coherent_stage, _semicoherent_stage, _two_f
 from .response import (
     SIDEREAL_DAY,
     _as_time,
@@ -112,7 +112,7 @@ class CampaignResult:
         Samples per segment.
     model_h0, model_curve : ndarray
         The model's P_det on a fine h0 grid (for plots).
-    twoF : ndarray
+    two_f : ndarray
         2F_sum at the injected template of every injection, shape (n_h0, n_injections).
     """
 
@@ -133,7 +133,7 @@ class CampaignResult:
     n_samples: int = 0
     model_h0: np.ndarray = field(default=None, repr=False)
     model_curve: np.ndarray = field(default=None, repr=False)
-    twoF: np.ndarray = field(default=None, repr=False)
+    two_f: np.ndarray = field(default=None, repr=False)
 
 
 def _crossing(log_h0, curve, level):
@@ -235,8 +235,8 @@ def _campaign_chunk(chunk, rng, *, a, b, tau, psd_hz, b_hz, n_bins, lo_bin, guar
     ``chunk['h0']`` holds the amplitude of every injection; ``a``, ``b`` are
     sin(zeta) a(t), sin(zeta) b(t) of shape (n_det, n_seg, M), ``tau`` (n_seg, M) the
     sample times from the reference time, ``psd_hz`` (n_det,) the flat one-sided PSDs.
-    Returns 2F_sum at the injected template (``twoF``), the largest 2F_sum of the
-    templates more than ``guard`` bins away (``twoF_far``; NaN if there is none), the
+    Returns 2F_sum at the injected template (``two_f``), the largest 2F_sum of the
+    templates more than ``guard`` bins away (``two_f_far``; NaN if there is none), the
     number of those templates (``n_far``) and how many of them exceed ``threshold``
     (``n_far_above``).
     """
@@ -252,8 +252,8 @@ def _campaign_chunk(chunk, rng, *, a, b, tau, psd_hz, b_hz, n_bins, lo_bin, guar
     no_shift = np.zeros(n_seg, dtype=int)  # fdot = 0: StackSlide shifts vanish
     # flat PSD: white circular complex noise with E|z|^2 = S_n B / 2 (cwlimits.synthetic)
     sigma = np.sqrt(psd_hz * b_hz / 4.0)[:, None, None]
-    twoF_inj = np.empty(h0.size)
-    twoF_far = np.full(h0.size, np.nan)
+    two_f_inj = np.empty(h0.size)
+    two_f_far = np.full(h0.size, np.nan)
     n_far = np.zeros(h0.size, dtype=np.int64)
     n_far_above = np.zeros(h0.size, dtype=np.int64)
     bins = np.arange(n_bins)
@@ -279,17 +279,17 @@ def _campaign_chunk(chunk, rng, *, a, b, tau, psd_hz, b_hz, n_bins, lo_bin, guar
         a_t = np.broadcast_to(a[:, None], (n_det, nb, n_seg, m)).reshape(wz.shape)
         b_t = np.broadcast_to(b[:, None], (n_det, nb, n_seg, m)).reshape(wz.shape)
         fa, fb = _coherent_stage(wz, a_t, b_t, 0.0, dt, m)
-        twoF_k = _twoF(fa, fb, *(np.tile(x, nb)[:, None] for x in (A, B, C)))
-        twoF_k = twoF_k.reshape(nb, n_seg, m)
+        two_f_k = _two_f(fa, fb, *(np.tile(x, nb)[:, None] for x in (A, B, C)))
+        two_f_k = two_f_k.reshape(nb, n_seg, m)
         for i in range(nb):
-            twoF = _semicoherent_stage(twoF_k[i], no_shift, first, n_bins)
-            twoF_inj[lo + i] = twoF[k[i]]
+            two_f = _semicoherent_stage(two_f_k[i], no_shift, first, n_bins)
+            two_f_inj[lo + i] = two_f[k[i]]
             far = np.abs(bins - k[i]) > guard
             n_far[lo + i] = far.sum()
-            n_far_above[lo + i] = np.sum(twoF[far] > threshold)
+            n_far_above[lo + i] = np.sum(two_f[far] > threshold)
             if far.any():
-                twoF_far[lo + i] = twoF[far].max()
-    return {"twoF": twoF_inj, "twoF_far": twoF_far, "n_far": n_far,
+                two_f_far[lo + i] = two_f[far].max()
+    return {"two_f": two_f_inj, "two_f_far": two_f_far, "n_far": n_far,
             "n_far_above": n_far_above}
 
 
@@ -468,14 +468,14 @@ def injection_campaign(coord, *, detectors="H1", psd=1e-46 * PSD_UNIT, f_ref=100
     out = map_chunks(func, {"h0": np.repeat(h0, n_injections)}, chunk_size=int(chunk_size),
                      executor=executor, seed=rng, store=store, key=key, progress=progress,
                      desc="injections")
-    twoF = out["twoF"].reshape(h0.size, n_injections)
-    detected = np.sum(twoF > threshold, axis=1)
+    two_f = out["two_f"].reshape(h0.size, n_injections)
+    detected = np.sum(two_f > threshold, axis=1)
     # Crossings by templates beyond the injections' sidebands: each is chi^2_4N alone, so
     # their expected number is exact even though neighbouring templates are correlated
     # through a(t), b(t) (which makes "any template crossed" rarer than for independent
     # templates: the independent-template threshold is slightly conservative).
     false_alarms = int(np.sum(out["n_far_above"]))
-    far = out["twoF_far"]
+    far = out["two_f_far"]
     false_alarm_injections = int(np.sum(far[np.isfinite(far)] > threshold))
     # each searched template crosses alone with 1 - (1 - p)^(1/n) (independent templates)
     per_template = 1.0 - (1.0 - float(false_alarm)) ** (1.0 / n_templates)
@@ -530,7 +530,7 @@ def injection_campaign(coord, *, detectors="H1", psd=1e-46 * PSD_UNIT, f_ref=100
                           false_alarm_injections=false_alarm_injections,
                           interval=float(interval), t_seg=t_seg_s * u.s, bandwidth=band,
                           n_samples=m, model_h0=model_h0, model_curve=model_curve,
-                          twoF=twoF)
+                          two_f=two_f)
 
 
 def plot_efficiency(result, title=None):

@@ -33,12 +33,13 @@ CRAB_F_ROT_HZ = 29.78
 CRAB_FDOT_HZ_S = -3.7e-10
 CRAB_DISTANCE_KPC = 2.0
 
-#: Age-based limit 1.26e-24 (3.3 kpc / d) (300 yr / age)^(1/2) I_38^(1/2), n = 5.
-AGE_LIMIT_NORMALISATION = Reference(
-    1.26e-24, "", 5e-3, "quoted to three figures",
-    "Wette et al. 2008, CQG 25, 235011, arXiv:0802.3332, eq. (6) (equation number from memory)")
-AGE_LIMIT_DISTANCE_KPC = 3.3
-AGE_LIMIT_AGE_YR = 300.0
+#: Where the age-based limit is stated and tested: 1 kpc and 1 kyr, n = 5, I = 1e38 kg m^2.
+#: The expected value is the closed-form energy balance h_age = (1/d) sqrt(5 G I/(8 c^3 age))
+#: of Wette et al. 2008, CQG 25, 235011, arXiv:0802.3332, eq. (6) (equation number from
+#: memory), evaluated in the test with astropy's G and c; tolerance 1e-12: float rounding.
+AGE_LIMIT_DISTANCE_KPC = 1.0
+AGE_LIMIT_AGE_YR = 1000.0
+AGE_LIMIT_RTOL = 1e-12
 
 #: r-mode amplitude alpha = 0.028 (h0/1e-24)(d/1 kpc)(100 Hz/f)^3 for the fiducial star.
 RMODE_COEFFICIENT = Reference(

@@ -27,7 +27,7 @@ def test_simulated_loudest_follows_the_order_statistic():
         def cdf(x, nt=n_templates, df=4 * n_seg):
             return np.exp(nt * stats.chi2.logcdf(x, df))
         assert stats.kstest(res.loudest, cdf).pvalue > 1e-3
-    assert res.statistic == "sum" and res.source == "simulated"
+    assert res.convention == "total" and res.source == "simulated"
 
 
 def test_simulated_results_are_reproducible():

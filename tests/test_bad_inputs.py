@@ -158,7 +158,7 @@ _bands = st.lists(st.tuples(st.floats(0.01, 10), st.floats(0, 1e4)), min_size=1,
 )
 @given(bands=_bands, start=st.floats(10, 1000))
 def test_generated_results_tables(tmp_path, bands, start):
-    lines, f = ["f_lo [Hz],width [Hz],loudest_2F_sum"], start
+    lines, f = ["f_lo [Hz],width [Hz],loudest_2F"], start
     for width, stat in bands:
         lines.append(f"{f!r},{width!r},{stat!r}")
         f += width

@@ -199,3 +199,17 @@ def test_internal_error_exit_1(monkeypatch, capsys, demo_catalogue_path):
     assert main(["indirect", str(demo_catalogue_path)]) == 1
     err = capsys.readouterr().err
     assert "internal error" in err and "--verbose" in err and "Traceback" not in err
+
+
+@pytest.mark.parametrize("argv, new", [
+    (["cost", "--age", "1kyr", "--t-seg", "1day", "--n-seg", "2", "--f-min", "100Hz",
+      "--f-max", "101Hz", "--mismatch-coarse", "0.2"], "--mismatch-coherent"),
+    (["cost", "--age", "1kyr", "--t-seg", "1day", "--n-seg", "2", "--f-min", "100Hz",
+      "--f-max", "101Hz", "--mismatch-fine=0.2"], "--mismatch-semicoherent"),
+    (["sensitivity", "--statistic", "mean"], "--convention"),
+])
+def test_retired_options_name_their_replacement(argv, new, capsys):
+    # options of earlier versions: exit 2 and a message naming the option that replaced it
+    assert main(argv) == 2
+    err = capsys.readouterr().err
+    assert err.startswith("error: option --") and f"use {new}" in err

@@ -43,20 +43,20 @@ def _setup(**kw):
 def test_coherent_count_is_theta_mu_sqrtdet_volume():
     # reference: N = theta mu^(-n/2) sqrt(det g) V (Prix 2007, arXiv:0707.0428) with
     # theta(A_3*) from Conway & Sloane and sqrt(det g) = pi^3 T^6/(360 sqrt 105)
-    s = _setup(mismatch_coarse=0.2)
-    row = count_templates(s, 300 * u.yr)[0]
+    s = _setup(mismatch_coherent=0.2)
+    row = count_templates(s, 250 * u.yr)[0]
     want = (normalised_thickness_anstar(3) * 0.2 ** -1.5 * coherent_sqrt_det_3(20 * DAY)
-            * _volume3(400.0, 500.0, 300 * YR))
+            * _volume3(400.0, 500.0, 250 * YR))
     assert row["dims_coh"] == 3
     assert row["n_coh"] == pytest.approx(want, rel=1e-10)
     assert row["volume_3"].to_value(u.Hz ** 3 / u.s ** 3) == pytest.approx(
-        _volume3(400.0, 500.0, 300 * YR), rel=1e-12)
-    zn = count_templates(s.replace(lattice="Zn"), 300 * u.yr)[0]
+        _volume3(400.0, 500.0, 250 * YR), rel=1e-12)
+    zn = count_templates(s.replace(lattice="cubic"), 250 * u.yr)[0]
     assert zn["n_coh"] / row["n_coh"] == pytest.approx(
         normalised_thickness_zn(3) / normalised_thickness_anstar(3), rel=1e-12)
 
 
-@pytest.mark.parametrize("kind", ["An*", "Zn"])
+@pytest.mark.parametrize("kind", ["covering", "cubic"])
 def test_density_formula_counts_actual_lattice_templates(kind):
     # reference: the definition of the count - the number of templates of an actual bank
     # (cwlimits.lattices.nearest_template) inside a box in (f, fdot) - against
@@ -75,7 +75,7 @@ def test_density_formula_counts_actual_lattice_templates(kind):
     templates, _ = nearest_template(pts, g, mu, kind, origin=lo)
     found = np.unique(np.round((templates - lo) / widths, 9), axis=0)
     inside = np.all((found >= 0) & (found < 1), axis=1).sum()
-    s = _setup(t_seg=1 * u.day, lattice=kind, mismatch_coarse=mu)
+    s = _setup(t_seg=1 * u.day, lattice=kind, mismatch_coherent=mu)
     box = BoxSpace((lo[0] * u.Hz, (lo[0] + widths[0]) * u.Hz),
                    (lo[1] * u.Hz / u.s, (lo[1] + widths[1]) * u.Hz / u.s))
     row = count_templates(s, box, bands=(lo[0] * u.Hz, (lo[0] + widths[0]) * u.Hz))[0]
@@ -86,11 +86,11 @@ def test_density_formula_counts_actual_lattice_templates(kind):
 def test_count_scaling_t6_f3_tau3():
     # reference: count proportional to T^6 (f_max^3 - f_min^3) / tau^3 (Wette et al. 2008,
     # Sect. III, with the closed-form volume)
-    base = count_templates(_setup(), 300 * u.yr)["n_coh"][0]
-    longer = count_templates(_setup(t_seg=40 * u.day), 300 * u.yr)["n_coh"][0]
-    younger = count_templates(_setup(), 150 * u.yr)["n_coh"][0]
+    base = count_templates(_setup(), 250 * u.yr)["n_coh"][0]
+    longer = count_templates(_setup(t_seg=40 * u.day), 250 * u.yr)["n_coh"][0]
+    younger = count_templates(_setup(), 125 * u.yr)["n_coh"][0]
     band = count_templates(_setup(band=(400 * u.Hz, 600 * u.Hz), band_width=200 * u.Hz),
-                           300 * u.yr)["n_coh"][0]
+                           250 * u.yr)["n_coh"][0]
     assert longer / base == pytest.approx(2.0 ** 6, rel=1e-10)
     assert younger / base == pytest.approx(2.0 ** 3, rel=1e-10)
     assert band / base == pytest.approx((600 ** 3 - 400 ** 3) / (500 ** 3 - 400 ** 3),
@@ -100,8 +100,8 @@ def test_count_scaling_t6_f3_tau3():
 def test_semicoherent_over_coherent_is_refinement_product():
     # reference: Pletsch 2010, arXiv:1005.0395: density ratio gamma_1 gamma_2 for N
     # contiguous segments (same mismatch in both stages)
-    s = _setup(n_seg=8, mismatch_coarse=0.3, mismatch_fine=0.3)
-    row = count_templates(s, 300 * u.yr)[0]
+    s = _setup(n_seg=8, mismatch_coherent=0.3, mismatch_semicoherent=0.3)
+    row = count_templates(s, 250 * u.yr)[0]
     assert row["dims_semi"] == 3 and row["dims_coh"] == 3
     assert row["n_semi"] / row["n_coh"] == pytest.approx(
         refinement_fdot(8) * refinement_fddot(8), rel=1e-9)
@@ -111,11 +111,11 @@ def test_thin_direction_uses_lower_dimensional_count():
     # reference: the nested-projection rule (Wette et al. 2008, Sect. III): fddot thinner
     # than one template -> the (f, fdot) count with sqrt(det g_2) = pi^2 T^3/(6 sqrt 15)
     s = _setup(t_seg=2 * u.day, band=(100 * u.Hz, 101 * u.Hz), band_width=1 * u.Hz)
-    row = count_templates(s, 1000 * u.yr)[0]
+    row = count_templates(s, 250 * u.yr)[0]
     sd2 = math.pi ** 2 * (2 * DAY) ** 3 / (6 * math.sqrt(15))
-    want2 = normalised_thickness_anstar(2) / 0.3 * sd2 * _volume2(100.0, 101.0, 1000 * YR)
+    want2 = normalised_thickness_anstar(2) / 0.3 * sd2 * _volume2(100.0, 101.0, 250 * YR)
     want3 = (normalised_thickness_anstar(3) * 0.3 ** -1.5 * coherent_sqrt_det_3(2 * DAY)
-             * _volume3(100.0, 101.0, 1000 * YR))
+             * _volume3(100.0, 101.0, 250 * YR))
     assert want3 < want2                      # the 3-d formula would undercount
     assert row["dims_coh"] == 2 and row["n_coh"] == pytest.approx(want2, rel=1e-10)
     # an old star, a short segment: only f counts.  Templates 2 sqrt(mu / g_ff) apart
@@ -143,7 +143,7 @@ def test_cost_formula_and_units():
     # arXiv:1201.4321); 1 h = 3600 s (astropy units)
     s = _setup(n_seg=5, detectors=["H1", "L1", "V1"], cost_coherent=2e-7 * u.s,
                cost_semicoherent=3e-9 * u.s, band_width=10 * u.Hz)
-    est = computing_cost(s, 300 * u.yr)
+    est = computing_cost(s, 250 * u.yr)
     t = est.table
     want = (5 * t["n_coh"] * 2e-7 * 3 + 5 * t["n_semi"] * 3e-9) / 3600.0
     np.testing.assert_allclose(t["cost"].to_value(u.h), want, rtol=1e-12)
@@ -156,17 +156,17 @@ def test_cost_formula_and_units():
 
 def test_bands_scalar_array_broadcast_and_many_bands():
     s = _setup(t_seg=5 * u.day, n_seg=10)
-    one = count_templates(s, 300 * u.yr, bands=(400 * u.Hz, 401 * u.Hz))
+    one = count_templates(s, 250 * u.yr, bands=(400 * u.Hz, 401 * u.Hz))
     assert len(one) == 1
-    grid = count_templates(s, 300 * u.yr, bands=(np.array([[100.0], [200.0]]) * u.Hz,
+    grid = count_templates(s, 250 * u.yr, bands=(np.array([[100.0], [200.0]]) * u.Hz,
                                                  np.array([300.0, 400.0, 500.0]) * u.Hz))
     assert len(grid) == 6
     # thousands of bands in one call; where every band is 3-d, counts add up over bands
     # (the count is linear in the volume integral)
     edges = np.linspace(400, 500, 5001) * u.Hz
-    many = count_templates(s, 300 * u.yr, bands=(edges[:-1], edges[1:]))
+    many = count_templates(s, 250 * u.yr, bands=(edges[:-1], edges[1:]))
     assert len(many) == 5000 and np.all(many["dims_semi"] == 3)
-    whole = count_templates(s, 300 * u.yr, bands=(400 * u.Hz, 500 * u.Hz))
+    whole = count_templates(s, 250 * u.yr, bands=(400 * u.Hz, 500 * u.Hz))
     assert many["n_semi"].sum() == pytest.approx(whole["n_semi"][0], rel=1e-9)
 
 
@@ -187,25 +187,25 @@ def test_targets_as_input(demo_catalogue_path):
 
 def test_scan_cost(tmp_path):
     s = _setup(n_seg=4, band_width=50 * u.Hz)
-    scan = scan_cost(s, 300 * u.yr, "t_seg", [5, 10, 20] * u.day)
+    scan = scan_cost(s, 250 * u.yr, "t_seg", [5, 10, 20] * u.day)
     assert np.all(np.diff(scan["cost"].value) > 0) and np.all(scan["n_seg"] == 4)
-    direct = computing_cost(s.replace(t_seg=10 * u.day), 300 * u.yr).total
+    direct = computing_cost(s.replace(t_seg=10 * u.day), 250 * u.yr).total
     assert scan["cost"][1].value == pytest.approx(direct.to_value(u.h), rel=1e-12)
-    spanned = scan_cost(s.replace(span=100 * u.day), 300 * u.yr, "t_seg", [5, 10] * u.day)
+    spanned = scan_cost(s.replace(span=100 * u.day), 250 * u.yr, "t_seg", [5, 10] * u.day)
     assert list(spanned["n_seg"]) == [20, 10]
-    segs = scan_cost(s, 300 * u.yr, "n_seg", np.array([1, 2, 4]))
+    segs = scan_cost(s, 250 * u.yr, "n_seg", np.array([1, 2, 4]))
     assert list(segs["n_seg"]) == [1, 2, 4]
     path = plot_cost_scan(scan, "t_seg", tmp_path / "scan.png")
     assert path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     with pytest.raises(InputError, match="scan only"):
-        scan_cost(s, 300 * u.yr, "mismatch", [0.1])
+        scan_cost(s, 250 * u.yr, "mismatch", [0.1])
     with pytest.raises(InputError, match="mid_times"):
-        scan_cost(s.replace(mid_times=[10, 30, 50, 70] * u.day), 300 * u.yr, "n_seg", [2])
+        scan_cost(s.replace(mid_times=[10, 30, 50, 70] * u.day), 250 * u.yr, "n_seg", [2])
 
 
 # --- command line -------------------------------------------------------------------------
 
-CLI = ["cost", "--age", "300yr", "--t-seg", "10day", "--n-seg", "4", "--f-min", "100Hz",
+CLI = ["cost", "--age", "250yr", "--t-seg", "10day", "--n-seg", "4", "--f-min", "100Hz",
        "--f-max", "110Hz"]
 
 
@@ -247,8 +247,8 @@ def test_cli_scan_and_plot(tmp_path, capsys):
 @pytest.mark.parametrize("extra, match", [
     (["--braking-index-min", "1"], "braking-index-min"),
     (["--braking-index-min", "5", "--braking-index-max", "3"], "braking-index-max"),
-    (["--mismatch-coarse", "1.5"], "mismatch-coarse"),
-    (["--mismatch-fine", "0"], "mismatch-fine"),
+    (["--mismatch-coherent", "1.5"], "mismatch-coherent"),
+    (["--mismatch-semicoherent", "0"], "mismatch-semicoherent"),
     (["--n-seg", "0"], "n-seg"),
     (["--span", "20day"], "span"),
     (["--age=-5yr"], "age"),
@@ -274,14 +274,14 @@ def test_cli_bad_setup_file_exits_2(tmp_path, capsys, line, match):
                      + ("t_seg = \"1 day\"\n" if "t_seg" not in line else "")
                      + "[band]\nf_min = \"10 Hz\"\nf_max = \"20 Hz\"\n")
     out = tmp_path / "never.csv"
-    assert main(["cost", "--setup", str(setup), "--age", "1000yr", "--out", str(out)]) == 2
+    assert main(["cost", "--setup", str(setup), "--age", "250yr", "--out", str(out)]) == 2
     err = capsys.readouterr().err
     assert match in err and str(setup) in err
     assert not out.exists()
 
 
 def test_cli_needs_setup_values(capsys):
-    assert main(["cost", "--age", "1000yr", "--t-seg", "1day"]) == 2
+    assert main(["cost", "--age", "250yr", "--t-seg", "1day"]) == 2
     assert "--n-seg" in capsys.readouterr().err
 
 
@@ -291,27 +291,27 @@ def test_gapped_segments_use_the_semicoherent_metric_of_their_mid_times():
     from cwlimits.metric import semicoherent_sqrt_det
 
     s = _setup(t_seg=10 * u.day, n_seg=4, span=100 * u.day)
-    row = count_templates(s, 300 * u.yr)[0]
+    row = count_templates(s, 250 * u.yr)[0]
     sd = semicoherent_sqrt_det(s.t_seg, mid_times=s.segment_mid_times).to_value(u.s ** 6)
     want = (normalised_thickness_anstar(3) * 0.3 ** -1.5 * sd
-            * _volume3(400.0, 500.0, 300 * YR))
+            * _volume3(400.0, 500.0, 250 * YR))
     assert row["dims_semi"] == 3 and row["n_semi"] == pytest.approx(want, rel=1e-9)
-    contiguous = count_templates(s.replace(span=None), 300 * u.yr)[0]
+    contiguous = count_templates(s.replace(span=None), 250 * u.yr)[0]
     assert row["n_semi"] > contiguous["n_semi"]          # a longer span resolves finer
 
 
 def test_computing_cost_scalar_and_broadcast_bands():
     s = _setup(n_seg=3)
-    one = computing_cost(s, 300 * u.yr, bands=(450 * u.Hz, 451 * u.Hz))
+    one = computing_cost(s, 250 * u.yr, bands=(450 * u.Hz, 451 * u.Hz))
     assert len(one.table) == 1 and one.total.unit == u.h
-    grid = computing_cost(s, 300 * u.yr, bands=(np.array([[400.0], [420.0]]) * u.Hz,
+    grid = computing_cost(s, 250 * u.yr, bands=(np.array([[400.0], [420.0]]) * u.Hz,
                                                 np.array([440.0, 460.0]) * u.Hz))
     assert len(grid.table) == 4
     assert grid.total.value == pytest.approx(grid.table["cost"].value.sum())
     with pytest.raises(InputError, match="broadcast"):
-        computing_cost(s, 300 * u.yr, bands=([1.0, 2.0] * u.Hz, [3.0, 4.0, 5.0] * u.Hz))
+        computing_cost(s, 250 * u.yr, bands=([1.0, 2.0] * u.Hz, [3.0, 4.0, 5.0] * u.Hz))
     with pytest.raises(InputError, match="f_lo < f_hi"):
-        computing_cost(s, 300 * u.yr, bands=(5 * u.Hz, 4 * u.Hz))
+        computing_cost(s, 250 * u.yr, bands=(5 * u.Hz, 4 * u.Hz))
 
 
 def test_cli_spin_box(tmp_path, capsys, demo_catalogue_path):
@@ -325,7 +325,7 @@ def test_cli_spin_box(tmp_path, capsys, demo_catalogue_path):
     table = read_table(out)
     f_lo = table.quantity("f_min", u.Hz)
     f_hi = table.quantity("f_max", u.Hz)
-    f0 = 2 * 18.3                                   # 2 f_rot of the demo row
+    f0 = 2 * 23.7                                   # 2 f_rot of the demo row
     assert f_lo[0].value == pytest.approx(f0 * (1 - 1e-3))
     assert f_hi[-1].value == pytest.approx(f0 * (1 + 1e-3))
     assert "box around the spin" in capsys.readouterr().out

@@ -104,7 +104,7 @@ def test_threshold_trials_correction(n_seg):
     thr = det.false_alarm_threshold(p_band, n_t, n_seg)
     assert thr.value == pytest.approx(stats.chi2.isf(p_t, 4 * n_seg), rel=1e-9)
     # The segment-average convention divides by N (definition of 2F/N).
-    mean = det.false_alarm_threshold(p_band, n_t, n_seg, statistic="mean")
+    mean = det.false_alarm_threshold(p_band, n_t, n_seg, convention="per_segment")
     assert mean.value == pytest.approx(thr.value / n_seg, rel=1e-14)
 
 
@@ -229,11 +229,11 @@ def test_likelihood_integrates_to_one(n_seg, h0, r2_fixed_sky):
     rho2_max = r2.max() * h0**2
     centre = 4 * n_seg + np.mean(r2) * 0.875 * h0**2
     top = 4 * n_seg + rho2_max + 40 * np.sqrt(8 * n_seg + 4 * rho2_max)
-    for statistic, scale in (("sum", 1), ("mean", n_seg)):
+    for convention, scale in (("total", 1), ("per_segment", n_seg)):
         # In the segment-average convention the density is per unit of 2F/N.
-        def pdf(x, statistic=statistic):
+        def pdf(x, convention=convention):
             return det.marginal_likelihood(x, h0, n_seg, T_DATA, PSD, r2, mu,
-                                           statistic=statistic).value
+                                           convention=convention).value
 
         total = sum(integrate.quad(pdf, lo / scale, hi / scale, limit=200)[0]
                     for lo, hi in ((0, centre), (centre, top)))
@@ -542,8 +542,8 @@ def test_bad_time_psd_and_others():
         det.critical_depth(20.0, 1, 3 * u.Hz, 0.16)
     with pytest.raises(InputError, match="n_templates"):
         det.false_alarm_threshold(0.01, 0.5, 1)
-    with pytest.raises(InputError, match="statistic"):
-        det.false_alarm_threshold(0.01, 1, 1, statistic="max")
+    with pytest.raises(InputError, match="convention must be one of"):
+        det.false_alarm_threshold(0.01, 1, 1, convention="max")
     with pytest.raises(InputError, match="mismatch_rule"):
         det.critical_depth(20.0, 1, T_DATA, 0.16, 1.5)
     with pytest.raises(InputError, match="weights"):

@@ -27,7 +27,7 @@ def _coherent(**kw):
 
 @pytest.mark.parametrize("false_alarm", [1e-15, 1e-6, 0.5, 0.999])
 def test_extreme_false_alarms_give_finite_sensitivity(target, false_alarm):
-    table = cwlimits.strain_sensitivity(_coherent(), "advanced-fit", target=target,
+    table = cwlimits.strain_sensitivity(_coherent(), "second-gen-fit", target=target,
                                         false_alarm=false_alarm)
     assert np.all(np.isfinite(table["h0"].value) & (table["h0"].value > 0))
 
@@ -35,21 +35,21 @@ def test_extreme_false_alarms_give_finite_sensitivity(target, false_alarm):
 def test_stricter_false_alarm_needs_a_louder_signal(target):
     # a higher threshold needs more signal for the same detection probability
     # (Neyman-Pearson; common practice)
-    strict = cwlimits.strain_sensitivity(_coherent(), "advanced-fit", target=target,
+    strict = cwlimits.strain_sensitivity(_coherent(), "second-gen-fit", target=target,
                                          false_alarm=1e-12)["h0"]
-    loose = cwlimits.strain_sensitivity(_coherent(), "advanced-fit", target=target,
+    loose = cwlimits.strain_sensitivity(_coherent(), "second-gen-fit", target=target,
                                         false_alarm=0.3)["h0"]
     assert np.all(strict > loose)
 
 
 def test_band_at_the_edge_of_the_noise_model(target):
-    # the advanced-detector fit is defined from 20 Hz (Sathyaprakash & Schutz 2009)
-    edge = cwlimits.strain_sensitivity(_coherent(band=(20 * u.Hz, 22 * u.Hz)), "advanced-fit",
+    # the second-generation fit is defined from 20 Hz (Sathyaprakash & Schutz 2009)
+    edge = cwlimits.strain_sensitivity(_coherent(band=(20 * u.Hz, 22 * u.Hz)), "second-gen-fit",
                                        target=target)
     assert np.all(np.isfinite(edge["h0"].value))
     with pytest.raises(cwlimits.OutOfRangeError):
         cwlimits.strain_sensitivity(_coherent(band=(19.5 * u.Hz, 21.5 * u.Hz)),
-                                    "advanced-fit", target=target)
+                                    "second-gen-fit", target=target)
 
 
 @pytest.mark.parametrize("distance, age", [(1e-3, 1.0), (1e3, 1e9), (1e-3, 1e9), (1e3, 1.0)])
@@ -63,9 +63,9 @@ def test_extreme_distances_and_ages_in_the_indirect_limits(distance, age):
 @pytest.mark.parametrize("method", ["bayes", "frequentist"])
 def test_extreme_observed_statistics_give_finite_limits(target, loudest, method):
     setup = _coherent()
-    model = cwlimits.signal_model(setup, "advanced-fit", target)
+    model = cwlimits.signal_model(setup, "second-gen-fit", target)
     results = SearchResults(f_lo=model.f_lo, width=model.f_hi - model.f_lo,
-                            loudest=np.full(len(model), loudest), statistic="sum",
+                            loudest=np.full(len(model), loudest), convention="total",
                             source="edge", rows=np.arange(len(model)) + 2)
     if method == "bayes" and loudest == 0.0:
         # chi-squared(4N) has zero density at 0, so 2F = 0 has zero likelihood for every
@@ -88,6 +88,6 @@ def test_far_and_old_target_limits_are_finite(target):
     far = dataclasses.replace(target, distance=50 * u.kpc, distance_min=40 * u.kpc,
                               distance_max=60 * u.kpc, age=1e6 * u.yr, age_min=1e6 * u.yr,
                               age_max=1e6 * u.yr)
-    table = cwlimits.strain_sensitivity(_coherent(), "advanced-fit", target=far)
+    table = cwlimits.strain_sensitivity(_coherent(), "second-gen-fit", target=far)
     assert np.all(np.isfinite(table["age_ratio"].value))
     assert not np.any(table["beats_age"])

@@ -141,7 +141,7 @@ def test_dask_local_cluster_gives_the_same_bits():
     # Threads in this process (processes=False) keep start-up well under a second; the
     # client path (client.submit + distributed.as_completed) is the same for remote workers.
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
-                                  dashboard_address=None) as cluster, \
+                                  dashboard_address=":0") as cluster, \
             distributed.Client(cluster, set_as_default=False) as client:
         out = map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, seed=SEED, executor=client)
         # --scheduler ADDRESS: make_executor connects a client of its own to the scheduler.

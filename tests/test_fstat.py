@@ -39,14 +39,14 @@ def _noise(n_seg, t_seg=2048.0, detectors="H1,L1", rng=0, gap=None, **kw):
 
 # ------------------------------------------------------------------ noise statistics
 
-def test_segment_twoF_in_noise_is_chi2_with_4_dof():
+def test_segment_two_f_in_noise_is_chi2_with_4_dof():
     # 2F of JKS 1998 is chi^2_4 in Gaussian noise (gr-qc/9804014, Sec. III).  Independent
     # draws: one value per segment (independent noise) at a fixed template; two detectors
     # with gaps exercise the noise weights.
     data = _noise(1500, t_seg=256.0, duty=0.75, n_blocks=4, rng=21)
     res = fs.stackslide_fstat(data, SKY, keep_segments=True, f_min=120.01 * u.Hz,
                               f_max=120.012 * u.Hz)
-    x = res.twoF_segments[0][:, 0]
+    x = res.two_f_segments[0][:, 0]
     p = stats.kstest(x, stats.chi2(4).cdf).pvalue
     assert p > KS_MIN_P
     assert abs(x.mean() - 4) < 5 * np.sqrt(8 / x.size)
@@ -60,7 +60,7 @@ def test_stackslide_sum_in_noise_is_chi2_with_4N_dof():
     for seed in range(30):
         data = _noise(n_seg, t_seg=1024.0, rng=100 + seed)
         res = fs.stackslide_fstat(data, SKY, 2e-8 * u.Hz / u.s)
-        values.append(res.twoF.value[0, 10::32])
+        values.append(res.two_f.value[0, 10::32])
     x = np.concatenate(values)
     assert x.size >= 300
     p = stats.kstest(x, stats.chi2(4 * n_seg).cdf).pvalue
@@ -86,7 +86,7 @@ def _loud(rho_target=30.0, n_seg=5, fdot=0.0, rng=3, cosi=0.35, psi=0.4, phi0=2.
 
 
 @pytest.mark.parametrize(("n_seg", "rho"), [(1, 30.0), (5, 30.0), (40, 200.0)])
-def test_loud_signal_twoF_matches_the_model_rho2(n_seg, rho):
+def test_loud_signal_two_f_matches_the_model_rho2(n_seg, rho):
     # E[2F] = 4N + rho^2 with rho^2 = h0^2 T_data / S_n R^2 (JKS 1998; the sensitivity
     # model's normalisation, cwlimits.detection), std sqrt(2 (4N + 2 rho^2)).  The last
     # case (rho^2 = 4e4) pins the normalisation to ~1 % (4 sigma = 4 %).
@@ -95,9 +95,9 @@ def test_loud_signal_twoF_matches_the_model_rho2(n_seg, rho):
     res = fs.stackslide_fstat(injected, SKY)
     best = res.loudest()
     j = np.argmin(np.abs(res.frequency.value - sig.f.value))
-    twoF = res.twoF.value[0, j]
+    two_f = res.two_f.value[0, j]
     sigma = np.sqrt(2 * (4 * n_seg + 2 * rho2))
-    assert abs(twoF - 4 * n_seg - rho2) < N_SIGMA * sigma
+    assert abs(two_f - 4 * n_seg - rho2) < N_SIGMA * sigma
     # the loudest template is the injected frequency (within one Fourier bin 1/T = 2 bins)
     assert abs(best["frequency"].value - sig.f.value) <= 2 * df
 
@@ -116,7 +116,7 @@ def test_loud_signal_with_spindown_found_on_the_fdot_grid():
     assert abs(best["frequency"].value - sig.f.value) <= 2 * df
     rho2 = fs.expected_rho2(injected, sig).value
     sigma = np.sqrt(2 * (4 * n_seg + 2 * rho2))
-    assert abs(best["twoF"].value - 4 * n_seg - rho2) < N_SIGMA * sigma
+    assert abs(best["two_f"].value - 4 * n_seg - rho2) < N_SIGMA * sigma
 
 
 def test_expected_rho2_uses_the_response_time_averages():
@@ -155,7 +155,7 @@ def test_network_with_unequal_noise_matches_the_weighted_model():
     j = np.argmin(np.abs(res.frequency.value - loud.f.value))
     rho2 = fs.expected_rho2(data, loud).value
     sigma = np.sqrt(2 * (4 * n_seg + 2 * rho2))
-    assert abs(res.twoF.value[0, j] - 4 * n_seg - rho2) < N_SIGMA * sigma
+    assert abs(res.two_f.value[0, j] - 4 * n_seg - rho2) < N_SIGMA * sigma
 
 
 def test_amplitudes_and_parameters_are_recovered():
@@ -196,11 +196,11 @@ def test_doppler_modulated_signal_needs_and_gets_demodulation():
     injected = sy.inject(data, sig, doppler=True)
     rho2 = fs.expected_rho2(injected, sig).value
     demod = fs.estimate_amplitudes(injected, SKY, sig.f, sig.fdot, doppler=True)
-    assert abs(demod.twoF - 4 - rho2) < N_SIGMA * np.sqrt(2 * (4 + 2 * rho2))
+    assert abs(demod.two_f - 4 - rho2) < N_SIGMA * np.sqrt(2 * (4 + 2 * rho2))
     diff = demod.amplitudes - sig.amplitudes
     assert diff @ demod.fisher @ diff < stats.chi2(4).isf(1e-3)
     plain = fs.estimate_amplitudes(injected, SKY, sig.f, sig.fdot)
-    assert plain.twoF < 0.05 * rho2
+    assert plain.two_f < 0.05 * rho2
 
 
 def test_noiseless_injection_is_inverted_exactly():
@@ -219,7 +219,7 @@ def test_noiseless_injection_is_inverted_exactly():
         # psi in [-pi/4, pi/4): equal to the injection (or shifted by pi/2, phi0 by pi)
         assert est.psi.value == pytest.approx(psi, abs=1e-6)
         assert est.phi0.value == pytest.approx(phi0, abs=1e-6)
-        assert est.twoF == pytest.approx(fs.expected_rho2(clean, sig).value, rel=1e-6)
+        assert est.two_f == pytest.approx(fs.expected_rho2(clean, sig).value, rel=1e-6)
 
 
 def test_invert_amplitudes_round_trip_and_degeneracy():
@@ -269,8 +269,8 @@ def test_fft_path_equals_direct_sums():
     assert np.max(np.abs(fa - da)) < FFT_DIRECT_RTOL * scale
     assert np.max(np.abs(fb - db)) < FFT_DIRECT_RTOL * np.abs(db).max()
     A, B, C = fs._abc(w, a, b)
-    two_fft = fs._twoF(fa, fb, A[:, None], B[:, None], C[:, None])
-    two_dir = fs._twoF(da, db, A[:, None], B[:, None], C[:, None])
+    two_fft = fs._two_f(fa, fb, A[:, None], B[:, None], C[:, None])
+    two_dir = fs._two_f(da, db, A[:, None], B[:, None], C[:, None])
     assert np.max(np.abs(two_fft - two_dir)) < FFT_DIRECT_RTOL * two_dir.max()
     # and the public search returns the same per-segment values
     res = fs.stackslide_fstat(data, SKY, fdot * u.Hz / u.s, fft_length=length,
@@ -279,7 +279,7 @@ def test_fft_path_equals_direct_sums():
     shifts = np.rint(fdot * (data.mid_times - data.t_ref).value / (BAND.value / length))
     for k in range(3):
         idx = j + int(shifts[k]) + np.arange(res.frequency.size)
-        np.testing.assert_allclose(res.twoF_segments[0, k], two_dir[k, idx],
+        np.testing.assert_allclose(res.two_f_segments[0, k], two_dir[k, idx],
                                    rtol=FFT_DIRECT_RTOL, atol=FFT_DIRECT_RTOL * two_dir.max())
 
 
@@ -290,7 +290,7 @@ def test_single_template_coherent_matches_the_fft_grid():
     res = fs.stackslide_fstat(data, SKY)
     j = 777
     est = fs.estimate_amplitudes(data, SKY, res.frequency[j])
-    assert est.twoF == pytest.approx(res.twoF.value[0, j], rel=1e-9)
+    assert est.two_f == pytest.approx(res.two_f.value[0, j], rel=1e-9)
 
 
 # ------------------------------------------------------------------ noise level
@@ -311,10 +311,10 @@ def test_median_noise_level_matches_the_true_psd_and_resists_a_signal():
     assert np.all(np.abs(est / PSD.value - 1) < 5 / (np.log(2) * np.sqrt(n / 2)))
 
 
-def test_twoF_with_the_median_noise_level_is_close_to_chi2_4():
+def test_two_f_with_the_median_noise_level_is_close_to_chi2_4():
     data = _noise(300, t_seg=512.0, rng=13)
     res = fs.stackslide_fstat(data, SKY, noise="median", keep_segments=True)
-    x = res.twoF_segments[0][:, ::64].ravel()
+    x = res.two_f_segments[0][:, ::64].ravel()
     # the estimated level is off by ~1.44/sqrt(M) per segment (M = 128): a mean within
     # 5 sigma of the sampling error plus that bias
     assert abs(x.mean() - 4) < 5 * np.sqrt(8 / x.size) + 4 * 1.44 / np.sqrt(128)

@@ -6,7 +6,7 @@ import sympy as sp
 from references import (
     AGE_LIMIT_AGE_YR,
     AGE_LIMIT_DISTANCE_KPC,
-    AGE_LIMIT_NORMALISATION,
+    AGE_LIMIT_RTOL,
     CRAB_DISTANCE_KPC,
     CRAB_F_ROT_HZ,
     CRAB_FDOT_HZ_S,
@@ -46,15 +46,20 @@ def test_crab_spindown_limit():
     assert h.value == pytest.approx(ref.value, rel=ref.rtol)
 
 
-def test_age_limit_normalisation_rescaled():
-    # Wette et al. 2008, arXiv:0802.3332: 1.26e-24 (3.3 kpc/d)(300 yr/age)^(1/2), n = 5,
-    # rescaled by the published scaling to a distance and age of our own choosing.
-    ref = AGE_LIMIT_NORMALISATION
-    d, age = 0.75 * u.kpc, 4200 * u.yr
-    expected = ref.value * (AGE_LIMIT_DISTANCE_KPC / 0.75) * np.sqrt(AGE_LIMIT_AGE_YR / 4200)
-    assert age_limit(d, age).value == pytest.approx(expected, rel=ref.rtol)
-    assert age_limit(AGE_LIMIT_DISTANCE_KPC * u.kpc, AGE_LIMIT_AGE_YR * u.yr).value == \
-        pytest.approx(ref.value, rel=ref.rtol)
+def test_age_limit_at_1_kpc_and_1_kyr_is_the_closed_form_energy_balance():
+    # Wette et al. 2008, arXiv:0802.3332, eq. (6): h_age = (1/d) sqrt(5 G I / (8 c^3 age))
+    # for n = 5, evaluated here with astropy's constants (reference library).
+    d, age = AGE_LIMIT_DISTANCE_KPC * u.kpc, AGE_LIMIT_AGE_YR * u.yr
+    moment = 1e38 * KG_M2
+    expected = (np.sqrt(5 * const.G * moment / (8 * const.c**3 * age)) / d).decompose()
+    assert expected.unit == u.one
+    assert age_limit(d, age).value == pytest.approx(expected.value, rel=AGE_LIMIT_RTOL)
+    assert age_limit(d, age, braking_index=5).value == pytest.approx(expected.value,
+                                                                     rel=AGE_LIMIT_RTOL)
+    # the same closed form at another distance and age (1/d and age^(-1/2) scaling)
+    d2, age2 = 0.75 * u.kpc, 4200 * u.yr
+    expected2 = (np.sqrt(5 * const.G * moment / (8 * const.c**3 * age2)) / d2).decompose()
+    assert age_limit(d2, age2).value == pytest.approx(expected2.value, rel=AGE_LIMIT_RTOL)
 
 
 def test_age_limit_equals_spindown_limit_at_the_implied_spindown():

@@ -42,7 +42,7 @@ def test_ball_volume_scalar_array_broadcast():
 @pytest.mark.parametrize("n", [1, 2, 3, 4])
 def test_thickness_matches_conway_sloane(n):
     # reference: closed forms of SPLAG Ch. 2/4 and Prix 2007 (see references_cost)
-    zn, an = Lattice("Zn", n), Lattice("An*", n)
+    zn, an = Lattice("cubic", n), Lattice("covering", n)
     assert zn.normalised_thickness == pytest.approx(normalised_thickness_zn(n), rel=1e-12)
     assert an.normalised_thickness == pytest.approx(normalised_thickness_anstar(n), rel=1e-12)
     # Theta = V_n theta (SPLAG Ch. 2, Sect. 1.2)
@@ -51,11 +51,12 @@ def test_thickness_matches_conway_sloane(n):
     assert zn.thickness == pytest.approx(ball_volume_ref(n) * normalised_thickness_zn(n),
                                          rel=1e-12)
     # and the printed table of thinnest coverings (SPLAG Table 2.1, from memory)
-    assert Lattice("An*", n).thickness == pytest.approx(THICKNESS_ANSTAR_TABLE[n],
+    assert Lattice("covering", n).thickness == pytest.approx(THICKNESS_ANSTAR_TABLE[n],
                                                         rel=THICKNESS_TABLE_RTOL.rtol)
 
 
-@pytest.mark.parametrize("kind, n", [("An*", 2), ("An*", 3), ("An*", 4), ("Zn", 3)])
+@pytest.mark.parametrize("kind, n", [("covering", 2), ("covering", 3), ("covering", 4),
+                                     ("cubic", 3)])
 def test_covering_radius_is_one(kind, n):
     # reference: the thickness closed forms assume a covering radius R; here the largest
     # distance to the nearest point is searched numerically (random starts, then
@@ -82,7 +83,7 @@ def test_covering_radius_is_one(kind, n):
 def test_nearest_point_matches_brute_force(n):
     # reference: exhaustive search over lattice points near the rounded basis coordinates
     # (the definition of the nearest point), against the SPLAG Ch. 20 algorithm
-    lat = Lattice("An*", n)
+    lat = Lattice("covering", n)
     rng = np.random.default_rng(n)
     x = rng.normal(scale=3.0, size=(3000, n))
     got = lat.nearest_point(x)
@@ -99,7 +100,7 @@ def test_nearest_point_matches_brute_force(n):
 
 
 def test_nearest_point_shapes():
-    lat = Lattice("An*", 2)
+    lat = Lattice("covering", 2)
     assert lat.nearest_point([0.1, 0.2]).shape == (2,)
     assert lat.nearest_point(np.zeros((4, 5, 2))).shape == (4, 5, 2)
     with pytest.raises(InputError, match="last axis"):
@@ -109,31 +110,32 @@ def test_nearest_point_shapes():
 @pytest.mark.parametrize("n", [1, 2, 3, 4])
 def test_mean_mismatch_factor_zn_is_one_third(n):
     # reference: offsets uniform on [-1/2, 1/2]^n: <|x|^2> = n/12, R^2 = n/4 (common practice)
-    lat = Lattice("Zn", n)
+    lat = Lattice("cubic", n)
     assert lat.mean_mismatch_factor == pytest.approx(1 / 3)
     assert lat.normalised_second_moment == pytest.approx(G_ZN, rel=1e-12)
 
 
 def test_anstar_second_moment_matches_tables():
     # reference: G(A_2*) = 5/(36 sqrt 3) and G(A_3*) = 0.0785433 (SPLAG Table 2.3)
-    assert Lattice("An*", 2).normalised_second_moment == pytest.approx(G_A2.value,
+    assert Lattice("covering", 2).normalised_second_moment == pytest.approx(G_A2.value,
                                                                        rel=G_A2.rtol)
-    assert Lattice("An*", 3).normalised_second_moment == pytest.approx(G_A3STAR.value,
+    assert Lattice("covering", 3).normalised_second_moment == pytest.approx(G_A3STAR.value,
                                                                        rel=G_A3STAR.rtol)
     # A_1* is the integer lattice: G = 1/12
-    assert Lattice("An*", 1).normalised_second_moment == pytest.approx(1 / 12, rel=1e-4)
+    assert Lattice("covering", 1).normalised_second_moment == pytest.approx(1 / 12, rel=1e-4)
 
 
 def test_sampler_z1_distribution():
     # reference: for Z^1 the offset is uniform, so mu/mu_max = (2u)^2 with u ~ U(0, 1/2)
     # has CDF sqrt(m); Kolmogorov-Smirnov test with scipy.stats (fixed seed)
-    mu = sample_mismatch("Zn", 1, 0.5, size=4000, rng=11)
+    mu = sample_mismatch("cubic", 1, 0.5, size=4000, rng=11)
     assert mu.min() >= 0 and mu.max() <= 0.5
     res = stats.kstest(mu / 0.5, lambda m: np.sqrt(np.clip(m, 0, 1)))
     assert res.pvalue > 1e-3
 
 
-@pytest.mark.parametrize("kind, n", [("An*", 2), ("An*", 3), ("Zn", 3), ("An*", 4)])
+@pytest.mark.parametrize("kind, n", [("covering", 2), ("covering", 3), ("cubic", 3),
+                                     ("covering", 4)])
 def test_sampler_mean_matches_factor(kind, n):
     # reference: the mean-mismatch factor (SPLAG second moments above); Monte-Carlo with a
     # fixed seed, tolerance 4 standard errors
@@ -145,22 +147,22 @@ def test_sampler_mean_matches_factor(kind, n):
 
 
 def test_sampler_scalar_array_broadcast_and_seed():
-    a = sample_mismatch("An*", 3, 0.3, size=5, rng=1)
-    b = sample_mismatch("An*", 3, 0.3, size=5, rng=1)
+    a = sample_mismatch("covering", 3, 0.3, size=5, rng=1)
+    b = sample_mismatch("covering", 3, 0.3, size=5, rng=1)
     np.testing.assert_array_equal(a, b)                       # fixed seed reproduces
-    assert np.ndim(sample_mismatch("Zn", 2, 0.3, size=(), rng=2)) == 0
-    arr = sample_mismatch(Lattice("An*", 2), 2, np.array([0.1, 0.5]), size=(1000, 2), rng=3)
+    assert np.ndim(sample_mismatch("cubic", 2, 0.3, size=(), rng=2)) == 0
+    arr = sample_mismatch(Lattice("covering", 2), 2, np.array([0.1, 0.5]), size=(1000, 2), rng=3)
     assert arr.shape == (1000, 2)
     assert arr[:, 0].max() <= 0.1 and arr[:, 1].max() <= 0.5 and arr[:, 1].max() > 0.1
-    grid = sample_mismatch("An*", 2, np.array([[0.1], [0.2]]), size=(2, 3), rng=4)
+    grid = sample_mismatch("covering", 2, np.array([[0.1], [0.2]]), size=(2, 3), rng=4)
     assert grid.shape == (2, 3)
     with pytest.raises(InputError, match="max_mismatch"):
-        sample_mismatch("An*", 2, 0.0)
+        sample_mismatch("covering", 2, 0.0)
     with pytest.raises(InputError, match="max_mismatch"):
-        sample_mismatch("An*", 2, 1.5)
+        sample_mismatch("covering", 2, 1.5)
 
 
-@pytest.mark.parametrize("kind", ["An*", "Zn"])
+@pytest.mark.parametrize("kind", ["covering", "cubic"])
 def test_covering_with_a_phase_metric(kind):
     # reference: the covering property (no point farther than mu_max from its template) and
     # the mean-mismatch factor; random points in a small (f, fdot, fddot) box spanning ~60
@@ -206,12 +208,17 @@ def test_bad_lattice_names():
     with pytest.raises(InputError, match="unknown lattice"):
         Lattice("D4", 4)
     with pytest.raises(InputError, match="dimension"):
-        Lattice("Zn", 0)
-    assert Lattice("ans", 2).kind == "An*" and Lattice("hypercubic", 2).kind == "Zn"
+        Lattice("cubic", 0)
+    assert Lattice("Covering", 2).kind == "covering" and Lattice("CUBIC", 2).kind == "cubic"
+    # names of earlier versions get a message naming the new one
+    with pytest.raises(InputError, match="now called 'covering'"):
+        Lattice("An*", 2)
+    with pytest.raises(InputError, match="now called 'cubic'"):
+        Lattice("Zn", 2)
 
 
 @settings(max_examples=60, deadline=None)
-@given(n=st.integers(1, 4), kind=st.sampled_from(["An*", "Zn"]),
+@given(n=st.integers(1, 4), kind=st.sampled_from(["covering", "cubic"]),
        x=st.lists(st.floats(-50, 50), min_size=4, max_size=4))
 def test_nearest_point_properties(n, kind, x):
     # reference: definitions - the nearest point is within the covering radius (1 here),

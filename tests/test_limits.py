@@ -51,7 +51,7 @@ def _results(loudest, f0=100.0, width=0.01, psd=None, n_templates=None):
     n = len(loudest)
     return SearchResults(
         f_lo=(f0 + width * np.arange(n)) << u.Hz, width=np.full(n, width) << u.Hz,
-        loudest=loudest, statistic="sum",
+        loudest=loudest, convention="total",
         psd=None if psd is None else np.full(n, psd) << 1 / u.Hz,
         n_templates=n_templates)
 
@@ -103,7 +103,7 @@ def test_log_uniform_prior_matches_quad(obs):
 def test_tabulated_path_matches_direct(target):
     # Interpolating the quantile table against 2F* must not move the limit: measured max
     # relative difference ~4e-4 (tolerance 1e-3, the accuracy asked of the posterior).
-    sm = signal_model(_setup(), "advanced-fit", target)
+    sm = signal_model(_setup(), "second-gen-fit", target)
     rule = sm.signal_rule()
     rng = np.random.default_rng(11)
     obs = np.concatenate([rng.chisquare(32, 55), 32 + rng.uniform(0, 400, 55)])
@@ -159,7 +159,7 @@ def simulated(target):
     psd = 1e-46
     rng = np.random.default_rng(2026)
     f_lo = (100 + 0.01 * np.arange(n)) << u.Hz
-    sm = signal_model(setup, "advanced-fit", target, (f_lo, f_lo + 0.01 * u.Hz))
+    sm = signal_model(setup, "second-gen-fit", target, (f_lo, f_lo + 0.01 * u.Hz))
     t_s = sm.t_data.to_value(u.s)
     h_max = 6e-26
     h_true = rng.uniform(0, h_max, n)                    # the Bayesian prior's range
@@ -280,7 +280,7 @@ def test_frequentist_ellipticity_reaches_the_confidence_over_distance(target):
     setup = _setup()
     res = _results([70.0], width=0.5, psd=1e-46)
     t = upper_limits(res, setup, target, "frequentist")
-    sm = signal_model(setup, "advanced-fit", target, (res.f_lo, res.f_hi))
+    sm = signal_model(setup, "second-gen-fit", target, (res.f_lo, res.f_hi))
     rng = np.random.default_rng(5)
     n = 200000
     d = rng.uniform(target.distance_min.value, target.distance_max.value, n) * u.kpc
@@ -305,9 +305,9 @@ def test_frequentist_at_the_threshold_equals_the_sensitivity(target):
     # P_det(h0) = confidence with the threshold as the 'observed' loudest event is the
     # expected-sensitivity definition (Wette 2012): the same numbers.
     setup = _setup()
-    sens = strain_sensitivity(setup, "advanced-fit", target=target, confidence=0.9)
+    sens = strain_sensitivity(setup, "second-gen-fit", target=target, confidence=0.9)
     res = SearchResults(f_lo=sens["f_lo"], width=sens["f_hi"] - sens["f_lo"],
-                        loudest=np.asarray(sens["threshold"].value), statistic="sum")
+                        loudest=np.asarray(sens["threshold"].value), convention="total")
     lim = upper_limits(res, setup, target, "frequentist", confidence=0.9)
     assert np.allclose(lim["h0_limit"].value, sens["h0"].value, rtol=1e-7)
     assert np.array_equal(lim["beats_age"], lim["h0_limit"].value < lim["h0_age"].value)
@@ -376,7 +376,7 @@ def files(tmp_path):
     setup.write_text(SETUP_TOML)
     results = tmp_path / "res.csv"
     rng = np.random.default_rng(4)
-    lines = ["f_lo [Hz],width [Hz],loudest_2F_sum"]
+    lines = ["f_lo [Hz],width [Hz],loudest_2F"]
     lines += [f"{100 + 0.5 * i},0.5,{rng.chisquare(32) + 5:.4f}" for i in range(10)]
     results.write_text("\n".join(lines) + "\n")
     return tmp_path, setup, results
@@ -427,13 +427,27 @@ def test_cli_bad_results_files(files, capsys, bad):
 
 
 def test_cli_band_outside_the_noise_model(files, capsys):
-    # advanced-fit is valid from 20 Hz (cwlimits.noise): a 5 Hz band is refused.
+    # second-gen-fit is valid from 20 Hz (cwlimits.noise): a 5 Hz band is refused.
     tmp, setup, _ = files
     results = tmp / "low.csv"
-    results.write_text("f_lo [Hz],width [Hz],loudest_2F_sum\n5,1,40\n")
+    results.write_text("f_lo [Hz],width [Hz],loudest_2F\n5,1,40\n")
     out = tmp / "ul.csv"
     assert _cli(results, setup, "--out", str(out)) == 2
     assert "error:" in capsys.readouterr().err
+    assert not out.exists()
+
+
+@pytest.mark.parametrize("old, new", [("loudest_2F_sum", "loudest_2F"),
+                                      ("loudest_2F_mean", "loudest_2F_per_segment")])
+def test_cli_retired_statistic_column_names_its_replacement(files, capsys, old, new):
+    # a results table written for an earlier version: exit 2, the message names the new column
+    tmp, setup, _ = files
+    results = tmp / "old.csv"
+    results.write_text(f"f_lo [Hz],width [Hz],{old}\n100,1,40\n")
+    out = tmp / "ul.csv"
+    assert _cli(results, setup, "--out", str(out)) == 2
+    err = capsys.readouterr().err
+    assert err.startswith("error:") and f"'{old}' was renamed" in err and f"'{new}'" in err
     assert not out.exists()
 
 

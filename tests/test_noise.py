@@ -39,24 +39,26 @@ ASD = u.Hz**-0.5
 # ---------------------------------------------------------------------------------------
 # Reference values (value, unit, tolerance and its reason, source)
 # ---------------------------------------------------------------------------------------
-# Advanced-detector fit at x = f/f0 = 1: 1 - 5 + 111 (1 - 1 + 1/2)/(1 + 1/2) = 33, so
+# Second-generation 4 km fit at x = f/f0 = 1: 1 - 5 + 111 (1 - 1 + 1/2)/(1 + 1/2) = 33, so
 # S_h(215 Hz) = 33 S0 = 3.3e-48 1/Hz.  Formula of Sathyaprakash & Schutz 2009,
 # arXiv:0903.0338 (Sec. 4), and Arun et al. 2005, gr-qc/0411146; tolerance: float rounding.
-ADVANCED_AT_F0 = (3.3e-48, PSD, 1e-12)
-ADVANCED_F0 = 215.0 * u.Hz
-# Low-frequency cutoffs of the fits (same sources; initial-LIGO 40 Hz, Virgo 20 Hz and
-# ET-B 1 Hz from memory).
-CUTOFFS_HZ = {"advanced-fit": 20.0, "initial-fit": 40.0, "virgo-fit": 20.0,
+SECOND_GEN_AT_F0 = (3.3e-48, PSD, 1e-12)
+SECOND_GEN_F0 = 215.0 * u.Hz
+# Low-frequency cutoffs of the fits (same sources; first-generation 4 km 40 Hz, 3 km 20 Hz and
+# third-generation 1 Hz from memory).
+CUTOFFS_HZ = {"second-gen-fit": 20.0, "first-gen-fit": 40.0, "first-gen-3km-fit": 20.0,
               "third-gen-fit": 1.0}
-# Initial-LIGO fit at x = 1: (4.49)^-56 + 0.16 + 0.52 + 0.32 = 1.0 + 4.49^-56, so
+# First-generation 4 km fit at x = 1: (4.49)^-56 + 0.16 + 0.52 + 0.32 = 1.0 + 4.49^-56, so
 # S_h(150 Hz) = S0 = 9e-46 1/Hz (Arun et al. 2005, gr-qc/0411146; from memory).
-INITIAL_AT_F0 = (9e-46 * (1.0 + 4.49**-56), PSD, 1e-12)
-# Virgo fit at x = 1: 7.87^-4.8 + 6/17 + 1 + 1 with S0 = 10.2e-46 1/Hz at f0 = 500 Hz
+FIRST_GEN_AT_F0 = (9e-46 * (1.0 + 4.49**-56), PSD, 1e-12)
+# First-generation 3 km fit at x = 1: 7.87^-4.8 + 6/17 + 1 + 1 with S0 = 10.2e-46 1/Hz at
+# f0 = 500 Hz
 # (Arun et al. 2005, gr-qc/0411146; from memory).
-VIRGO_AT_F0 = (10.2e-46 * (7.87**-4.8 + 6 / 17 + 2.0), PSD, 1e-12)
-# ET-B fit at x = 1: 1 + a1 + a2 (1 + sum b)/(1 + sum c), S0 = 1.449e-52 1/Hz, f0 = 200 Hz
+FIRST_GEN_3KM_AT_F0 = (10.2e-46 * (7.87**-4.8 + 6 / 17 + 2.0), PSD, 1e-12)
+# Third-generation fit at x = 1: 1 + a1 + a2 (1 + sum b)/(1 + sum c), S0 = 1.449e-52 1/Hz,
+# f0 = 200 Hz
 # (Mishra et al. 2010, arXiv:1005.0304; coefficients from memory).
-ET_AT_F0 = (1.449e-52 * (1 + 185.62 + 232.56 * (1 + 31.18 - 64.72 + 52.24 - 42.16 + 10.17
+THIRD_GEN_AT_F0 = (1.449e-52 * (1 + 185.62 + 232.56 * (1 + 31.18 - 64.72 + 52.24 - 42.16 + 10.17
                                                   + 11.53) / (1 + 13.58 - 36.46 + 18.56
                                                               + 27.43)), PSD, 1e-12)
 # One-sided PSD of white Gaussian noise of variance sigma^2 sampled at fs: 2 sigma^2 / fs
@@ -76,18 +78,18 @@ def white(n_samples, seed, sigma=SIGMA):
 # ---------------------------------------------------------------------------------------
 # Analytic models
 # ---------------------------------------------------------------------------------------
-def test_advanced_fit_equals_33_s0_at_215_hz():
-    value, unit, rtol = ADVANCED_AT_F0
-    model = noise_model("advanced-fit")
-    assert model.psd(ADVANCED_F0).to_value(unit) == pytest.approx(value, rel=rtol)
-    assert model.asd(ADVANCED_F0).to_value(ASD) == pytest.approx(math.sqrt(value), rel=rtol)
-    assert DEFAULT_NOISE_MODEL == "advanced-fit"
+def test_second_gen_fit_equals_33_s0_at_215_hz():
+    value, unit, rtol = SECOND_GEN_AT_F0
+    model = noise_model("second-gen-fit")
+    assert model.psd(SECOND_GEN_F0).to_value(unit) == pytest.approx(value, rel=rtol)
+    assert model.asd(SECOND_GEN_F0).to_value(ASD) == pytest.approx(math.sqrt(value), rel=rtol)
+    assert DEFAULT_NOISE_MODEL == "second-gen-fit"
 
 
 @pytest.mark.parametrize("name, f0, reference", [
-    ("initial-fit", 150.0, INITIAL_AT_F0),
-    ("virgo-fit", 500.0, VIRGO_AT_F0),
-    ("third-gen-fit", 200.0, ET_AT_F0),
+    ("first-gen-fit", 150.0, FIRST_GEN_AT_F0),
+    ("first-gen-3km-fit", 500.0, FIRST_GEN_3KM_AT_F0),
+    ("third-gen-fit", 200.0, THIRD_GEN_AT_F0),
 ])
 def test_other_fits_at_their_scale_frequency(name, f0, reference):
     # values from memory (see the constants above)
@@ -95,12 +97,12 @@ def test_other_fits_at_their_scale_frequency(name, f0, reference):
     assert NOISE_MODELS[name].psd(f0 * u.Hz).to_value(unit) == pytest.approx(value, rel=rtol)
 
 
-def test_advanced_fit_matches_formula_on_an_array():
+def test_second_gen_fit_matches_formula_on_an_array():
     # the published formula written out with sympy-free numpy, term by term
     f = np.array([20.0, 55.0, 215.0, 1000.0, 4000.0])
     x = f / 215.0
     expected = 1e-49 * (x**-4.14 - 5 * x**-2 + 111 * (1 - x**2 + x**4 / 2) / (1 + x**2 / 2))
-    got = NOISE_MODELS["advanced-fit"].psd(f * u.Hz).to_value(PSD)
+    got = NOISE_MODELS["second-gen-fit"].psd(f * u.Hz).to_value(PSD)
     np.testing.assert_allclose(got, expected, rtol=1e-13)
 
 
@@ -129,7 +131,7 @@ def test_below_cutoff_raises_and_clip_gives_inf(name):
 
 
 def test_psd_broadcasts_scalar_array_and_grid():
-    model = noise_model("advanced-fit")
+    model = noise_model("second-gen-fit")
     assert model.psd(100 * u.Hz).shape == ()
     assert model.psd([100, 200, 300] * u.Hz).shape == (3,)
     grid = (np.array([[100.0], [200.0]]) + np.array([0.0, 1.0, 2.0])) * u.Hz
@@ -141,7 +143,7 @@ def test_psd_broadcasts_scalar_array_and_grid():
 
 
 def test_psd_rejects_wrong_units_and_nan_frequencies():
-    model = noise_model("advanced-fit")
+    model = noise_model("second-gen-fit")
     with pytest.raises(CwlimitsError, match="frequency"):
         model.psd(100 * u.m)
     with pytest.raises(CwlimitsError, match="frequency"):
@@ -155,7 +157,7 @@ def test_unknown_model_lists_known_names():
         noise_model("no-such-detector")
     for name in NOISE_MODELS:
         assert name in str(info.value)
-    with pytest.raises(InputError, match="advanced-fit"):
+    with pytest.raises(InputError, match="second-gen-fit"):
         get_noise("no-such-detector")
 
 
@@ -280,10 +282,10 @@ def test_tabulated_noise_from_arrays_validates():
 
 
 def test_get_noise_resolves_names_files_and_sources(tmp_path):
-    assert get_noise("Advanced-Fit") is NOISE_MODELS["advanced-fit"]
+    assert get_noise("Second-Gen-Fit") is NOISE_MODELS["second-gen-fit"]
     path = write(tmp_path / "a.csv", "f [Hz], asd [Hz^-1/2]\n10,1e-22\n100,1e-23\n")
     assert isinstance(get_noise(str(path)), TabulatedNoise)
-    model = NOISE_MODELS["virgo-fit"]
+    model = NOISE_MODELS["first-gen-3km-fit"]
     assert get_noise(model) is model
     assert isinstance(model, NoiseSource)
 
@@ -292,7 +294,7 @@ def test_get_noise_resolves_names_files_and_sources(tmp_path):
 # Band averaging
 # ---------------------------------------------------------------------------------------
 def test_band_psd_is_the_harmonic_mean_scipy_quad():
-    model = noise_model("advanced-fit")
+    model = noise_model("second-gen-fit")
     lo = np.array([20.0, 25.0, 100.0, 1500.0])
     hi = np.array([21.0, 60.0, 300.0, 1510.0])
     got = band_psd(model, lo * u.Hz, hi * u.Hz).to_value(PSD)
@@ -314,7 +316,7 @@ def test_band_psd_of_a_tabulated_curve_with_kinks():
 
 
 def test_band_psd_shapes_ranges_and_errors():
-    model = noise_model("advanced-fit")
+    model = noise_model("second-gen-fit")
     lo = np.arange(20.0, 2020.0, 0.5)  # 4000 bands in one call
     out = band_psd(model, lo * u.Hz, (lo + 0.5) * u.Hz)
     assert out.shape == lo.shape and out.unit == PSD
@@ -477,7 +479,7 @@ def test_band_floor_shapes_and_errors():
     with pytest.raises(InputError, match="holds no frequency bin"):
         band_floor(est, 100.1 * u.Hz, 100.2 * u.Hz)
     with pytest.raises(InputError, match="estimate_psd"):
-        band_floor(noise_model("advanced-fit"), 100 * u.Hz, 110 * u.Hz)
+        band_floor(noise_model("second-gen-fit"), 100 * u.Hz, 110 * u.Hz)
 
 
 @pytest.mark.parametrize("kwargs, message", [
@@ -553,7 +555,7 @@ def test_two_detector_harmonic_mean_hand_formula():
     np.testing.assert_allclose(eff.t_k.to_value(u.day), [70.0, 25.0])
     assert isinstance(eff, EffectiveNoise) and "T_data" in eff.describe()
     # frequency-dependent detectors: the same formula pointwise, on a broadcast grid
-    a, b = noise_model("advanced-fit"), noise_model("virgo-fit")
+    a, b = noise_model("second-gen-fit"), noise_model("first-gen-3km-fit")
     eff = combine_noise([a, b], 1 * u.yr, [0.8, 0.6])
     f = [[30.0], [300.0]] * u.Hz + [0.0, 1.0, 2.0] * u.Hz
     hand = 1.4 / (0.8 / a.psd(f) + 0.6 / b.psd(f))
@@ -563,8 +565,8 @@ def test_two_detector_harmonic_mean_hand_formula():
 
 
 def test_combination_range_and_bad_input():
-    a = noise_model("advanced-fit")
-    c = noise_model("initial-fit")
+    a = noise_model("second-gen-fit")
+    c = noise_model("first-gen-fit")
     eff = combine_noise([a, c], [1, 1] * u.yr)
     assert eff.f_min == 40 * u.Hz  # defined where every detector is
     with pytest.raises(OutOfRangeError):
@@ -624,22 +626,22 @@ def test_cli_list_and_help(capsys):
 
 def test_cli_model_table_out_and_plot(tmp_path, capsys):
     out, png = tmp_path / "adv.csv", tmp_path / "adv.png"
-    code = main(["noise", "advanced-fit", "--band", "20Hz", "220Hz", "--step", "10Hz",
+    code = main(["noise", "second-gen-fit", "--band", "20Hz", "220Hz", "--step", "10Hz",
                  "--out", str(out), "--plot", str(png)])
     assert code == 0
     raw = read_table(out)
     assert len(raw) == 20
     assert raw.units["psd"] == PSD and raw.units["f_lo"] == u.Hz
-    assert "advanced-fit" in raw.meta["assumption.noise"]
+    assert "second-gen-fit" in raw.meta["assumption.noise"]
     assert "harmonic mean" in raw.meta["assumption.band_psd"]
     psd = raw.quantity("psd", PSD)
-    ref = band_psd(noise_model("advanced-fit"), raw.quantity("f_lo", u.Hz),
+    ref = band_psd(noise_model("second-gen-fit"), raw.quantity("f_lo", u.Hz),
                    raw.quantity("f_hi", u.Hz))
     np.testing.assert_allclose(psd.value, ref.value, rtol=1e-14)
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     # printed table without --out
     assert main(["noise", "--band", "100Hz", "110Hz", "--step", "5Hz"]) == 0
-    assert "advanced-fit" in capsys.readouterr().out
+    assert "second-gen-fit" in capsys.readouterr().out
 
 
 def test_cli_timeseries_estimate(tmp_path):
@@ -658,7 +660,7 @@ def test_cli_timeseries_estimate(tmp_path):
 
 @pytest.mark.parametrize("make_args, message", [
     (lambda p: ["noise", "no-such-model"], "known models"),
-    (lambda p: ["noise", "advanced-fit", "--band", "10Hz", "100Hz"], "below its range"),
+    (lambda p: ["noise", "second-gen-fit", "--band", "10Hz", "100Hz"], "below its range"),
     (lambda p: ["noise", str(p / "bad.csv")], "not increasing"),
     (lambda p: ["noise", str(p / "ok.csv"), "--band", "20Hz", "200Hz"], "above its range"),
     (lambda p: ["noise", "--timeseries", str(p / "short.npy"), "--sample-rate", "1024Hz"],
@@ -693,15 +695,16 @@ def test_cli_rejects_bad_output_suffix_before_work(tmp_path, capsys):
 def test_plot_asd_writes_labelled_log_plot(tmp_path):
     from cwlimits.noise import plot_asd
 
-    path = plot_asd([noise_model("advanced-fit"), noise_model("initial-fit")],
+    path = plot_asd([noise_model("second-gen-fit"), noise_model("first-gen-fit")],
                     tmp_path / "asd.svg", 10 * u.Hz, 5000 * u.Hz, title="two fits")
     text = path.read_text()
     # matplotlib keeps each text element as a comment in the SVG (common practice)
     assert "frequency f [Hz]" in text and "amplitude spectral density" in text
-    assert "advanced-fit" in text and "initial-fit" in text
-    assert plot_asd(noise_model("virgo-fit"), tmp_path / "v.pdf").read_bytes()[:4] == b"%PDF"
+    assert "second-gen-fit" in text and "first-gen-fit" in text
+    pdf = plot_asd(noise_model("first-gen-3km-fit"), tmp_path / "v.pdf")
+    assert pdf.read_bytes()[:4] == b"%PDF"
     with pytest.raises(InputError, match="must end in"):
-        plot_asd(noise_model("virgo-fit"), tmp_path / "v.jpg")
+        plot_asd(noise_model("first-gen-3km-fit"), tmp_path / "v.jpg")
 
 
 def test_cli_stretches_report_t_data(tmp_path, capsys):
@@ -733,7 +736,7 @@ def test_network_of_stretch_combinations_nests():
     np.testing.assert_allclose(network.psd(f).value, flat.psd(f).value, rtol=1e-12)
     assert network.t_data == flat.t_data
     with pytest.raises(InputError, match="durations are needed"):
-        combine_noise([noise_model("advanced-fit"), b])
+        combine_noise([noise_model("second-gen-fit"), b])
 
 
 def test_cli_headerless_file_needs_kind(tmp_path, capsys):
@@ -745,3 +748,11 @@ def test_cli_headerless_file_needs_kind(tmp_path, capsys):
                  "--step", "90Hz", "--out", str(out)]) == 0
     raw = read_table(out)
     assert len(raw) == 11 and "tabulated PSD" in raw.meta["assumption.noise"]
+
+
+@pytest.mark.parametrize("old, new", [("advanced-fit", "second-gen-fit"),
+                                      ("initial-fit", "first-gen-fit")])
+def test_retired_model_names_name_their_replacement(old, new):
+    with pytest.raises(InputError, match=f"was renamed: use '{new}'"):
+        get_noise(old)
+

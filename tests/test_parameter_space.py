@@ -28,7 +28,7 @@ def test_bounds_are_the_published_inequalities():
 @pytest.mark.parametrize("k", [1, 2, 3])
 def test_age_volume_closed_form_matches_scipy(n_range, k):
     # reference: scipy.integrate (quad / dblquad / tplquad) of the published bounds
-    space = AgeBasedSpace(300 * u.yr, *n_range)
+    space = AgeBasedSpace(1000 * u.yr, *n_range)
     f_lo = np.array([20.0, 100.0, 999.0]) * u.Hz
     f_hi = np.array([21.0, 300.0, 1000.0]) * u.Hz
     closed = space.volume(f_lo, f_hi, k)

@@ -28,7 +28,7 @@ from cwlimits.targets import load_targets
 BAND = (100 * u.Hz, 120 * u.Hz)
 OPTIONS = dict(band=BAND, band_width=2 * u.Hz, t_seg_min=1 * u.day)
 SPAN = 40 * u.day
-NOISE = "advanced-fit"
+NOISE = "second-gen-fit"
 
 #: Agreement of the fast planning model with strain_sensitivity: the fast model uses
 #: condensed rules (48 nodes), 256 fixed mismatch draws, antenna averages over one year
@@ -56,7 +56,7 @@ def target(catalogue):
 def _model(target, case="nominal", **kw):
     opts = dict(OPTIONS)
     opts.update(kw)
-    defaults = dict(detectors=("H1", "L1"), lattice="An*", braking_index=(2.0, 7.0),
+    defaults = dict(detectors=("H1", "L1"), lattice="covering", braking_index=(2.0, 7.0),
                     cost_coherent=P.DEFAULT_UNIT_COSTS["coherent"],
                     cost_semicoherent=P.DEFAULT_UNIT_COSTS["semicoherent"],
                     duty_factor=1.0, n_seg_max=1000, confidence=0.95, false_alarm=0.01,
@@ -80,7 +80,7 @@ def test_cost_kernel_equals_computing_cost(target):
     fast = model.cost(t_s, n, mc, mf)
     for i in range(6):
         setup = base.replace(t_seg=t_s[i] * u.s, n_seg=int(n[i]),
-                             mismatch_coarse=float(mc[i]), mismatch_fine=float(mf[i]))
+                             mismatch_coherent=float(mc[i]), mismatch_semicoherent=float(mf[i]))
         exact = computing_cost(setup, case_target).table["cost"].to_value(u.h)
         np.testing.assert_allclose(fast[i], exact, rtol=1e-10)
 
@@ -90,8 +90,8 @@ def test_fast_depth_matches_strain_sensitivity_for_the_plan(target):
     s = plan.setup
     _, model, _, _ = _model(target)
     fast = np.exp(model.log_depth(np.array([s.t_seg.to_value(u.s)]), np.array([s.n_seg]),
-                                  np.array([s.mismatch_coarse]),
-                                  np.array([s.mismatch_fine]))[0])
+                                  np.array([s.mismatch_coherent]),
+                                  np.array([s.mismatch_semicoherent]))[0])
     exact = strain_sensitivity(s, NOISE, target=target)
     np.testing.assert_allclose(fast, exact["depth"].to_value(u.Hz ** -0.5),
                                rtol=FAST_DEPTH_RTOL)
@@ -307,8 +307,8 @@ def _twin_catalogue(path, d_near, d_far):
         "# FICTIONAL test targets\n"
         "name,ra,dec,distance [kpc],distance_min [kpc],distance_max [kpc],age [yr],"
         "age_min [yr],age_max [yr]\n"
-        f"Fict Far,17h03m11s,-38d21m40s,{d_far},{d_far},{d_far},3000,3000,3000\n"
-        f"Fict Near,17h03m11s,-38d21m40s,{d_near},{d_near},{d_near},3000,3000,3000\n",
+        f"Fict Far,11h41m26s,+08d12m30s,{d_far},{d_far},{d_far},3000,3000,3000\n"
+        f"Fict Near,11h41m26s,+08d12m30s,{d_near},{d_near},{d_near},3000,3000,3000\n",
         encoding="utf-8")
     return load_targets(path)
 

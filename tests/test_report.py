@@ -40,10 +40,13 @@ def _labels_have_units(fig):
     return True
 
 
-def test_report_escapes_links_and_replaces_folder(tmp_path):
+def test_report_escapes_links_and_replaces_its_own_folder(tmp_path):
     out = tmp_path / "rep"
-    out.mkdir()
-    (out / "stale.txt").write_text("old")
+    with Report("first", out) as rep:
+        rep.section("Old", "an earlier report")
+        rep.table("old_table", QTable({"a": [1.0]}), caption="old")
+        rep.write({"seed": 0})
+    assert (out / "old_table.csv").is_file()
     table = QTable({"name": ["<script>alert(1)</script>", "B"], "h0": [1e-25, 2e-25] * u.one})
     fig = plot_strain_curves([100, 200] * u.Hz, [("curve", [1e-25, 2e-25])])
     with Report("test <b>", out) as rep:
@@ -51,7 +54,8 @@ def test_report_escapes_links_and_replaces_folder(tmp_path):
         rep.table("t", table, caption="cap", assumptions={"noise": "Gaussian"})
         rep.figure("f", fig, caption="fig")
         rep.write({"seed": 1})
-    assert not (out / "stale.txt").exists()
+    # the earlier report of cwlimits is replaced as a whole, its files gone
+    assert not (out / "old_table.csv").exists()
     parsed = _parse(out / "index.html")
     assert parsed.scripts == 0 and "i" not in parsed.tags  # user text is escaped
     assert "&lt;script&gt;" in (out / "index.html").read_text()
@@ -67,7 +71,7 @@ def test_failed_report_leaves_folder_untouched(tmp_path):
     out.mkdir()
     (out / "keep.txt").write_text("keep")
     try:
-        with Report("x", out) as rep:
+        with Report("x", out, overwrite=True) as rep:
             rep.section("a", "b")
             raise RuntimeError("boom")
     except RuntimeError:
@@ -144,6 +148,6 @@ def test_plan_files_of_the_report_reproduce_its_numbers(demo_report):
     # the demo plans for the pessimistic case: farthest distance, oldest age
     target = catalogue.target(name)
     target = dataclasses.replace(target, distance=target.distance_max, age=target.age_max)
-    again = strain_sensitivity(load_setup(plan), "advanced-fit", target=target,
+    again = strain_sensitivity(load_setup(plan), "second-gen-fit", target=target,
                                start="2030-01-01T00:00:00")
     assert np.allclose(table.quantity("h0", u.one), again["h0"], rtol=1e-9)

@@ -40,7 +40,7 @@ VERTEX_M = {
     "G1": (3.85630994926e6, 6.66598956317e5, 5.01964141725e6),
 }
 VERTEX_TOL_M = 1.0
-# Bisector orientations gamma [deg] and GEO600's opening angle, JKS 1998 gr-qc/9804014
+# Bisector orientations gamma [deg] and the G1 site's opening angle, JKS 1998 gr-qc/9804014
 # Table 1 (from memory).  Tolerance 1 deg: that table rounds and predates the final surveys.
 JKS_GAMMA_DEG = {"H1": 171.8, "L1": 243.0, "V1": 116.5, "G1": 68.775}
 JKS_GAMMA_TOL_DEG = 1.0
@@ -542,12 +542,21 @@ def test_cli_prints_averages_and_quantiles(capsys, tmp_path):
                  "--out", str(out)])
     text = capsys.readouterr().out
     assert code == 0
-    assert "network" in text and "q50" in text and "A " in text
+    assert "network" in text and "q50" in text and "mean_a2" in text and "determinant" in text
     table = read_table(out)
     assert table.columns["detector"] == ["H1", "L1", "network"]
     assert "R2" in table.meta["assumptions"] and table.units["t_data"] == u.d
+    assert "<a^2>" in table.meta["assumptions"]["columns"]
     # The printed network mean equals the library's mean 2 (A + B)/5.
     av = resp.time_averages("H1,L1", POSITION, START, 1 * u.yr, duty=0.7)
+    # The network row holds the JKS averages A = <a^2>, B = <b^2>, C = <ab> and D = AB - C^2
+    # (Jaranowski, Krolak & Schutz 1998, gr-qc/9804014).
+    network = {name: float(table.columns[name][2]) for name in
+               ("mean_a2", "mean_b2", "mean_ab", "determinant")}
+    assert network["mean_a2"] == pytest.approx(float(av.A), rel=1e-6)
+    assert network["mean_b2"] == pytest.approx(float(av.B), rel=1e-6)
+    assert network["mean_ab"] == pytest.approx(float(av.C), rel=1e-6, abs=1e-9)
+    assert network["determinant"] == pytest.approx(float(av.A * av.B - av.C ** 2), rel=1e-6)
     assert f"mean {2 * float((av.A + av.B).value) / 5:.5f}" in text
 
 

@@ -27,9 +27,9 @@ def _setup(**kw):
 def test_harmonic_mean_of_two_detectors(target):
     # S_eff = 2 / (1/S1 + 1/S2) for equal data times (harmonic mean; common practice)
     setup = _setup(detectors=("H1", "V1"))
-    model = signal_model(setup, {"H1": "advanced-fit", "V1": "virgo-fit"}, target)
-    s1 = band_psd(get_noise("advanced-fit"), model.f_lo, model.f_hi)
-    s2 = band_psd(get_noise("virgo-fit"), model.f_lo, model.f_hi)
+    model = signal_model(setup, {"H1": "second-gen-fit", "V1": "first-gen-3km-fit"}, target)
+    s1 = band_psd(get_noise("second-gen-fit"), model.f_lo, model.f_hi)
+    s2 = band_psd(get_noise("first-gen-3km-fit"), model.f_lo, model.f_hi)
     assert np.allclose(model.psd, 2 / (1 / s1 + 1 / s2), rtol=1e-12)
     # different noise per detector: the orientation rule is per band
     assert model.r2_rule.batch_shape == (len(model),)
@@ -37,7 +37,7 @@ def test_harmonic_mean_of_two_detectors(target):
 
 
 def test_h0_is_sqrt_psd_over_depth_and_matches_age_comparison(target):
-    table = strain_sensitivity(_setup(), "advanced-fit", target=target)
+    table = strain_sensitivity(_setup(), "second-gen-fit", target=target)
     assert np.allclose(table["h0"], np.sqrt(table["psd"]) / table["depth"], rtol=1e-12)
     assert np.all(table["beats_age"] == (table["h0"] < table["h0_age"]))
     assert "Gaussian" in table.meta["assumptions"]["noise"]
@@ -49,27 +49,27 @@ def test_depth_scales_as_sqrt_t_for_a_coherent_search_at_fixed_threshold(target)
     # whole sidereal days keep the antenna-pattern averages identical (JKS closed forms).
     short = _setup(n_seg=1, t_seg=5 * SIDEREAL_DAY)
     long = _setup(n_seg=1, t_seg=20 * SIDEREAL_DAY)
-    d_short = strain_sensitivity(short, "advanced-fit", target=target, threshold=40.0)["depth"]
-    d_long = strain_sensitivity(long, "advanced-fit", target=target, threshold=40.0)["depth"]
+    d_short = strain_sensitivity(short, "second-gen-fit", target=target, threshold=40.0)["depth"]
+    d_long = strain_sensitivity(long, "second-gen-fit", target=target, threshold=40.0)["depth"]
     assert np.allclose(d_long / d_short, 2.0, rtol=1e-6)
 
 
 def test_more_templates_raise_the_threshold_and_lower_the_depth(target):
     # the trials correction: a higher threshold for more templates (common practice)
-    few = strain_sensitivity(_setup(), "advanced-fit", target=target, n_templates=1e3)
-    many = strain_sensitivity(_setup(), "advanced-fit", target=target, n_templates=1e9)
+    few = strain_sensitivity(_setup(), "second-gen-fit", target=target, n_templates=1e3)
+    many = strain_sensitivity(_setup(), "second-gen-fit", target=target, n_templates=1e9)
     assert np.all(many["threshold"] > few["threshold"])
     assert np.all(many["depth"] < few["depth"])
-    whole = strain_sensitivity(_setup(), "advanced-fit", target=target,
+    whole = strain_sensitivity(_setup(), "second-gen-fit", target=target,
                                false_alarm_scope="search")
-    per_band = strain_sensitivity(_setup(), "advanced-fit", target=target)
+    per_band = strain_sensitivity(_setup(), "second-gen-fit", target=target)
     assert np.all(whole["threshold"] > per_band["threshold"])
 
 
 def test_isotropic_mean_r2_is_4_over_25_per_detector(target):
     # mean R^2 over sky, cos iota and psi = 4/25 for one 90-degree detector (common practice)
     setup = _setup(detectors=("H1",))
-    model = signal_model(setup, "advanced-fit", None, sky="isotropic", n_templates=1,
+    model = signal_model(setup, "second-gen-fit", None, sky="isotropic", n_templates=1,
                          mismatch="none")
     assert model.r2_rule.mean() == pytest.approx(4 / 25, rel=1e-3)
 
@@ -85,8 +85,8 @@ def test_many_setups_at_once_equal_one_by_one(target):
 
 
 def test_more_confidence_needs_more_signal(target):
-    d90 = strain_sensitivity(_setup(), "advanced-fit", target=target, confidence=0.9)["h0"]
-    d95 = strain_sensitivity(_setup(), "advanced-fit", target=target, confidence=0.95)["h0"]
+    d90 = strain_sensitivity(_setup(), "second-gen-fit", target=target, confidence=0.9)["h0"]
+    d95 = strain_sensitivity(_setup(), "second-gen-fit", target=target, confidence=0.95)["h0"]
     assert np.all(d95 > d90)
 
 
@@ -101,12 +101,12 @@ def test_more_confidence_needs_more_signal(target):
 ])
 def test_bad_arguments(target, kwargs, match):
     with pytest.raises(cwlimits.CwlimitsError, match=match):
-        strain_sensitivity(_setup(), "advanced-fit", target=target, **kwargs)
+        strain_sensitivity(_setup(), "second-gen-fit", target=target, **kwargs)
 
 
 def test_band_outside_the_noise_model(target):
     with pytest.raises(cwlimits.OutOfRangeError):
-        strain_sensitivity(_setup(band=(5 * u.Hz, 30 * u.Hz)), "advanced-fit", target=target)
+        strain_sensitivity(_setup(band=(5 * u.Hz, 30 * u.Hz)), "second-gen-fit", target=target)
 
 
 CLI = ["sensitivity", "--catalogue", "target_lists/demo.csv", "--target", "Fict Quill",
@@ -132,7 +132,7 @@ def test_cli_writes_table_and_plot(in_repo, tmp_path, capsys):
     cat = cwlimits.load_targets("target_lists/demo.csv")
     setup = SearchSetup(t_seg=10 * u.day, n_seg=8, band=(100 * u.Hz, 120 * u.Hz),
                         band_width=5 * u.Hz)
-    api = strain_sensitivity(setup, "advanced-fit", target=cat.target("Fict Quill"))
+    api = strain_sensitivity(setup, "second-gen-fit", target=cat.target("Fict Quill"))
     assert np.allclose(raw.quantity("h0", u.one), api["h0"], rtol=1e-12)
 
 
@@ -177,7 +177,7 @@ def test_tabulated_depths_equal_the_direct_solve(target):
     from cwlimits.sensitivity import _TABULATE_MIN, _depths
 
     setup = _setup(band=(100 * u.Hz, 300 * u.Hz), band_width=1 * u.Hz)
-    model = signal_model(setup, "advanced-fit", target)
+    model = signal_model(setup, "second-gen-fit", target)
     assert len(model) >= _TABULATE_MIN
     thr = false_alarm_threshold(0.01, model.n_templates, model.n_seg).value
     direct = critical_depth(thr, model.n_seg, model.t_data, model.signal_rule(), 0.0,

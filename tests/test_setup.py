@@ -18,9 +18,9 @@ detectors = ["H1", "L1", "V1"]
 span = "60 day"
 duty_factor = 0.8
 [grid]
-mismatch_coarse = 0.4
-mismatch_fine = 0.2
-lattice = "Zn"
+mismatch_coherent = 0.4
+mismatch_semicoherent = 0.2
+lattice = "cubic"
 [band]
 f_min = "100 Hz"
 f_max = "0.2 kHz"
@@ -36,7 +36,7 @@ semicoherent = "2e-9 s"
 
 def test_defaults_and_derived_values():
     s = SearchSetup(1 * u.day, 3, BAND)
-    assert s.detectors == ("H1", "L1") and s.lattice == "An*"
+    assert s.detectors == ("H1", "L1") and s.lattice == "covering"
     assert s.braking_index == (2.0, 7.0)            # Wette et al. 2008 range
     assert s.contiguous and s.total_span == 3 * u.day
     np.testing.assert_allclose(s.segment_mid_times.to_value(u.day), [0.5, 1.5, 2.5])
@@ -59,8 +59,8 @@ def test_span_spreads_segments_and_gaps():
     ({"braking_index": (1.0, 7.0)}, "braking_index_min must be > 1"),
     ({"braking_index": (0.5, 7.0)}, "braking_index_min must be > 1"),
     ({"braking_index": (5.0, 3.0)}, "braking_index_max"),
-    ({"mismatch_coarse": 0.0}, r"mismatch_coarse: must be in \(0, 1\]"),
-    ({"mismatch_fine": 1.5}, r"mismatch_fine: must be in \(0, 1\]"),
+    ({"mismatch_coherent": 0.0}, r"mismatch_coherent: must be in \(0, 1\]"),
+    ({"mismatch_semicoherent": 1.5}, r"mismatch_semicoherent: must be in \(0, 1\]"),
     ({"n_seg": 0}, "zero segments"),
     ({"n_seg": 2.5}, "integer"),
     ({"span": 5 * u.day}, "do not fit"),
@@ -88,7 +88,7 @@ def test_toml_read(write_file):
     s = load_setup(write_file("s.toml", GOOD))
     assert s.t_seg == 10 * u.day and s.n_seg == 4
     assert s.detectors == ("H1", "L1", "V1") and s.duty_factor == 0.8
-    assert s.mismatch_coarse == 0.4 and s.mismatch_fine == 0.2 and s.lattice == "Zn"
+    assert s.mismatch_coherent == 0.4 and s.mismatch_semicoherent == 0.2 and s.lattice == "cubic"
     assert s.f_max.to(u.Hz) == 200 * u.Hz and s.band_width.to(u.Hz) == 0.5 * u.Hz
     assert s.braking_index == (2.5, 6.0)
     assert s.cost_coherent.to(u.s) == 1e-6 * u.s and s.span == 60 * u.day
@@ -97,16 +97,16 @@ def test_toml_read(write_file):
 def test_toml_round_trip(tmp_path):
     # reference: tomllib (Python standard library) reads what we write, and it reads back
     # into an equal setup
-    s = SearchSetup(2 * u.day, 3, BAND, detectors=["K1", "L1"], mismatch_coarse=0.25,
-                    lattice="Zn", band_width=0.25 * u.Hz, braking_index=(3, 4.5),
+    s = SearchSetup(2 * u.day, 3, BAND, detectors=["K1", "L1"], mismatch_coherent=0.25,
+                    lattice="cubic", band_width=0.25 * u.Hz, braking_index=(3, 4.5),
                     cost_coherent=3e-7 * u.s, mid_times=[1, 5, 9] * u.day, span=12 * u.day,
                     duty_factor=0.7)
     path = s.to_toml(tmp_path / "out.toml")
     with open(path, "rb") as handle:
         doc = tomllib.load(handle)
-    assert doc["data"]["t_seg"] == "2.0 d" and doc["grid"]["lattice"] == "Zn"
+    assert doc["data"]["t_seg"] == "2.0 d" and doc["grid"]["lattice"] == "cubic"
     back = SearchSetup.from_toml(path)
-    for name in ("n_seg", "detectors", "mismatch_coarse", "mismatch_fine", "lattice",
+    for name in ("n_seg", "detectors", "mismatch_coherent", "mismatch_semicoherent", "lattice",
                  "braking_index", "duty_factor"):
         assert getattr(back, name) == getattr(s, name)
     for name in ("t_seg", "band_width", "cost_coherent", "cost_semicoherent", "span"):
@@ -130,7 +130,8 @@ def test_toml_round_trip(tmp_path):
     (('f_min = "100 Hz"\n', ''), "missing required key 'band.f_min'"),
     (("n_seg = 4", "n_seg = 0"), "key 'data.n_seg'.*zero segments"),
     (("n_seg = 4", "n_seg = 4.0"), "key 'data.n_seg'.*integer"),
-    (("mismatch_fine = 0.2", "mismatch_fine = 2"), r"key 'grid.mismatch_fine'.*\(0, 1\]"),
+    (("mismatch_semicoherent = 0.2", "mismatch_semicoherent = 2"),
+     r"key 'grid.mismatch_semicoherent'.*\(0, 1\]"),
     (("braking_index_min = 2.5", "braking_index_min = 1"),
      "key 'spin_down.braking_index_min'"),
     (("braking_index_max = 6", "braking_index_max = 2"), "key 'spin_down.braking_index_max'"),
@@ -138,6 +139,13 @@ def test_toml_round_trip(tmp_path):
     (('detectors = ["H1", "L1", "V1"]', 'detectors = "H1"'), "key 'data.detectors'"),
     (('format = "cwlimits-setup 1"', 'format = "other 2"'), "key 'format'"),
     (("[unit_cost]", "[unit_cost"), "not valid TOML"),
+    # keys and values of earlier versions name their replacement
+    (("mismatch_coherent = 0.4", "mismatch_coarse = 0.4"),
+     "key 'grid.mismatch_coarse' was renamed: write 'grid.mismatch_coherent'"),
+    (("mismatch_semicoherent = 0.2", "mismatch_fine = 0.2"),
+     "key 'grid.mismatch_fine' was renamed: write 'grid.mismatch_semicoherent'"),
+    (('lattice = "cubic"', 'lattice = "Zn"'), "key 'grid.lattice'.*now called 'cubic'"),
+    (('lattice = "cubic"', 'lattice = "An*"'), "key 'grid.lattice'.*now called 'covering'"),
 ])
 def test_toml_errors_name_file_and_key(write_file, edit, match):
     old, new = edit

@@ -78,7 +78,8 @@ def test_file_hash_is_the_sha256_of_the_bytes(tmp_path):
 
 def test_store_is_sqlite_in_wal_mode_in_the_output_folder(tmp_path):
     with open_store(tmp_path / "out") as store:
-        store.begin_run({"job": "x"})
+        run = store.begin_run({"job": "x"})
+        store.begin_part(run, "", n_items=1, chunk_size=1, seed=np.random.SeedSequence(1))
         assert store.path == tmp_path / "out" / STORE_NAME
     # A separate connection sees the write-ahead-log journal (SQLite "PRAGMA journal_mode").
     with sqlite3.connect(tmp_path / "out" / STORE_NAME) as db:
@@ -115,6 +116,7 @@ def test_runs_persist_and_record_their_configuration(tmp_path):
     with ResultStore(tmp_path / "s.sqlite") as store:
         run = store.begin_run({"f_max": 500 * u.Hz, "catalogue": "ab12"})
         assert store.begin_run({"catalogue": "ab12", "f_max": 500 * u.Hz}) == run
+        store.begin_part(run, "", n_items=1, chunk_size=1, seed=np.random.SeedSequence(1))
     with ResultStore(tmp_path / "s.sqlite") as store:
         assert store.runs() == [run]
         assert store.run_config(run) == {"f_max": "500.0 Hz", "catalogue": "ab12"}
@@ -134,6 +136,18 @@ def test_chunk_log_records_the_session_with_timestamps(tmp_path):
         started = datetime.datetime.fromisoformat(record["started_at"])
         finished = datetime.datetime.fromisoformat(record["finished_at"])
         assert started.tzinfo is not None and started <= finished
+
+
+def test_the_file_is_created_only_when_a_part_begins(tmp_path):
+    # issue 14: a run refused before any work (bad input) leaves no store behind
+    path = tmp_path / "out" / STORE_NAME
+    with open_store(tmp_path / "out") as store:
+        run = store.begin_run({"job": "late"})
+        assert store.runs() == [run] and not path.exists() and not path.parent.exists()
+        store.begin_part(run, "A", n_items=2, chunk_size=1, seed=np.random.SeedSequence(3))
+        assert path.is_file()
+    with open_store(tmp_path / "out") as store:
+        assert store.runs() == [run] and store.run_config(run) == {"job": "late"}
 
 
 def test_a_file_that_is_not_a_store_is_a_clear_error(tmp_path):

@@ -54,7 +54,7 @@ def test_band_noise_variance_and_two_sided_psd_match_welch():
 def test_coloured_band_noise_follows_the_noise_model():
     # A wide band at low frequency where the design fit varies by ~x3 across the band:
     # every Welch bin (Hann, 50 % overlap, mean of K periodograms) must match S_n(f)/2.
-    noise = get_noise("advanced-fit")
+    noise = get_noise("second-gen-fit")
     f_ref, b = 40 * u.Hz, 16 * u.Hz
     data = sy.simulate_noise("H1", noise, f_ref, b, 1024 * u.s,
                              (T0 + np.arange(4) * 1100.0) * u.s, rng=5)
@@ -88,7 +88,7 @@ def test_real_noise_matches_welch_and_heterodyne_normalisation():
 
 
 def test_real_noise_from_a_noise_model_matches_welch():
-    noise = get_noise("advanced-fit")
+    noise = get_noise("second-gen-fit")
     fs = 512.0
     x = sy.simulate_real_noise(noise, fs * u.Hz, 256 * u.s, rng=8).value
     f, p = scipy.signal.welch(x, fs=fs, nperseg=1024)

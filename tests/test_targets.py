@@ -27,21 +27,22 @@ def test_demo_catalogue(demo_catalogue_path):
 
 def test_sexagesimal_and_degrees_agree_with_astropy(write_file):
     # Positions read the way astropy.coordinates.SkyCoord reads them (reference library)
-    path = write_file("c.csv", HEADER + "A,05h34m31.9s,+22d00m52s,1,100\n"
-                      "B,05:34:31.9,+22:00:52,1,100\nC,83.632917,22.014444,1,100\n")
+    # (the position of the fictional demo target Fict Ember)
+    path = write_file("c.csv", HEADER + "A,04h12m37s,+31d47m10s,1,100\n"
+                      "B,04:12:37,+31:47:10,1,100\nC,63.154167,31.786111,1,100\n")
     cat = cwlimits.load_targets(path)
-    ref = SkyCoord("05h34m31.9s", "+22d00m52s")
+    ref = SkyCoord("04h12m37s", "+31d47m10s")
     for target in cat:
         assert target.coord.separation(ref) < 0.01 * u.arcsec
 
 
 def test_galactic_coordinates(write_file):
-    path = write_file("g.csv", "name,l,b,distance [pc],age [kyr]\nA,120.1,1.4,3300,1.2\n")
+    path = write_file("g.csv", "name,l,b,distance [pc],age [kyr]\nA,200.3,12.4,2600,1.2\n")
     target = cwlimits.load_targets(path).target("A")
     # SkyCoord galactic -> ICRS (reference library)
-    ref = SkyCoord(l=120.1 * u.deg, b=1.4 * u.deg, frame="galactic").icrs
+    ref = SkyCoord(l=200.3 * u.deg, b=12.4 * u.deg, frame="galactic").icrs
     assert target.coord.separation(ref) < 1e-6 * u.arcsec
-    assert target.distance.to_value(u.kpc) == pytest.approx(3.3)
+    assert target.distance.to_value(u.kpc) == pytest.approx(2.6)
     assert target.age.to_value(u.yr) == pytest.approx(1200)
 
 

@@ -156,7 +156,7 @@ def test_the_fast_chunk_path_equals_the_public_search():
                    _cache=layout._cache)
     res = stackslide_fstat(data, SKY, f_min=f_k * u.Hz, f_max=f_k * u.Hz, padding=1,
                            noise=psd[:, None] * u.Hz**-1)
-    assert res.twoF.value[0, 0] == pytest.approx(out["twoF"][0], rel=1e-9)
+    assert res.two_f.value[0, 0] == pytest.approx(out["two_f"][0], rel=1e-9)
 
 
 class _StopAfter:
@@ -186,7 +186,7 @@ def test_an_interrupted_campaign_resumes_with_only_the_missing_chunks(tmp_path):
         log = store.chunk_log(run)
     assert len(counted) == 3  # chunks 2, 3, 4 computed; 0 and 1 read from the store
     assert sorted(entry["chunk"] for entry in log) == [0, 1, 2, 3, 4]  # each once
-    np.testing.assert_array_equal(resumed.twoF, reference.twoF)
+    np.testing.assert_array_equal(resumed.two_f, reference.two_f)
     assert list(resumed.table["n_detected"]) == list(reference.table["n_detected"])
 
 

@@ -2,11 +2,10 @@
 
 import argparse
 import sys
-from pathlib import Path
 
 from ..errors import InputError
 
-__all__ = ["add_parser", "quantity_arg", "check_output_path", "echo"]
+__all__ = ["add_parser", "quantity_arg", "check_output_path", "check_output_dir", "echo"]
 
 
 def add_parser(subparsers, common, name, *, help, description, examples):
@@ -34,16 +33,22 @@ def quantity_arg(unit, name):
     return parse
 
 
-def check_output_path(path, suffixes=(".csv", ".ecsv")):
-    """Validate an output path before any work is done; return it as a Path."""
-    if path is None:
-        return None
-    path = Path(path)
-    if path.suffix.lower() not in suffixes:
-        raise InputError(f"output file must end in {' or '.join(suffixes)}", file=str(path))
-    if path.exists() and path.is_dir():
-        raise InputError("output path is a folder", file=str(path))
-    return path
+def check_output_path(path, suffixes=(".csv", ".ecsv"), option="--out"):
+    """Validate an output file path before any work is done; return it as a Path.
+
+    The one preflight of every output option (:func:`cwlimits._files.check_output_file`):
+    the suffix, no folder or link at the path, and a folder that can be written.
+    """
+    from .._files import check_output_file
+
+    return check_output_file(path, suffixes, option)
+
+
+def check_output_dir(path, option="--out-dir"):
+    """Validate an output folder before any work is done; return it as a Path."""
+    from .._files import check_output_folder
+
+    return check_output_folder(path, option)
 
 
 def echo(args, text=""):

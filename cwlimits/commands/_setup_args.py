@@ -11,8 +11,9 @@ from ._common import quantity_arg
 __all__ = ["add_setup_args", "add_signal_model_args", "build_setup"]
 
 # option dest -> SearchSetup field (or a part of one)
-_OVERRIDES = ("t_seg", "n_seg", "span", "duty_factor", "mismatch_coarse", "mismatch_fine",
-              "lattice", "band_width", "cost_coherent", "cost_semicoherent")
+_OVERRIDES = ("t_seg", "n_seg", "span", "duty_factor", "mismatch_coherent",
+              "mismatch_semicoherent", "lattice", "band_width", "cost_coherent",
+              "cost_semicoherent")
 
 
 def add_setup_args(parser):
@@ -28,12 +29,12 @@ def add_setup_args(parser):
                      help="fraction of time with data (for the sensitivity; not the cost)")
     grp.add_argument("--detectors", metavar="LIST",
                      help="comma-separated site codes (default H1,L1)")
-    grp.add_argument("--mismatch-coarse", type=float, metavar="MU",
+    grp.add_argument("--mismatch-coherent", type=float, metavar="MU",
                      help="maximum mismatch of the coherent grid (default 0.3)")
-    grp.add_argument("--mismatch-fine", type=float, metavar="MU",
+    grp.add_argument("--mismatch-semicoherent", type=float, metavar="MU",
                      help="maximum mismatch of the semi-coherent grid (default 0.3)")
-    grp.add_argument("--lattice", choices=sorted({"An*", "Zn"}),
-                     help="template lattice (default An*)")
+    grp.add_argument("--lattice", choices=sorted({"covering", "cubic"}),
+                     help="template lattice: covering (A_n*, default) or cubic (Z^n)")
     grp.add_argument("--f-min", type=quantity_arg("Hz", "f_min"), metavar="F",
                      help="lower band edge")
     grp.add_argument("--f-max", type=quantity_arg("Hz", "f_max"), metavar="F",

@@ -1,7 +1,5 @@
 """``cwlimits calibrate``: time the F-statistic kernels here and write the unit costs."""
 
-import tempfile
-from pathlib import Path
 
 from ..errors import InputError
 from ._common import add_parser, check_output_path, echo, format_rows
@@ -53,8 +51,8 @@ def register(subparsers, common):
     timing = parser.add_argument_group("timing")
     timing.add_argument("--repeats", type=int, default=5, metavar="N",
                         help="timing repetitions; the fastest is kept (default 5)")
-    timing.add_argument("--samples", type=int, default=2**14, metavar="M",
-                        help="samples per segment of the timed FFT (default 16384)")
+    timing.add_argument("--samples", type=int, default=10_000, metavar="M",
+                        help="samples per segment of the timed FFT (default 10000)")
     timing.add_argument("--segments", type=int, default=16, metavar="N",
                         help="segments of the timed semi-coherent sum (default 16)")
     parser.set_defaults(run=run)
@@ -107,12 +105,7 @@ def run(args):
 
 def _write_with_note(setup, path, note):
     """Write ``setup`` as TOML with a comment block first (atomically)."""
-    from ..tables import atomic_write
+    from .._files import atomic_write
 
-    with tempfile.TemporaryDirectory() as tmp:
-        text = setup.to_toml(Path(tmp) / "setup.toml").read_text(encoding="utf-8")
-
-    def write(handle):
-        handle.write(note + text)
-
-    atomic_write(path, write)
+    text = note + setup.toml_text()
+    atomic_write(path, lambda handle: handle.write(text))

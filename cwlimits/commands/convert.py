@@ -1,7 +1,6 @@
 """``cwlimits convert``: strain amplitude h0 to ellipticity and r-mode amplitude."""
 
 
-from .. import _defaults
 from ..errors import InputError
 from ._common import (
     add_parser,
@@ -19,6 +18,8 @@ ORDER = 20
 
 
 def register(subparsers, common):
+    from .. import _defaults
+
     parser = add_parser(
         subparsers, common, "convert",
         help="turn h0 (a value or an h0-vs-frequency table) into ellipticity and r-mode "

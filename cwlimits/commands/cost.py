@@ -32,7 +32,7 @@ _EXAMPLES = [
     "cwlimits cost --catalogue target_lists/demo.csv --target 'Fict Pulsar Cinder' "
     "--spin-box 1e-3 0.05 --t-seg 1day --n-seg 30 --band-width 0.01Hz",
     "cwlimits cost --age 500yr --t-seg 5day --n-seg 20 --f-min 100Hz --f-max 300Hz "
-    "--mismatch-coarse 0.5 --mismatch-fine 0.2 --lattice Zn --detectors H1,L1,V1",
+    "--mismatch-coherent 0.5 --mismatch-semicoherent 0.2 --lattice cubic --detectors H1,L1,V1",
 ]
 
 def register(subparsers, common):
@@ -142,7 +142,7 @@ def run(args):
     if args.plot is not None:
         if args.scan is None:
             raise InputError("--plot needs --scan (t-seg or segments)")
-        plot = check_output_path(args.plot, PLOT_SUFFIXES)
+        plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     target, what, default_band = _target_space(args)
     setup = build_setup(args, default_band)
     if args.scan:

@@ -1,11 +1,12 @@
 """``cwlimits demo``: the main job on the embedded, fictional demo scenario."""
 
+import os
 from dataclasses import replace
 from importlib import resources
 from pathlib import Path
 
 from ._common import add_parser, echo
-from .report import write
+from .report import add_overwrite_arg, write
 
 __all__ = ["ORDER", "register", "run", "demo_config_path"]
 
@@ -29,7 +30,9 @@ def register(subparsers, common):
                     "a run record) into the output folder.",
         examples=["cwlimits demo", "cwlimits demo --out-dir /tmp/demo-report --seed 3"])
     parser.add_argument("--out-dir", default="reports/demo", metavar="DIR",
-                        help="output folder (default reports/demo), replaced as a whole")
+                        help="output folder (default reports/demo); a folder cwlimits made "
+                             "is replaced as a whole, any other non-empty one is refused")
+    add_overwrite_arg(parser)
     parser.add_argument("--seed", type=int, default=None,
                         help="seed of every random draw (default: the demo's, 2026)")
     parser.set_defaults(run=run)
@@ -42,7 +45,9 @@ def run(args):
                "SIMULATED search results (noise only, fixed seed)")
     with resources.as_file(demo_config_path()) as path:
         config = load_config(path)
-        values = dict(config.values, output=Path(args.out_dir).resolve())
+        # absolute, links not resolved: an output that is a link is refused, not followed
+        values = dict(config.values, output=Path(os.path.abspath(args.out_dir)))
         if args.seed is not None:
             values["seed"] = args.seed
-        return write(args, replace(config, values=values), simulate=True)
+        return write(args, replace(config, values=values), simulate=True,
+                     output_option="--out-dir")

@@ -1,7 +1,6 @@
 """``cwlimits indirect``: the indirect amplitude limits of every target of a catalogue."""
 
 
-from .. import _defaults
 from ._common import (
     add_parser,
     check_output_path,
@@ -18,6 +17,8 @@ ORDER = 10
 
 
 def register(subparsers, common):
+    from .. import _defaults
+
     parser = add_parser(
         subparsers, common, "indirect",
         help="age-based and spin-down limits on h0 for each target of a catalogue",

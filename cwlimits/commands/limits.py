@@ -3,7 +3,6 @@
 import warnings
 from pathlib import Path
 
-from .. import _defaults
 from .._defaults import DEFAULT_NOISE_MODEL, PLOT_SUFFIXES
 from ..errors import InputError
 from ._common import (
@@ -31,6 +30,8 @@ ORDER = 60
 
 
 def register(subparsers, common):
+    from .. import _defaults
+
     parser = add_parser(
         subparsers, common, "limits",
         help="upper limits on h0, ellipticity and r-mode amplitude from search results",
@@ -51,7 +52,7 @@ def register(subparsers, common):
             "--target A --posterior 101.3Hz --plot post.png"])
     parser.add_argument("results", metavar="RESULTS",
                         help="results table (CSV/ECSV): f_lo or f_mid, width, "
-                             "loudest_2F_sum or loudest_2F_mean, optional psd/asd, "
+                             "loudest_2F or loudest_2F_per_segment, optional psd/asd, "
                              "n_templates")
     add_target_args(parser)
     add_setup_args(parser)
@@ -141,7 +142,7 @@ def run(args):
     from ..tables import write_table
 
     out = check_output_path(args.out)
-    plot = check_output_path(args.plot, PLOT_SUFFIXES)
+    plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     if not (0.0 < args.confidence < 1.0):
         raise InputError("--confidence must lie strictly between 0 and 1",
                          value=args.confidence)
@@ -269,7 +270,7 @@ def summarise(args, table, title):
     n = len(table)
     rows = np.unique(np.linspace(0, n - 1, min(n, 15)).round().astype(int))
     headers = ["f_mid [Hz]", "2F*", "h0 limit", "eps limit", "alpha limit", "h0_age / h0"]
-    lines = [[f"{table['f_mid'][i].value:.6g}", f"{table['loudest_2F_sum'][i].value:.5g}",
+    lines = [[f"{table['f_mid'][i].value:.6g}", f"{table['loudest_2F'][i].value:.5g}",
               sci(table["h0_limit"][i].value), sci(table["eps_limit"][i].value),
               sci(table["alpha_limit"][i].value), f"{table['age_ratio'][i].value:.3g}"]
              for i in rows]

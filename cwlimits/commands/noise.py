@@ -11,8 +11,8 @@ ORDER = 30
 
 _EXAMPLES = [
     "cwlimits noise --list                                  # the analytic design fits",
-    "cwlimits noise advanced-fit --band 20Hz 2000Hz --step 10Hz",
-    "cwlimits noise third-gen-fit --band 5Hz 500Hz --step 5Hz --out et.csv --plot et.png",
+    "cwlimits noise second-gen-fit --band 20Hz 2000Hz --step 10Hz",
+    "cwlimits noise third-gen-fit --band 5Hz 500Hz --step 5Hz --out gen3.csv --plot gen3.png",
     "cwlimits noise my_asd.csv --band 30Hz 1000Hz --step 1Hz --out bands.ecsv",
     "cwlimits noise curve.txt --kind psd --plot curve.pdf     # headerless two-column file",
     "cwlimits noise --timeseries strain.npy --sample-rate 4096Hz --segment 4s "
@@ -71,9 +71,9 @@ def _list_models(args):
 
     from ..noise import NOISE_MODELS
 
-    echo(args, f"{'name':<15} {'f_min':>8}  description (default: {DEFAULT_NOISE_MODEL})")
+    echo(args, f"{'name':<18} {'f_min':>8}  description (default: {DEFAULT_NOISE_MODEL})")
     for name, model in NOISE_MODELS.items():
-        echo(args, f"{name:<15} {model.f_min.to_value(u.Hz):>5g} Hz  {model.title}; "
+        echo(args, f"{name:<18} {model.f_min.to_value(u.Hz):>5g} Hz  {model.title}; "
                    f"{model.reference}")
     return 0
 
@@ -140,7 +140,7 @@ def run(args):
         return _list_models(args)
     # output paths are checked before any work, so a bad one costs nothing
     out = check_output_path(args.out)
-    plot = check_output_path(args.plot, (".png", ".svg", ".pdf"))
+    plot = check_output_path(args.plot, (".png", ".svg", ".pdf"), "--plot")
     source, assumptions = _source_from_args(args)
     f_lo, f_hi = _band_grid(args, source)
     psd = band_psd(source, f_lo, f_hi)

@@ -37,8 +37,8 @@ def add_plan_args(parser):
                      help="comma-separated site codes (default H1,L1)")
     grp.add_argument("--band-width", type=quantity_arg("Hz", "band width"),
                      default="1 Hz", metavar="DF", help="reporting band width (1Hz)")
-    grp.add_argument("--lattice", choices=("An*", "Zn"), default="An*",
-                     help="template lattice (default An*)")
+    grp.add_argument("--lattice", choices=("covering", "cubic"), default="covering",
+                     help="template lattice: covering (A_n*, default) or cubic (Z^n)")
     grp.add_argument("--t-seg-min", type=quantity_arg("day", "t_seg_min"),
                      default="1 day", metavar="T", help="shortest segment (default 1day)")
     grp.add_argument("--n-seg-max", type=int, default=1000, metavar="N",
@@ -63,8 +63,8 @@ def register(subparsers, common):
     parser = add_parser(
         subparsers, common, "plan",
         help="best segment setup and band of a directed search for a computing budget",
-        description="Choose the segment length, number of segments and the coarse and "
-                    "fine mismatches of a StackSlide search of one target at a fixed "
+        description="Choose the segment length, number of segments and the coherent and "
+                    "semicoherent mismatches of a StackSlide search of one target at a fixed "
                     "computing budget and maximum data span: either the greatest "
                     "sensitivity depth over a fixed band (--objective depth) or the widest "
                     "sub-band where the predicted h0 beats the age-based limit (--objective "
@@ -106,9 +106,9 @@ def run(args):
     from ..tables import write_table
 
     out = check_output_path(args.out, (".toml",))
-    table_path = check_output_path(args.table)
-    plot = check_output_path(args.plot, PLOT_SUFFIXES)
-    trade = check_output_path(args.trade_off, PLOT_SUFFIXES)
+    table_path = check_output_path(args.table, option="--table")
+    plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
+    trade = check_output_path(args.trade_off, PLOT_SUFFIXES, "--trade-off")
     budget = as_budget(args.budget)
     target = resolve_target(args)
     options = plan_options(args)
@@ -153,7 +153,8 @@ def _summarise(args, plan):
                + (f" ({plan.measure})" if plan.objective == "beat-age" else ""))
     echo(args, f"  segments: {s.n_seg} x {s.t_seg.to(u.day):.6g} (data span "
                f"{(s.n_seg * s.t_seg).to(u.day):.6g} of at most {plan.span.to(u.day):.6g})")
-    echo(args, f"  mismatches: coarse {s.mismatch_coarse:.4g}, fine {s.mismatch_fine:.4g} "
+    echo(args, f"  mismatches: coherent {s.mismatch_coherent:.4g}, semicoherent "
+               f"{s.mismatch_semicoherent:.4g} "
                f"({s.lattice})")
     echo(args, f"  band: {s.f_min:.6g} to {s.f_max:.6g}")
     echo(args, f"  cost: {sci(plan.cost.to_value(u.h), 4)} core-hours of a budget of "

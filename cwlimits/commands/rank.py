@@ -6,7 +6,15 @@ from pathlib import Path
 
 from .._defaults import CASES
 from ..errors import InputError
-from ._common import add_parser, check_output_path, echo, format_assumptions, format_rows, sci
+from ._common import (
+    add_parser,
+    check_output_dir,
+    check_output_path,
+    echo,
+    format_assumptions,
+    format_rows,
+    sci,
+)
 from ._execution import add_executor_args, executor_from_args, progress_from_args
 from .plan import PLOT_SUFFIXES, add_plan_args, plan_options
 
@@ -29,7 +37,7 @@ def register(subparsers, common):
         examples=[
             "cwlimits rank target_lists/demo.csv --budget '1e6 h' --span '1 yr' "
             "--out ranking.ecsv --plot merit.png --plans-dir plans",
-            "cwlimits rank cat.csv --budget '300 yr' --span 200day --measure width "
+            "cwlimits rank cat.csv --budget '400 yr' --span 200day --measure width "
             "--case nominal --workers 2"])
     parser.add_argument("catalogue", metavar="CATALOGUE", help="target catalogue (CSV/ECSV)")
     parser.add_argument("--budget", required=True, metavar="TIME",
@@ -74,11 +82,9 @@ def run(args):
     from ..targets import load_targets
 
     out = check_output_path(args.out)
-    plot = check_output_path(args.plot, PLOT_SUFFIXES)
-    plot_plans = check_output_path(args.plot_plans, PLOT_SUFFIXES)
-    plans_dir = Path(args.plans_dir) if args.plans_dir else None
-    if plans_dir is not None and plans_dir.exists() and not plans_dir.is_dir():
-        raise InputError("--plans-dir exists and is not a folder", file=str(plans_dir))
+    plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
+    plot_plans = check_output_path(args.plot_plans, PLOT_SUFFIXES, "--plot-plans")
+    plans_dir = check_output_dir(args.plans_dir, "--plans-dir")
     total = as_budget(args.budget, "--budget")
     per = as_budget(args.per_target_budget, "--per-target-budget") \
         if args.per_target_budget else None
@@ -121,7 +127,6 @@ def run(args):
                     assumptions=ranking.assumptions)
         echo(args, f"wrote {out}")
     if plans_dir is not None:
-        plans_dir.mkdir(parents=True, exist_ok=True)
         for name, plan in ranking.plans.items():
             path = plan.write(plans_dir / f"{_slug(name)}.toml")
             echo(args, f"wrote {path}")

@@ -3,7 +3,7 @@
 from .._defaults import REPORT_STEPS
 from ._common import add_parser, echo
 
-__all__ = ["ORDER", "register", "run", "write"]
+__all__ = ["ORDER", "register", "run", "write", "add_overwrite_arg"]
 
 ORDER = 5
 
@@ -20,7 +20,17 @@ def register(subparsers, common):
         examples=["cwlimits report analysis.toml",
                   "cwlimits report analysis.toml --quiet"])
     parser.add_argument("config", metavar="CONFIG", help="analysis configuration (TOML)")
+    add_overwrite_arg(parser)
     parser.set_defaults(run=run)
+
+
+def add_overwrite_arg(parser):
+    """Add ``--overwrite`` (shared by ``report`` and ``demo``)."""
+    parser.add_argument("--overwrite", action="store_true",
+                        help="write the report into an existing folder that holds other "
+                             "files (they are kept; only files listed in the folder's "
+                             "cwlimits-manifest.json are deleted).  Without it, such a "
+                             "folder is refused; a folder cwlimits made is replaced")
 
 
 def run(args):
@@ -30,7 +40,7 @@ def run(args):
     return write(args, config)
 
 
-def write(args, config, simulate=False):
+def write(args, config, simulate=False, output_option=None):
     """Run the report of ``config`` with a progress bar and the usual messages."""
     from ..analysis import run_report
     from ..progress import progress
@@ -38,6 +48,7 @@ def write(args, config, simulate=False):
     quiet = getattr(args, "quiet", False)
     with progress(REPORT_STEPS, "report", enabled=False if quiet else None, unit="step") as update:
         folder = run_report(config, echo=lambda text: echo(args, text), progress=update,
-                            simulate=simulate)
+                            simulate=simulate, overwrite=getattr(args, "overwrite", False),
+                            output_option=output_option)
     echo(args, f"wrote the report to {folder / 'index.html'}")
     return 0

@@ -1,9 +1,7 @@
 """``cwlimits response``: a network's response to a CW source at a sky position."""
 
-import os
+import io
 import re
-import tempfile
-from pathlib import Path
 
 from .._defaults import PLOT_SUFFIXES, builtin_detector_names
 from ..errors import InputError
@@ -23,6 +21,10 @@ __all__ = ["ORDER", "register", "run"]
 ORDER = 35
 
 _QUANTILES = (0.05, 0.10, 0.25, 0.50, 0.75, 0.90, 0.95)
+#: Column names of the antenna-pattern averages: <a^2>, <b^2>, <ab> over the data and
+#: <a^2><b^2> - <ab>^2: A, B, C and D = AB - C^2 in the notation of Jaranowski, Krolak &
+#: Schutz 1998, gr-qc/9804014 (Sect. III).
+_AVERAGE_COLUMNS = ("mean_a2", "mean_b2", "mean_ab", "determinant")
 
 
 def register(subparsers, common):
@@ -113,27 +115,16 @@ def _sky_position(args):
     return coord, f"RA {args.ra}, Dec {args.dec}"
 
 
-def _check_plot_path(path):
-    if path is None:
-        return None
-    path = Path(path)
-    if path.suffix.lower() not in PLOT_SUFFIXES:
-        raise InputError(f"plot file must end in {', '.join(PLOT_SUFFIXES)}",
-                         file=str(path))
-    if path.is_dir():
-        raise InputError("plot path is a folder", file=str(path))
-    return path
-
-
 def run(args):
     """Run ``cwlimits response``; return the exit code."""
     import astropy.units as u
     import numpy as np
 
     from .. import response as resp
+    from .._files import atomic_write
 
     out = check_output_path(args.out)
-    plot = _check_plot_path(args.plot)
+    plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     extra = resp.load_detectors(args.detector_file) if args.detector_file else None
     detectors = resp.get_detectors(args.detectors, extra)
     coord, where = _sky_position(args)
@@ -154,7 +145,7 @@ def run(args):
     with resp._QuietTime():
         assumptions = _assumptions(averages, where, args)
         echo(args, f"sky position: {where} (ICRS {coord.to_string('hmsdms')})")
-        headers = ["detector", "weight", "T_data [d]", "A", "B", "C", "D", "mean R^2"]
+        headers = ["detector", "weight", "T_data [d]", *_AVERAGE_COLUMNS, "mean R^2"]
         rows = []
         for i, det in enumerate(detectors):
             a, b, c = (float(x[i]) for x in (averages.A_det, averages.B_det, averages.C_det))
@@ -174,20 +165,14 @@ def run(args):
                                                                      strict=True)))
         echo(args)
         echo(args, format_assumptions(assumptions))
-        # The figure goes to a temporary file first and is renamed only once the table
-        # is written, so a failure leaves neither behind.
-        pending = _plot(plot, detectors, coord, averages.start) if plot is not None else None
-        try:
-            if out is not None:
-                _write(out, detectors, averages, network, single, assumptions)
-        except BaseException:
-            if pending is not None:
-                pending.unlink(missing_ok=True)
-            raise
+        # The figure is drawn into memory first and written only once the table is, so
+        # a failure leaves neither behind.
+        figure = _plot(plot, detectors, coord, averages.start) if plot is not None else None
         if out is not None:
+            _write(out, detectors, averages, network, single, assumptions)
             echo(args, f"wrote {out}")
-        if pending is not None:
-            os.replace(pending, plot)
+        if figure is not None:
+            atomic_write(plot, lambda handle: handle.write(figure), binary=True)
             echo(args, f"wrote {plot}")
     return 0
 
@@ -227,8 +212,11 @@ def _assumptions(averages, where, args):
         "R2": "rho^2 = R^2 h0^2 T_data/S_n (network: h0^2 R^2 sum_d weight_d T_d/S_d); "
               "R^2 = A alpha1 + B alpha2 + 2 C alpha3 with A+ = (1+cosi^2)/2, Ax = cosi, "
               "sin^2(zeta) in the network A, B, C (JKS 1998 gr-qc/9804014)",
-        "A_B_C_rows": "detector rows: JKS <a^2>, <b^2>, <ab> without sin^2(zeta); network "
-                      "row: weighted sum with sin^2(zeta); site columns nan on it",
+        "columns": "mean_a2, mean_b2, mean_ab = the time averages <a^2>, <b^2>, <ab> of the "
+                   "antenna-pattern functions a(t), b(t) (A, B, C of JKS 1998); determinant "
+                   "= mean_a2 mean_b2 - mean_ab^2 (their D)",
+        "average_rows": "detector rows: <a^2>, <b^2>, <ab> without sin^2(zeta); network "
+                        "row: weighted sum with sin^2(zeta); site columns nan on it",
         "R2_quantiles": f"quadrature rule, {args.order}x{args.order} nodes, uniform "
                         "cos(iota) in [-1,1] and psi",
     }
@@ -250,10 +238,10 @@ def _write(out, detectors, averages, network, single, assumptions):
     table["weight"] = list(averages.weights) + [1.0] << u.one
     table["t_data"] = list(averages.t_data.to_value(u.d)) + [
         float(np.sum(averages.t_data.to_value(u.d)))] << u.d
-    for key in ("A", "B", "C"):
+    for key, column in zip(("A", "B", "C"), _AVERAGE_COLUMNS[:3], strict=True):
         per = getattr(averages, f"{key}_det").to_value(u.one)
-        table[key] = list(per) + [float(getattr(averages, key))] << u.one
-    table["D"] = table["A"] * table["B"] - table["C"] ** 2
+        table[column] = list(per) + [float(getattr(averages, key))] << u.one
+    table["determinant"] = table["mean_a2"] * table["mean_b2"] - table["mean_ab"] ** 2
     rows = single + [network]
     table["R2_mean"] = [r["mean"] for r in rows] << u.one
     for j, q in enumerate(_QUANTILES):
@@ -294,17 +282,9 @@ def _plot(path, detectors, coord, start):
     ax.grid(True, alpha=0.3)
     ax.legend(fontsize="small", ncol=2)
     fig.tight_layout()
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=path.suffix, dir=path.parent)
-    os.close(fd)
-    mask = os.umask(0)
-    os.umask(mask)
-    os.chmod(tmp, 0o666 & ~mask)  # mkstemp makes the file private; use the usual mode
+    buffer = io.BytesIO()
     try:
-        fig.savefig(tmp, format=path.suffix.lstrip(".").lower())
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+        fig.savefig(buffer, format=path.suffix.lstrip(".").lower())
     finally:
         plt.close(fig)
-    return Path(tmp)
+    return buffer.getvalue()

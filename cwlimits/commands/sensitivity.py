@@ -30,7 +30,7 @@ def register(subparsers, common):
                     "compared with the target's age-based limit.",
         examples=[
             "cwlimits sensitivity --catalogue target_lists/demo.csv --target 'Fict Ember' "
-            "--setup search.toml --noise advanced-fit --band 50Hz 500Hz",
+            "--setup search.toml --noise second-gen-fit --band 50Hz 500Hz",
             "cwlimits sensitivity --catalogue target_lists/demo.csv --target 'Fict Quill' "
             "--t-seg 10day --n-seg 12 --f-min 50Hz --f-max 500Hz --confidence 0.9 "
             "--out sens.ecsv --plot sens.png",
@@ -53,9 +53,10 @@ def register(subparsers, common):
                        help="the false alarm holds per band (default) or for the search")
     stats.add_argument("--threshold", type=float, default=None,
                        help="a threshold on the statistic instead of --false-alarm")
-    stats.add_argument("--statistic", choices=("sum", "mean"), default="sum",
-                       help="convention of --threshold and of the output: 2F summed over "
-                            "segments (default) or averaged over them")
+    stats.add_argument("--convention", choices=("total", "per_segment"), default="total",
+                       help="convention of --threshold and of the threshold column: 2F "
+                            "summed over the segments ('total', default) or averaged over "
+                            "them ('per_segment')")
     stats.add_argument("--trials", type=float, default=None,
                        help="effective number of independent templates per band (overrides "
                             "the template count)")
@@ -72,7 +73,7 @@ def run(args):
     from ..tables import write_table
 
     out = check_output_path(args.out)
-    plot = check_output_path(args.plot, PLOT_SUFFIXES)
+    plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     target = resolve_target(args)
     setup = build_setup(args)
     if args.band is not None:
@@ -80,7 +81,7 @@ def run(args):
     table = strain_sensitivity(
         setup, args.noise, target=target, confidence=args.confidence,
         false_alarm=args.false_alarm, threshold=args.threshold,
-        false_alarm_scope=args.false_alarm_scope, statistic=args.statistic,
+        false_alarm_scope=args.false_alarm_scope, convention=args.convention,
         sky=args.sky, mismatch=args.mismatch, start=args.start, n_templates=args.trials)
     summarise(args, table, f"expected sensitivity for {target.name}")
     if out is not None:

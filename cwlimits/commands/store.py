@@ -19,7 +19,8 @@ def register(subparsers, common):
         description="Long commands (limits, rank, validate) keep every finished chunk in "
                     f"{STORE_NAME} in their output folder, so that a rerun resumes.  This "
                     "lists the runs it holds (command, finished chunks per part, when) or, "
-                    "with --clear, deletes the store so the next run starts afresh.",
+                    "with --clear, deletes the store so the next run starts afresh.  Only a "
+                    "file that is verifiably a cwlimits store is read or deleted.",
         examples=["cwlimits store limits/", "cwlimits store limits/ --clear"])
     parser.add_argument("folder", metavar="FOLDER", help="output folder holding the store")
     parser.add_argument("--clear", action="store_true",
@@ -28,16 +29,29 @@ def register(subparsers, common):
 
 
 def run(args):
-    from ..store import open_store
+    from ..store import is_store, open_store
 
     folder = Path(args.folder)
     path = folder / STORE_NAME
-    if not path.is_file():
+    if not (path.is_file() or path.is_symlink()):
         raise InputError(f"no results store ({STORE_NAME}) in this folder", file=str(folder))
+    if not is_store(path):
+        # Listing and clearing both refuse it: cwlimits deletes only what it wrote.
+        raise InputError("not a cwlimits results store (no SQLite header or no cwlimits "
+                         "tables); nothing was deleted", file=str(path))
     if args.clear:
-        # SQLite keeps its write-ahead log beside the database: remove all three files.
-        for suffix in ("", "-wal", "-shm"):
-            Path(f"{path}{suffix}").unlink(missing_ok=True)
+        with open_store(folder) as store:
+            busy = store.live_claims()
+        if busy:
+            raise InputError(f"the store is in use by process {busy[0]} (it is computing "
+                             "chunks); clear it when that run has finished", file=str(path))
+        # SQLite keeps its write-ahead log beside the database: remove all three files
+        # (the side files only if they are plain files, never through a link).
+        path.unlink()
+        for suffix in ("-wal", "-shm"):
+            side = Path(f"{path}{suffix}")
+            if side.is_file() and not side.is_symlink():
+                side.unlink()
         echo(args, f"deleted {path}")
         return 0
     with open_store(folder) as store:

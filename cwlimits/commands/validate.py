@@ -184,7 +184,7 @@ def run(args):
     from ..validation import _gps_seconds, injection_campaign, plot_efficiency, simulation_layout
 
     out = check_output_path(args.out)
-    plot = check_output_path(args.plot, PLOT_SUFFIXES)
+    plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     _check_numbers(args)
     target = resolve_target(args)
     setup = _setup(args)

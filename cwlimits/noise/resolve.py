@@ -5,7 +5,7 @@ from pathlib import Path
 from ..errors import InputError
 from ._base import NoiseSource
 from .files import read_noise_file
-from .models import NOISE_MODELS, noise_model
+from .models import _RETIRED_NOISE_MODELS, NOISE_MODELS, noise_model
 
 __all__ = ["get_noise"]
 
@@ -37,7 +37,7 @@ def get_noise(spec, kind=None):
         return spec
     text = str(spec).strip()
     # a model name wins over a file of the same name in the working folder
-    if text.lower() in NOISE_MODELS:
+    if text.lower() in NOISE_MODELS or text.lower() in _RETIRED_NOISE_MODELS:
         return noise_model(text)
     if Path(text).is_file():
         return read_noise_file(text, kind)
