@@ -14,6 +14,9 @@ import importlib
 #: Public name -> the module that defines it (PEP 562: imported on first use, so that
 #: ``import cwlimits`` and the command line start without numpy, scipy or astropy).
 _LAZY = {
+    "allow_large": "_sizes",
+    "CwlimitsWarning": "errors",
+    "SizeLimitError": "errors",
     "ellipticity": "conversions",
     "mass_quadrupole": "conversions",
     "rmode_amplitude": "conversions",
@@ -276,4 +279,8 @@ __all__ = [
     "UnitsMismatchError",
     "OutOfRangeError",
     "ComputationError",
+    "SizeLimitError",
+    "CwlimitsWarning",
+    # size limits (README: "Size limits")
+    "allow_large",
 ]

@@ -90,10 +90,12 @@ def parse_unit(text, name="unit", error=UnitsMismatchError, **where):
         raise error(f"{name}: not a unit astropy understands", value=text, **where) from None
 
 
-def parse_quantity(text, unit, name, **where):
+def parse_quantity(text, unit, name, *, require_unit=False, **where):
     """Parse ``"3.2 kpc"`` (or a bare number, taken in ``unit``) into a Quantity in ``unit``.
 
-    ``where`` (file, row, column) locates the value in error messages.
+    With ``require_unit`` (values in files: configurations and setups) a bare number is an
+    error instead; on the command line it takes the unit ``--help`` shows.  ``where``
+    (file, row, column) locates the value in error messages.
     """
     unit = u.Unit(unit)
     if isinstance(text, u.Quantity):
@@ -110,6 +112,11 @@ def parse_quantity(text, unit, name, **where):
                     f"{name}: cannot read a number with a unit of {unit.physical_type} "
                     f"(for example '1.5 {unit}')",
                     value=text, **where) from None
+        else:
+            if require_unit and unit != DIMENSIONLESS:
+                raise UnitsMismatchError(
+                    f"{name}: a number without a unit; write the unit, e.g. "
+                    f"\"{text} {unit}\"", value=text, **where)
     try:
         return q.to(unit)
     except u.UnitConversionError:

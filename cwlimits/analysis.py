@@ -305,7 +305,10 @@ def _limits_section(rep, config, target, setup, results, table, noise, simulated
         what = ("ellipticity", "r-mode amplitude")[k] if k < 2 else f"panel {k}"
         rep.figure(f"{('eps', 'alpha')[k] if k < 2 else k}_limits_{slug}", fig,
                    caption=f"Upper limits on the {what} of {target.name}")
-    best = int(np.argmin(table["h0_limit"].value))
+    limits_h0 = table["h0_limit"].value
+    if np.all(np.isnan(limits_h0)):  # every band empty (no frequentist limit): no posterior
+        return
+    best = int(np.nanargmin(limits_h0))  # empty (NaN) bands have no limit to compare
     h0, density, _ = band_posterior(results, setup, target, best, noise=noise,
                                     prior=config["limits.prior"], start=config["data.start"])
     rep.figure(f"posterior_{slug}", plot_posterior(

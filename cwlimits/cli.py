@@ -13,13 +13,16 @@ arguments, runs the command and turns errors into exit codes:
 """
 
 import argparse
+import contextlib
 import importlib
 import logging
 import os
 import pkgutil
 import sys
+import warnings
 
-from .errors import CwlimitsError
+from ._sizes import allow_large
+from .errors import CwlimitsError, CwlimitsWarning
 
 __all__ = ["main", "build_parser"]
 
@@ -69,10 +72,23 @@ def build_parser():
                             help="log what is done; show tracebacks of internal errors")
         target.add_argument("-q", "--quiet", action="store_true", default=default,
                             help="no progress bars or summaries, only errors")
+        target.add_argument("--allow-large", action="store_true", default=default,
+                            help="lift the soft size limits (README: size limits) for a "
+                                 "legitimately large run")
     subparsers = parser.add_subparsers(dest="command", metavar="COMMAND")
     for module in _command_modules():
         module.register(subparsers, common)
+    for sub in subparsers.choices.values():
+        _note_bare_units(sub)
     return parser
+
+
+def _note_bare_units(parser):
+    """Say in ``--help`` which unit a bare number takes, for every quantity option."""
+    for action in parser._actions:
+        unit = getattr(action.type, "bare_unit", None)
+        if unit is not None and action.help and "bare number" not in action.help:
+            action.help += f" [a bare number is in {unit}]"
 
 
 def _command_modules():
@@ -82,6 +98,27 @@ def _command_modules():
                for info in pkgutil.iter_modules(commands.__path__)
                if not info.name.startswith("_")]
     return sorted(modules, key=lambda m: (m.ORDER, m.__name__))
+
+
+@contextlib.contextmanager
+def _user_warnings():
+    """Warnings as the user sees them: ours as one ``warning: ...`` line, raw ones silenced.
+
+    numpy's RuntimeWarnings (overflow, invalid value) and ERFA's "dubious year" are
+    silenced: every result is checked for finiteness where it is made, and what matters
+    becomes a message of ours (a :class:`~cwlimits.errors.CwlimitsWarning` or an error).
+    """
+    from erfa import ErfaWarning  # pyerfa, astropy's; here: --help imports no numpy
+
+    def show(message, category, filename, lineno, file=None, line=None):
+        print(f"warning: {message}", file=sys.stderr)
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        warnings.simplefilter("ignore", ErfaWarning)
+        warnings.simplefilter("always", CwlimitsWarning)
+        warnings.showwarning = show
+        yield
 
 
 #: Options of earlier versions and the options that replaced them.
@@ -118,7 +155,8 @@ def main(argv=None):
     logging.basicConfig(level=logging.INFO if args.verbose else logging.WARNING,
                         format="%(levelname)s %(name)s: %(message)s")
     try:
-        return int(args.run(args) or 0)
+        with allow_large(bool(getattr(args, "allow_large", False))), _user_warnings():
+            return int(args.run(args) or 0)
     except CwlimitsError as exc:
         print(f"error: {exc}", file=sys.stderr)
         return 2

@@ -1,11 +1,12 @@
 """The analysis configuration: one TOML file for a whole report (``cwlimits report``).
 
 Every key, its kind, unit and default is in :data:`CONFIG_KEYS`; the README lists them.
-Quantities are strings with a unit (``"1 yr"``, ``"1e6 h"``).  Paths are relative to the
-configuration file.  An unknown section or key, a value of the wrong kind, a wrong unit, a
-missing input file or a results file for a target the catalogue does not have is a
-:class:`~cwlimits.errors.ConfigError` that names the file and the key, raised before
-anything is written.
+Quantities are strings with a unit (``"1 yr"``, ``"1e6 h"``); a bare number (``"20"``) is
+an error, never read in a default unit.  Paths, the noise file of ``noise.model`` included,
+are relative to the configuration file's folder.  An unknown section or key, a value of
+the wrong kind, a wrong unit, a missing input file or a results file for a target the
+catalogue does not have is a :class:`~cwlimits.errors.ConfigError` that names the file
+and the key, raised before anything is written.
 """
 
 import os
@@ -14,27 +15,31 @@ from pathlib import Path
 
 import astropy.units as u
 
+from ._sizes import allow_large, check_size
 from ._toml import load_toml
 from ._units import parse_quantity
-from .errors import ConfigError, InputError
+from .errors import ConfigError, InputError, SizeLimitError
 
 __all__ = ["CONFIG_KEYS", "AnalysisConfig", "load_config"]
 
 _REQUIRED = object()
 
-#: key -> (kind, unit or choices, default, description).  Kinds: str, int, float,
-#: quantity, path, list[str], list[quantity], choice, mapping[path].
+#: key -> (kind, unit or choices, default, description).  Kinds: str, int, float, bool,
+#: quantity, path, noise (a model name or a path), list[str], choice, mapping[path].
 CONFIG_KEYS = {
     "title": ("str", None, "cwlimits report", "title of the report"),
-    "seed": ("int", None, 2026, "seed of every random draw"),
+    "seed": ("int", None, 2026, "seed of every random draw (a whole number >= 0)"),
+    "allow_large": ("bool", None, False,
+                    "lift the soft size limits (README: size limits) for a large run"),
     "output": ("path", None, None, "output folder (default reports/<config name>)"),
     "catalogue.path": ("path", None, _REQUIRED, "target catalogue (CSV or ECSV)"),
     "catalogue.targets": ("list[str]", None, None, "targets to consider (default: all)"),
     "indirect.braking_index": ("float", None, 5.0, "braking index of the age-based limit"),
     "indirect.moment_of_inertia": ("quantity", "kg m2", 1e38 * u.kg * u.m**2,
                                    "moment of inertia"),
-    "noise.model": ("str", None, "second-gen-fit",
-                    "noise model name or noise file, used for every detector"),
+    "noise.model": ("noise", None, "second-gen-fit",
+                    "noise model name, or a noise file (relative to the configuration), "
+                    "used for every detector"),
     "data.detectors": ("list[str]", None, ["H1", "L1"], "detector site codes"),
     "data.span": ("quantity", "day", _REQUIRED, "longest data span a search may use"),
     "data.duty_factor": ("float", None, 1.0, "fraction of the span with data, (0, 1]"),
@@ -118,6 +123,22 @@ def _read(path, key, raw, base):
         if not isinstance(raw, str):
             _fail(path, key, "must be a string", raw)
         return raw
+    if kind == "bool":
+        if not isinstance(raw, bool):
+            _fail(path, key, "must be true or false", raw)
+        return raw
+    if kind == "noise":
+        if not isinstance(raw, str):
+            _fail(path, key, "must be a noise model name or a file path (a string)", raw)
+        from .noise import NOISE_MODELS
+
+        if raw.strip().lower() in NOISE_MODELS:
+            return raw.strip()
+        file = (base / raw).resolve()
+        if not file.is_file():
+            _fail(path, key, "not a known noise model nor an existing file (relative paths "
+                  f"are read from {base}); known models: {', '.join(NOISE_MODELS)}", raw)
+        return str(file)
     if kind == "int":
         if isinstance(raw, bool) or not isinstance(raw, int):
             _fail(path, key, "must be a whole number", raw)
@@ -134,9 +155,9 @@ def _read(path, key, raw, base):
         if not isinstance(raw, str):
             _fail(path, key, f"must be a string with a unit, e.g. \"1 {unit}\"", raw)
         try:
-            return parse_quantity(raw, unit, key)
+            return parse_quantity(raw, unit, key, require_unit=True)
         except InputError as exc:
-            _fail(path, key, exc.reason, raw)
+            _fail(path, key, exc.reason.removeprefix(f"{key}: "), raw)
     if kind == "path":
         if not isinstance(raw, str):
             _fail(path, key, "must be a path (a string)", raw)
@@ -201,39 +222,70 @@ def load_config(path):
             values[key] = default
     if values["output"] is None:
         values["output"] = (Path.cwd() / "reports" / path.stem).resolve()
-    _check(path, values)
+    _check(path, values, found)
     return AnalysisConfig(path, values)
 
 
-def _check(path, values):
-    """Cross-key checks: ranges, files that must exist, results for known targets."""
+def _check(path, values, found):
+    """Cross-key checks: ranges, files that must exist, results for known targets.
+
+    ``found`` holds the values as written in the file, for the messages.
+    """
+    def written(key):
+        return found.get(key, values[key])
+
+    if values["seed"] < 0:
+        _fail(path, "seed", "must be a whole number >= 0", written("seed"))
+    from .response import _as_time, get_detectors
+
+    try:
+        _as_time(values["data.start"], "data.start")
+    except InputError:
+        _fail(path, "data.start", "not a date and time; use an ISO date such as "
+              "\"2030-01-01T00:00:00\" (UTC) or GPS seconds", written("data.start"))
+    try:
+        get_detectors(values["data.detectors"])
+    except InputError as exc:
+        _fail(path, "data.detectors", exc.reason, written("data.detectors"))
     for key in ("statistics.false_alarm", "statistics.confidence"):
         if not 0 < values[key] < 1:
-            _fail(path, key, "must lie strictly between 0 and 1", values[key])
+            _fail(path, key, "must lie strictly between 0 and 1", written(key))
     if not 0 < values["data.duty_factor"] <= 1:
-        _fail(path, "data.duty_factor", "must lie in (0, 1]", values["data.duty_factor"])
+        _fail(path, "data.duty_factor", "must lie in (0, 1]", written("data.duty_factor"))
     if not values["indirect.braking_index"] > 1:
         _fail(path, "indirect.braking_index", "must be larger than 1",
-              values["indirect.braking_index"])
+              written("indirect.braking_index"))
     for key in ("data.span", "planning.budget", "indirect.moment_of_inertia",
                 "search.band_width"):
         if not values[key].value > 0:
-            _fail(path, key, "must be positive", str(values[key]))
+            _fail(path, key, "must be positive", written(key))
     if not 0 < values["search.f_min"] < values["search.f_max"]:
         _fail(path, "search.f_min", "must be positive and below search.f_max",
-              str(values["search.f_min"]))
+              written("search.f_min"))
     if values["planning.budget_steps"] < 1:
         _fail(path, "planning.budget_steps", "must be at least 1",
-              values["planning.budget_steps"])
+              written("planning.budget_steps"))
+    with allow_large(values["allow_large"]):
+        for kind, key, count in (
+                ("budget_steps", "planning.budget_steps", values["planning.budget_steps"]),
+                ("bands", "search.band_width",
+                 ((values["search.f_max"] - values["search.f_min"])
+                  / values["search.band_width"]).to_value(u.one))):
+            try:
+                check_size(kind, count, "")
+            except SizeLimitError as exc:
+                raise ConfigError(f"key '{key}': {exc.reason}", file=str(path),
+                                  value=written(key)) from None
     if values["planning.max_targets"] < 1:
         _fail(path, "planning.max_targets", "must be at least 1",
-              values["planning.max_targets"])
+              written("planning.max_targets"))
     for key in ("catalogue.path", "search.setup"):
         if values[key] is not None and not Path(values[key]).is_file():
-            _fail(path, key, "file not found", str(values[key]))
+            _fail(path, key, f"file not found (looked for {values[key]})", written(key))
     for name, file in values["results"].items():
         if not Path(file).is_file():
-            _fail(path, f"results.{name}", "file not found", str(file))
+            _fail(path, f"results.{name}", f"file not found (looked for {file})",
+                  found.get("results", {}).get(name, str(file)))
     from .targets import load_targets
 
     catalogue = load_targets(values["catalogue.path"])

@@ -44,6 +44,30 @@ def _strain(h0):
     return value
 
 
+def _shown(value):
+    """A value for a message: '1e+308', '100 Hz', or 'an array of 3 values'."""
+    unit = f" {value.unit}" if isinstance(value, u.Quantity) and str(value.unit) else ""
+    array = np.ravel(value.value if isinstance(value, u.Quantity) else np.asarray(value))
+    if array.size == 1 and array.dtype.kind in "iuf":
+        return f"{float(array[0]):g}{unit}"
+    return f"an array of {array.size} values" if array.size != 1 else str(value)
+
+
+def _finite(what, compute, **inputs):
+    """``compute()`` (a float array), refusing a result that overflows to inf or NaN.
+
+    The inputs are finite (checked before); a non-finite result means they lie so far
+    outside any physical range that the answer exceeds the largest double (~1.8e308).
+    """
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):
+        value = compute()
+    if np.any(~np.isfinite(value)):
+        given = ", ".join(f"{k} = {_shown(v)}" for k, v in inputs.items())
+        raise InputError(f"the {what} overflows the floating-point range (above 1.8e308) "
+                         f"for {given}: these values are far outside any physical range")
+    return value
+
+
 def _eps_per_h0(f_gw, distance, moment_of_inertia):
     """Eps / h0 = c^4 d / (4 pi^2 G I f_gw^2) (JKS 1998, eq. 22)."""
     f = positive_value(f_gw, u.Hz, "f_gw")
@@ -82,7 +106,8 @@ def ellipticity(h0, f_gw, distance, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA)
     >>> round(float(ellipticity(1e-24, 2 * u.Hz, 1 * u.kpc)), 3)
     0.237
     """
-    return _strain(h0) * _eps_per_h0(f_gw, distance, moment_of_inertia) << u.one
+    return _finite("ellipticity", lambda: _strain(h0) * _eps_per_h0(
+        f_gw, distance, moment_of_inertia), h0=h0, f_gw=f_gw, distance=distance) << u.one
 
 
 def strain_from_ellipticity(eps, f_gw, distance, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA):
@@ -90,7 +115,8 @@ def strain_from_ellipticity(eps, f_gw, distance, moment_of_inertia=DEFAULT_MOMEN
     value = to_value(eps, u.one, "eps")
     if np.any(~np.isfinite(value)) or np.any(value < 0):
         raise InputError("eps must be finite and non-negative", value=str(eps))
-    return value / _eps_per_h0(f_gw, distance, moment_of_inertia) << u.one
+    return _finite("strain", lambda: value / _eps_per_h0(f_gw, distance, moment_of_inertia),
+                   eps=eps, f_gw=f_gw, distance=distance) << u.one
 
 
 def mass_quadrupole(eps, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA):
@@ -102,7 +128,8 @@ def mass_quadrupole(eps, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA):
     """
     value = to_value(eps, u.one, "eps")
     inertia = positive_value(moment_of_inertia, u.kg * u.m**2, "moment_of_inertia")
-    return np.sqrt(15.0 / (8.0 * np.pi)) * inertia * value << u.kg * u.m**2
+    return _finite("mass quadrupole", lambda: np.sqrt(15.0 / (8.0 * np.pi)) * inertia * value,
+                   eps=eps) << u.kg * u.m**2
 
 
 def _alpha_per_h0(f_gw, distance, mass, radius, j_tilde):
@@ -145,7 +172,8 @@ def rmode_amplitude(h0, f_gw, distance, mass=FIDUCIAL_RMODE_STAR["mass"],
     Owen 2010, PRD 82, 104002, arXiv:1006.1994, eqs. (23)-(24) (equation numbers from
     memory).
     """
-    return _strain(h0) * _alpha_per_h0(f_gw, distance, mass, radius, j_tilde) << u.one
+    return _finite("r-mode amplitude", lambda: _strain(h0) * _alpha_per_h0(
+        f_gw, distance, mass, radius, j_tilde), h0=h0, f_gw=f_gw, distance=distance) << u.one
 
 
 def strain_from_rmode_amplitude(alpha, f_gw, distance, mass=FIDUCIAL_RMODE_STAR["mass"],
@@ -155,4 +183,6 @@ def strain_from_rmode_amplitude(alpha, f_gw, distance, mass=FIDUCIAL_RMODE_STAR[
     value = to_value(alpha, u.one, "alpha")
     if np.any(~np.isfinite(value)) or np.any(value < 0):
         raise InputError("alpha must be finite and non-negative", value=str(alpha))
-    return value / _alpha_per_h0(f_gw, distance, mass, radius, j_tilde) << u.one
+    return _finite("strain", lambda: value / _alpha_per_h0(f_gw, distance, mass, radius,
+                                                           j_tilde),
+                   alpha=alpha, f_gw=f_gw, distance=distance) << u.one

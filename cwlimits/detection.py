@@ -85,7 +85,8 @@ _METHODS = ("auto", "exact")
 # Input checks (user input: raise, never assert)
 # ---------------------------------------------------------------------------------------
 def _first_bad(values, bad):
-    return values[bad].flat[0] if np.any(bad) else None
+    # a plain Python number, so a message shows 0.0 rather than np.float64(0.0)
+    return values[bad].flat[0].item() if np.any(bad) else None
 
 
 def _check_convention(convention):

@@ -15,6 +15,8 @@ __all__ = [
     "UnitsMismatchError",
     "OutOfRangeError",
     "ComputationError",
+    "SizeLimitError",
+    "CwlimitsWarning",
 ]
 
 
@@ -81,3 +83,19 @@ class OutOfRangeError(CwlimitsError, ValueError):
 
 class ComputationError(CwlimitsError, RuntimeError):
     """A numerical procedure that could not reach an answer (a root not bracketed, ...)."""
+
+
+class SizeLimitError(InputError):
+    """An input that implies more segments, bands, steps or draws than the size limits allow.
+
+    The message names the key or option, the size it implies and roughly what it would
+    cost in memory; see :data:`cwlimits._sizes.SIZE_LIMITS`.
+    """
+
+
+class CwlimitsWarning(UserWarning):
+    """A result that is valid but needs the user's attention (an empty limit, a clipped value).
+
+    Raw numpy and astropy warnings never reach the user: the meaningful ones are turned
+    into a ``CwlimitsWarning`` that says what it means for the result.
+    """

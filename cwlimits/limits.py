@@ -44,11 +44,11 @@ from scipy import integrate, interpolate, stats
 
 from .conversions import ellipticity, rmode_amplitude
 from .detection import QuadratureRule, combine_rules, marginal_likelihood, solve_amplitude
-from .errors import ComputationError, InputError
+from .errors import ComputationError, CwlimitsWarning, InputError
 from .fiducial import DEFAULT_MOMENT_OF_INERTIA
 from .indirect import spindown_limit
 from .noise import DEFAULT_NOISE_MODEL
-from .results import SearchResults, load_results
+from .results import STATISTIC_COLUMNS, SearchResults, load_results
 from .sensitivity import DEFAULT_START, _add_indirect, signal_model
 
 __all__ = [
@@ -58,6 +58,7 @@ __all__ = [
     "SAMPLERS",
     "ChainWarning",
     "upper_limits",
+    "check_bayes_range",
     "band_posterior",
     "posterior_quantiles",
     "sample_band",
@@ -89,6 +90,16 @@ _UNIT_S = 1.0 / u.Hz
 _MIN_TAU_MULTIPLE = 50.0
 #: Central probability of the log-normal distance prior covered by [d_min, d_max].
 _LOGNORMAL_RANGE_PROBABILITY = 0.9
+
+
+#: Largest summed 2F the Bayesian grid posterior handles.  Measured here: the grid
+#: normalises and agrees with the frequentist limit within 6 % up to 2F = 3e6 and fails at
+#: 1e7 (1, 8 and 100 segments).  A band that loud (SNR ~ 1700) is a candidate to follow
+#: up, not a band for an upper limit.
+BAYES_MAX_2F = 3e6
+#: Log-density of the noise-only statistic below which the likelihood underflows to zero
+#: for every h0 (exp(-700) ~ 1e-304, near the smallest normal double).
+_MIN_LOG_LIKELIHOOD = -700.0
 
 
 class ChainWarning(UserWarning):
@@ -525,6 +536,76 @@ def _prepare(results, setup, target, noise, model_options):
         "scale": scale, "eps_per_h0": eps_k, "alpha_per_h0": alpha_k}
 
 
+def _observed_where(results, index):
+    """``(file, row, column, value as written)`` of band ``index``, for messages."""
+    column = {v: k for k, v in STATISTIC_COLUMNS.items()}.get(results.convention)
+    row = int(results.rows[index]) if len(results.rows) > index else None
+    return dict(file=results.source or None, row=row, column=column,
+                value=float(results.loudest[index]))
+
+
+def check_bayes_range(results, obs_sum, n_seg):
+    """Refuse bands outside the range of the Bayesian grid, naming file and row.
+
+    Parameters
+    ----------
+    results : SearchResults
+    obs_sum : ndarray
+        The loudest 2F per band in the summed convention.
+    n_seg : int
+
+    Raises
+    ------
+    InputError
+        A loudest 2F whose noise-only density underflows (2F = 0: the likelihood is zero
+        for every h0) or one above :data:`BAYES_MAX_2F` (a candidate, not a limit).
+    """
+    df = 4.0 * n_seg
+    with np.errstate(divide="ignore"):
+        log_noise = stats.chi2.logpdf(obs_sum, df)
+    quiet = np.flatnonzero(~(log_noise > _MIN_LOG_LIKELIHOOD) & (obs_sum <= df))
+    if len(quiet):
+        i = quiet[0]
+        raise InputError(
+            f"a loudest 2F of {obs_sum[i]:g} (summed over {n_seg} segments) is impossible "
+            f"in Gaussian noise: 2F then follows a chi-squared with {df:g} degrees of "
+            "freedom, whose density there is zero, so the likelihood is zero for every h0; "
+            "check the column (the frequentist method gives no limit there either)",
+            **_observed_where(results, i))
+    loud = np.flatnonzero(obs_sum > BAYES_MAX_2F)
+    if len(loud):
+        i = loud[0]
+        raise InputError(
+            f"a loudest 2F of {obs_sum[i]:.3g} (summed) is far above the noise (signal-to-"
+            f"noise ratio about {np.sqrt(max(obs_sum[i] - df, 0)):.0f}): this band holds a "
+            "candidate to follow up, not a band for an upper limit; the Bayesian grid "
+            f"handles 2F up to {BAYES_MAX_2F:g} (method 'frequentist' gives a loudest-event "
+            "limit there)", **_observed_where(results, i))
+
+
+def _blank_zero_limits(out, results, confidence):
+    """Frequentist limits of exactly 0 become NaN (an empty cell) with a warning.
+
+    The loudest-event limit is 0 where even noise alone exceeds the observed 2F* with
+    probability ``confidence``: the data then say nothing about h0 at that confidence, and
+    a 0 (with an infinite ratio to the age-based limit) would read as a false success.
+    """
+    zero = ~(np.asarray(out["h0"]) > 0)
+    if not np.any(zero):
+        return None
+    for name in ("h0", "eps", "alpha"):
+        out[name] = np.where(zero, np.nan, out[name])
+    rows = [int(results.rows[i]) for i in np.flatnonzero(zero) if len(results.rows) > i]
+    listed = ", ".join(map(str, rows[:10])) + (" ..." if len(rows) > 10 else "")
+    where = (f"{results.source}, row{'s' if len(rows) > 1 else ''} {listed}" if rows
+             else f"{int(zero.sum())} bands")
+    note = (f"h0_limit, eps_limit and alpha_limit are left empty in {int(zero.sum())} "
+            f"band(s) ({where}): the loudest 2F there lies below what noise alone exceeds "
+            f"with probability {confidence:g}, so the loudest-event method gives no limit")
+    warnings.warn(note, CwlimitsWarning, stacklevel=3)
+    return note
+
+
 def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=None, *,
                  noise=DEFAULT_NOISE_MODEL, prior="uniform", h0_min=None, h0_max=None,
                  distance_prior="uniform", moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA,
@@ -613,6 +694,8 @@ def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=No
     if sampler == "emcee" and model_options.get("sky", "target") != "target":
         raise InputError("the emcee sampler needs the target's sky position (sky='target')")
     results, sm, psd, arrays = _prepare(results, setup, target, noise, model_options)
+    if method == "bayes":
+        check_bayes_range(results, arrays["obs"], sm.n_seg)
     n = len(results)
     # The seed goes to map_chunks, which spawns one stream per chunk (SeedSequence), so the
     # numbers do not depend on the executor; None keeps the entropy recorded in a store.
@@ -639,6 +722,7 @@ def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=No
     out = map_chunks(func, items, chunk_size=chunk_size or n, executor=executor,
                      seed=_part_seed(seed, "limits"),
                      store=store, key=part, progress=progress, desc=f"{method} limits")
+    empty_note = _blank_zero_limits(out, results, confidence)
     table = QTable()
     table["f_lo"], table["f_hi"], table["f_mid"] = results.f_lo, results.f_hi, results.f_mid
     table["psd"] = psd
@@ -654,9 +738,9 @@ def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=No
                               * u.kg * u.m**2).value
         table["h0_spindown"] = np.full(n, h_sd) << u.one
         h = table["h0_limit"].value
-        with np.errstate(divide="ignore"):
-            table["spindown_ratio"] = np.where(h > 0, h_sd / h, np.inf) << u.one
-        table["beats_spindown"] = h < h_sd
+        with np.errstate(divide="ignore", invalid="ignore"):
+            table["spindown_ratio"] = np.where(h > 0, h_sd / h, np.nan) << u.one
+        table["beats_spindown"] = (h > 0) & (h < h_sd)
     if sampler == "emcee":
         _add_emcee(table, setup, sm, arrays, target, confidence, sampler_bands,
                    _part_seed(seed, "emcee"),
@@ -671,6 +755,8 @@ def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=No
         f"SeedSequence(entropy={rng.entropy}, spawn_key={tuple(rng.spawn_key)})"
         if isinstance(rng, np.random.SeedSequence) else
         f"{type(rng).__name__} (128 bits drawn from it)")
+    if empty_note:
+        table.meta["assumptions"]["empty_limits"] = empty_note
     table.meta["method"] = method
     table.meta["confidence"] = confidence
     table.meta["n_seg"] = sm.n_seg
@@ -829,6 +915,7 @@ def band_posterior(results, setup, target, band, *, noise=DEFAULT_NOISE_MODEL,
     """
     _check_choice(prior, PRIORS, "prior")
     results, sm, psd, arrays = _prepare(results, setup, target, noise, model_options)
+    check_bayes_range(results, arrays["obs"], sm.n_seg)
     if not (0 <= int(band) < len(results)):
         raise InputError(f"band must be an index 0..{len(results) - 1}", value=band)
     b = slice(int(band), int(band) + 1)
@@ -879,6 +966,7 @@ def sample_band(results, setup, target, band, rng=None, *, noise=DEFAULT_NOISE_M
     """
     rng = np.random.default_rng(rng)
     results, sm, _, arrays = _prepare(results, setup, target, noise, model_options)
+    check_bayes_range(results, arrays["obs"], sm.n_seg)
     if not (0 <= int(band) < len(results)):
         raise InputError(f"band must be an index 0..{len(results) - 1}", value=band)
     idx = np.array([int(band)])

@@ -461,9 +461,10 @@ def _add_indirect(table, target, h0_column="h0"):
     table["h0_age_optimistic"] = np.full(n, optimistic.value) << u.one
     table["h0_age_pessimistic"] = np.full(n, pessimistic.value) << u.one
     h = np.asarray(table[h0_column].value)
-    with np.errstate(divide="ignore"):
-        table["age_ratio"] = np.where(h > 0, nominal.value / h, np.inf) << u.one
-    table["beats_age"] = h < nominal.value
+    # A limit of 0 or NaN (no limit in that band) has no ratio and beats nothing.
+    with np.errstate(divide="ignore", invalid="ignore"):
+        table["age_ratio"] = np.where(h > 0, nominal.value / h, np.nan) << u.one
+    table["beats_age"] = (h > 0) & (h < nominal.value)
 
 
 def sensitivity_depth(setups, noise=None, target=None, bands=None, *, confidence=0.95,

@@ -56,8 +56,9 @@ import numpy as np
 
 from . import _defaults
 from ._files import atomic_write
+from ._sizes import check_size
 from ._toml import load_toml
-from .errors import ConfigError, InputError
+from .errors import ConfigError, InputError, SizeLimitError
 from .lattices import _canonical as _canonical_lattice
 from .parameter_space import check_braking_range
 
@@ -135,6 +136,14 @@ def _scalar_quantity(value, unit, name, positive=True):
     return value
 
 
+def _check_size(kind, count, name, value):
+    """:func:`cwlimits._sizes.check_size`, reported as a located field error."""
+    try:
+        check_size(kind, count, "")
+    except SizeLimitError as exc:
+        _fail(name, exc.reason, value)
+
+
 def _unit_interval(value, name):
     if isinstance(value, bool) or not isinstance(value, (int, float, np.floating,
                                                          np.integer)):
@@ -210,6 +219,7 @@ class SearchSetup:
             _fail("n_seg", "must be an integer (number of segments)", n)
         if n < 1:
             _fail("n_seg", "must be at least 1 (zero segments search nothing)", n)
+        _check_size("segments", n, "n_seg", n)
         put("n_seg", int(n))
         try:
             f_min, f_max = self.band
@@ -240,6 +250,9 @@ class SearchSetup:
         except InputError as exc:
             _fail("lattice", exc.reason, self.lattice)
         put("band_width", _scalar_quantity(self.band_width, u.Hz, "band_width"))
+        width_hz = self.band_width.to_value(u.Hz)
+        _check_size("bands", (f_max - f_min).to_value(u.Hz) / width_hz, "band_width",
+                    str(self.band_width))
         try:
             n_min, n_max = (float(x) for x in self.braking_index)
         except (TypeError, ValueError):

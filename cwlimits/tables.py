@@ -190,21 +190,65 @@ def read_table(path, *, error=TableError):
     return _read_csv(path, text, error)
 
 
+class _Lines:
+    """The lines of a CSV text for :mod:`csv`, skipping comments between records.
+
+    A comment or blank line is skipped only where a record starts, never inside a quoted
+    cell that spans lines, so a quoted cell may hold a newline or a leading ``#``.
+    ``start`` is the 1-based file line where the record being read began.
+    """
+
+    def __init__(self, text):
+        # newline="" keeps "\r\n" inside quoted cells as it is, as the csv module asks
+        self._lines = io.StringIO(text, newline="")
+        self.number, self.start, self.at_record_start = 0, None, True
+        self.meta = {}
+
+    def __iter__(self):
+        return self
+
+    def __next__(self):
+        for line in self._lines:
+            self.number += 1
+            if self.at_record_start:
+                stripped = line.strip()
+                if stripped.startswith("#"):
+                    key, sep, value = stripped.lstrip("#").partition(":")
+                    if sep and key.strip() and " " not in key.strip():
+                        self.meta[key.strip()] = value.strip()
+                    continue
+                if not stripped:
+                    continue
+                self.start, self.at_record_start = self.number, False
+            return line
+        raise StopIteration
+
+
+def _csv_records(path, text, error):
+    """``([(line, cells), ...], meta)`` of a CSV text (the csv module's quoting rules)."""
+    lines = _Lines(text)
+    reader = csv.reader(lines, strict=True)
+    records = []
+    while True:
+        try:
+            cells = next(reader)
+        except StopIteration:
+            break
+        except csv.Error as exc:
+            raise error(f"not readable as CSV ({exc}); a cell holding a comma, a quote or "
+                        "a line break must be enclosed in double quotes, with inner quotes "
+                        "doubled", file=path, row=lines.start) from None
+        records.append((lines.start, cells))
+        lines.at_record_start = True
+    return records, lines.meta
+
+
 def _read_csv(path, text, error):
-    meta, data_lines = {}, []
-    for number, line in enumerate(text.splitlines(), start=1):
-        stripped = line.strip()
-        if stripped.startswith("#"):
-            key, sep, value = stripped.lstrip("#").partition(":")
-            if sep and key.strip() and " " not in key.strip():
-                meta[key.strip()] = value.strip()
-            continue
-        if stripped:
-            data_lines.append((number, line))
-    if not data_lines:
+    records, meta = _csv_records(path, text, error)
+    if not records:
         raise error("empty file: no header and no rows", file=path)
-    reader = csv.reader(io.StringIO("\n".join(line for _, line in data_lines)))
-    rows = list(reader)
+    data_lines = [(number, None) for number, _ in records]
+    rows = [cells for _, cells in records]
     header_line = data_lines[0][0]
     names, units = [], {}
     for j, cell in enumerate(rows[0]):

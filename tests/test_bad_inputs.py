@@ -24,6 +24,12 @@ RESULTS = sorted((BAD / "results").iterdir())
 NOISE = sorted((BAD / "noise").iterdir())
 TIMESERIES = sorted((BAD / "timeseries").iterdir())
 CONFIGS = sorted((BAD / "config").iterdir())
+#: Command lines (the first line of a file; {ROOT}, {BAD} and {TMP} are filled in; then
+#: ``expect: TEXT`` lines the error must contain) of issue 14: sizes,
+#: coordinates, overflow, the Bayesian range, option values.  Inputs they name are in
+#: cli_inputs/.
+COMMAND_LINES = sorted((BAD / "cli").glob("*.args"))
+ROOT = BAD.parent.parent.parent
 
 
 def test_corpus_is_large_enough():
@@ -78,6 +84,25 @@ def test_bad_timeseries(path, tmp_path, capsys):
 def test_bad_configuration(path, tmp_path, capsys, monkeypatch):
     monkeypatch.chdir(tmp_path)  # the default output folder would be ./reports/<name>
     _exit_2_nothing_written(["report", str(path)], tmp_path, capsys, path)
+
+
+@pytest.mark.parametrize("path", COMMAND_LINES, ids=[p.stem for p in COMMAND_LINES])
+def test_bad_command_line(path, tmp_path, capsys, monkeypatch):
+    import shlex
+
+    monkeypatch.chdir(tmp_path)
+    command, *rest = path.read_text().splitlines()
+    argv = shlex.split(command.format(ROOT=ROOT, BAD=BAD, TMP=tmp_path))
+    expected = [line.removeprefix("expect: ") for line in rest if line.startswith("expect: ")]
+    try:
+        code = main(argv)
+    except SystemExit as exc:  # argparse refuses an option value before any work
+        code = exc.code
+    err = capsys.readouterr().err
+    assert code == 2, err
+    assert "error: " in err and "Traceback" not in err and "internal error" not in err
+    assert all(text in err for text in expected), (expected, err)  # the right error
+    assert list(tmp_path.iterdir()) == []
 
 
 # ---- generated catalogues -------------------------------------------------------------

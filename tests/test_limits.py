@@ -10,6 +10,7 @@ from scipy import integrate, optimize, stats
 import cwlimits
 from cwlimits.cli import main
 from cwlimits.conversions import ellipticity, rmode_amplitude
+from cwlimits.errors import CwlimitsWarning
 from cwlimits.limits import (
     ChainWarning,
     band_posterior,
@@ -182,8 +183,11 @@ def test_frequentist_coverage(target, simulated):
     # population that matches the model (Neyman construction; Wette 2012, common
     # practice); binomial 3-sigma band around 0.95.
     setup, res, h_true, _ = simulated
-    table = upper_limits(res, setup, target, "frequentist")
-    covered = np.mean(table["h0_limit"].value >= h_true)
+    # Bands whose 2F* lies below the noise-only 5 % quantile have a loudest-event limit of
+    # 0; they are left empty (NaN) with a warning, and count as a limit of 0 here.
+    with pytest.warns(CwlimitsWarning, match="left empty"):
+        table = upper_limits(res, setup, target, "frequentist")
+    covered = np.mean(np.nan_to_num(table["h0_limit"].value, nan=0.0) >= h_true)
     sigma = np.sqrt(0.95 * 0.05 / len(h_true))
     assert abs(covered - 0.95) < 3 * sigma
 

@@ -5,7 +5,8 @@ import sys
 
 from ..errors import InputError
 
-__all__ = ["add_parser", "quantity_arg", "check_output_path", "check_output_dir", "echo"]
+__all__ = ["add_parser", "quantity_arg", "seed_arg", "number_arg", "refuse_overflow",
+           "check_output_path", "check_output_dir", "echo"]
 
 
 def add_parser(subparsers, common, name, *, help, description, examples):
@@ -30,7 +31,60 @@ def quantity_arg(unit, name):
         except InputError as exc:
             raise argparse.ArgumentTypeError(exc.reason + f" (got {text!r})") from None
     parse.__name__ = f"quantity in {unit}"
+    if isinstance(unit, str):
+        parse.bare_unit = unit  # astropy's spelling of it ("d", "kpc", "kg m2")
+    else:
+        parse.bare_unit = unit.to_string()
     return parse
+
+
+def seed_arg(text):
+    """An argparse ``type`` for ``--seed``: a whole number >= 0, as numpy's seeds are."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(
+            f"must be a whole number >= 0 (got {text!r})") from None
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"must be a whole number >= 0 (got {text!r})")
+    return value
+
+
+def number_arg(least, *, integer=False, strict=False):
+    """An argparse ``type``: a finite number >= ``least`` (> with ``strict``).
+
+    The error shows the value as the user typed it.
+    """
+    def parse(text):
+        kind = "a whole number" if integer else "a finite number"
+        bound = f"{'>' if strict else '>='} {least:g}"
+        try:
+            value = int(text) if integer else float(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"must be {kind} {bound} (got {text!r})") \
+                from None
+        if not (value == value and abs(value) != float("inf")) or value < least or (
+                strict and value == least):
+            raise argparse.ArgumentTypeError(f"must be {kind} {bound} (got {text!r})")
+        return value
+    parse.__name__ = "whole number" if integer else "number"
+    return parse
+
+
+def refuse_overflow(table, hint):
+    """Raise an InputError if a numeric column of ``table`` holds inf (an overflow).
+
+    An empty (NaN) cell means "not applicable" and is allowed; an infinite one would be
+    printed and written as a number, so the run stops before any output with ``hint``.
+    """
+    import numpy as np
+
+    for name in table.colnames:
+        values = np.asarray(getattr(table[name], "value", table[name]))
+        if values.dtype.kind == "f" and np.any(np.isinf(values)):
+            row = int(np.flatnonzero(np.isinf(values))[0])
+            raise InputError(f"the result overflows the floating-point range (column "
+                             f"'{name}', row {row + 1} is infinite): {hint}")
 
 
 def check_output_path(path, suffixes=(".csv", ".ecsv"), option="--out"):
@@ -41,12 +95,14 @@ def check_output_path(path, suffixes=(".csv", ".ecsv"), option="--out"):
     """
     from .._files import check_output_file
 
+
     return check_output_file(path, suffixes, option)
 
 
 def check_output_dir(path, option="--out-dir"):
     """Validate an output folder before any work is done; return it as a Path."""
     from .._files import check_output_folder
+
 
     return check_output_folder(path, option)
 

@@ -4,8 +4,9 @@
 ``limits`` and ``plan``.
 """
 
+
 from .._defaults import DEFAULT_START, DEFAULT_UNIT_COSTS_S
-from ..errors import InputError
+from ..errors import ConfigError, InputError
 from ._common import quantity_arg
 
 __all__ = ["add_setup_args", "add_signal_model_args", "build_setup"]
@@ -20,10 +21,10 @@ def add_setup_args(parser):
     """Add ``--setup FILE`` and the setup options (which override the file's values)."""
     parser.add_argument("--setup", metavar="FILE", help="TOML setup file")
     grp = parser.add_argument_group("setup (override the file)")
-    grp.add_argument("--t-seg", type=quantity_arg("day", "segment length"), metavar="T",
+    grp.add_argument("--t-seg", type=quantity_arg("d", "segment length"), metavar="T",
                      help="coherent segment length (e.g. 10day)")
     grp.add_argument("--n-seg", type=int, metavar="N", help="number of segments")
-    grp.add_argument("--span", type=quantity_arg("day", "span"), metavar="T",
+    grp.add_argument("--span", type=quantity_arg("d", "span"), metavar="T",
                      help="total observation span (segments spread evenly over it)")
     grp.add_argument("--duty-factor", type=float, metavar="X",
                      help="fraction of time with data (for the sensitivity; not the cost)")
@@ -65,8 +66,27 @@ def add_signal_model_args(parser):
     return model
 
 
-def build_setup(args, default_band=None, extra_sections=()):
-    """The :class:`SearchSetup` of ``--setup FILE`` with the options applied."""
+def build_setup(args, default_band=None, extra_sections=(), *, known_sites=False):
+    """The :class:`SearchSetup` of ``--setup FILE`` with the options applied.
+
+    With ``known_sites`` (commands that need the antenna patterns) every detector must be
+    a built-in site; the error names ``--detectors`` or the setup file and its key.
+    """
+    setup = _build_setup(args, default_band, extra_sections)
+    if known_sites:
+        from ..response import get_detectors
+
+        try:
+            get_detectors(list(setup.detectors))
+        except InputError as exc:
+            if args.detectors is not None:
+                raise InputError(f"--detectors: {exc.reason}", value=args.detectors) from None
+            raise ConfigError(f"key 'data.detectors': {exc.reason}", file=args.setup,
+                              value=list(setup.detectors)) from None
+    return setup
+
+
+def _build_setup(args, default_band, extra_sections):
     from ..setup import SearchSetup, load_setup
 
     base = (load_setup(args.setup, extra_sections=extra_sections) if args.setup

@@ -1,6 +1,7 @@
 """``cwlimits calibrate``: time the F-statistic kernels here and write the unit costs."""
 
 
+
 from ..errors import InputError
 from ._common import add_parser, check_output_path, echo, format_rows
 
@@ -16,6 +17,7 @@ def example_setup():
     placeholders.  (A function, so that building the parser needs no astropy.)
     """
     import astropy.units as u
+
 
     return {"t_seg": 10 * u.day, "n_seg": 12, "band": (50 * u.Hz, 500 * u.Hz)}
 
@@ -62,6 +64,7 @@ def run(args):
     """Run ``cwlimits calibrate``."""
     import astropy.units as u
 
+    from .._sizes import check_size
     from ..fstat import measure_unit_costs
     from ..setup import DEFAULT_UNIT_COSTS, SearchSetup, load_setup
 
@@ -70,6 +73,8 @@ def run(args):
                                ("--segments", args.segments, 1)):
         if value < least:
             raise InputError(f"{name} must be at least {least}", value=value)
+    check_size("samples", args.samples * args.segments,
+               f"--samples {args.samples} x --segments {args.segments}")
     setup = load_setup(args.setup) if args.setup else None
     measured = measure_unit_costs(args.samples, n_seg=args.segments, repeats=args.repeats)
     coherent = measured["coherent"].to(u.s)
@@ -106,6 +111,7 @@ def run(args):
 def _write_with_note(setup, path, note):
     """Write ``setup`` as TOML with a comment block first (atomically)."""
     from .._files import atomic_write
+
 
     text = note + setup.toml_text()
     atomic_write(path, lambda handle: handle.write(text))

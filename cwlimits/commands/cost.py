@@ -12,6 +12,7 @@ from ._common import (
     format_assumptions,
     format_rows,
     quantity_arg,
+    refuse_overflow,
     resolve_target,
     sci,
 )
@@ -104,12 +105,16 @@ def _scan_values(args, setup):
     import astropy.units as u
     import numpy as np
 
+    from .._sizes import check_size
+
+
     steps = args.scan_steps
     if steps < 2:
         raise InputError("--scan-steps must be at least 2", value=steps)
+    check_size("scan_steps", steps, f"--scan-steps {steps}")
     if args.scan == "t-seg":
         if args.scan_range:
-            lo, hi = (quantity_arg("day", "scan range")(x) for x in args.scan_range)
+            lo, hi = (quantity_arg("d", "scan range")(x) for x in args.scan_range)
         else:
             lo, hi = setup.t_seg / 4, setup.t_seg * 4
             if setup.span is not None:
@@ -148,11 +153,13 @@ def run(args):
     if args.scan:
         quantity, values = _scan_values(args, setup)
         table = scan_cost(setup, target, quantity, values)
+        refuse_overflow(table, _OVERFLOW_HINT)
         _print_scan(args, table, quantity, what)
         title = f"computing cost against {quantity} for {what}"
     else:
         estimate = computing_cost(setup, target)
         table = estimate.table
+        refuse_overflow(table, _OVERFLOW_HINT)
         _print_bands(args, estimate, setup, what)
         title = f"template counts and computing cost for {what}"
     echo(args)
@@ -166,8 +173,14 @@ def run(args):
     return 0
 
 
+_OVERFLOW_HINT = ("the template count grows as mismatch^(-dim/2); with these inputs (--mismatch-"
+                  "coherent/--mismatch-semicoherent, the band, the age or spin-down box) it "
+                  "exceeds what a double can hold, so no search of this setup is possible")
+
+
 def _band_rows(table, idx):
     import astropy.units as u
+
 
     return [[f"{table['f_min'][i].value:.6g}", f"{table['f_max'][i].value:.6g}",
              sci(table["n_coh"][i]), str(int(table["dims_coh"][i])), sci(table["n_semi"][i]),
@@ -177,6 +190,7 @@ def _band_rows(table, idx):
 
 def _print_bands(args, estimate, setup, what):
     import astropy.units as u
+
 
     table = estimate.table
     n = len(table)
@@ -204,6 +218,7 @@ def _print_bands(args, estimate, setup, what):
 def _readable(cost):
     import astropy.units as u
 
+
     hours = cost.to_value(u.h)
     if not math.isfinite(hours):
         return "not finite"
@@ -212,6 +227,7 @@ def _readable(cost):
 
 def _print_scan(args, table, quantity, what):
     import astropy.units as u
+
 
     echo(args, f"computing cost against {quantity} for {what}")
     headers = ["T_seg [day]", "N_seg", "N_coh/seg", "N_semi", "coherent [core-h]",

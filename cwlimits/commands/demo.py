@@ -5,7 +5,7 @@ from dataclasses import replace
 from importlib import resources
 from pathlib import Path
 
-from ._common import add_parser, echo
+from ._common import add_parser, echo, seed_arg
 from .report import add_overwrite_arg, write
 
 __all__ = ["ORDER", "register", "run", "demo_config_path"]
@@ -33,13 +33,14 @@ def register(subparsers, common):
                         help="output folder (default reports/demo); a folder cwlimits made "
                              "is replaced as a whole, any other non-empty one is refused")
     add_overwrite_arg(parser)
-    parser.add_argument("--seed", type=int, default=None,
+    parser.add_argument("--seed", type=seed_arg, default=None,
                         help="seed of every random draw (default: the demo's, 2026)")
     parser.set_defaults(run=run)
 
 
 def run(args):
     from ..config import load_config
+
 
     echo(args, "cwlimits demo: FICTIONAL targets (invented; they match no real object), "
                "SIMULATED search results (noise only, fixed seed)")

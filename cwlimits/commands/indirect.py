@@ -1,6 +1,7 @@
 """``cwlimits indirect``: the indirect amplitude limits of every target of a catalogue."""
 
 
+from ..errors import InputError
 from ._common import (
     add_parser,
     check_output_path,
@@ -9,6 +10,7 @@ from ._common import (
     format_rows,
     quantity_arg,
     sci,
+    seed_arg,
 )
 
 __all__ = ["ORDER", "register", "run"]
@@ -42,7 +44,7 @@ def register(subparsers, common):
                         default=None, metavar="F",
                         help="gravitational-wave frequencies for the ellipticity columns "
                              "(default 100 300 1000 Hz)")
-    parser.add_argument("--seed", type=int, default=None,
+    parser.add_argument("--seed", type=seed_arg, default=None,
                         help="add Monte-Carlo quantiles over the distance and age ranges, "
                              "with this seed")
     parser.add_argument("--samples", type=int, default=10000,
@@ -54,12 +56,19 @@ def register(subparsers, common):
 def run(args):
     import astropy.units as u
 
+    from .._sizes import check_size
     from ..indirect import DEFAULT_EPS_FREQUENCIES, indirect_limits
     from ..tables import write_table
     from ..targets import load_targets
 
+
     out = check_output_path(args.out)
     catalogue = load_targets(args.catalogue)
+    if args.seed is not None:
+        if args.samples < 1:
+            raise InputError("--samples must be at least 1", value=args.samples)
+        check_size("samples", args.samples * len(catalogue),
+                   f"--samples {args.samples} for {len(catalogue)} targets")
     freqs = DEFAULT_EPS_FREQUENCIES if not args.eps_at else u.Quantity(args.eps_at)
     table = indirect_limits(catalogue, args.braking_index, args.moment_of_inertia,
                             eps_frequencies=freqs, rng=args.seed, n_samples=args.samples)

@@ -1,5 +1,6 @@
 """``cwlimits limits``: upper limits on h0, ellipticity and r-mode amplitude per band."""
 
+import sys
 import warnings
 from pathlib import Path
 
@@ -15,6 +16,7 @@ from ._common import (
     quantity_arg,
     resolve_target,
     sci,
+    seed_arg,
 )
 from ._execution import (
     add_executor_args,
@@ -93,7 +95,7 @@ def register(subparsers, common):
                        help="emcee steps per walker (default 6000)")
     stats.add_argument("--walkers", type=int, default=64, metavar="N",
                        help="emcee walkers (default 64)")
-    stats.add_argument("--seed", type=int, default=None,
+    stats.add_argument("--seed", type=seed_arg, default=None,
                        help="seed of the Monte-Carlo and emcee (recorded in the output)")
     add_signal_model_args(parser)
     out = parser.add_argument_group("output")
@@ -113,6 +115,7 @@ def _band_index(text, results, option):
     """A band index from an integer or a frequency inside a band."""
     import astropy.units as u
     import numpy as np
+
 
     text = text.strip()
     try:
@@ -135,8 +138,16 @@ def _suffixed(path, suffix):
     return path.with_name(f"{path.stem}_{suffix}{path.suffix}")
 
 
+def _ratio(value):
+    """A ratio in 3 digits; '-' where the band has no limit (an empty cell)."""
+    import numpy as np
+
+    return "-" if not np.isfinite(value) else f"{value:.3g}"
+
+
 def run(args):
     from .. import limits
+    from .._sizes import check_size
     from ..results import load_results
     from ..store import file_hash, open_store
     from ..tables import write_table
@@ -156,7 +167,10 @@ def run(args):
                          "twice the 3 parameters)", value=args.walkers)
     results = load_results(args.results)
     target = resolve_target(args)
-    setup = build_setup(args)
+    setup = build_setup(args, known_sites=True)
+    if args.method == "bayes" or args.posterior is not None:
+        # before the results store is opened: nothing is written for a band out of range
+        limits.check_bayes_range(results, results.loudest_total(setup.n_seg), setup.n_seg)
     model_options = dict(sky=args.sky, mismatch=args.mismatch, start=args.start)
     options = dict(noise=args.noise, prior=args.prior, h0_min=args.h0_min,
                    h0_max=args.h0_max, distance_prior=args.distance_prior,
@@ -171,6 +185,11 @@ def run(args):
             raise InputError("--sampler emcee needs --bands (emcee is slow): e.g. --bands 0,5")
         bands = sorted({_band_index(t, results, "--bands") for t in args.bands.split(",")
                         if t.strip()})
+    check_size("samples", args.draws * len(results), f"--draws {args.draws} for "
+               f"{len(results)} bands")
+    if bands:
+        check_size("emcee", args.walkers * args.steps * len(bands),
+                   f"--walkers {args.walkers} x --steps {args.steps} for {len(bands)} bands")
     kwargs = dict(options, sampler=args.sampler, sampler_bands=bands,
                   n_walkers=args.walkers, n_steps=args.steps, n_astro=args.draws,
                   **model_options)
@@ -200,7 +219,7 @@ def run(args):
                     executor=executor, chunk_size=args.chunk_size,
                     progress=progress_from_args(args), **kwargs)
     for w in caught:
-        echo(args, f"warning: {w.message}")
+        print(f"warning: {w.message}", file=sys.stderr)
     table.meta["assumptions"]["seed"] = (
         f"{args.seed}" if args.seed is not None else
         "none given: fresh entropy (recorded in the run store of the output folder)")
@@ -267,12 +286,13 @@ def summarise(args, table, title):
     """Print a short table (at most ~15 bands), the best limit and the indirect fraction."""
     import numpy as np
 
+
     n = len(table)
     rows = np.unique(np.linspace(0, n - 1, min(n, 15)).round().astype(int))
     headers = ["f_mid [Hz]", "2F*", "h0 limit", "eps limit", "alpha limit", "h0_age / h0"]
     lines = [[f"{table['f_mid'][i].value:.6g}", f"{table['loudest_2F'][i].value:.5g}",
               sci(table["h0_limit"][i].value), sci(table["eps_limit"][i].value),
-              sci(table["alpha_limit"][i].value), f"{table['age_ratio'][i].value:.3g}"]
+              sci(table["alpha_limit"][i].value), _ratio(table['age_ratio'][i].value)]
              for i in rows]
     echo(args, f"{title}: {n} bands from {table['f_lo'][0]:.6g} to {table['f_hi'][-1]:.6g}")
     echo(args, format_rows(headers, lines))

@@ -21,7 +21,7 @@ ORDER = 70
 
 def add_plan_args(parser):
     """Options shared by ``plan`` and ``rank``: span, noise, band and the fixed setup parts."""
-    parser.add_argument("--span", type=quantity_arg("day", "span"), required=True,
+    parser.add_argument("--span", type=quantity_arg("d", "span"), required=True,
                         metavar="T", help="maximum data span N_seg T_seg (e.g. '1 yr')")
     parser.add_argument("--noise", default=DEFAULT_NOISE_MODEL, metavar="MODEL_OR_FILE",
                         help=f"noise model name or noise file (default {DEFAULT_NOISE_MODEL})")
@@ -39,7 +39,7 @@ def add_plan_args(parser):
                      default="1 Hz", metavar="DF", help="reporting band width (1Hz)")
     grp.add_argument("--lattice", choices=("covering", "cubic"), default="covering",
                      help="template lattice: covering (A_n*, default) or cubic (Z^n)")
-    grp.add_argument("--t-seg-min", type=quantity_arg("day", "t_seg_min"),
+    grp.add_argument("--t-seg-min", type=quantity_arg("d", "t_seg_min"),
                      default="1 day", metavar="T", help="shortest segment (default 1day)")
     grp.add_argument("--n-seg-max", type=int, default=1000, metavar="N",
                      help="most segments (default 1000)")
@@ -51,7 +51,17 @@ def add_plan_args(parser):
 
 def plan_options(args):
     """Keyword arguments of plan_search / rank_targets from the shared options."""
+    import astropy.units as u
+
+    from .._sizes import check_size
+
     dets = tuple(d.strip() for d in args.detectors.split(",") if d.strip())
+    # sizes named by their options, before any planning (README: size limits)
+    check_size("segments", max(args.n_seg_max, 1), f"--n-seg-max {args.n_seg_max}")
+    width = args.band_width.to_value(u.Hz)
+    if args.band and width > 0:
+        lo, hi = (f.to_value(u.Hz) for f in args.band)
+        check_size("bands", abs(hi - lo) / width, f"--band-width {args.band_width}")
     return dict(band=tuple(args.band) if args.band else None, detectors=dets,
                 band_width=args.band_width, lattice=args.lattice,
                 t_seg_min=args.t_seg_min, n_seg_max=args.n_seg_max,
@@ -104,6 +114,7 @@ def run(args):
     """Run ``cwlimits plan``."""
     from ..planning import as_budget, plan_search
     from ..tables import write_table
+
 
     out = check_output_path(args.out, (".toml",))
     table_path = check_output_path(args.table, option="--table")

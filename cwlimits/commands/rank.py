@@ -76,6 +76,7 @@ def _slug(name):
 
 def run(args):
     """Run ``cwlimits rank``."""
+    from .._sizes import check_size
     from ..planning import as_budget, rank_targets
     from ..store import file_hash, open_store
     from ..tables import write_table
@@ -90,6 +91,7 @@ def run(args):
         if args.per_target_budget else None
     if args.steps < 1:
         raise InputError("--steps must be at least 1", value=args.steps)
+    check_size("budget_steps", args.steps, f"--steps {args.steps}")
     catalogue = load_targets(args.catalogue)
     options = plan_options(args)
     config = {"command": "rank", "catalogue": file_hash(args.catalogue),

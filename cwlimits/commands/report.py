@@ -1,6 +1,5 @@
 """``cwlimits report``: the whole job from one configuration file to a report."""
 
-from .._defaults import REPORT_STEPS
 from ._common import add_parser, echo
 
 __all__ = ["ORDER", "register", "run", "write", "add_overwrite_arg"]
@@ -36,17 +35,22 @@ def add_overwrite_arg(parser):
 def run(args):
     from ..config import load_config
 
+
     config = load_config(args.config)
     return write(args, config)
 
 
 def write(args, config, simulate=False, output_option=None):
     """Run the report of ``config`` with a progress bar and the usual messages."""
-    from ..analysis import run_report
+    from .._sizes import allow_large, large_allowed
+    from ..analysis import STEPS, run_report
     from ..progress import progress
 
+
     quiet = getattr(args, "quiet", False)
-    with progress(REPORT_STEPS, "report", enabled=False if quiet else None, unit="step") as update:
+    large = config["allow_large"] or large_allowed()
+    with allow_large(large), progress(STEPS, "report", enabled=False if quiet else None,
+                                      unit="step") as update:
         folder = run_report(config, echo=lambda text: echo(args, text), progress=update,
                             simulate=simulate, overwrite=getattr(args, "overwrite", False),
                             output_option=output_option)

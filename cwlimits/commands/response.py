@@ -2,6 +2,7 @@
 
 import io
 import re
+import warnings
 
 from .._defaults import PLOT_SUFFIXES, builtin_detector_names
 from ..errors import InputError
@@ -80,6 +81,7 @@ def register(subparsers, common):
 def _numbers(text, name):
     import numpy as np
 
+
     try:
         values = [float(x) for x in str(text).split(",") if x.strip()]
     except ValueError:
@@ -94,6 +96,7 @@ def _sky_position(args):
     import astropy.units as u
     from astropy.coordinates import SkyCoord
 
+
     if args.catalogue or args.target:
         if not (args.catalogue and args.target) or args.ra or args.dec:
             raise InputError("give --catalogue FILE with --target NAME, or --ra with --dec")
@@ -101,18 +104,39 @@ def _sky_position(args):
         return target.coord, f"target {target.name} in {args.catalogue}"
     if not (args.ra and args.dec):
         raise InputError("give a sky position: --ra and --dec, or --catalogue and --target")
+    ra = _angle(args.ra, "--ra", u.hourangle if ":" in args.ra else u.deg)
+    dec = _angle(args.dec, "--dec", u.deg)
+    # Out-of-range angles are errors, as in catalogues: astropy would wrap 25h to 01h.
+    if not 0 <= ra.deg < 360 * (1 - 1e-15):
+        raise InputError("--ra: right ascension must lie in [0h, 24h) = [0, 360) deg",
+                         value=args.ra)
+    if not -90 <= dec.deg <= 90:
+        raise InputError("--dec: declination must lie in [-90, 90] deg", value=args.dec)
+    return SkyCoord(ra, dec), f"RA {args.ra}, Dec {args.dec}"
+
+
+def _angle(text, option, bare_unit):
+    """``text`` as an astropy Angle: with its own unit, else in ``bare_unit``."""
+    import astropy.units as u
+    import numpy as np
+    from astropy.coordinates import Angle
+    from astropy.utils.exceptions import AstropyWarning
+
     try:
-        if ":" in args.ra:
-            coord = SkyCoord(args.ra, args.dec, unit=(u.hourangle, u.deg))
-        else:
+        with warnings.catch_warnings():
+            # astropy warns about 24h or 75 minutes and goes on; for us that is bad input
+            warnings.simplefilter("error", AstropyWarning)
             try:
-                coord = SkyCoord(args.ra, args.dec)
+                angle = Angle(text)
             except (u.UnitsError, ValueError):
-                coord = SkyCoord(args.ra, args.dec, unit=(u.deg, u.deg))
-    except (ValueError, TypeError, u.UnitsError) as exc:
-        raise InputError(f"cannot read the sky position ({exc}); e.g. --ra 12h30m "
-                         "--dec -45d", value=f"{args.ra} {args.dec}") from None
-    return coord, f"RA {args.ra}, Dec {args.dec}"
+                angle = Angle(text, unit=bare_unit)
+        value = float(angle.deg)
+    except (ValueError, TypeError, u.UnitsError, AstropyWarning) as exc:
+        raise InputError(f"{option}: cannot read the sky position ({exc}); e.g. --ra 12h30m "
+                         "--dec -45d", value=text) from None
+    if not np.isfinite(value) or np.ndim(angle.deg) != 0:
+        raise InputError(f"{option}: needs one finite angle", value=text)
+    return angle
 
 
 def run(args):
@@ -122,12 +146,18 @@ def run(args):
 
     from .. import response as resp
     from .._files import atomic_write
+    from .._sizes import check_size
+
+
 
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     extra = resp.load_detectors(args.detector_file) if args.detector_file else None
     detectors = resp.get_detectors(args.detectors, extra)
     coord, where = _sky_position(args)
+    if args.order < 1:
+        raise InputError("--order must be at least 1", value=args.order)
+    check_size("quadrature", float(args.order) ** 2, f"--order {args.order}")
     duty = _numbers(args.duty, "duty")
     weights = None if args.weights is None else _numbers(args.weights, "weights")
     averages = resp.time_averages(detectors, coord, args.start, args.span, duty=duty,
@@ -181,6 +211,7 @@ def _one(averages, i, sin2zeta):
     """ResponseAverages of detector i alone (for its own R^2 quantiles)."""
     from .. import response as resp
 
+
     fields = dict(averages.__dict__)
     fields.update(A=averages.A_det[i] * sin2zeta, B=averages.B_det[i] * sin2zeta,
                   C=averages.C_det[i] * sin2zeta)
@@ -192,6 +223,8 @@ def _summary(R2, w):
 
     from .. import response as resp
 
+
+
     return {"mean": float(np.sum(R2.value * w)),
             "q": [float(x) for x in resp.weighted_quantiles(R2, w, _QUANTILES)]}
 
@@ -199,6 +232,7 @@ def _summary(R2, w):
 def _assumptions(averages, where, args):
     """The assumptions behind the numbers, printed and written with the table."""
     import astropy.units as u
+
 
     return {
         "sky_position": where,
@@ -226,6 +260,7 @@ def _write(out, detectors, averages, network, single, assumptions):
     import astropy.units as u
     import numpy as np
     from astropy.table import QTable
+
 
     names = [d.name for d in detectors] + ["network"]
     nan = [np.nan]
@@ -258,6 +293,7 @@ def _plot(path, detectors, coord, start):
     import numpy as np
 
     from .. import response as resp
+
 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt

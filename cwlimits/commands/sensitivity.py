@@ -9,6 +9,7 @@ from ._common import (
     echo,
     format_assumptions,
     format_rows,
+    number_arg,
     quantity_arg,
     resolve_target,
     sci,
@@ -57,7 +58,7 @@ def register(subparsers, common):
                        help="convention of --threshold and of the threshold column: 2F "
                             "summed over the segments ('total', default) or averaged over "
                             "them ('per_segment')")
-    stats.add_argument("--trials", type=float, default=None,
+    stats.add_argument("--trials", type=number_arg(1), default=None,
                        help="effective number of independent templates per band (overrides "
                             "the template count)")
     add_signal_model_args(parser)
@@ -75,7 +76,7 @@ def run(args):
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     target = resolve_target(args)
-    setup = build_setup(args)
+    setup = build_setup(args, known_sites=True)
     if args.band is not None:
         setup = setup.replace(band=tuple(args.band))
     table = strain_sensitivity(

@@ -15,6 +15,7 @@ from ._common import (
     quantity_arg,
     resolve_target,
     sci,
+    seed_arg,
 )
 from ._execution import (
     add_executor_args,
@@ -61,7 +62,7 @@ def register(subparsers, common):
     parser.add_argument("--setup", metavar="FILE", required=True,
                         help="TOML setup file (segments, detectors, band)")
     grp = parser.add_argument_group("setup (override the file)")
-    grp.add_argument("--t-seg", type=quantity_arg("day", "segment length"), metavar="T",
+    grp.add_argument("--t-seg", type=quantity_arg("d", "segment length"), metavar="T",
                      help="coherent segment length (e.g. 2day)")
     grp.add_argument("--n-seg", type=int, metavar="N", help="number of segments")
     grp.add_argument("--detectors", metavar="LIST", help="comma-separated site codes")
@@ -90,7 +91,7 @@ def register(subparsers, common):
                           f"{DEFAULT_NOISE_MODEL})")
     sim.add_argument("--start", default=DEFAULT_START,
                      help=f"start of the data, UTC (default {DEFAULT_START})")
-    sim.add_argument("--seed", type=int, metavar="N",
+    sim.add_argument("--seed", type=seed_arg, metavar="N",
                      help="random seed (default: fresh; recorded in the output)")
     st = parser.add_argument_group("statistics")
     st.add_argument("--confidence", type=float, default=0.9,
@@ -112,6 +113,8 @@ def register(subparsers, common):
 
 def _check_numbers(args):
     """Refuse bad counts, amplitudes and probabilities before any work."""
+    from .._sizes import check_size
+
     for name, value in (("--injections", args.injections), ("--templates", args.templates)):
         if value < 1:
             raise InputError(f"{name} must be at least 1", value=value)
@@ -132,6 +135,10 @@ def _check_numbers(args):
             raise InputError(f"{name} must lie strictly between 0 and 1", value=value)
     if args.seed is not None and args.seed < 0:
         raise InputError("--seed must be a non-negative integer", value=args.seed)
+    steps = len(args.h0) if args.h0 is not None else args.h0_steps
+    check_size("injections", args.injections * steps,
+               f"--injections {args.injections} at {steps} h0 values")
+    check_size("templates", args.templates, f"--templates {args.templates}")
 
 
 def _setup(args):
@@ -162,6 +169,7 @@ def _setup(args):
 
 def _frequency(args, setup, band_hz):
     import astropy.units as u
+
 
     f_min, f_max = setup.f_min.to_value(u.Hz), setup.f_max.to_value(u.Hz)
     f = 0.5 * (f_min + f_max) if args.frequency is None else args.frequency.to_value(u.Hz)
@@ -287,6 +295,7 @@ def run(args):
 def _summarise(args, result, target, setup, f_hz, psd, seed_text):
     import astropy.units as u
     import numpy as np
+
 
     b_hz = result.bandwidth.to_value(u.Hz)
     echo(args, f"injection campaign for {target.name}: {setup.n_seg} x {setup.t_seg} "
