@@ -10,7 +10,10 @@ failure leaves the destination as it was.  The temporary file is created with
 Output paths are checked before any work by :func:`check_output_file` and
 :func:`check_output_folder` (one preflight for every command): a folder in the way, a
 missing folder that cannot be created, a read-only folder, or a symbolic link as the
-output are errors (exit 2) naming the option and the path.
+output are errors (exit 2) naming the option and the path.  An existing output file is
+replaced only when cwlimits wrote it (:func:`written_by_cwlimits`: every table, setup file
+and figure cwlimits writes carries a mark of its own); any other file in the way is an error,
+so a mistyped ``--out`` never replaces a catalogue, a results file or a configuration.
 """
 
 import os
@@ -20,10 +23,36 @@ from pathlib import Path
 from .errors import InputError
 
 __all__ = ["atomic_write", "check_output_file", "check_output_folder", "make_folder",
-           "TEMP_SUFFIX"]
+           "written_by_cwlimits", "FIGURE_MARK", "TEMP_SUFFIX"]
 
 #: Suffix of the temporary files of :func:`atomic_write` (they never outlive a write).
 TEMP_SUFFIX = ".cwlimits-tmp"
+
+#: What every figure cwlimits writes carries in its metadata (PNG Software, SVG and PDF
+#: Creator), so that a later run may replace it.
+FIGURE_MARK = "cwlimits figure"
+
+# The marks of the files cwlimits writes: tables (the ``written_by`` line of
+# :func:`cwlimits.tables.write_table`), setup and plan files (their ``format`` key) and
+# figures (:data:`FIGURE_MARK`).  PDF keeps its metadata at the end, hence head and tail.
+_OWN_MARKS = (b"written_by: cwlimits", b'"cwlimits-setup', FIGURE_MARK.encode())
+_MARK_WINDOW = 65536
+
+
+def written_by_cwlimits(path):
+    """True when the regular file ``path`` carries the mark of a file cwlimits wrote."""
+    path = Path(path)
+    if path.is_symlink() or not path.is_file():
+        return False
+    try:
+        with open(path, "rb") as handle:
+            head = handle.read(_MARK_WINDOW)
+            size = handle.seek(0, os.SEEK_END)
+            handle.seek(max(size - _MARK_WINDOW, 0))
+            tail = handle.read(_MARK_WINDOW)
+    except OSError:
+        return False
+    return any(mark in head or mark in tail for mark in _OWN_MARKS)
 
 
 def make_folder(path):
@@ -113,8 +142,8 @@ def check_output_file(path, suffixes=(".csv", ".ecsv"), option="--out"):
     Raises
     ------
     InputError
-        For a wrong suffix, a folder or a symbolic link at the path, or a folder that
-        cannot be written or created.
+        For a wrong suffix, a folder or a symbolic link at the path, an existing file that
+        cwlimits did not write, or a folder that cannot be written or created.
     """
     if path is None:
         return None
@@ -128,6 +157,10 @@ def check_output_file(path, suffixes=(".csv", ".ecsv"), option="--out"):
                          "through links, give the real path", file=str(path))
     if path.is_dir():
         raise InputError(f"{label}output path is a folder", file=str(path))
+    if path.exists() and not written_by_cwlimits(path):
+        raise InputError(f"{label}output file exists and was not written by cwlimits; "
+                         "cwlimits never replaces a file it did not write: remove it or "
+                         "choose another path", file=str(path))
     _writable_folder(path.parent, option, "the output file", path)
     return path
 

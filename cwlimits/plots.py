@@ -12,9 +12,10 @@ from pathlib import Path
 import numpy as np
 
 from . import _defaults
-from ._files import atomic_write
+from ._files import FIGURE_MARK, atomic_write
 
-__all__ = ["COLUMN_WIDTH_IN", "PALETTE", "PLOT_SUFFIXES", "new_figure", "save_figure",
+__all__ = ["COLUMN_WIDTH_IN", "PALETTE", "PLOT_SUFFIXES", "figure_metadata", "new_figure",
+           "save_figure",
            "save_plot", "tidy_log_axes",
            "plot_indirect_limits",
            "plot_strain_curves", "plot_sensitivity"]
@@ -74,6 +75,18 @@ def tidy_log_axes(ax):
     ax.tick_params(which="both", labelsize=6)
 
 
+def figure_metadata(fmt):
+    """The savefig metadata of a figure in format ``fmt``: cwlimits' mark, no date in SVG.
+
+    The mark lets a later run replace the figure (:func:`cwlimits._files.written_by_cwlimits`).
+    """
+    if fmt == "png":
+        return {"Software": FIGURE_MARK}
+    if fmt == "svg":
+        return {"Date": None, "Creator": FIGURE_MARK}
+    return {"Creator": FIGURE_MARK}
+
+
 def save_figure(fig, path, formats=("png", "svg")):
     """Save ``fig`` as ``path`` with each extension of ``formats``; return the paths.
 
@@ -93,7 +106,7 @@ def save_figure(fig, path, formats=("png", "svg")):
             if k == 1 and engine is not None:
                 fig.set_layout_engine("none")  # keep the positions the first save found
             target = path.with_suffix(f".{fmt}")
-            metadata = {"Date": None} if fmt == "svg" else None
+            metadata = figure_metadata(fmt)
             atomic_write(target, lambda handle, fmt=fmt, metadata=metadata: fig.savefig(
                 handle, format=fmt, metadata=metadata), binary=True)
             written.append(target)

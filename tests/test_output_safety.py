@@ -346,7 +346,7 @@ def limits_files(tmp_path):
     setup = tmp_path / "s.toml"
     SearchSetup(t_seg=10 * u.day, n_seg=4, band=(100 * u.Hz, 110 * u.Hz)).to_toml(setup)
     results = tmp_path / "res.csv"
-    lines = ["f_lo [Hz],width [Hz],loudest_2F_sum"]
+    lines = ["f_lo [Hz],width [Hz],loudest_2F"]
     lines += [f"{100 + 0.5 * i},0.5,{30 + i}" for i in range(10)]
     results.write_text("\n".join(lines) + "\n")
     return setup, results
@@ -470,3 +470,42 @@ def test_claims_of_one_process(tmp_path):
         assert [store.claim_chunk(run, "", i) for i in (0, 1)] == ["mine", "mine"]
         store.save_chunk(run, "", 0, 0, 1, {"x": np.zeros(1)})
         assert store.claim_chunk(run, "", 0) == "done"
+
+
+# A single output file (--out, --plot, --table, ...) replaces only a file cwlimits wrote:
+# the brief's rule "never overwrite a file it did not write" (common practice for tools
+# that write into a user's folders).
+@pytest.mark.parametrize("argv", [
+    ["indirect", str(CATALOGUE), "--out", "{dir}/cat.csv"],
+    ["indirect", str(CATALOGUE), "--out", "{dir}/cat.ecsv"],
+    ["noise", "--plot", "{dir}/curve.png"],
+    ["noise", "--plot", "{dir}/curve.pdf"],
+    ["noise", "--plot", "{dir}/curve.svg"],
+])
+def test_an_output_file_replaces_only_a_file_cwlimits_wrote(tmp_path, capsys, argv):
+    target = pathlib.Path(argv[-1].format(dir=tmp_path))
+    argv = [a.format(dir=tmp_path) for a in argv]
+    target.write_text("name,ra,dec\nmy own data\n")
+    before = snapshot(tmp_path)
+    assert main(argv) == 2
+    assert "was not written by cwlimits" in capsys.readouterr().err
+    assert snapshot(tmp_path) == before
+    # once cwlimits wrote it, a rerun replaces it
+    target.unlink()
+    assert main(argv) == 0
+    first = target.stat().st_mtime_ns
+    assert main(argv) == 0
+    assert target.exists() and target.stat().st_mtime_ns >= first
+    capsys.readouterr()
+
+
+def test_plans_dir_never_replaces_a_user_file_named_like_a_plan(tmp_path, capsys):
+    # The plan file of each catalogue target (slug of its name) is checked before any work.
+    plans = tmp_path / "plans"
+    plans.mkdir()
+    (plans / "Fict_Quill.toml").write_text("# my notes\n")
+    before = snapshot(tmp_path)
+    assert main(["rank", str(CATALOGUE), "--budget", "1e4 h", "--span", "100 d",
+                 "--plans-dir", str(plans)]) == 2
+    assert "was not written by cwlimits" in capsys.readouterr().err
+    assert snapshot(tmp_path) == before

@@ -93,6 +93,11 @@ def run(args):
         raise InputError("--steps must be at least 1", value=args.steps)
     check_size("budget_steps", args.steps, f"--steps {args.steps}")
     catalogue = load_targets(args.catalogue)
+    if plans_dir is not None:
+        # The plan file of every target that may get one, checked before any work.
+        for target in catalogue:
+            check_output_path(plans_dir / f"{_slug(target.name)}.toml", (".toml",),
+                              "--plans-dir")
     options = plan_options(args)
     config = {"command": "rank", "catalogue": file_hash(args.catalogue),
               "budget": str(total), "per_target_budget": str(per), "steps": args.steps,

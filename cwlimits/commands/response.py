@@ -298,6 +298,8 @@ def _plot(path, detectors, coord, start):
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
+    from ..plots import figure_metadata
+
     hours = np.linspace(0.0, resp.SIDEREAL_DAY.to_value(u.h), 289)
     times = start + hours * u.h
     # Okabe-Ito colours plus line styles and markers: readable in greyscale too.
@@ -320,7 +322,8 @@ def _plot(path, detectors, coord, start):
     fig.tight_layout()
     buffer = io.BytesIO()
     try:
-        fig.savefig(buffer, format=path.suffix.lstrip(".").lower())
+        fmt = path.suffix.lstrip(".").lower()
+        fig.savefig(buffer, format=fmt, metadata=figure_metadata(fmt))
     finally:
         plt.close(fig)
     return buffer.getvalue()
