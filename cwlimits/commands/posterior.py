@@ -1,11 +1,14 @@
 """``cwlimits posterior``: Bayesian upper limit of a known pulsar from down-converted data."""
 
+from .._defaults import (
+    MOMENT_OF_INERTIA_TEXT,
+    PLOT_SUFFIXES,
+    PULSAR_HARMONICS,
+    PULSAR_MAX_STRETCH,
+    PULSAR_NOISE_MODES,
+    PULSAR_SAMPLERS,
+)
 from ..errors import InputError
-from ..fiducial import DEFAULT_MOMENT_OF_INERTIA
-from ..plots import PLOT_SUFFIXES
-from ..pulsars.data import DEFAULT_MAX_STRETCH, read_down_converted
-from ..pulsars.posterior import HARMONICS, NOISE_MODES, SAMPLERS
-from ..tables import write_table
 from ._common import (
     add_parser,
     add_target_args,
@@ -23,8 +26,6 @@ ORDER = 72
 
 
 def register(subparsers, common):
-    import astropy.units as u
-
     from ._common import quantity_arg
 
     parser = add_parser(
@@ -49,10 +50,10 @@ def register(subparsers, common):
     add_target_args(parser)
     parser.add_argument("--setup", metavar="FILE",
                         help="TOML setup: the data's detectors must be among its detectors")
-    parser.add_argument("--noise", choices=NOISE_MODES, default="student-t",
+    parser.add_argument("--noise", choices=PULSAR_NOISE_MODES, default="student-t",
                         help="noise per stretch marginalised (default), the file's sigma, "
                              "or estimated from each stretch")
-    parser.add_argument("--harmonic", choices=HARMONICS, default="22",
+    parser.add_argument("--harmonic", choices=PULSAR_HARMONICS, default="22",
                         help="data at 2 f_rot (h0; default) or at f_rot (C21)")
     parser.add_argument("--h0-prior", choices=("uniform", "log-uniform"), default="uniform")
     parser.add_argument("--h0-min", type=float, default=None,
@@ -65,16 +66,16 @@ def register(subparsers, common):
                                                   "given (default) or uniform")
     parser.add_argument("--confidence", type=float, default=0.95,
                         help="of the upper limit (default 0.95)")
-    parser.add_argument("--sampler", choices=SAMPLERS, default="grid",
+    parser.add_argument("--sampler", choices=PULSAR_SAMPLERS, default="grid",
                         help="vectorised grid (default) or emcee")
     parser.add_argument("--walkers", type=int, default=32, help="emcee walkers (default 32)")
     parser.add_argument("--steps", type=int, default=3000,
                         help="emcee steps per walker (default 3000, the first 1000 dropped)")
-    parser.add_argument("--max-stretch", type=int, default=DEFAULT_MAX_STRETCH,
+    parser.add_argument("--max-stretch", type=int, default=PULSAR_MAX_STRETCH,
                         help="longest automatic stretch in samples (default "
-                             f"{DEFAULT_MAX_STRETCH})")
-    parser.add_argument("--moment-of-inertia", type=quantity_arg(u.kg * u.m**2,
-                        "moment of inertia"), default=DEFAULT_MOMENT_OF_INERTIA,
+                             f"{PULSAR_MAX_STRETCH})")
+    parser.add_argument("--moment-of-inertia", type=quantity_arg("kg m2",
+                        "moment of inertia"), default=MOMENT_OF_INERTIA_TEXT,
                         metavar="I", help="default 1e38 kg m2")
     parser.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
     parser.add_argument("--out", metavar="FILE", help="limit table (.csv or .ecsv)")
@@ -84,7 +85,9 @@ def register(subparsers, common):
 
 
 def run(args):
+    from ..pulsars.data import read_down_converted
     from ..pulsars.posterior import limit_table, pulsar_posterior
+    from ..tables import write_table
 
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")

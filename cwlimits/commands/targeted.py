@@ -1,12 +1,14 @@
 """``cwlimits targeted``: expected limit and cost of a search for a known pulsar."""
 
-import astropy.units as u
-
+from .._defaults import (
+    DEFAULT_NOISE_MODEL,
+    DEFAULT_START,
+    EMISSION_NAMES,
+    PULSAR_KINDS,
+    PULSAR_N_SIGMA,
+    PULSAR_NOISE_DRAWS,
+)
 from ..errors import InputError
-from ..noise import DEFAULT_NOISE_MODEL
-from ..pulsars.emission import EMISSION_MODELS
-from ..pulsars.expected import DEFAULT_N_NOISE, DEFAULT_N_SIGMA, KINDS, targeted_sensitivity
-from ..tables import write_table
 from ._common import (
     add_parser,
     check_output_path,
@@ -24,8 +26,6 @@ ORDER = 52
 
 
 def register(subparsers, common):
-    from ..sensitivity import DEFAULT_START
-
     parser = add_parser(
         subparsers, common, "targeted",
         help="expected upper limit, template count and cost of a targeted or narrow-band "
@@ -64,9 +64,9 @@ def register(subparsers, common):
     parser.add_argument("--noise", default=DEFAULT_NOISE_MODEL, metavar="MODEL_OR_FILE",
                         help=f"noise model name or noise file (default {DEFAULT_NOISE_MODEL})")
     grp = parser.add_argument_group("known pulsar")
-    grp.add_argument("--kind", choices=KINDS, default="auto",
+    grp.add_argument("--kind", choices=PULSAR_KINDS, default="auto",
                      help="search kind (default auto: targeted inside one template)")
-    grp.add_argument("--emission", choices=sorted(EMISSION_MODELS), default="single",
+    grp.add_argument("--emission", choices=EMISSION_NAMES, default="single",
                      help="single harmonic at 2 f_rot (default), dual harmonic (f_rot and "
                           "2 f_rot) or r-mode band")
     grp.add_argument("--orientation", choices=("catalogue", "uniform"),
@@ -78,16 +78,16 @@ def register(subparsers, common):
                      help="prior of the Bayesian limit (default uniform)")
     grp.add_argument("--h0-min", type=float, default=None,
                      help="lower end of a log-uniform h0 prior")
-    grp.add_argument("--n-sigma", type=float, default=DEFAULT_N_SIGMA,
-                     help=f"half-width of the timing box in sigma (default {DEFAULT_N_SIGMA:g})")
+    grp.add_argument("--n-sigma", type=float, default=PULSAR_N_SIGMA,
+                     help=f"half-width of the timing box in sigma (default {PULSAR_N_SIGMA:g})")
     grp.add_argument("--fractional-width", type=float, default=None,
                      help="narrow-band box half-width as a fraction of f_gw and |fdot_gw| "
                           "(e.g. 1e-3) instead of the timing uncertainties")
     grp.add_argument("--false-alarm", type=float, default=0.01,
                      help="false alarm of a narrow-band search over its box (default 0.01)")
-    grp.add_argument("--noise-draws", type=int, default=DEFAULT_N_NOISE,
+    grp.add_argument("--noise-draws", type=int, default=PULSAR_NOISE_DRAWS,
                      help=f"noise-only data sets of the expected limit (default "
-                          f"{DEFAULT_N_NOISE})")
+                          f"{PULSAR_NOISE_DRAWS})")
     grp.add_argument("--start", default=DEFAULT_START,
                      help=f"start of the data, UTC (default {DEFAULT_START})")
     grp.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
@@ -106,11 +106,13 @@ def _setup_for(args, f_gw):
 
 
 def _run_all(args, out, plot):
+    import astropy.units as u
     import numpy as np
 
     from ..plots import save_plot
     from ..pulsars.plots import plot_known_pulsars
     from ..pulsars.summary import known_pulsar_summary, sensitivity_curve
+    from ..tables import write_table
     from ..targets import load_targets
 
     catalogue = load_targets(args.catalogue)
@@ -166,7 +168,11 @@ def _run_all(args, out, plot):
 
 
 def run(args):
-    from ..plots import PLOT_SUFFIXES
+    import astropy.units as u
+
+    from .._defaults import PLOT_SUFFIXES
+    from ..pulsars.expected import targeted_sensitivity
+    from ..tables import write_table
 
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")

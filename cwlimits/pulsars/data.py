@@ -39,6 +39,7 @@ import astropy.units as u
 import numpy as np
 from astropy.table import QTable
 
+from .. import _defaults
 from .._units import to_value
 from ..errors import InputError, TableError
 from ..response import amplitude_modulation, get_detector
@@ -51,7 +52,7 @@ __all__ = ["DownConvertedData", "read_down_converted", "write_down_converted",
 
 #: Default longest stretch in samples (Dupuis & Woan 2005 used stretches up to 30 min of
 #: one-minute samples: 30).
-DEFAULT_MAX_STRETCH = 30
+DEFAULT_MAX_STRETCH = _defaults.PULSAR_MAX_STRETCH
 #: Fewest samples of a stretch: the Student-t marginal needs at least two.
 MIN_STRETCH = 2
 #: Largest number of samples accepted (about 1 GB of working arrays).

@@ -31,6 +31,7 @@ import astropy.units as u
 import numpy as np
 from astropy.table import QTable
 
+from .. import _defaults
 from .._units import to_value
 from ..cost import count_templates
 from ..detection import QuadratureRule, false_alarm_threshold, solve_amplitude
@@ -49,17 +50,17 @@ from .likelihood import noise_only_sums
 __all__ = ["targeted_sensitivity", "network_sums", "coherent_mismatch", "KINDS",
            "DEFAULT_N_SIGMA"]
 
-KINDS = ("auto", "targeted", "narrow-band")
+KINDS = _defaults.PULSAR_KINDS
 
 #: Half-width of the timing box in standard deviations (common practice: 3 sigma).
-DEFAULT_N_SIGMA = 3.0
+DEFAULT_N_SIGMA = _defaults.PULSAR_N_SIGMA
 
 #: Fixed seed of the mismatch draws of the narrow-band sensitivity (reproducible numbers).
 _MISMATCH_SEED = 20050817
 
 #: Noise-only draws of the expected limit; the median's relative Monte-Carlo error is
 #: about 1.25 x (spread / median) / sqrt(n) ~ 1.5 % at 400 (reported beside the value).
-DEFAULT_N_NOISE = 400
+DEFAULT_N_NOISE = _defaults.PULSAR_NOISE_DRAWS
 
 
 def coherent_mismatch(setup):

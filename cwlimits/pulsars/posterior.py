@@ -29,6 +29,7 @@ import numpy as np
 from astropy.table import QTable
 from scipy import special
 
+from .. import _defaults
 from ..conversions import ellipticity, mass_quadrupole
 from ..errors import InputError
 from ..fiducial import DEFAULT_MOMENT_OF_INERTIA
@@ -51,10 +52,10 @@ from .likelihood import orientation_coefficients, student_log_likelihood
 __all__ = ["PulsarPosterior", "pulsar_posterior", "limit_table", "spindown_ratios",
            "NOISE_MODES", "SAMPLERS", "HARMONICS"]
 
-NOISE_MODES = ("student-t", "given", "estimated")
-SAMPLERS = ("grid", "emcee")
+NOISE_MODES = _defaults.PULSAR_NOISE_MODES
+SAMPLERS = _defaults.PULSAR_SAMPLERS
 #: '22': data at 2 f_rot, amplitude h0 (= 2 C22); '21': data at f_rot, amplitude C21.
-HARMONICS = ("22", "21")
+HARMONICS = _defaults.PULSAR_HARMONICS
 PARAMETERS = ("h0", "cosi", "psi", "phi0")
 
 
