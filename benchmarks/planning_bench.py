@@ -18,7 +18,7 @@ import time
 
 import astropy.units as u
 
-from cwlimits import planning
+from cwlimits import planning, response
 from cwlimits.executor import make_executor
 from cwlimits.sensitivity import strain_sensitivity
 from cwlimits.setup import SearchSetup
@@ -31,6 +31,7 @@ CATALOGUE = HERE.parent / "target_lists" / "demo.csv"
 def _clear():
     planning._R2_CACHE.clear()
     planning._TABLE_CACHE.clear()
+    response._cached_gast_moments.cache_clear()  # the sidereal-time moments too
 
 
 def timed(fn):
@@ -64,6 +65,12 @@ def main(argv=None):
     beat, t_beat = timed(lambda: planning.plan_search(target, "second-gen-fit", budget, span,
                                                       "beat-age", band=band, band_width=width,
                                                       case="pessimistic"))
+    # another target once the process holds the shared ln a tables (not cleared): what
+    # each further plan_search of a session or a ranking costs
+    t0 = time.perf_counter()
+    planning.plan_search(catalogue.target("Fict Ember"), "second-gen-fit", budget, span,
+                         "beat-age", band=band, band_width=width, case="pessimistic")
+    t_warm = time.perf_counter() - t0
     kw = dict(band=band, band_width=width, budget_steps=steps)
     ranking, t_rank = timed(lambda: planning.rank_targets(targets, "second-gen-fit", total,
                                                           span, **kw))
@@ -81,6 +88,7 @@ def main(argv=None):
         "baseline_strain_sensitivity_s": base,
         "plan_depth_s": t_depth, "plan_depth_ratio": t_depth / base,
         "plan_beat_age_s": t_beat, "plan_beat_age_ratio": t_beat / base,
+        "plan_warm_tables_s": t_warm, "plan_warm_tables_ratio": t_warm / base,
         "rank_demo_serial_s": t_rank, "rank_demo_serial_ratio": t_rank / base,
         "rank_demo_2_workers_s": None if args.quick else t_rank2,
         "rank_demo_2_workers_ratio": ratio2,
@@ -92,12 +100,26 @@ def main(argv=None):
                        "depth": plan.merit.value},
         "plan_beat_age": {"width_hz": beat.merit.value, "bound": beat.bound},
     }
+    # Issue 16, target 5 (quiet 2-core machine): one plan_search <= 0.3 s, the demo
+    # catalogue ranked in <= 3 s; full sizes only.
+    figures["goals"] = [] if args.quick else [
+        {"target": "5. plan_search, a further target (tables built)", "goal": "<= 0.3 s",
+         "measured": f"{t_warm:.2f} s", "pass": bool(t_warm <= 0.3)},
+        {"target": "5. plan_search, one target (depth, cold)", "goal": "<= 0.3 s",
+         "measured": f"{t_depth:.2f} s", "pass": bool(t_depth <= 0.3)},
+        {"target": "5. plan_search, one target (beat-age, cold)", "goal": "<= 0.3 s",
+         "measured": f"{t_beat:.2f} s", "pass": bool(t_beat <= 0.3)},
+        {"target": f"5. rank_targets, {len(targets)} demo targets", "goal": "<= 3 s",
+         "measured": f"{t_rank:.2f} s serial, {t_rank2:.2f} s with {workers} workers",
+         "pass": bool(min(t_rank, t_rank2) <= 3.0)}]
     print(f"baseline: one strain_sensitivity call ({figures['n_bands']} bands) "
           f"{base:.3g} s = 1")
     print(f"plan one target, depth objective:        {t_depth:.3g} s = "
           f"{t_depth / base:.3g} x baseline")
     print(f"plan one target, beat-age objective:     {t_beat:.3g} s = "
           f"{t_beat / base:.3g} x baseline")
+    print(f"plan a further target (tables built):    {t_warm:.3g} s = "
+          f"{t_warm / base:.3g} x baseline")
     print(f"rank {len(targets)} demo targets + split ({steps} steps), serial: "
           f"{t_rank:.3g} s = {t_rank / base:.3g} x baseline")
     if not args.quick:

@@ -4,126 +4,161 @@ The package follows the job: target catalogues -> indirect limits -> noise and d
 response -> parameter space and computing cost -> sensitivity -> planning -> upper limits
 -> reports.  The names below are the public API; everything takes and returns
 :class:`astropy.units.Quantity`.
+
+Submodules and the names below are imported on first use (PEP 562), so ``import cwlimits``
+costs milliseconds and ``cwlimits --help`` never loads the numerical stack.
 """
 
-from importlib.metadata import PackageNotFoundError, version
+import importlib
 
-try:
-    __version__ = version("cwlimits")
-except PackageNotFoundError:  # pragma: no cover - running from a source tree
-    __version__ = "0+unknown"
+#: Public name -> the module that defines it (PEP 562: imported on first use, so that
+#: ``import cwlimits`` and the command line start without numpy, scipy or astropy).
+_LAZY = {
+    "allow_large": "_sizes",
+    "targeted_sensitivity": "pulsars",
+    "pulsar_posterior": "pulsars",
+    "CwlimitsWarning": "errors",
+    "SizeLimitError": "errors",
+    "ellipticity": "conversions",
+    "mass_quadrupole": "conversions",
+    "rmode_amplitude": "conversions",
+    "strain_from_ellipticity": "conversions",
+    "strain_from_rmode_amplitude": "conversions",
+    "CostEstimate": "cost",
+    "computing_cost": "cost",
+    "count_templates": "cost",
+    "scan_cost": "cost",
+    "QuadratureRule": "detection",
+    "combine_rules": "detection",
+    "critical_depth": "detection",
+    "detection_probability": "detection",
+    "estimate_sensitivity": "detection",
+    "false_alarm_threshold": "detection",
+    "marginal_likelihood": "detection",
+    "solve_amplitude": "detection",
+    "CatalogueError": "errors",
+    "ComputationError": "errors",
+    "ConfigError": "errors",
+    "CwlimitsError": "errors",
+    "InputError": "errors",
+    "OutOfRangeError": "errors",
+    "TableError": "errors",
+    "UnitsMismatchError": "errors",
+    "make_executor": "executor",
+    "map_chunks": "executor",
+    "named_seed": "executor",
+    "DEFAULT_MOMENT_OF_INERTIA": "fiducial",
+    "FIDUCIAL_RMODE_STAR": "fiducial",
+    "estimate_amplitudes": "fstat",
+    "expected_rho2": "fstat",
+    "measure_unit_costs": "fstat",
+    "noise_levels": "fstat",
+    "stackslide_fstat": "fstat",
+    "MASS_QUADRUPOLE": "indirect",
+    "R_MODE": "indirect",
+    "age_limit": "indirect",
+    "indirect_limits": "indirect",
+    "limit_range": "indirect",
+    "rmode_age_limit": "indirect",
+    "rmode_spindown_limit": "indirect",
+    "sample_limits": "indirect",
+    "spindown_limit": "indirect",
+    "Lattice": "lattices",
+    "nearest_template": "lattices",
+    "sample_mismatch": "lattices",
+    "band_posterior": "limits",
+    "sample_band": "limits",
+    "upper_limits": "limits",
+    "coherent_metric": "metric",
+    "refinement_factors": "metric",
+    "semicoherent_metric": "metric",
+    "DEFAULT_NOISE_MODEL": "noise",
+    "NOISE_MODELS": "noise",
+    "band_floor": "noise",
+    "band_psd": "noise",
+    "combine_noise": "noise",
+    "estimate_psd": "noise",
+    "get_noise": "noise",
+    "read_noise_file": "noise",
+    "read_timeseries": "noise",
+    "AgeBasedSpace": "parameter_space",
+    "BoxSpace": "parameter_space",
+    "PowerLawModel": "planning",
+    "Ranking": "planning",
+    "SearchPlan": "planning",
+    "allocate_budget": "planning",
+    "optimise_setup": "planning",
+    "plan_search": "planning",
+    "rank_targets": "planning",
+    "Detector": "response",
+    "antenna_patterns": "response",
+    "get_detector": "response",
+    "load_detectors": "response",
+    "orientation_factor": "response",
+    "orientation_factor_rule": "response",
+    "orientation_factor_samples": "response",
+    "time_averages": "response",
+    "SearchResults": "results",
+    "load_results": "results",
+    "SignalModel": "sensitivity",
+    "sensitivity_depth": "sensitivity",
+    "signal_model": "sensitivity",
+    "strain_sensitivity": "sensitivity",
+    "SearchSetup": "setup",
+    "load_setup": "setup",
+    "ResultStore": "store",
+    "config_hash": "store",
+    "file_hash": "store",
+    "open_store": "store",
+    "BandData": "synthetic",
+    "CWSignal": "synthetic",
+    "heterodyne": "synthetic",
+    "inject": "synthetic",
+    "simulate_noise": "synthetic",
+    "simulate_real_noise": "synthetic",
+    "simulate_signal": "synthetic",
+    "read_table": "tables",
+    "write_table": "tables",
+    "Target": "targets",
+    "TargetCatalogue": "targets",
+    "load_targets": "targets",
+    "CampaignResult": "validation",
+    "injection_campaign": "validation",
+}
 
-from ._sizes import allow_large  # noqa: E402
-from .conversions import (  # noqa: E402
-    ellipticity,
-    mass_quadrupole,
-    rmode_amplitude,
-    strain_from_ellipticity,
-    strain_from_rmode_amplitude,
-)
-from .cost import (  # noqa: E402
-    CostEstimate,
-    computing_cost,
-    count_templates,
-    scan_cost,
-)
-from .detection import (  # noqa: E402
-    QuadratureRule,
-    combine_rules,
-    critical_depth,
-    detection_probability,
-    estimate_sensitivity,
-    false_alarm_threshold,
-    marginal_likelihood,
-    solve_amplitude,
-)
-from .errors import (  # noqa: E402
-    CatalogueError,
-    ComputationError,
-    ConfigError,
-    CwlimitsError,
-    CwlimitsWarning,
-    InputError,
-    OutOfRangeError,
-    SizeLimitError,
-    TableError,
-    UnitsMismatchError,
-)
-from .executor import make_executor, map_chunks, named_seed  # noqa: E402
-from .fiducial import DEFAULT_MOMENT_OF_INERTIA, FIDUCIAL_RMODE_STAR  # noqa: E402
-from .fstat import (  # noqa: E402
-    estimate_amplitudes,
-    expected_rho2,
-    measure_unit_costs,
-    noise_levels,
-    stackslide_fstat,
-)
-from .indirect import (  # noqa: E402
-    MASS_QUADRUPOLE,
-    R_MODE,
-    age_limit,
-    indirect_limits,
-    limit_range,
-    rmode_age_limit,
-    rmode_spindown_limit,
-    sample_limits,
-    spindown_limit,
-)
-from .lattices import Lattice, nearest_template, sample_mismatch  # noqa: E402
-from .limits import band_posterior, sample_band, upper_limits  # noqa: E402
-from .metric import coherent_metric, refinement_factors, semicoherent_metric  # noqa: E402
-from .noise import (  # noqa: E402
-    DEFAULT_NOISE_MODEL,
-    NOISE_MODELS,
-    band_floor,
-    band_psd,
-    combine_noise,
-    estimate_psd,
-    get_noise,
-    read_noise_file,
-    read_timeseries,
-)
-from .parameter_space import AgeBasedSpace, BoxSpace  # noqa: E402
-from .planning import (  # noqa: E402
-    PowerLawModel,
-    Ranking,
-    SearchPlan,
-    allocate_budget,
-    optimise_setup,
-    plan_search,
-    rank_targets,
-)
-from .response import (  # noqa: E402
-    Detector,
-    antenna_patterns,
-    get_detector,
-    load_detectors,
-    orientation_factor,
-    orientation_factor_rule,
-    orientation_factor_samples,
-    time_averages,
-)
-from .results import SearchResults, load_results  # noqa: E402
-from .sensitivity import (  # noqa: E402
-    SignalModel,
-    sensitivity_depth,
-    signal_model,
-    strain_sensitivity,
-)
-from .setup import SearchSetup, load_setup  # noqa: E402
-from .store import ResultStore, config_hash, file_hash, open_store  # noqa: E402
-from .synthetic import (  # noqa: E402
-    BandData,
-    CWSignal,
-    heterodyne,
-    inject,
-    simulate_noise,
-    simulate_real_noise,
-    simulate_signal,
-)
-from .tables import read_table, write_table  # noqa: E402
-from .targets import Target, TargetCatalogue, load_targets  # noqa: E402
-from .validation import CampaignResult, injection_campaign  # noqa: E402
+
+def _version():
+    """The installed distribution's version (importlib.metadata; the package not imported)."""
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version("cwlimits")
+    except PackageNotFoundError:  # pragma: no cover - running from a source tree
+        return "0+unknown"
+
+
+def __getattr__(name):
+    if name == "__version__":
+        value = globals()["__version__"] = _version()
+        return value
+    module = _LAZY.get(name)
+    if module is None:
+        if not name.startswith("_"):
+            # a submodule (``cwlimits.response``), as the eager imports used to provide
+            try:
+                return importlib.import_module(f".{name}", __name__)
+            except ModuleNotFoundError as exc:
+                if exc.name != f"{__name__}.{name}":
+                    raise
+        raise AttributeError(f"module 'cwlimits' has no attribute {name!r}")
+    value = getattr(importlib.import_module(f".{module}", __name__), name)
+    globals()[name] = value  # later look-ups skip this function
+    return value
+
+
+def __dir__():
+    return sorted(set(globals()) | set(_LAZY) | {"__version__"})
+
 
 __all__ = [
     "__version__",
@@ -219,6 +254,9 @@ __all__ = [
     "allocate_budget",
     "optimise_setup",
     "PowerLawModel",
+    # known pulsars
+    "targeted_sensitivity",
+    "pulsar_posterior",
     # upper limits
     "upper_limits",
     "band_posterior",

@@ -19,6 +19,7 @@ from dataclasses import replace
 import astropy.units as u
 import numpy as np
 
+from . import _defaults
 from .cost import computing_cost, scan_cost
 from .errors import ConfigError
 from .executor import named_seed
@@ -143,7 +144,7 @@ def run_report(config, *, echo=print, progress=None, simulate=False, overwrite=F
 
 
 #: Steps of :func:`run_report` that call ``progress``.
-STEPS = 5
+STEPS = _defaults.REPORT_STEPS
 
 
 def _plans(config, catalogue, noise, echo):

@@ -21,9 +21,6 @@ import pkgutil
 import sys
 import warnings
 
-from erfa import ErfaWarning  # pyerfa, astropy's own dependency
-
-from . import __version__
 from ._sizes import allow_large
 from .errors import CwlimitsError, CwlimitsWarning
 
@@ -44,6 +41,21 @@ examples:
 """
 
 
+class _VersionAction(argparse.Action):
+    """``--version``: looks the version up only when asked (importlib.metadata is slow)."""
+
+    def __init__(self, option_strings, dest=argparse.SUPPRESS, default=argparse.SUPPRESS,
+                 help="show the version and exit"):
+        super().__init__(option_strings=option_strings, dest=dest, default=default,
+                         nargs=0, help=help)
+
+    def __call__(self, parser, namespace, values, option_string=None):
+        from . import __version__
+
+        parser._print_message(f"cwlimits {__version__}\n", sys.stdout)  # as argparse's
+        parser.exit()
+
+
 def build_parser():
     """Return the top-level :class:`argparse.ArgumentParser` with every subcommand."""
     parser = argparse.ArgumentParser(
@@ -51,7 +63,7 @@ def build_parser():
         description="Plan directed searches for continuous gravitational waves and turn "
                     "their results into strain, ellipticity and r-mode limits.",
         epilog=_EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter)
-    parser.add_argument("--version", action="version", version=f"cwlimits {__version__}")
+    parser.add_argument("--version", action=_VersionAction)
     # --verbose and --quiet work before or after the subcommand; the subcommand's copies
     # default to SUPPRESS so they do not overwrite a value given before it.
     common = argparse.ArgumentParser(add_help=False)
@@ -96,6 +108,8 @@ def _user_warnings():
     silenced: every result is checked for finiteness where it is made, and what matters
     becomes a message of ours (a :class:`~cwlimits.errors.CwlimitsWarning` or an error).
     """
+    from erfa import ErfaWarning  # pyerfa, astropy's; here: --help imports no numpy
+
     def show(message, category, filename, lineno, file=None, line=None):
         print(f"warning: {message}", file=sys.stderr)
 

@@ -40,6 +40,7 @@ from collections.abc import Mapping
 
 import numpy as np
 
+from . import _defaults
 from .errors import ComputationError, CwlimitsError, InputError
 
 __all__ = ["map_chunks", "make_executor", "chunk_bounds", "chunk_seed", "named_seed",
@@ -47,7 +48,7 @@ __all__ = ["map_chunks", "make_executor", "chunk_bounds", "chunk_seed", "named_s
 
 #: Items (bands, injections) per chunk unless told otherwise: large enough that the cost of
 #: sending a chunk to a worker is small, small enough that a lost chunk is little work.
-DEFAULT_CHUNK_SIZE = 4096
+DEFAULT_CHUNK_SIZE = _defaults.DEFAULT_CHUNK_SIZE
 
 _log = logging.getLogger(__name__)
 

@@ -336,25 +336,33 @@ def indirect_limits(catalogue, braking_index=None, moment_of_inertia=DEFAULT_MOM
     table["distance_min"], table["distance_max"] = cat.distance_min, cat.distance_max
     table["age"] = cat.age
     table["age_min"], table["age_max"] = cat.age_min, cat.age_max
-    table["h0_age"] = age_limit(cat.distance, cat.age, braking_index, moment_of_inertia)
+    # a known pulsar may have no age: its age-based columns are NaN (blank cells)
+    aged = np.isfinite(cat.age.to_value(u.yr))
+    no_age = np.where(aged, 1.0, np.nan)
+    age, age_min, age_max = (np.where(aged, a.to_value(u.yr), 1.0) << u.yr
+                             for a in (cat.age, cat.age_min, cat.age_max))
+    table["h0_age"] = age_limit(cat.distance, age, braking_index, moment_of_inertia) * no_age
     optimistic, pessimistic = limit_range((cat.distance_min, cat.distance_max),
-                                          (cat.age_min, cat.age_max), braking_index,
+                                          (age_min, age_max), braking_index,
                                           moment_of_inertia)
-    table["h0_age_optimistic"], table["h0_age_pessimistic"] = optimistic, pessimistic
+    table["h0_age_optimistic"] = optimistic * no_age
+    table["h0_age_pessimistic"] = pessimistic * no_age
     if rng is not None:
         q05, q50, q95 = sample_limits((cat.distance_min, cat.distance_max),
-                                      (cat.age_min, cat.age_max), n_samples=n_samples,
+                                      (age_min, age_max), n_samples=n_samples,
                                       distance_prior=distance_prior, age_prior=age_prior,
                                       braking_index=braking_index,
                                       moment_of_inertia=moment_of_inertia, rng=rng)
-        table["h0_age_q05"], table["h0_age_q50"], table["h0_age_q95"] = q05, q50, q95
-    table["h0_age_rmode"] = rmode_age_limit(cat.distance, cat.age,
-                                            moment_of_inertia=moment_of_inertia)
+        table["h0_age_q05"], table["h0_age_q50"] = q05 * no_age, q50 * no_age
+        table["h0_age_q95"] = q95 * no_age
+    table["h0_age_rmode"] = rmode_age_limit(cat.distance, age,
+                                            moment_of_inertia=moment_of_inertia) * no_age
     spin = cat.has_spin
     f_rot = np.where(spin, cat.f_rot.to_value(u.Hz), 1.0) << u.Hz
     fdot = np.where(spin, cat.fdot_rot.to_value(u.Hz / u.s), -1.0) << u.Hz / u.s
     nan = np.where(spin, 1.0, np.nan)
     table["f_rot"], table["fdot_rot"] = cat.f_rot, cat.fdot_rot
+    table["age_characteristic"] = cat.characteristic_age
     table["f_gw_spindown"] = 2 * cat.f_rot
     h_sd = spindown_limit(f_rot, fdot, cat.distance, moment_of_inertia) * nan
     table["h0_spindown"] = h_sd
@@ -368,9 +376,13 @@ def indirect_limits(catalogue, braking_index=None, moment_of_inertia=DEFAULT_MOM
                                                       moment_of_inertia) * nan
     for f in np.atleast_1d(eps_frequencies):
         table[f"eps_age_{f.to_value(u.Hz):g}Hz"] = ellipticity(
-            table["h0_age"], f, cat.distance, moment_of_inertia)
+            np.where(aged, table["h0_age"].value, 0.0), f, cat.distance,
+            moment_of_inertia) * no_age
     info = assumptions(moment_of_inertia, braking_index)
     info["rmode"] = "r-mode columns: f_gw = 4/3 f_rot, braking index 7 (Owen 2010)"
+    info["age_characteristic"] = ("derived, not an input: f_rot / (2 |fdot_rot|), the "
+                                  "spin-down age for braking index 3 (Manchester & Taylor "
+                                  "1977); blank without a known spin")
     info["eps_age"] = ("eps_age_<f>: ellipticity at f_gw = <f> that radiates h0_age "
                        "(mass quadrupole)")
     if rng is not None:

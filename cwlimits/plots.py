@@ -11,6 +11,7 @@ from pathlib import Path
 
 import numpy as np
 
+from . import _defaults
 from ._files import FIGURE_MARK, atomic_write
 
 __all__ = ["COLUMN_WIDTH_IN", "PALETTE", "PLOT_SUFFIXES", "figure_metadata", "new_figure",
@@ -20,7 +21,7 @@ __all__ = ["COLUMN_WIDTH_IN", "PALETTE", "PLOT_SUFFIXES", "figure_metadata", "ne
            "plot_strain_curves", "plot_sensitivity"]
 
 #: File types a ``--plot FILE`` may have (matplotlib picks the format from the suffix).
-PLOT_SUFFIXES = (".png", ".svg", ".pdf")
+PLOT_SUFFIXES = _defaults.PLOT_SUFFIXES
 
 #: Width of one journal column, inches (common practice: 3.3-3.5 in).
 COLUMN_WIDTH_IN = 3.4
@@ -92,15 +93,26 @@ def save_figure(fig, path, formats=("png", "svg")):
     Each file goes through :func:`cwlimits._files.atomic_write` (a temporary file beside
     its destination, renamed when complete, with the umask's mode), so a reader never sees
     half a figure and a failure leaves nothing behind.
+
+    The layout (constrained layout, most of the cost of a save) is solved once, by the
+    first save; the later formats reuse its positions instead of solving it again, and
+    the figure gets its layout engine back afterwards.
     """
     path = Path(path)
     written = []
-    for fmt in formats:
-        target = path.with_suffix(f".{fmt}")
-        metadata = figure_metadata(fmt)
-        atomic_write(target, lambda handle, fmt=fmt, metadata=metadata: fig.savefig(
-            handle, format=fmt, metadata=metadata), binary=True)
-        written.append(target)
+    engine = fig.get_layout_engine()
+    try:
+        for k, fmt in enumerate(formats):
+            if k == 1 and engine is not None:
+                fig.set_layout_engine("none")  # keep the positions the first save found
+            target = path.with_suffix(f".{fmt}")
+            metadata = figure_metadata(fmt)
+            atomic_write(target, lambda handle, fmt=fmt, metadata=metadata: fig.savefig(
+                handle, format=fmt, metadata=metadata), binary=True)
+            written.append(target)
+    finally:
+        if engine is not None and fig.get_layout_engine() is not engine:
+            fig.set_layout_engine(engine)
     return written
 
 

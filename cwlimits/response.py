@@ -27,6 +27,7 @@ to have no new leap seconds (same order of effect); ERFA's "dubious year" warnin
 is silenced inside this module only.
 """
 
+import functools
 import math
 import re
 import warnings
@@ -35,12 +36,14 @@ from importlib import resources
 from pathlib import Path
 
 import astropy.units as u
+import erfa
 import numpy as np
-from astropy.coordinates import TETE, BaseCoordinateFrame, EarthLocation, SkyCoord
+from astropy.coordinates import ICRS, TETE, BaseCoordinateFrame, EarthLocation, SkyCoord
 from astropy.time import Time
 from astropy.utils import iers
 from astropy.utils.exceptions import AstropyWarning
 from erfa import ErfaWarning
+from scipy.interpolate import CubicSpline
 from scipy.special import roots_legendre
 
 from ._toml import load_toml
@@ -542,10 +545,42 @@ def _as_time(times, name="times"):
                      "(UTC) or GPS seconds", value=repr(times))
 
 
+@functools.lru_cache(maxsize=1)
+def _ut1_table_range_mjd():
+    """(first, last) MJD of the UT1 - UTC values of the table astropy's IERS_Auto reads.
+
+    Parsing the bundled tables costs seconds per process; their first and last dates cost
+    a read of the file's two ends.  The last date is that of the last row with a UT1 - UTC
+    value (columns 59-68 of the IERS "finals" format, IERS Bulletin A README): astropy
+    reports times from there on as beyond the table.  ``None`` if it cannot be told.
+    """
+    if iers.IERS_Auto.iers_table is not None:  # already parsed in this process
+        mjd = iers.IERS_Auto.iers_table["MJD"].to_value(u.d)
+        return float(mjd[0]), float(mjd[-1])
+    path = Path("finals2000A.all")  # astropy reads this one first (IERS_A.read)
+    path = path if path.exists() else Path(iers.IERS_A_FILE)
+    try:
+        with path.open("rb") as stream:
+            first = stream.readline().decode("ascii")
+            stream.seek(max(0, path.stat().st_size - 200_000))
+            tail = stream.read().decode("ascii").splitlines()[1:]
+        with_ut1 = [line for line in tail if line[58:68].strip()]
+        return float(first[7:15]), float(with_ut1[-1][7:15])
+    except (OSError, UnicodeDecodeError, IndexError, ValueError):
+        return None
+
+
 def _offline_ut1(times):
     """A copy of ``times`` whose UT1 - UTC comes from the bundled IERS table (0 outside)."""
     with _QuietTime():
         t = times.copy()
+        span = _ut1_table_range_mjd()
+        mjd = np.asarray(t.utc.mjd)
+        if span is not None and (np.all(mjd >= span[1]) or np.all(mjd < span[0])):
+            # wholly outside the table: astropy would give status < 0 everywhere, and the
+            # seconds of parsing the table are saved
+            t.delta_ut1_utc = np.zeros(mjd.shape)
+            return t
         table = iers.IERS_Auto.open()
         delta, status = table.ut1_utc(t, return_status=True)
         # Outside the table (status < 0) UT1 = UTC: at most ~0.9 s, i.e. ~4e-3 deg of
@@ -564,12 +599,66 @@ def _gast_rad(times):
         return np.asarray(t.sidereal_time("apparent", "greenwich").to_value(u.rad))
 
 
+# Node spacing of the interpolated GAST - ERA (the equation of the origins, a function of
+# TT only).  Its fastest terms come from the nutation (shortest large term 13.66 d, about
+# 1e-6 rad; IERS Conventions 2010, Table 5.3a): a cubic spline through nodes half a day
+# apart is wrong by ~(2 pi 0.5 / 13.66)^4 / 384 * 1e-6 rad ~ 1e-11 rad, far below the
+# 1e-6 rad the antenna patterns need (measured against astropy: tests/test_response.py).
+_EO_NODE_STEP_S = 43200.0
+
+
+def _gast_grid_rad(start, offsets_s):
+    """GAST (rad) at ``start + offsets_s`` (sorted seconds), cheaply and to ~1e-10 rad.
+
+    GAST = ERA(UT1) - EO(TT) (IERS Conventions 2010, eqs. 5.30-5.32; ERFA ``gst06a``):
+    the Earth rotation angle is a closed linear form in UT1 (``era00``) evaluated on every
+    sample, while the equation of the origins, which carries the costly precession-nutation
+    series, varies slowly and is taken from astropy's full model on a coarse grid of nodes
+    and interpolated with a cubic spline.
+    """
+    offsets_s = np.asarray(offsets_s, float)
+    span = float(offsets_s[-1] - offsets_s[0])
+    count = max(4, int(math.ceil(span / _EO_NODE_STEP_S)) + 1)
+    nodes_s = np.linspace(offsets_s[0], offsets_s[-1], count)
+    with _QuietTime():
+        node_times = _offline_ut1(start + nodes_s * u.s)
+        ut1 = node_times.ut1
+        eo = np.unwrap(_gast_rad(node_times) - erfa.era00(ut1.jd1, ut1.jd2))
+        samples = _offline_ut1(start + offsets_s * u.s).ut1
+        era = erfa.era00(samples.jd1, samples.jd2)
+    return np.mod(era + CubicSpline(nodes_s, eo)(offsets_s), 2 * np.pi)
+
+
+@functools.lru_cache(maxsize=64)
+def _cached_gast_moments(start_jd, span_s, count):
+    """<exp(-i j GAST)>, j = -4..4, on the midpoint grid of ``count`` parts of ``span_s``.
+
+    ``start_jd`` is the (jd1, jd2) pair of the start in UTC.  One evaluation serves every
+    detector (a longitude only rotates the moments), target and call that shares the
+    start, span and sampling: planning asks for the same year for each target and case.
+    """
+    with _QuietTime():
+        start = Time(start_jd[0], start_jd[1], format="jd", scale="utc")
+    return _lst_moments(_gast_grid_rad(start, (np.arange(count) + 0.5) / count * span_s))
+
+
+def _detector_moments(gast_moments, longitude_rad):
+    """M_j = <exp(-i j LST)> from the GAST moments: LST = GAST + longitude (east)."""
+    return {j: m * np.exp(-1j * j * longitude_rad) for j, m in gast_moments.items()}
+
+
 def _epoch(times):
     """Middle of the range of ``times`` (the epoch of the apparent coordinates)."""
     if times.isscalar:
         return times
     with _QuietTime():
         return times.min() + (times.max() - times.min()) / 2
+
+
+# Frames whose transformation to ICRS needs no Earth orientation (astropy's frame graph).
+_INERTIAL_FRAMES = frozenset({"icrs", "fk5", "fk4", "fk4noeterms", "galactic",
+                              "supergalactic", "barycentricmeanecliptic",
+                              "barycentrictrueecliptic"})
 
 
 def _apparent_radec(coord, epoch):
@@ -582,10 +671,25 @@ def _apparent_radec(coord, epoch):
     if not isinstance(coord, (SkyCoord, BaseCoordinateFrame)):
         raise InputError("the sky position must be an astropy SkyCoord (e.g. "
                          "SkyCoord('12h30m', '-45d'))", value=repr(coord))
+    if coord.frame.name not in _INERTIAL_FRAMES:
+        # e.g. TETE or Earth-fixed frames themselves: astropy's own transform
+        with _QuietTime():
+            apparent = coord.transform_to(TETE(obstime=_offline_ut1(epoch)))
+        return (np.asarray(apparent.spherical.lon.to_value(u.rad)),
+                np.asarray(apparent.spherical.lat.to_value(u.rad)))
     with _QuietTime():
-        apparent = coord.transform_to(TETE(obstime=_offline_ut1(epoch)))
-    return (np.asarray(apparent.spherical.lon.to_value(u.rad)),
-            np.asarray(apparent.spherical.lat.to_value(u.rad)))
+        icrs = coord.transform_to(ICRS())
+        tt = epoch.tt
+        # ERFA atci13: ICRS -> CIRS for a geocentric observer (light deflection, annual
+        # aberration, bias-precession-nutation; IERS Conventions 2010 ch. 5), and the
+        # equation of the origins EO, with which the true-equinox right ascension is
+        # RA_CIRS - EO.  This is astropy's ICRS -> TETE (to ~1e-13 rad, tests) without
+        # its polar-motion look-up, which parses the IERS tables (seconds per process)
+        # for a rotation that the geocentric direction does not need.
+        ri, di, eo = erfa.atci13(np.asarray(icrs.spherical.lon.to_value(u.rad)),
+                                 np.asarray(icrs.spherical.lat.to_value(u.rad)),
+                                 0.0, 0.0, 0.0, 0.0, tt.jd1, tt.jd2)
+    return np.asarray(np.mod(ri - eo, 2 * np.pi)), np.asarray(di)
 
 
 # ----------------------------------------------------------------------- the kernels
@@ -904,9 +1008,9 @@ def _observation(detectors, start, span, duty, weights, method, samples_per_day)
             count = max(64, int(math.ceil(days * samples_per_day)))
             # Midpoint rule in time: gaps are assumed spread evenly, so the duty factor
             # changes T_data but not the averages.
-            grid = start + ((np.arange(count) + 0.5) / count * span_s) * u.s
-            gast = _gast_rad(grid)
-            moments = tuple(_lst_moments(gast + d.longitude.to_value(u.rad))
+            utc = start.utc
+            gast = _cached_gast_moments((float(utc.jd1), float(utc.jd2)), span_s, count)
+            moments = tuple(_detector_moments(gast, d.longitude.to_value(u.rad))
                             for d in detectors)
     return _Observation(detectors, start, span_s, duty, raw, w_hat, t_data, epoch,
                         moments, method)

@@ -31,6 +31,7 @@ from astropy.table import QTable
 from astropy.time import Time
 from scipy.interpolate import CubicSpline
 
+from . import _defaults
 from .cost import count_templates
 from .detection import (
     DEPTH_UNIT,
@@ -55,7 +56,7 @@ __all__ = [
 
 #: Start of the observation when none is given.  For spans of many sidereal days the
 #: averages of the antenna patterns do not depend on it (JKS 1998 closed forms).
-DEFAULT_START = "2030-01-01T00:00:00"
+DEFAULT_START = _defaults.DEFAULT_START
 
 #: Seed of the fixed mismatch sample: the sample is a quadrature rule, the same every run.
 _MISMATCH_SEED = 20120119

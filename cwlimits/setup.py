@@ -54,6 +54,7 @@ from pathlib import Path
 import astropy.units as u
 import numpy as np
 
+from . import _defaults
 from ._files import atomic_write
 from ._sizes import check_size
 from ._toml import load_toml
@@ -71,7 +72,7 @@ FORMAT = "cwlimits-setup 1"
 #: them on this machine by timing cwlimits' own F-statistic kernel (measured here: 7.9e-8 s
 #: and 4e-9 s, benchmarks/fstat_bench.py).  Keys ``unit_cost.coherent`` and
 #: ``unit_cost.semicoherent`` of the setup file override them.
-DEFAULT_UNIT_COSTS = {"coherent": 7e-8 * u.s, "semicoherent": 6e-9 * u.s}
+DEFAULT_UNIT_COSTS = {k: v * u.s for k, v in _defaults.DEFAULT_UNIT_COSTS_S.items()}
 
 # TOML section.key -> (SearchSetup field, kind, unit, description); the one table of keys
 SETUP_KEYS = {

@@ -51,13 +51,14 @@ from pathlib import Path, PurePath
 import astropy.units as u
 import numpy as np
 
+from . import _defaults
 from .errors import ComputationError, ConfigError, InputError
 
 __all__ = ["ResultStore", "open_store", "is_store", "config_hash", "canonical_json",
            "file_hash", "STORE_NAME"]
 
 #: File name of the store inside an output folder.
-STORE_NAME = "cwlimits-store.sqlite"
+STORE_NAME = _defaults.STORE_NAME
 
 _SCHEMA_VERSION = "1"
 #: Value of the ``identity`` row of the ``meta`` table: what marks an SQLite file as ours.

@@ -32,6 +32,7 @@ import numpy as np
 from astropy.table import QTable
 from scipy import stats
 
+from . import _defaults
 from . import detection as det
 from ._units import to_value
 from .errors import InputError
@@ -54,7 +55,7 @@ __all__ = ["CampaignResult", "injection_campaign", "simulation_layout", "plot_ef
 PSD_UNIT = u.Hz**-1
 
 #: Injections per chunk of work (a chunk is one unit of resuming and of parallel work).
-DEFAULT_CAMPAIGN_CHUNK = 200
+DEFAULT_CAMPAIGN_CHUNK = _defaults.DEFAULT_CAMPAIGN_CHUNK
 #: Largest simulated data set of one injection, in complex samples (detectors x segments x
 #: samples per segment): 2^22 samples are 64 MiB of complex128.
 MAX_SAMPLES_PER_INJECTION = 2**22

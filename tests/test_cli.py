@@ -32,6 +32,58 @@ def test_every_subcommand_help_shows_an_example(capsys, command):
     assert f"examples:\n  cwlimits {command}" in capsys.readouterr().out
 
 
+# The numerical stack the command line must not load to build its parsers (issue 16:
+# start-up in well under a second; their import alone takes seconds on a loaded machine).
+HEAVY_MODULES = ("numpy", "scipy", "astropy", "pandas", "matplotlib", "emcee", "dask")
+
+_IMPORT_PROBE = """
+import sys
+import cwlimits
+from cwlimits.cli import build_parser, main
+build_parser()
+for argv in ({argvs}):
+    try:
+        main(list(argv))
+    except SystemExit:
+        pass
+heavy = sorted({{m.split(".")[0] for m in sys.modules}} & set({heavy!r}))
+print(",".join(heavy) or "none")
+"""
+
+
+def test_help_and_version_import_no_numerical_modules():
+    import os
+    import pathlib
+    import subprocess
+    import sys
+
+    argvs = [["--help"], ["--version"]] + [[c, "--help"] for c in _commands()]
+    code = _IMPORT_PROBE.format(argvs=", ".join(map(repr, argvs)) + ",",
+                                heavy=HEAVY_MODULES)
+    root = pathlib.Path(__file__).resolve().parent.parent
+    env = dict(os.environ, PYTHONPATH=str(root))
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                          env=env, cwd=root, timeout=300)
+    assert done.returncode == 0, done.stderr
+    # A fresh interpreter: sys.modules shows exactly what building and running the
+    # parsers imported (not a timing: the timing is benchmarks/startup_bench.py).
+    assert done.stdout.strip().splitlines()[-1] == "none"
+
+
+def test_lazy_public_names_resolve_to_their_modules():
+    import importlib
+
+    for name in cwlimits.__all__:
+        value = getattr(cwlimits, name)
+        if name == "__version__":
+            assert value == importlib.metadata.version("cwlimits")
+            continue
+        module = importlib.import_module(f"cwlimits.{cwlimits._LAZY[name]}")
+        assert value is getattr(module, name)
+    with pytest.raises(AttributeError, match="no attribute 'not_a_name'"):
+        cwlimits.not_a_name  # noqa: B018
+
+
 def test_indirect_prints_and_writes(tmp_path, capsys, demo_catalogue_path):
     out = tmp_path / "limits.ecsv"
     assert main(["indirect", str(demo_catalogue_path), "--out", str(out), "--seed", "1"]) == 0
@@ -138,7 +190,8 @@ def test_convert_bad_table_names_row_and_column(tmp_path, capsys, write_file):
 
 
 def test_internal_error_exit_1(monkeypatch, capsys, demo_catalogue_path):
-    import cwlimits.commands.indirect as command
+    # the command imports the library function when it runs: patch it where it lives
+    import cwlimits.indirect as command
 
     def boom(*args, **kwargs):
         raise ZeroDivisionError("oops")

@@ -26,3 +26,16 @@ def test_demo_catalogue_is_the_packaged_one_and_fictional():
     assert user.read_bytes() == packaged.read_bytes()
     header = packaged.read_text().splitlines()[0].lower()
     assert "fictional" in header
+
+
+def test_ci_runs_the_benchmark_smoke_step_after_the_tests_not_inside_them():
+    entry = "benchmarks" + "/run.py"  # spelled apart so that this file does not match
+    lines = (ROOT / ".ci" / "run").read_text().splitlines()
+    tests_at = lines.index(_readme_commands()[1])
+    bench_at = [i for i, line in enumerate(lines)
+                if line.startswith(f"python {entry} --quick")]
+    # its own step, after the README's test command (issue 16: benchmarks out of pytest)
+    assert len(bench_at) == 1 and bench_at[0] > tests_at
+    runs_benchmarks = [p.name for p in (ROOT / "tests").glob("*.py")
+                       if entry in p.read_text()]
+    assert runs_benchmarks == []

@@ -75,3 +75,51 @@ def test_report_limits_are_finite(tmp_path_factory, figures):
         for column in ("h0_limit", "eps_limit", "alpha_limit"):
             values = table.quantity(column, u.one).value
             assert np.all(np.isfinite(values) & (values > 0)), (path.name, column)
+
+
+# The SVG written after the PNG reuses the PNG's constrained layout instead of solving it
+# again: its axes must sit where matplotlib's own layout of the SVG puts them.  Positions
+# are figure fractions; text extents round to whole pixels at 150 dpi (1/510 of the
+# column width), so 2e-3 is about one pixel.
+LAYOUT_TOL = 2e-3
+
+
+def _svg_axes_box(path):
+    # the first path of the axes patch: "M x0 y0 L x1 y0 L x1 y1 L x0 y1 z" in points
+    text = path.read_text()
+    patch = re.search(r'<g id="patch_2">\s*<path d="M ([\d.]+) ([\d.]+) \s*L ([\d.]+) '
+                      r'([\d.]+) \s*L ([\d.]+) ([\d.]+)', text)
+    return np.array([float(v) for v in patch.groups()])
+
+
+def test_svg_after_png_has_the_layout_matplotlib_gives_the_svg(tmp_path):
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from cwlimits.plots import new_figure, save_figure, tidy_log_axes
+
+    def make():
+        fig, ax = new_figure()
+        f = np.geomspace(20, 2000, 200)
+        for k in range(3):
+            ax.loglog(f, 1e-25 * (f / 100) ** (k - 1), label=f"curve {k}")
+        ax.set(xlabel="frequency [Hz]", ylabel=r"$h_0$")
+        ax.legend(fontsize=6)
+        tidy_log_axes(ax)
+        return fig
+
+    ours = make()
+    save_figure(ours, tmp_path / "ours")
+    # the figure keeps its layout engine for later use
+    assert ours.get_layout_engine().__class__.__name__ == "ConstrainedLayoutEngine"
+    reference = make()
+    # Reference library: matplotlib's constrained layout solved for the SVG itself.
+    reference.savefig(tmp_path / "reference.svg", metadata={"Date": None})
+    width_pt = 72 * ours.get_figwidth()
+    np.testing.assert_allclose(_svg_axes_box(tmp_path / "ours.svg") / width_pt,
+                               _svg_axes_box(tmp_path / "reference.svg") / width_pt,
+                               rtol=0, atol=LAYOUT_TOL)
+    assert (tmp_path / "ours.png").stat().st_size > 0
+    plt.close("all")

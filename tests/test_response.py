@@ -671,3 +671,73 @@ def test_any_arm_pair_gives_the_explicit_tensor(lat, lon, az_x, opening):
     closed = resp._fplus_fcross(a, b, det.zeta.to_value(u.rad), psi)
     tensor = resp._tensor_patterns(det.tensor(), ra, dec, gast, psi)
     np.testing.assert_allclose(closed, tensor, atol=1e-12)
+
+
+# ------------------------------------------------ the cheap sidereal time and its cache
+# Issue 16 asks the cheap GAST to match astropy's full IAU 2006/2000A model within 1e-6
+# rad; the spline error is ~1e-11 rad (see _EO_NODE_STEP_S), so 1e-8 still leaves room
+# for the rounding of two jd sums (~1e-11 rad) and fails on any missing term (the
+# equation of the equinoxes alone is ~1e-5 rad).
+GAST_TOL_RAD = 1e-8
+# The sampled averages from the cached, rotated moments against the sample-by-sample
+# path: the same sums up to the GAST error above (|d a^2| <= 2 |d phi| per sample).
+AVERAGES_TOL = 1e-8
+
+
+def _wrapped(angle):
+    return np.angle(np.exp(1j * angle))
+
+
+@pytest.mark.parametrize("start, span_days", [("2020-03-01T05:00:00", 365.25),
+                                              ("2031-07-15T00:00:00", 40.3)])
+def test_cheap_sidereal_time_matches_astropy_full_model(start, span_days):
+    offsets = np.linspace(0.0, span_days * 86400.0, 4001)
+    with resp._QuietTime():  # future dates: ERFA's "dubious year" warning
+        t0 = Time(start, scale="utc")
+        fast = resp._gast_grid_rad(t0, offsets)
+        # Reference library: astropy's apparent sidereal time (ERFA gst06a), every sample.
+        full = resp._gast_rad(t0 + offsets * u.s)
+    assert np.max(np.abs(_wrapped(fast - full))) < GAST_TOL_RAD
+
+
+def test_sampled_averages_from_cached_moments_match_the_sample_by_sample_path():
+    rng = np.random.default_rng(16)
+    coord = _random_sky(rng, 6)
+    start, span = "2030-01-01T00:00:00", 123.4 * u.day
+    fast = resp.time_averages("H1,L1,V1", coord, start, span, method="sampled")
+    # The previous implementation: astropy's GAST on each of the 48/day grid samples and
+    # the LST moments of each detector from its own samples (JKS 1998 Sec. III sums).
+    count = int(np.ceil(span.to_value(u.s) / resp.SIDEREAL_DAY.to_value(u.s) * 48))
+    with resp._QuietTime():
+        grid = Time(start, scale="utc") + (np.arange(count) + 0.5) / count * span
+        gast = resp._gast_rad(grid)
+    ra, dec = resp._apparent_radec(coord, fast.epoch)
+    for i, det in enumerate(fast.detectors):
+        moments = resp._lst_moments(gast + det.longitude.to_value(u.rad))
+        slow = resp._averages_one(det.latitude.to_value(u.rad), det.gamma.to_value(u.rad),
+                                  ra, dec, moments)
+        for ours, ref in zip((fast.A_det, fast.B_det, fast.C_det), slow, strict=True):
+            np.testing.assert_allclose(ours[i].value, ref, rtol=0, atol=AVERAGES_TOL)
+    # A second call with the same start, span and sampling reuses the GAST moments.
+    before = resp._cached_gast_moments.cache_info().hits
+    again = resp.time_averages("L1", coord[:2], start, span, method="sampled")
+    assert resp._cached_gast_moments.cache_info().hits == before + 1
+    np.testing.assert_array_equal(again.A_det[0].value, fast.A_det[1, :2].value)
+
+
+# ERFA's ICRS -> CIRS with the equation of the origins against astropy's ICRS -> TETE:
+# the same IAU 2006/2000A models, so only rounding differs (measured ~2e-13 rad).
+APPARENT_TOL_RAD = 1e-10
+
+
+@pytest.mark.parametrize("epoch", ["2020-03-01T05:00:00", "2030-07-02T12:00:00"])
+def test_apparent_place_matches_astropy_tete(epoch):
+    coord = _random_sky(np.random.default_rng(7), 30)
+    with resp._QuietTime():
+        t = Time(epoch, scale="utc")
+        ra, dec = resp._apparent_radec(coord, t)
+        # Reference library: astropy's TETE frame (true equator and equinox of date), with
+        # UT1 - UTC set as the module sets it (no IERS look-up for future dates).
+        ref = coord.transform_to(TETE(obstime=resp._offline_ut1(t)))
+    assert np.max(np.abs(_wrapped(ra - ref.ra.to_value(u.rad)))) < APPARENT_TOL_RAD
+    assert np.max(np.abs(dec - ref.dec.to_value(u.rad))) < APPARENT_TOL_RAD

@@ -4,6 +4,7 @@ import astropy.units as u
 import numpy as np
 import pytest
 from astropy.coordinates import SkyCoord
+from astropy.time import Time
 
 import cwlimits
 from cwlimits.errors import CatalogueError
@@ -154,3 +155,72 @@ def test_ecsv_row_numbers(tmp_path, demo_catalogue_path):
     with pytest.raises(CatalogueError) as info:
         cwlimits.load_targets(path)
     assert info.value.row == third + 1 and info.value.column == "distance"
+
+
+# ---- known pulsars (issue 17) -----------------------------------------------------------
+
+PULSAR_HEADER = ("name,ra,dec,distance [kpc],age [yr],f_rot [Hz],fdot_rot [Hz/s],"
+                 "fddot_rot,spin_epoch,f_rot_err,fdot_rot_err,cosi,cosi_err,psi [deg],"
+                 "psi_err [deg]\n")
+
+
+def test_known_pulsar_row_needs_no_age(write_file):
+    path = write_file("p.csv", PULSAR_HEADER
+                      + "P,1,2,1.5,,30.0,-4e-11,1e-21,58000.5,1e-9,1e-15,0.4,0.05,30,3\n"
+                      + "Q,1,2,1.5,900,,,,,,,,,,\n")
+    cat = cwlimits.load_targets(path)
+    p = cat.target("P")
+    assert p.has_spin and not p.has_age
+    assert p.fddot_rot == 1e-21 * u.Hz / u.s**2
+    assert p.cosi == 0.4 and p.psi == 30 * u.deg and p.psi_err == 3 * u.deg
+    # a bare spin_epoch is an MJD in TDB (module convention); astropy gives the same instant
+    assert abs((p.spin_epoch - Time(58000.5, format="mjd", scale="tdb")).to_value(u.s)) < 1e-6
+    # characteristic age f / (2 |fdot|) (Manchester & Taylor 1977), by hand in years
+    assert p.characteristic_age.to_value(u.yr) == pytest.approx(
+        30.0 / (2 * 4e-11) / (365.25 * 86400), rel=1e-12)
+    q = cat.target("Q")
+    assert q.cosi is None and q.spin_epoch is None and q.characteristic_age is None
+    # the indirect table: blank age-based limits, a labelled derived column
+    table = cwlimits.indirect_limits(cat)
+    assert np.isnan(table["h0_age"][0].value) and np.isfinite(table["h0_age"][1].value)
+    assert np.isfinite(table["h0_spindown"][0].value)
+    assert "derived" in table.meta["assumptions"]["age_characteristic"]
+    # round trip through ECSV keeps the timing and orientation columns
+    again = cwlimits.load_targets(cat.write(path.parent / "again.ecsv"))
+    assert again.target("P").cosi_err == pytest.approx(0.05)
+    assert abs((again.target("P").spin_epoch - p.spin_epoch).to_value(u.s)) < 1e-3
+
+
+@pytest.mark.parametrize("epoch, expected", [
+    ("2019-05-01T00:00:00", Time("2019-05-01T00:00:00", scale="utc")),
+    ("gps:1200000000", Time(1200000000, format="gps")),
+    ("jd:2458000.5", Time(2458000.5, format="jd")),
+    ("decimalyear:2019.25", Time(2019.25, format="decimalyear")),
+])
+def test_spin_epoch_in_any_astropy_format(write_file, epoch, expected):
+    # reference library: astropy.time.Time reading the same value
+    path = write_file("e.csv", "name,ra,dec,distance,f_rot,fdot_rot,spin_epoch\n"
+                      f"P,1,2,1,30,-1e-11,{epoch}\n")
+    got = cwlimits.load_targets(path).target("P").spin_epoch
+    assert abs((got - expected).to_value(u.s)) < 1e-3
+
+
+@pytest.mark.parametrize("text, row, column, value", [
+    ("name,ra,dec,distance,age,f_rot,fdot_rot\nA,1,2,1,,,\n", 2, "age", ""),
+    ("name,ra,dec,distance\nA,1,2,1\n", None, "age", None),
+    ("name,ra,dec,distance,f_rot,fdot_rot,cosi\nA,1,2,1,30,-1e-11,1.5\n", 2, "cosi", "1.5"),
+    ("name,ra,dec,distance,f_rot,fdot_rot,f_rot_err\nA,1,2,1,30,-1e-11,-1e-9\n", 2,
+     "f_rot_err", "-1e-9"),
+    ("name,ra,dec,distance,f_rot,fdot_rot,psi_err\nA,1,2,1,30,-1e-11,2\n", 2, "psi_err", "2"),
+    ("name,ra,dec,distance,age,cosi\nA,1,2,1,100,0.3\n", 2, "cosi", "0.3"),
+    ("name,ra,dec,distance,f_rot,fdot_rot,spin_epoch\nA,1,2,1,30,-1e-11,someday\n", 2,
+     "spin_epoch", "someday"),
+    ("name,ra,dec,distance,age_min,f_rot,fdot_rot\nA,1,2,1,50,30,-1e-11\n", 2, "age_min",
+     "50"),
+])
+def test_bad_known_pulsar_rows_are_located(write_file, text, row, column, value):
+    path = write_file("bad.csv", text)
+    with pytest.raises(CatalogueError) as info:
+        cwlimits.load_targets(path)
+    assert info.value.row == row and info.value.column == column
+    assert info.value.value == value

@@ -3,10 +3,6 @@
 import argparse
 import sys
 
-import astropy.units as u
-
-from .._files import check_output_file, check_output_folder
-from .._units import parse_quantity
 from ..errors import InputError
 
 __all__ = ["add_parser", "quantity_arg", "seed_arg", "number_arg", "refuse_overflow",
@@ -22,14 +18,23 @@ def add_parser(subparsers, common, name, *, help, description, examples):
 
 
 def quantity_arg(unit, name):
-    """An argparse ``type`` that reads ``"1.5 kpc"`` (or a bare number in ``unit``)."""
+    """An argparse ``type`` that reads ``"1.5 kpc"`` (or a bare number in ``unit``).
+
+    ``unit`` may be a string (``"kpc"``): astropy is imported when a value is parsed, not
+    when the parser is built, so that ``--help`` starts quickly.
+    """
     def parse(text):
+        from .._units import parse_quantity
+
         try:
             return parse_quantity(text, unit, name)
         except InputError as exc:
             raise argparse.ArgumentTypeError(exc.reason + f" (got {text!r})") from None
     parse.__name__ = f"quantity in {unit}"
-    parse.bare_unit = u.Unit(unit).to_string()
+    if isinstance(unit, str):
+        parse.bare_unit = unit  # astropy's spelling of it ("d", "kpc", "kg m2")
+    else:
+        parse.bare_unit = unit.to_string()
     return parse
 
 
@@ -88,11 +93,17 @@ def check_output_path(path, suffixes=(".csv", ".ecsv"), option="--out"):
     The one preflight of every output option (:func:`cwlimits._files.check_output_file`):
     the suffix, no folder or link at the path, and a folder that can be written.
     """
+    from .._files import check_output_file
+
+
     return check_output_file(path, suffixes, option)
 
 
 def check_output_dir(path, option="--out-dir"):
     """Validate an output folder before any work is done; return it as a Path."""
+    from .._files import check_output_folder
+
+
     return check_output_folder(path, option)
 
 

@@ -10,7 +10,7 @@ scheduler do not change results and stay out of it, so a run can be resumed with
 
 import argparse
 
-from ..executor import DEFAULT_CHUNK_SIZE, make_executor
+from .._defaults import DEFAULT_CHUNK_SIZE
 
 __all__ = ["add_executor_args", "executor_from_args", "progress_from_args",
            "execution_config"]
@@ -50,6 +50,8 @@ def add_executor_args(parser, *, chunk_size=DEFAULT_CHUNK_SIZE):
 
 def executor_from_args(args):
     """The executor for the parsed ``--workers``/``--scheduler`` (use it with ``with``)."""
+    from ..executor import make_executor
+
     return make_executor(workers=getattr(args, "workers", None),
                          scheduler=getattr(args, "scheduler", None))
 

@@ -4,10 +4,9 @@
 ``limits`` and ``plan``.
 """
 
-import astropy.units as u
 
+from .._defaults import DEFAULT_START, DEFAULT_UNIT_COSTS_S
 from ..errors import ConfigError, InputError
-from ..setup import DEFAULT_UNIT_COSTS, SearchSetup, load_setup
 from ._common import quantity_arg
 
 __all__ = ["add_setup_args", "add_signal_model_args", "build_setup"]
@@ -22,10 +21,10 @@ def add_setup_args(parser):
     """Add ``--setup FILE`` and the setup options (which override the file's values)."""
     parser.add_argument("--setup", metavar="FILE", help="TOML setup file")
     grp = parser.add_argument_group("setup (override the file)")
-    grp.add_argument("--t-seg", type=quantity_arg(u.day, "segment length"), metavar="T",
+    grp.add_argument("--t-seg", type=quantity_arg("d", "segment length"), metavar="T",
                      help="coherent segment length (e.g. 10day)")
     grp.add_argument("--n-seg", type=int, metavar="N", help="number of segments")
-    grp.add_argument("--span", type=quantity_arg(u.day, "span"), metavar="T",
+    grp.add_argument("--span", type=quantity_arg("d", "span"), metavar="T",
                      help="total observation span (segments spread evenly over it)")
     grp.add_argument("--duty-factor", type=float, metavar="X",
                      help="fraction of time with data (for the sensitivity; not the cost)")
@@ -37,28 +36,26 @@ def add_setup_args(parser):
                      help="maximum mismatch of the semi-coherent grid (default 0.3)")
     grp.add_argument("--lattice", choices=sorted({"covering", "cubic"}),
                      help="template lattice: covering (A_n*, default) or cubic (Z^n)")
-    grp.add_argument("--f-min", type=quantity_arg(u.Hz, "f_min"), metavar="F",
+    grp.add_argument("--f-min", type=quantity_arg("Hz", "f_min"), metavar="F",
                      help="lower band edge")
-    grp.add_argument("--f-max", type=quantity_arg(u.Hz, "f_max"), metavar="F",
+    grp.add_argument("--f-max", type=quantity_arg("Hz", "f_max"), metavar="F",
                      help="upper band edge")
-    grp.add_argument("--band-width", type=quantity_arg(u.Hz, "band width"), metavar="DF",
+    grp.add_argument("--band-width", type=quantity_arg("Hz", "band width"), metavar="DF",
                      help="width of the reporting bands (default 1Hz)")
     grp.add_argument("--braking-index-min", type=float, metavar="N",
                      help="smallest braking index (default 2)")
     grp.add_argument("--braking-index-max", type=float, metavar="N",
                      help="largest braking index (default 7)")
-    grp.add_argument("--cost-coherent", type=quantity_arg(u.s, "unit cost"), metavar="T",
+    grp.add_argument("--cost-coherent", type=quantity_arg("s", "unit cost"), metavar="T",
                      help="seconds per coherent template per detector per segment "
-                          f"(default {DEFAULT_UNIT_COSTS['coherent']})")
-    grp.add_argument("--cost-semicoherent", type=quantity_arg(u.s, "unit cost"),
+                          f"(default {DEFAULT_UNIT_COSTS_S['coherent']} s)")
+    grp.add_argument("--cost-semicoherent", type=quantity_arg("s", "unit cost"),
                      metavar="T", help="seconds per semi-coherent template per segment "
-                                       f"(default {DEFAULT_UNIT_COSTS['semicoherent']})")
+                                       f"(default {DEFAULT_UNIT_COSTS_S['semicoherent']} s)")
 
 
 def add_signal_model_args(parser):
     """Add ``--sky``, ``--mismatch`` and ``--start``: the options of the signal model."""
-    from ..sensitivity import DEFAULT_START
-
     model = parser.add_argument_group("signal model")
     model.add_argument("--sky", choices=("target", "isotropic"), default="target",
                        help="orientation factor at the target (default) or all-sky")
@@ -90,6 +87,8 @@ def build_setup(args, default_band=None, extra_sections=(), *, known_sites=False
 
 
 def _build_setup(args, default_band, extra_sections):
+    from ..setup import SearchSetup, load_setup
+
     base = (load_setup(args.setup, extra_sections=extra_sections) if args.setup
             else None)
     given = {name: getattr(args, name) for name in _OVERRIDES

@@ -1,22 +1,25 @@
 """``cwlimits calibrate``: time the F-statistic kernels here and write the unit costs."""
 
 
-import astropy.units as u
 
-from .._files import atomic_write
-from .._sizes import check_size
 from ..errors import InputError
-from ..fstat import measure_unit_costs
-from ..setup import DEFAULT_UNIT_COSTS, SearchSetup, load_setup
 from ._common import add_parser, check_output_path, echo, format_rows
 
-__all__ = ["ORDER", "register", "run", "EXAMPLE_SETUP"]
+__all__ = ["ORDER", "register", "run", "example_setup"]
 
 ORDER = 85
 
-#: The segments and band of a new setup file written without ``--setup`` (the example of
-#: the README's setup file); the header of the file says they are placeholders.
-EXAMPLE_SETUP = {"t_seg": 10 * u.day, "n_seg": 12, "band": (50 * u.Hz, 500 * u.Hz)}
+
+def example_setup():
+    """The segments and band of a new setup file written without ``--setup``.
+
+    The example of the README's setup file; the header of the file says they are
+    placeholders.  (A function, so that building the parser needs no astropy.)
+    """
+    import astropy.units as u
+
+
+    return {"t_seg": 10 * u.day, "n_seg": 12, "band": (50 * u.Hz, 500 * u.Hz)}
 
 _EXAMPLES = [
     "cwlimits calibrate",
@@ -59,6 +62,12 @@ def register(subparsers, common):
 
 def run(args):
     """Run ``cwlimits calibrate``."""
+    import astropy.units as u
+
+    from .._sizes import check_size
+    from ..fstat import measure_unit_costs
+    from ..setup import DEFAULT_UNIT_COSTS, SearchSetup, load_setup
+
     out = check_output_path(args.out, (".toml",))
     for name, value, least in (("--repeats", args.repeats, 1), ("--samples", args.samples, 16),
                                ("--segments", args.segments, 1)):
@@ -90,7 +99,7 @@ def run(args):
         echo(args, "(nothing written: give --out FILE.toml to write a setup file)")
         return 0
     if setup is None:
-        new = SearchSetup(**EXAMPLE_SETUP, cost_coherent=coherent,
+        new = SearchSetup(**example_setup(), cost_coherent=coherent,
                           cost_semicoherent=semicoherent)
         _write_with_note(new, out, _PLACEHOLDER_NOTE)
     else:
@@ -101,5 +110,8 @@ def run(args):
 
 def _write_with_note(setup, path, note):
     """Write ``setup`` as TOML with a comment block first (atomically)."""
+    from .._files import atomic_write
+
+
     text = note + setup.toml_text()
     atomic_write(path, lambda handle: handle.write(text))

@@ -1,13 +1,7 @@
 """``cwlimits convert``: strain amplitude h0 to ellipticity and r-mode amplitude."""
 
-import astropy.units as u
-import numpy as np
-from astropy.table import QTable
 
-from ..conversions import ellipticity, mass_quadrupole, rmode_amplitude
 from ..errors import InputError
-from ..fiducial import DEFAULT_MOMENT_OF_INERTIA, FIDUCIAL_RMODE_STAR
-from ..tables import read_table, write_table
 from ._common import (
     add_parser,
     check_output_path,
@@ -24,6 +18,8 @@ ORDER = 20
 
 
 def register(subparsers, common):
+    from .. import _defaults
+
     parser = add_parser(
         subparsers, common, "convert",
         help="turn h0 (a value or an h0-vs-frequency table) into ellipticity and r-mode "
@@ -40,19 +36,24 @@ def register(subparsers, common):
     source.add_argument("--h0", type=float, help="one strain amplitude")
     source.add_argument("--table", metavar="FILE",
                         help="CSV/ECSV with columns 'f' (or 'f_gw') and 'h0'")
-    parser.add_argument("--f-gw", type=quantity_arg(u.Hz, "frequency"), nargs="+",
+    parser.add_argument("--f-gw", type=quantity_arg("Hz", "frequency"), nargs="+",
                         metavar="F", help="gravitational-wave frequency (with --h0)")
-    parser.add_argument("--distance", type=quantity_arg(u.kpc, "distance"), required=True)
-    parser.add_argument("--distance-range", type=quantity_arg(u.kpc, "distance"), nargs=2,
+    parser.add_argument("--distance", type=quantity_arg("kpc", "distance"), required=True)
+    parser.add_argument("--distance-range", type=quantity_arg("kpc", "distance"), nargs=2,
                         metavar=("DMIN", "DMAX"), help="also report the range over these")
-    parser.add_argument("--moment-of-inertia", type=quantity_arg(u.kg * u.m**2,
-                        "moment of inertia"), default=DEFAULT_MOMENT_OF_INERTIA,
+    parser.add_argument("--moment-of-inertia", type=quantity_arg("kg m2",
+                        "moment of inertia"), default=_defaults.MOMENT_OF_INERTIA_TEXT,
                         metavar="Q", help="default 1e38 kg m2")
     parser.add_argument("--out", metavar="FILE", help="write the table (.csv or .ecsv)")
     parser.set_defaults(run=run)
 
 
 def _input(args):
+    import astropy.units as u
+    import numpy as np
+
+    from ..tables import read_table
+
     if args.table is None:
         if not args.f_gw:
             raise InputError("--h0 needs --f-gw (the gravitational-wave frequency)")
@@ -72,6 +73,12 @@ def _input(args):
 
 
 def run(args):
+    from astropy.table import QTable
+
+    from ..conversions import ellipticity, mass_quadrupole, rmode_amplitude
+    from ..fiducial import FIDUCIAL_RMODE_STAR
+    from ..tables import write_table
+
     out = check_output_path(args.out)
     f, h0 = _input(args)
     d, inertia = args.distance, args.moment_of_inertia

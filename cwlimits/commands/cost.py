@@ -2,14 +2,8 @@
 
 import math
 
-import astropy.units as u
-import numpy as np
-
-from .._sizes import check_size
-from ..cost import PLOT_SUFFIXES, computing_cost, plot_cost_scan, scan_cost
+from .._defaults import PLOT_SUFFIXES
 from ..errors import InputError
-from ..parameter_space import BoxSpace
-from ..tables import write_table
 from ._common import (
     add_parser,
     add_target_args,
@@ -56,7 +50,7 @@ def register(subparsers, common):
                     "needed.",
         examples=_EXAMPLES)
     who = parser.add_argument_group("target (one of)")
-    who.add_argument("--age", type=quantity_arg(u.yr, "age"), metavar="AGE",
+    who.add_argument("--age", type=quantity_arg("yr", "age"), metavar="AGE",
                      help="age of the target (e.g. 1000yr)")
     add_target_args(who, required=False)
     who.add_argument("--spin-box", nargs=2, type=float, metavar=("FTOL", "FDOTTOL"),
@@ -82,6 +76,10 @@ def register(subparsers, common):
 
 
 def _target_space(args):
+    import astropy.units as u
+
+    from ..parameter_space import BoxSpace
+
     if args.age is not None and (args.catalogue or args.target):
         raise InputError("give either --age or --catalogue/--target, not both")
     if args.spin_box is not None and not (args.catalogue and args.target):
@@ -104,13 +102,19 @@ def _target_space(args):
 
 
 def _scan_values(args, setup):
+    import astropy.units as u
+    import numpy as np
+
+    from .._sizes import check_size
+
+
     steps = args.scan_steps
     if steps < 2:
         raise InputError("--scan-steps must be at least 2", value=steps)
     check_size("scan_steps", steps, f"--scan-steps {steps}")
     if args.scan == "t-seg":
         if args.scan_range:
-            lo, hi = (quantity_arg(u.day, "scan range")(x) for x in args.scan_range)
+            lo, hi = (quantity_arg("d", "scan range")(x) for x in args.scan_range)
         else:
             lo, hi = setup.t_seg / 4, setup.t_seg * 4
             if setup.span is not None:
@@ -135,6 +139,9 @@ def _scan_values(args, setup):
 
 def run(args):
     """Run ``cwlimits cost``."""
+    from ..cost import computing_cost, plot_cost_scan, scan_cost
+    from ..tables import write_table
+
     out = check_output_path(args.out)
     plot = None
     if args.plot is not None:
@@ -172,6 +179,9 @@ _OVERFLOW_HINT = ("the template count grows as mismatch^(-dim/2); with these inp
 
 
 def _band_rows(table, idx):
+    import astropy.units as u
+
+
     return [[f"{table['f_min'][i].value:.6g}", f"{table['f_max'][i].value:.6g}",
              sci(table["n_coh"][i]), str(int(table["dims_coh"][i])), sci(table["n_semi"][i]),
              str(int(table["dims_semi"][i])), sci(table["cost"][i].to_value(u.h))]
@@ -179,6 +189,9 @@ def _band_rows(table, idx):
 
 
 def _print_bands(args, estimate, setup, what):
+    import astropy.units as u
+
+
     table = estimate.table
     n = len(table)
     echo(args, f"computing cost of {setup.n_seg} x {setup.t_seg} segments, "
@@ -203,6 +216,9 @@ def _print_bands(args, estimate, setup, what):
 
 
 def _readable(cost):
+    import astropy.units as u
+
+
     hours = cost.to_value(u.h)
     if not math.isfinite(hours):
         return "not finite"
@@ -210,6 +226,9 @@ def _readable(cost):
 
 
 def _print_scan(args, table, quantity, what):
+    import astropy.units as u
+
+
     echo(args, f"computing cost against {quantity} for {what}")
     headers = ["T_seg [day]", "N_seg", "N_coh/seg", "N_semi", "coherent [core-h]",
                "semi-coherent [core-h]", "total [core-h]"]

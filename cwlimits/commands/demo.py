@@ -5,7 +5,6 @@ from dataclasses import replace
 from importlib import resources
 from pathlib import Path
 
-from ..config import load_config
 from ._common import add_parser, echo, seed_arg
 from .report import add_overwrite_arg, write
 
@@ -40,6 +39,9 @@ def register(subparsers, common):
 
 
 def run(args):
+    from ..config import load_config
+
+
     echo(args, "cwlimits demo: FICTIONAL targets (invented; they match no real object), "
                "SIMULATED search results (noise only, fixed seed)")
     with resources.as_file(demo_config_path()) as path:

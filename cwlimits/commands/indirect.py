@@ -1,13 +1,7 @@
 """``cwlimits indirect``: the indirect amplitude limits of every target of a catalogue."""
 
-import astropy.units as u
 
-from .._sizes import check_size
 from ..errors import InputError
-from ..fiducial import DEFAULT_MOMENT_OF_INERTIA
-from ..indirect import DEFAULT_EPS_FREQUENCIES, indirect_limits
-from ..tables import write_table
-from ..targets import load_targets
 from ._common import (
     add_parser,
     check_output_path,
@@ -25,6 +19,8 @@ ORDER = 10
 
 
 def register(subparsers, common):
+    from .. import _defaults
+
     parser = add_parser(
         subparsers, common, "indirect",
         help="age-based and spin-down limits on h0 for each target of a catalogue",
@@ -41,10 +37,10 @@ def register(subparsers, common):
     parser.add_argument("catalogue", metavar="CATALOGUE", help="target catalogue (CSV/ECSV)")
     parser.add_argument("--braking-index", type=float, default=None, metavar="N",
                         help="braking index of the age-based limit (default 5)")
-    parser.add_argument("--moment-of-inertia", type=quantity_arg(u.kg * u.m**2,
-                        "moment of inertia"), default=DEFAULT_MOMENT_OF_INERTIA,
+    parser.add_argument("--moment-of-inertia", type=quantity_arg("kg m2",
+                        "moment of inertia"), default=_defaults.MOMENT_OF_INERTIA_TEXT,
                         metavar="Q", help="default 1e38 kg m2")
-    parser.add_argument("--eps-at", type=quantity_arg(u.Hz, "frequency"), nargs="+",
+    parser.add_argument("--eps-at", type=quantity_arg("Hz", "frequency"), nargs="+",
                         default=None, metavar="F",
                         help="gravitational-wave frequencies for the ellipticity columns "
                              "(default 100 300 1000 Hz)")
@@ -58,6 +54,14 @@ def register(subparsers, common):
 
 
 def run(args):
+    import astropy.units as u
+
+    from .._sizes import check_size
+    from ..indirect import DEFAULT_EPS_FREQUENCIES, indirect_limits
+    from ..tables import write_table
+    from ..targets import load_targets
+
+
     out = check_output_path(args.out)
     catalogue = load_targets(args.catalogue)
     if args.seed is not None:
@@ -71,7 +75,7 @@ def run(args):
     eps_columns = [c for c in table.colnames if c.startswith("eps_age_")]
     headers = ["target", "d [kpc]", "age [yr]", "h0_age", "optimistic", "pessimistic",
                "h0_spindown", *eps_columns]
-    rows = [[r["name"], f"{r['distance'].value:.3g}", f"{r['age'].value:.4g}",
+    rows = [[r["name"], f"{r['distance'].value:.3g}", _age_cell(r),
              sci(r["h0_age"]), sci(r["h0_age_optimistic"]), sci(r["h0_age_pessimistic"]),
              sci(r["h0_spindown"]), *[sci(r[c]) for c in eps_columns]] for r in table]
     echo(args, f"indirect limits for {len(table)} targets of {args.catalogue}")
@@ -83,3 +87,13 @@ def run(args):
                     assumptions=table.meta["assumptions"])
         echo(args, f"wrote {out}")
     return 0
+
+
+def _age_cell(row):
+    """The age, or for a known pulsar without one its characteristic age, so marked."""
+    import astropy.units as u
+    import numpy as np
+
+    if np.isfinite(row["age"].value):
+        return f"{row['age'].value:.4g}"
+    return f"{row['age_characteristic'].to_value(u.yr):.3g} (char.)"

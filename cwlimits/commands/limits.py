@@ -4,15 +4,8 @@ import sys
 import warnings
 from pathlib import Path
 
-import astropy.units as u
-import numpy as np
-
-from .._sizes import check_size
+from .._defaults import DEFAULT_NOISE_MODEL, PLOT_SUFFIXES
 from ..errors import InputError
-from ..noise import DEFAULT_NOISE_MODEL
-from ..plots import PLOT_SUFFIXES
-from ..results import load_results
-from ..tables import write_table
 from ._common import (
     add_parser,
     add_target_args,
@@ -38,8 +31,9 @@ __all__ = ["ORDER", "register", "run", "summarise"]
 ORDER = 60
 
 
-
 def register(subparsers, common):
+    from .. import _defaults
+
     parser = add_parser(
         subparsers, common, "limits",
         help="upper limits on h0, ellipticity and r-mode amplitude from search results",
@@ -89,11 +83,11 @@ def register(subparsers, common):
                        default="uniform",
                        help="distance prior over the target's range (default uniform; "
                             "log-normal: median distance, range = central 90 %%)")
-    stats.add_argument("--inertia", type=quantity_arg(u.kg * u.m**2, "moment of inertia"),
-                       default=1e38 * u.kg * u.m**2, metavar="I",
+    stats.add_argument("--inertia", type=quantity_arg("kg m2", "moment of inertia"),
+                       default=_defaults.MOMENT_OF_INERTIA_TEXT, metavar="I",
                        help="moment of inertia (default 1e38 kg m^2)")
     stats.add_argument("--inertia-range", nargs=2, metavar=("I_MIN", "I_MAX"),
-                       type=quantity_arg(u.kg * u.m**2, "moment of inertia"),
+                       type=quantity_arg("kg m2", "moment of inertia"),
                        help="moment of inertia uniform in this range instead")
     stats.add_argument("--draws", type=int, default=None, metavar="N",
                        help="eps and alpha by a Monte Carlo of N draws per band (default: "
@@ -120,11 +114,15 @@ def register(subparsers, common):
 
 def _band_index(text, results, option):
     """A band index from an integer or a frequency inside a band."""
+    import astropy.units as u
+    import numpy as np
+
+
     text = text.strip()
     try:
         index = int(text)
     except ValueError:
-        f = quantity_arg(u.Hz, option)(text).to_value(u.Hz)
+        f = quantity_arg("Hz", option)(text).to_value(u.Hz)
         inside = np.flatnonzero((results.f_lo.to_value(u.Hz) <= f)
                                 & (f < results.f_hi.to_value(u.Hz)))
         if not inside.size:
@@ -143,12 +141,17 @@ def _suffixed(path, suffix):
 
 def _ratio(value):
     """A ratio in 3 digits; '-' where the band has no limit (an empty cell)."""
+    import numpy as np
+
     return "-" if not np.isfinite(value) else f"{value:.3g}"
 
 
 def run(args):
     from .. import limits
+    from .._sizes import check_size
+    from ..results import load_results
     from ..store import file_hash, open_store
+    from ..tables import write_table
 
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
@@ -241,6 +244,8 @@ def run(args):
 
 
 def _posterior(args, results, setup, target, plot, model_options, options):
+    import numpy as np
+
     from .. import limits
     from ..limits_plots import plot_corner, plot_posterior
     from ..plots import save_figure
@@ -281,6 +286,9 @@ def _posterior(args, results, setup, target, plot, model_options, options):
 
 def summarise(args, table, title):
     """Print a short table (at most ~15 bands), the best limit and the indirect fraction."""
+    import numpy as np
+
+
     n = len(table)
     rows = np.unique(np.linspace(0, n - 1, min(n, 15)).round().astype(int))
     headers = ["f_mid [Hz]", "2F*", "h0 limit", "eps limit", "alpha limit", "h0_age / h0"]

@@ -1,23 +1,8 @@
 """``cwlimits noise``: list, tabulate and plot detector noise curves on a band grid."""
 
-import astropy.units as u
-import numpy as np
-from astropy.table import QTable
 
-from .._sizes import check_size
+from .._defaults import DEFAULT_NOISE_MODEL
 from ..errors import InputError
-from ..noise import (
-    DEFAULT_NOISE_MODEL,
-    NOISE_MODELS,
-    band_floor,
-    band_psd,
-    estimate_psd,
-    estimate_stretches,
-    get_noise,
-    plot_asd,
-    read_timeseries,
-)
-from ..tables import write_table
 from ._common import add_parser, check_output_path, echo, quantity_arg
 
 __all__ = ["ORDER", "register", "run"]
@@ -54,9 +39,9 @@ def register(subparsers, common):
                         help="what the second column of a noise file is, if its header "
                              "does not say")
     parser.add_argument("--band", nargs=2, metavar=("FMIN", "FMAX"),
-                        type=quantity_arg(u.Hz, "band edge"),
+                        type=quantity_arg("Hz", "band edge"),
                         help="frequency range of the band grid (default: the source's range)")
-    parser.add_argument("--step", type=quantity_arg(u.Hz, "step"),
+    parser.add_argument("--step", type=quantity_arg("Hz", "step"),
                         help="band width (default: the range / 50)")
     parser.add_argument("--out", metavar="FILE",
                         help="write the band table (.csv or .ecsv, with units and "
@@ -65,9 +50,9 @@ def register(subparsers, common):
     series = parser.add_argument_group("estimate from a strain time series")
     series.add_argument("--timeseries", metavar="FILE",
                         help="strain series (.npy, .csv with a 'strain' column, or text)")
-    series.add_argument("--sample-rate", type=quantity_arg(u.Hz, "sample rate"),
+    series.add_argument("--sample-rate", type=quantity_arg("Hz", "sample rate"),
                         help="samples per second, if the file does not declare it")
-    series.add_argument("--segment", type=quantity_arg(u.s, "segment"), default=4 * u.s,
+    series.add_argument("--segment", type=quantity_arg("s", "segment"), default="4 s",
                         help="Welch segment length (default 4 s)")
     series.add_argument("--overlap", type=float, default=0.5,
                         help="segment overlap fraction in [0, 1) (default 0.5)")
@@ -75,13 +60,17 @@ def register(subparsers, common):
                         help="average of the segment periodograms (default median)")
     series.add_argument("--window", default="hann",
                         help="scipy window name (default hann)")
-    series.add_argument("--stretch", type=quantity_arg(u.s, "stretch"),
+    series.add_argument("--stretch", type=quantity_arg("s", "stretch"),
                         help="estimate each stretch of this length separately and combine "
                              "them as a data-time-weighted harmonic mean")
     parser.set_defaults(run=run)
 
 
 def _list_models(args):
+    import astropy.units as u
+
+    from ..noise import NOISE_MODELS
+
     echo(args, f"{'name':<18} {'f_min':>8}  description (default: {DEFAULT_NOISE_MODEL})")
     for name, model in NOISE_MODELS.items():
         echo(args, f"{name:<18} {model.f_min.to_value(u.Hz):>5g} Hz  {model.title}; "
@@ -90,6 +79,11 @@ def _list_models(args):
 
 
 def _band_grid(args, source):
+    import astropy.units as u
+    import numpy as np
+
+    from .._sizes import check_size
+
     lo, hi = (args.band[0], args.band[1]) if args.band else (source.f_min, source.f_max)
     lo_hz, hi_hz = lo.to_value(u.Hz), hi.to_value(u.Hz)
     if not 0 < lo_hz < hi_hz:
@@ -111,6 +105,10 @@ def _band_grid(args, source):
 
 def _source_from_args(args):
     # a model or file needs no extra assumptions beyond its own describe() line
+    import astropy.units as u
+
+    from ..noise import estimate_psd, estimate_stretches, get_noise, read_timeseries
+
     if args.timeseries is None:
         return get_noise(args.source or DEFAULT_NOISE_MODEL, args.kind), {}
     if args.source is not None:
@@ -134,6 +132,13 @@ def _source_from_args(args):
 
 def run(args):
     """Run ``cwlimits noise``; return the exit code."""
+    import astropy.units as u
+    import numpy as np
+    from astropy.table import QTable
+
+    from ..noise import band_floor, band_psd, plot_asd
+    from ..tables import write_table
+
     if args.list:
         return _list_models(args)
     # output paths are checked before any work, so a bad one costs nothing
@@ -170,6 +175,8 @@ def run(args):
 
 
 def _print_table(args, table, source):
+    import numpy as np
+
     echo(args, f"# {source.describe()}")
     names = list(table.colnames)
     echo(args, "  ".join(f"{n + ' [' + table[n].unit.to_string() + ']':>16}" for n in names))

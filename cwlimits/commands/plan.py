@@ -1,12 +1,7 @@
 """``cwlimits plan``: the best segment setup (and band) of one target for a budget."""
 
-import astropy.units as u
-import numpy as np
 
-from .._sizes import check_size
-from ..noise import DEFAULT_NOISE_MODEL
-from ..planning import CASES, MEASURES, OBJECTIVES, as_budget, plan_search
-from ..tables import write_table
+from .._defaults import CASES, DEFAULT_NOISE_MODEL, MEASURES, OBJECTIVES, PLOT_SUFFIXES
 from ._common import (
     add_parser,
     add_target_args,
@@ -20,19 +15,17 @@ from ._common import (
 
 __all__ = ["ORDER", "register", "run", "add_plan_args", "plan_options"]
 
-from ..plots import PLOT_SUFFIXES
 
 ORDER = 70
 
 
-
 def add_plan_args(parser):
     """Options shared by ``plan`` and ``rank``: span, noise, band and the fixed setup parts."""
-    parser.add_argument("--span", type=quantity_arg(u.day, "span"), required=True,
+    parser.add_argument("--span", type=quantity_arg("d", "span"), required=True,
                         metavar="T", help="maximum data span N_seg T_seg (e.g. '1 yr')")
     parser.add_argument("--noise", default=DEFAULT_NOISE_MODEL, metavar="MODEL_OR_FILE",
                         help=f"noise model name or noise file (default {DEFAULT_NOISE_MODEL})")
-    parser.add_argument("--band", nargs=2, type=quantity_arg(u.Hz, "frequency"),
+    parser.add_argument("--band", nargs=2, type=quantity_arg("Hz", "frequency"),
                         metavar=("FMIN", "FMAX"),
                         help="fixed band (depth) or allowed range (beat-age); default "
                              "50 Hz to 1000 Hz")
@@ -42,12 +35,12 @@ def add_plan_args(parser):
     grp = parser.add_argument_group("fixed parts of the setup")
     grp.add_argument("--detectors", default="H1,L1", metavar="LIST",
                      help="comma-separated site codes (default H1,L1)")
-    grp.add_argument("--band-width", type=quantity_arg(u.Hz, "band width"),
-                     default=1 * u.Hz, metavar="DF", help="reporting band width (1Hz)")
+    grp.add_argument("--band-width", type=quantity_arg("Hz", "band width"),
+                     default="1 Hz", metavar="DF", help="reporting band width (1Hz)")
     grp.add_argument("--lattice", choices=("covering", "cubic"), default="covering",
                      help="template lattice: covering (A_n*, default) or cubic (Z^n)")
-    grp.add_argument("--t-seg-min", type=quantity_arg(u.day, "t_seg_min"),
-                     default=1 * u.day, metavar="T", help="shortest segment (default 1day)")
+    grp.add_argument("--t-seg-min", type=quantity_arg("d", "t_seg_min"),
+                     default="1 day", metavar="T", help="shortest segment (default 1day)")
     grp.add_argument("--n-seg-max", type=int, default=1000, metavar="N",
                      help="most segments (default 1000)")
     grp.add_argument("--confidence", type=float, default=0.95,
@@ -58,6 +51,10 @@ def add_plan_args(parser):
 
 def plan_options(args):
     """Keyword arguments of plan_search / rank_targets from the shared options."""
+    import astropy.units as u
+
+    from .._sizes import check_size
+
     dets = tuple(d.strip() for d in args.detectors.split(",") if d.strip())
     # sizes named by their options, before any planning (README: size limits)
     check_size("segments", max(args.n_seg_max, 1), f"--n-seg-max {args.n_seg_max}")
@@ -115,6 +112,10 @@ def register(subparsers, common):
 
 def run(args):
     """Run ``cwlimits plan``."""
+    from ..planning import as_budget, plan_search
+    from ..tables import write_table
+
+
     out = check_output_path(args.out, (".toml",))
     table_path = check_output_path(args.table, option="--table")
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
@@ -155,6 +156,9 @@ def run(args):
 
 
 def _summarise(args, plan):
+    import astropy.units as u
+    import numpy as np
+
     s = plan.setup
     echo(args, f"plan for {plan.target} ({plan.case} case), objective {plan.objective}"
                + (f" ({plan.measure})" if plan.objective == "beat-age" else ""))

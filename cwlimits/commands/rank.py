@@ -4,12 +4,8 @@ import re
 from contextlib import ExitStack
 from pathlib import Path
 
-from .._sizes import check_size
+from .._defaults import CASES
 from ..errors import InputError
-from ..planning import CASES, as_budget, rank_targets
-from ..store import file_hash, open_store
-from ..tables import write_table
-from ..targets import load_targets
 from ._common import (
     add_parser,
     check_output_dir,
@@ -68,6 +64,8 @@ def register(subparsers, common):
 
 def _noise_identity(noise):
     """The noise option for the run configuration: a file by its content, else its name."""
+    from ..store import file_hash
+
     path = Path(str(noise))
     return file_hash(path) if path.is_file() else str(noise)
 
@@ -78,6 +76,12 @@ def _slug(name):
 
 def run(args):
     """Run ``cwlimits rank``."""
+    from .._sizes import check_size
+    from ..planning import as_budget, rank_targets
+    from ..store import file_hash, open_store
+    from ..tables import write_table
+    from ..targets import load_targets
+
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     plot_plans = check_output_path(args.plot_plans, PLOT_SUFFIXES, "--plot-plans")

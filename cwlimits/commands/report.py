@@ -1,9 +1,5 @@
 """``cwlimits report``: the whole job from one configuration file to a report."""
 
-from .._sizes import allow_large, large_allowed
-from ..analysis import STEPS, run_report
-from ..config import load_config
-from ..progress import progress
 from ._common import add_parser, echo
 
 __all__ = ["ORDER", "register", "run", "write", "add_overwrite_arg"]
@@ -37,12 +33,20 @@ def add_overwrite_arg(parser):
 
 
 def run(args):
+    from ..config import load_config
+
+
     config = load_config(args.config)
     return write(args, config)
 
 
 def write(args, config, simulate=False, output_option=None):
     """Run the report of ``config`` with a progress bar and the usual messages."""
+    from .._sizes import allow_large, large_allowed
+    from ..analysis import STEPS, run_report
+    from ..progress import progress
+
+
     quiet = getattr(args, "quiet", False)
     large = config["allow_large"] or large_allowed()
     with allow_large(large), progress(STEPS, "report", enabled=False if quiet else None,

@@ -4,17 +4,8 @@ import io
 import re
 import warnings
 
-import astropy.units as u
-import numpy as np
-from astropy.coordinates import Angle, SkyCoord
-from astropy.table import QTable
-from astropy.utils.exceptions import AstropyWarning
-
-from .. import response as resp
-from .._files import atomic_write
-from .._sizes import check_size
+from .._defaults import PLOT_SUFFIXES, builtin_detector_names
 from ..errors import InputError
-from ..plots import PLOT_SUFFIXES
 from ._common import (
     add_parser,
     add_target_args,
@@ -65,12 +56,12 @@ def register(subparsers, common):
     add_target_args(where, required=False)
     parser.add_argument("--detectors", default="H1,L1",
                         help="comma-separated detector codes (built in: "
-                             f"{', '.join(resp.known_detectors())}; default H1,L1)")
+                             f"{', '.join(builtin_detector_names())}; default H1,L1)")
     parser.add_argument("--detector-file", metavar="FILE",
                         help="CSV or TOML file defining more detectors (see the docs)")
     parser.add_argument("--start", required=True,
                         help="start of the observation: ISO date (UTC) or GPS seconds")
-    parser.add_argument("--span", type=quantity_arg(u.d, "span"), default="365.25 d",
+    parser.add_argument("--span", type=quantity_arg("d", "span"), default="365.25 d",
                         help="length of the observation (default 365.25 d)")
     parser.add_argument("--duty", default="1",
                         help="duty factor in (0, 1], one value or one per detector "
@@ -88,6 +79,9 @@ def register(subparsers, common):
 
 
 def _numbers(text, name):
+    import numpy as np
+
+
     try:
         values = [float(x) for x in str(text).split(",") if x.strip()]
     except ValueError:
@@ -99,6 +93,10 @@ def _numbers(text, name):
 
 
 def _sky_position(args):
+    import astropy.units as u
+    from astropy.coordinates import SkyCoord
+
+
     if args.catalogue or args.target:
         if not (args.catalogue and args.target) or args.ra or args.dec:
             raise InputError("give --catalogue FILE with --target NAME, or --ra with --dec")
@@ -119,6 +117,11 @@ def _sky_position(args):
 
 def _angle(text, option, bare_unit):
     """``text`` as an astropy Angle: with its own unit, else in ``bare_unit``."""
+    import astropy.units as u
+    import numpy as np
+    from astropy.coordinates import Angle
+    from astropy.utils.exceptions import AstropyWarning
+
     try:
         with warnings.catch_warnings():
             # astropy warns about 24h or 75 minutes and goes on; for us that is bad input
@@ -138,6 +141,15 @@ def _angle(text, option, bare_unit):
 
 def run(args):
     """Run ``cwlimits response``; return the exit code."""
+    import astropy.units as u
+    import numpy as np
+
+    from .. import response as resp
+    from .._files import atomic_write
+    from .._sizes import check_size
+
+
+
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     extra = resp.load_detectors(args.detector_file) if args.detector_file else None
@@ -197,6 +209,9 @@ def run(args):
 
 def _one(averages, i, sin2zeta):
     """ResponseAverages of detector i alone (for its own R^2 quantiles)."""
+    from .. import response as resp
+
+
     fields = dict(averages.__dict__)
     fields.update(A=averages.A_det[i] * sin2zeta, B=averages.B_det[i] * sin2zeta,
                   C=averages.C_det[i] * sin2zeta)
@@ -204,12 +219,21 @@ def _one(averages, i, sin2zeta):
 
 
 def _summary(R2, w):
+    import numpy as np
+
+    from .. import response as resp
+
+
+
     return {"mean": float(np.sum(R2.value * w)),
             "q": [float(x) for x in resp.weighted_quantiles(R2, w, _QUANTILES)]}
 
 
 def _assumptions(averages, where, args):
     """The assumptions behind the numbers, printed and written with the table."""
+    import astropy.units as u
+
+
     return {
         "sky_position": where,
         "start": f"{averages.start.isot} UTC",
@@ -233,6 +257,11 @@ def _assumptions(averages, where, args):
 
 
 def _write(out, detectors, averages, network, single, assumptions):
+    import astropy.units as u
+    import numpy as np
+    from astropy.table import QTable
+
+
     names = [d.name for d in detectors] + ["network"]
     nan = [np.nan]
     table = QTable()
@@ -259,7 +288,12 @@ def _write(out, detectors, averages, network, single, assumptions):
 
 
 def _plot(path, detectors, coord, start):
+    import astropy.units as u
     import matplotlib
+    import numpy as np
+
+    from .. import response as resp
+
 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt

@@ -1,12 +1,7 @@
 """``cwlimits sensitivity``: expected h0 sensitivity and depth per frequency band."""
 
-import astropy.units as u
-import numpy as np
 
-from ..noise import DEFAULT_NOISE_MODEL
-from ..plots import PLOT_SUFFIXES
-from ..sensitivity import strain_sensitivity
-from ..tables import write_table
+from .._defaults import DEFAULT_NOISE_MODEL, PLOT_SUFFIXES
 from ._common import (
     add_parser,
     add_target_args,
@@ -24,7 +19,6 @@ from ._setup_args import add_setup_args, add_signal_model_args, build_setup
 __all__ = ["ORDER", "register", "run", "summarise"]
 
 ORDER = 50
-
 
 
 def register(subparsers, common):
@@ -48,7 +42,7 @@ def register(subparsers, common):
     parser.add_argument("--noise", default=DEFAULT_NOISE_MODEL, metavar="MODEL_OR_FILE",
                         help=f"noise model name or noise file (default {DEFAULT_NOISE_MODEL};"
                              " see 'cwlimits noise --list')")
-    parser.add_argument("--band", nargs=2, type=quantity_arg(u.Hz, "frequency"),
+    parser.add_argument("--band", nargs=2, type=quantity_arg("Hz", "frequency"),
                         metavar=("FMIN", "FMAX"), help="band to evaluate (default: the "
                                                        "setup's)")
     stats = parser.add_argument_group("statistics")
@@ -76,6 +70,9 @@ def register(subparsers, common):
 
 
 def run(args):
+    from ..sensitivity import strain_sensitivity
+    from ..tables import write_table
+
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     target = resolve_target(args)
@@ -103,6 +100,8 @@ def run(args):
 
 def summarise(args, table, title, h0_column="h0"):
     """Print a short table (at most ~15 bands), the best value and the assumptions."""
+    import numpy as np
+
     n = len(table)
     rows = np.unique(np.linspace(0, n - 1, min(n, 15)).round().astype(int))
     headers = ["f_mid [Hz]", "psd [1/Hz]", "templates", "threshold", "depth [Hz^-1/2]",

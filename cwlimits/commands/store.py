@@ -3,8 +3,8 @@
 from collections import Counter
 from pathlib import Path
 
+from .._defaults import STORE_NAME
 from ..errors import InputError
-from ..store import STORE_NAME, is_store, open_store
 from ._common import add_parser, echo, format_rows
 
 __all__ = ["ORDER", "register", "run"]
@@ -29,6 +29,8 @@ def register(subparsers, common):
 
 
 def run(args):
+    from ..store import is_store, open_store
+
     folder = Path(args.folder)
     path = folder / STORE_NAME
     if not (path.is_file() or path.is_symlink()):

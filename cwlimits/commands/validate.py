@@ -3,23 +3,8 @@
 import math
 from pathlib import Path
 
-import astropy.units as u
-import numpy as np
-
-from .._sizes import check_size
+from .._defaults import DEFAULT_CAMPAIGN_CHUNK, DEFAULT_NOISE_MODEL, DEFAULT_START, PLOT_SUFFIXES
 from ..errors import InputError
-from ..noise import DEFAULT_NOISE_MODEL, NOISE_MODELS, get_noise
-from ..sensitivity import DEFAULT_START
-from ..setup import load_setup
-from ..store import file_hash, open_store
-from ..tables import write_table
-from ..validation import (
-    DEFAULT_CAMPAIGN_CHUNK,
-    _gps_seconds,
-    injection_campaign,
-    plot_efficiency,
-    simulation_layout,
-)
 from ._common import (
     add_parser,
     add_target_args,
@@ -41,7 +26,6 @@ from ._execution import (
 
 __all__ = ["ORDER", "register", "run"]
 
-from ..plots import PLOT_SUFFIXES
 
 ORDER = 80
 
@@ -78,7 +62,7 @@ def register(subparsers, common):
     parser.add_argument("--setup", metavar="FILE", required=True,
                         help="TOML setup file (segments, detectors, band)")
     grp = parser.add_argument_group("setup (override the file)")
-    grp.add_argument("--t-seg", type=quantity_arg(u.day, "segment length"), metavar="T",
+    grp.add_argument("--t-seg", type=quantity_arg("d", "segment length"), metavar="T",
                      help="coherent segment length (e.g. 2day)")
     grp.add_argument("--n-seg", type=int, metavar="N", help="number of segments")
     grp.add_argument("--detectors", metavar="LIST", help="comma-separated site codes")
@@ -93,10 +77,10 @@ def register(subparsers, common):
                      help="default grid: factors of the predicted h0 (default 0.5 2)")
     sim.add_argument("--h0-steps", type=int, default=8, metavar="K",
                      help="default grid: number of amplitudes (default 8)")
-    sim.add_argument("--frequency", type=quantity_arg(u.Hz, "frequency"), metavar="F",
+    sim.add_argument("--frequency", type=quantity_arg("Hz", "frequency"), metavar="F",
                      help="centre of the simulated band (default: the middle of the "
                           "setup's band)")
-    sim.add_argument("--band-width", type=quantity_arg(u.Hz, "band width"), metavar="B",
+    sim.add_argument("--band-width", type=quantity_arg("Hz", "band width"), metavar="B",
                      help="width of the simulated band = complex sample rate, rounded up to "
                           "a power of two of samples per segment (default: the narrowest "
                           "with >= 64 samples per segment and one per 30 min)")
@@ -129,6 +113,8 @@ def register(subparsers, common):
 
 def _check_numbers(args):
     """Refuse bad counts, amplitudes and probabilities before any work."""
+    from .._sizes import check_size
+
     for name, value in (("--injections", args.injections), ("--templates", args.templates)):
         if value < 1:
             raise InputError(f"{name} must be at least 1", value=value)
@@ -156,6 +142,8 @@ def _check_numbers(args):
 
 
 def _setup(args):
+    from ..setup import load_setup
+
     setup = load_setup(args.setup)
     changes = {}
     if args.t_seg is not None:
@@ -180,6 +168,9 @@ def _setup(args):
 
 
 def _frequency(args, setup, band_hz):
+    import astropy.units as u
+
+
     f_min, f_max = setup.f_min.to_value(u.Hz), setup.f_max.to_value(u.Hz)
     f = 0.5 * (f_min + f_max) if args.frequency is None else args.frequency.to_value(u.Hz)
     half = 0.5 * band_hz
@@ -192,6 +183,14 @@ def _frequency(args, setup, band_hz):
 
 def run(args):
     """Run ``cwlimits validate``."""
+    import astropy.units as u
+    import numpy as np
+
+    from ..noise import NOISE_MODELS, get_noise
+    from ..store import file_hash, open_store
+    from ..tables import write_table
+    from ..validation import _gps_seconds, injection_campaign, plot_efficiency, simulation_layout
+
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     _check_numbers(args)
@@ -294,6 +293,10 @@ def run(args):
 
 
 def _summarise(args, result, target, setup, f_hz, psd, seed_text):
+    import astropy.units as u
+    import numpy as np
+
+
     b_hz = result.bandwidth.to_value(u.Hz)
     echo(args, f"injection campaign for {target.name}: {setup.n_seg} x {setup.t_seg} "
                f"segments, {','.join(setup.detectors)}; simulated band {f_hz:.6g} Hz "

@@ -18,6 +18,7 @@ third-gen-fit       third-generation design                    200 Hz     1 Hz  
 Names of earlier versions of cwlimits are refused with a message naming the new one.
 """
 
+from .. import _defaults
 from ..errors import InputError
 from ._base import NoiseSource
 
@@ -112,7 +113,7 @@ NOISE_MODELS = {
 }
 
 #: The model used when none is given (the embedded default of the demo).
-DEFAULT_NOISE_MODEL = "second-gen-fit"
+DEFAULT_NOISE_MODEL = _defaults.DEFAULT_NOISE_MODEL
 
 #: Model names of earlier versions and the names that replaced them.
 _RETIRED_NOISE_MODELS = {"advanced-fit": "second-gen-fit", "initial-fit": "first-gen-fit"}

@@ -1,0 +1,67 @@
+"""Names and defaults the command line needs before any work (private, not for outside use).
+
+``cwlimits --help`` and every ``cwlimits COMMAND --help`` build their parsers from these
+plain strings, numbers and tuples, so that they start without importing numpy, astropy or
+scipy (issue 16: start-up in well under a second).  The library modules that own each
+concept import their value from here and attach units there: one definition each.
+"""
+
+__all__ = ["DEFAULT_NOISE_MODEL", "OBJECTIVES", "MEASURES", "CASES", "PLOT_SUFFIXES",
+           "DEFAULT_CHUNK_SIZE", "DEFAULT_START", "DEFAULT_CAMPAIGN_CHUNK", "STORE_NAME",
+           "DEFAULT_UNIT_COSTS_S", "DEFAULT_MOMENT_OF_INERTIA_KG_M2", "MOMENT_OF_INERTIA_TEXT",
+           "REPORT_STEPS", "PULSAR_KINDS", "EMISSION_NAMES", "PULSAR_N_SIGMA",
+           "PULSAR_NOISE_DRAWS", "PULSAR_MAX_STRETCH", "PULSAR_NOISE_MODES",
+           "PULSAR_SAMPLERS", "PULSAR_HARMONICS", "builtin_detector_names"]
+
+#: The noise model used when none is given (cwlimits.noise.models).
+DEFAULT_NOISE_MODEL = "second-gen-fit"
+#: Planning objectives, beat-age measures and distance/age cases (cwlimits.planning).
+OBJECTIVES = ("depth", "beat-age")
+MEASURES = ("width", "integral")
+CASES = ("nominal", "optimistic", "pessimistic")
+#: File suffixes a figure can be written to (cwlimits.plots).
+PLOT_SUFFIXES = (".png", ".svg", ".pdf")
+#: Items per chunk of a long run (cwlimits.executor).
+DEFAULT_CHUNK_SIZE = 4096
+#: Default start of the data, UTC (cwlimits.sensitivity).
+DEFAULT_START = "2030-01-01T00:00:00"
+#: Injections per chunk of a validation campaign (cwlimits.validation).
+DEFAULT_CAMPAIGN_CHUNK = 200
+#: File name of the results store in an output folder (cwlimits.store).
+STORE_NAME = "cwlimits-store.sqlite"
+#: Unit costs in seconds per template (cwlimits.setup).
+DEFAULT_UNIT_COSTS_S = {"coherent": 7e-8, "semicoherent": 6e-9}
+#: Fiducial moment of inertia, kg m^2 (common practice; cwlimits.fiducial).
+DEFAULT_MOMENT_OF_INERTIA_KG_M2 = 1e38
+#: Steps of ``cwlimits report`` (cwlimits.analysis).
+REPORT_STEPS = 5
+#: Known pulsars (cwlimits.pulsars): search kinds, emission model names, half-width of the
+#: timing box in sigma (common practice: 3 sigma), noise-only data sets of the expected
+#: limit, most samples of a stretch, noise treatments, samplers, harmonics ('22': data at
+#: 2 f_rot, amplitude h0 = 2 C22; '21': data at f_rot, amplitude C21).
+PULSAR_KINDS = ("auto", "targeted", "narrow-band")
+EMISSION_NAMES = ("dual", "rmode", "single")
+PULSAR_N_SIGMA = 3.0
+PULSAR_NOISE_DRAWS = 400
+PULSAR_MAX_STRETCH = 30
+PULSAR_NOISE_MODES = ("student-t", "given", "estimated")
+PULSAR_SAMPLERS = ("grid", "emcee")
+PULSAR_HARMONICS = ("22", "21")
+#: The same, as the command line's default text (parsed by the option's type).
+MOMENT_OF_INERTIA_TEXT = f"{DEFAULT_MOMENT_OF_INERTIA_KG_M2:g} kg m2"
+
+
+def builtin_detector_names():
+    """Site codes of the built-in detectors, in file order, read without astropy.
+
+    The first column of ``cwlimits/data/detectors.csv`` (the table that
+    :func:`cwlimits.response.builtin_detectors` reads in full), for the help text.
+    """
+    import csv
+    from importlib import resources
+
+    text = (resources.files("cwlimits") / "data" / "detectors.csv").read_text("utf-8")
+    rows = csv.reader(line for line in text.splitlines()
+                      if line.strip() and not line.lstrip().startswith("#"))
+    next(rows)  # the header
+    return tuple(row[0].strip() for row in rows if row)

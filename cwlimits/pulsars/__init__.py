@@ -1,0 +1,27 @@
+"""Known pulsars: emission models, targeted and narrow-band sensitivity, posteriors.
+
+A known pulsar is a catalogue row with a measured spin (``f_rot``, ``fdot_rot``).  This
+subpackage follows the job for such a star: which frequencies its spin implies
+(:mod:`.emission`), how sensitive a targeted or narrow-band search of a setup is
+(:mod:`.expected`), the band-limited data it is run on (:mod:`.data`) and the Bayesian
+upper limit from them (:mod:`.posterior`).  Figures are in :mod:`.plots`.
+"""
+
+from .data import (
+    DownConvertedData,
+    add_noise,
+    read_down_converted,
+    simulate_pulsar_signal,
+    write_down_converted,
+)
+from .emission import DUAL_HARMONIC, RMODE, SINGLE_HARMONIC, EmissionModel, get_emission, harmonics
+from .expected import targeted_sensitivity
+from .grid import OrientationPrior
+from .posterior import PulsarPosterior, limit_table, pulsar_posterior, spindown_ratios
+from .summary import known_pulsar_summary, sensitivity_curve
+
+__all__ = ["EmissionModel", "SINGLE_HARMONIC", "DUAL_HARMONIC", "RMODE", "get_emission",
+           "harmonics", "targeted_sensitivity", "OrientationPrior", "DownConvertedData",
+           "read_down_converted", "write_down_converted", "simulate_pulsar_signal",
+           "add_noise", "pulsar_posterior", "PulsarPosterior", "limit_table",
+           "spindown_ratios", "known_pulsar_summary", "sensitivity_curve"]

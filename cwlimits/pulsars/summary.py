@@ -1,0 +1,110 @@
+"""All the known pulsars of a catalogue in one table: predicted and measured limits.
+
+For each row with a known spin: the spin-down limit, the search kind and the predicted
+95 % limit of :func:`.expected.targeted_sensitivity`, the measured limit of
+:func:`.posterior.pulsar_posterior` where down-converted data are given, and the ratios a
+paper reports for the limit (the measured one where there is one).  The expected
+sensitivity curve of the span, h95(f) = K / sqrt(sum_d T_d / S_d(f)), uses the median
+factor K of the table's targeted rows (K depends on the sky position only through the
+antenna averages; Dupuis & Woan 2005).
+"""
+
+import astropy.units as u
+import numpy as np
+from astropy.table import QTable
+
+from ..errors import InputError
+from ..fiducial import DEFAULT_MOMENT_OF_INERTIA
+from ..noise import DEFAULT_NOISE_MODEL
+from ..sensitivity import DEFAULT_START
+from .expected import _noise_psd, targeted_sensitivity
+from .posterior import pulsar_posterior, spindown_ratios
+
+__all__ = ["known_pulsar_summary", "sensitivity_curve"]
+
+
+def known_pulsar_summary(catalogue, setup, noise=DEFAULT_NOISE_MODEL, *, data=None,
+                         confidence=0.95, n_noise=200, rng=None, start=DEFAULT_START,
+                         moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA, posterior_noise="student-t"):
+    """One row per known pulsar of ``catalogue`` (rows without a known spin are skipped).
+
+    Parameters
+    ----------
+    catalogue : TargetCatalogue or sequence of Target
+    setup : SearchSetup
+        Detectors, span (one coherent segment), duty factor, coherent grid and cost.
+    noise : str, NoiseSource or dict
+    data : dict of str -> DownConvertedData, BandData or path, optional
+        Down-converted data per pulsar name: adds the measured limit.
+    confidence, n_noise, rng, start
+        As in :func:`.expected.targeted_sensitivity`.
+    posterior_noise : str
+        Noise model of the measured limits (:func:`.posterior.pulsar_posterior`).
+
+    Returns
+    -------
+    astropy.table.QTable
+        ``name``, ``f_rot``, ``f_gw``, ``kind``, ``h0_spindown``, ``h95_predicted``,
+        ``factor_k``, ``h95_measured`` (NaN without data), ``limit_source``, and for the
+        reported limit ``ratio_spindown``, ``spindown_fraction``, ``eps_limit``,
+        ``q22_limit``.  ``meta['assumptions']`` as in the functions it calls.
+    """
+    data = dict(data or {})
+    rng = np.random.default_rng(rng)
+    pulsars = [t for t in catalogue if t.has_spin]
+    if not pulsars:
+        raise InputError("the catalogue has no known pulsar (rows with f_rot and fdot_rot)")
+    unknown = sorted(set(data) - {t.name for t in pulsars})
+    if unknown:
+        raise InputError(f"data given for names that are not known pulsars of the "
+                         f"catalogue: {', '.join(unknown)}")
+    rows, info = [], {}
+    for t in pulsars:
+        pred = targeted_sensitivity(t, setup, noise, confidence=confidence, n_noise=n_noise,
+                                    rng=rng, start=start, moment_of_inertia=moment_of_inertia)
+        info = dict(pred.meta["assumptions"])
+        measured = np.nan
+        if t.name in data:
+            post = pulsar_posterior(data[t.name], t, noise=posterior_noise,
+                                    confidence=confidence)
+            measured = post.upper_limit
+            info["measured"] = f"{post.sampler} posterior, noise {post.noise}"
+        limit = measured if np.isfinite(measured) else float(pred["h95"][0])
+        ratios = spindown_ratios(limit, t, moment_of_inertia)
+        rows.append({
+            "name": t.name, "f_rot": t.f_rot.to_value(u.Hz),
+            "f_gw": pred["f_gw"][0].to_value(u.Hz), "kind": str(pred["kind"][0]),
+            "h0_spindown": ratios["h0_spindown"], "h95_predicted": float(pred["h95"][0]),
+            "factor_k": float(pred["factor_k"][0]), "h95_measured": measured,
+            "limit_source": "measured" if np.isfinite(measured) else "predicted",
+            "ratio_spindown": ratios["ratio_spindown"],
+            "spindown_fraction": ratios["spindown_fraction"],
+            "eps_limit": ratios["eps_limit"],
+            "q22_limit": ratios["q22_limit"].to_value(u.kg * u.m**2)})
+    table = QTable(rows=[list(r.values()) for r in rows], names=list(rows[0]))
+    table["f_rot"].unit = u.Hz
+    table["f_gw"].unit = u.Hz
+    table["q22_limit"].unit = u.kg * u.m**2
+    info.pop("target", None)
+    info["orientation_prior"] = ("per pulsar: the catalogue's cosi/psi priors where given, "
+                                 "else uniform")
+    info["spindown"] = (f"h_sd per pulsar with I = {moment_of_inertia:g} and its catalogue "
+                        "distance; all rotational energy loss in gravitational waves")
+    info["ratios"] = ("ratio_spindown, spindown_fraction, eps_limit, q22_limit are for the "
+                      "measured limit where there is one, else the predicted one")
+    table.meta["assumptions"] = info
+    return table
+
+
+def sensitivity_curve(setup, noise, factor_k, f_gw):
+    """h95(f) = K / sqrt(sum_d T_d / S_d(f)) of a targeted search over the setup's span.
+
+    ``T_d`` is the span times the duty factor (module notes); ``f_gw`` a Quantity array.
+    """
+    f = np.atleast_1d(u.Quantity(f_gw, u.Hz).value)
+    t_d = setup.total_span.to_value(u.s) * setup.duty_factor
+    out = np.empty(len(f))
+    for i, fi in enumerate(f):
+        psd, _ = _noise_psd(noise, setup.detectors, float(fi))
+        out[i] = factor_k / np.sqrt(np.sum(t_d / psd))
+    return out << u.one
