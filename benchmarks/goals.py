@@ -23,6 +23,12 @@ class Goal(NamedTuple):
 
 
 GOALS = [
+    Goal("16.1", "start-up: cwlimits --help", "startup", "help_s", "<=", 0.3, "s"),
+    Goal("16.1", "start-up: cwlimits plan --help", "startup", "plan_--help_s", "<=", 0.3,
+         "s"),
+    Goal("16.1", "start-up: cwlimits --version", "startup", "version_s", "<=", 0.3, "s"),
+    Goal("16.1", "start-up: --help against python -c pass", "startup", "help_ratio", "<=",
+         10.0, "x"),
     Goal("16.2", "kernel, setups with distinct rules", "detection", "distinct_us_per_setup",
          "<=", 100.0, "us/setup"),
     Goal("16.2", "kernel, setups sharing a signal rule", "detection",
@@ -37,6 +43,14 @@ GOALS = [
          "bayes_scaling_exponent", "<=", 1.05),
     Goal("16.3", "scaling exponent 3e4 -> 1e5 bands (frequentist)", "limits",
          "frequentist_scaling_exponent", "<=", 1.05),
+    Goal("16.5", "plan_search, one target (depth, cold)", "planning", "plan_depth_s", "<=",
+         0.3, "s"),
+    Goal("16.5", "plan_search, a further target (tables built)", "planning",
+         "plan_warm_tables_s", "<=", 0.3, "s"),
+    Goal("16.5", "rank_targets over the 8 demo targets (serial)", "planning",
+         "rank_demo_serial_s", "<=", 3.0, "s"),
+    Goal("16.6", "cwlimits demo, wall clock on 2 cores", "demo", "demo_wall_s", "<=", 15.0,
+         "s"),
 ]
 
 _OPS = {"<=": lambda a, b: a <= b, "<": lambda a, b: a < b, ">=": lambda a, b: a >= b}
