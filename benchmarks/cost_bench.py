@@ -2,7 +2,8 @@
 
 Run:  /work/venv/bin/python benchmarks/cost_bench.py [--quick] [--json FILE]
 
-Times one vectorised :func:`cwlimits.cost.computing_cost` call over 10, 1 000 and 20 000
+Times one vectorised :func:`cwlimits.searchspace.cost.computing_cost` call over 10, 1 000 and 20
+000
 bands (10 and 1 000 with --quick), and a baseline measured in the same run: the same
 template count done one band at a time in a Python loop (what a non-vectorised
 implementation would cost), capped at 1 000 calls (100 with --quick) and scaled linearly
@@ -14,8 +15,8 @@ import astropy.units as u
 import numpy as np
 from benchutil import bench_parser, best_time, write_json
 
-from cwlimits.cost import computing_cost, count_templates
-from cwlimits.setup import SearchSetup
+from cwlimits.searchspace.cost import computing_cost, count_templates
+from cwlimits.searchspace.searchsetup import SearchSetup
 
 AGE = 1000 * u.yr  # round age of the parameter space (no real object)
 

@@ -2,7 +2,8 @@
 
 Run:  python benchmarks/demo_bench.py [--quick] [--json FILE]
 
-Figures: saving a report-style figure as PNG and SVG with :func:`cwlimits.plots.save_figure`
+Figures: saving a report-style figure as PNG and SVG with
+:func:`cwlimits.plotting.figures.save_figure`
 (the constrained layout solved once, by the PNG) against the baseline measured in the same
 run, two plain ``savefig`` calls that solve the layout each (the previous way); the same
 files either way (tests/test_report_figures.py).  Full size only: ``cwlimits demo`` in a
@@ -25,7 +26,7 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 from benchutil import bench_parser, best_time, write_json  # noqa: E402
 
-from cwlimits.plots import new_figure, save_figure, tidy_log_axes  # noqa: E402
+from cwlimits.plotting.figures import new_figure, save_figure, tidy_log_axes
 
 ROOT = pathlib.Path(__file__).resolve().parent.parent
 GOAL_DEMO_S = 15.0
@@ -74,7 +75,7 @@ def main(argv=None):
                        MPLBACKEND="Agg")
             before = resource.getrusage(resource.RUSAGE_CHILDREN)
             t0 = time.perf_counter()
-            subprocess.run([sys.executable, "-m", "cwlimits.cli", "demo", "--quiet",
+            subprocess.run([sys.executable, "-m", "cwlimits.cli.app", "demo", "--quiet",
                             "--out-dir", str(folder / "demo")], env=env, check=True)
             wall = time.perf_counter() - t0
             after = resource.getrusage(resource.RUSAGE_CHILDREN)

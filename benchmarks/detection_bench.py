@@ -9,7 +9,7 @@ practice), cos iota uniform on [-1, 1] and psi uniform, the StackSlide mismatch 
 (as the planner uses it), 1e3..1e15 templates at 1 % false alarm per band, 95 %
 confidence.
 
-* Fast side: :func:`cwlimits.detection.critical_depth` with the fixed-sky rule (32 x 32
+* Fast side: :func:`cwlimits.statistics.detection.critical_depth` with the fixed-sky rule (32 x 32
   Gauss-Legendre x midpoint nodes in cos iota and psi times 64 mismatch nodes, condensed to
   <= 132 nodes; a 16 x 16 rule is 3 % off at 95 % here, 32 x 32 is 5e-4 off).
   Timed for setups sharing that rule (the tabulated path, its table built
@@ -36,7 +36,7 @@ import numpy as np
 from benchutil import bench_parser, write_json
 from scipy import stats
 
-from cwlimits import detection as det
+from cwlimits.statistics import detection as det
 
 SKY = (0.3, 1.0)           # cos theta, phi of the fixed sky position (fictional)
 MU_MAX = 0.4               # mismatch uniform on [0, MU_MAX)

@@ -3,14 +3,17 @@
 Run:  /work/venv/bin/python benchmarks/fstat_bench.py [--quick] [--json FILE] [--full-direct]
 
 One detector, one segment of 2^16 complex samples (2^12 with --quick), zero-padded to
-L = 2^17 frequencies.  The FFT path (``cwlimits.fstat._coherent_stage`` + 2F) is timed over
-all L frequencies.  The direct sums (``cwlimits.fstat._direct_filters``: exp(-i dPhi) at every
+L = 2^17 frequencies.  The FFT path (``cwlimits.simulation.fstat._coherent_stage`` + 2F) is
+timed over
+all L frequencies.  The direct sums (``cwlimits.simulation.fstat._direct_filters``: exp(-i dPhi)
+at every
 sample and frequency, then the sums) cost exactly the same per frequency, so by default they
 are timed on a random subset of frequencies and scaled by L / subset (``--full-direct``
 evaluates all L; minutes at 2^16).  Both are checked to agree on the subset.  The baseline is
 measured in the same run; the speed-up must exceed 100 at 2^16 samples.
 
-Then ``cwlimits.fstat.measure_unit_costs`` gives the seconds per template of the coherent
+Then ``cwlimits.simulation.fstat.measure_unit_costs`` gives the seconds per template of the
+coherent
 stage (per detector and segment) and of the semi-coherent sum (per segment), the numbers
 ``cwlimits calibrate`` will feed to the cost model.
 """
@@ -22,8 +25,8 @@ import numpy as np
 from astropy.coordinates import SkyCoord
 from benchutil import bench_parser, best_time, write_json
 
-from cwlimits import fstat as fs
-from cwlimits import synthetic as sy
+from cwlimits.simulation import fstat as fs
+from cwlimits.simulation import synthetic as sy
 
 REQUIRED_SPEEDUP = 100.0
 

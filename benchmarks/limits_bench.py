@@ -37,9 +37,9 @@ def _inputs(n_bands):
     import numpy as np
 
     import cwlimits
-    from cwlimits.response import SIDEREAL_DAY
-    from cwlimits.results import SearchResults
-    from cwlimits.setup import SearchSetup
+    from cwlimits.limits.results import SearchResults
+    from cwlimits.response.antenna import SIDEREAL_DAY
+    from cwlimits.searchspace.searchsetup import SearchSetup
 
     target = cwlimits.load_targets(ROOT / "target_lists" / "demo.csv").target("Fict Quill")
     setup = SearchSetup(t_seg=10 * SIDEREAL_DAY, n_seg=8, band=(100 * u.Hz, 200 * u.Hz),
@@ -55,7 +55,7 @@ def _inputs(n_bands):
 
 def child(n_bands, method, out):
     """One run in this fresh process (warm-up on 10 bands first: IERS, imports)."""
-    from cwlimits.limits import upper_limits
+    from cwlimits.limits.upper import upper_limits
 
     upper_limits(*_inputs(10), method, rng=1)
     res, setup, target = _inputs(n_bands)
@@ -85,7 +85,7 @@ def reference_and_emcee(quick):
     """Reference path per band, and emcee on a few bands, in this process."""
     import numpy as np
 
-    from cwlimits.limits import sample_band, upper_limits
+    from cwlimits.limits.upper import sample_band, upper_limits
 
     n_ref = 40 if quick else 300
     res, setup, target = _inputs(n_ref)

@@ -18,11 +18,12 @@ import time
 
 import astropy.units as u
 
-from cwlimits import planning, response
-from cwlimits.executor import make_executor
-from cwlimits.sensitivity import strain_sensitivity
-from cwlimits.setup import SearchSetup
-from cwlimits.targets import load_targets
+from cwlimits.planning import optimise as planning
+from cwlimits.response import antenna as response
+from cwlimits.runtime.executor import make_executor
+from cwlimits.searchspace.searchsetup import SearchSetup
+from cwlimits.sensitivity.model import strain_sensitivity
+from cwlimits.targets.catalogue import load_targets
 
 HERE = pathlib.Path(__file__).resolve().parent
 CATALOGUE = HERE.parent / "target_lists" / "demo.csv"

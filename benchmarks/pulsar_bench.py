@@ -19,7 +19,7 @@ from benchutil import bench_parser, best_time, write_json
 
 from cwlimits.pulsars.data import add_noise, simulate_pulsar_signal
 from cwlimits.pulsars.posterior import pulsar_posterior
-from cwlimits.targets import Target
+from cwlimits.targets.catalogue import Target
 
 
 def main():

@@ -6,7 +6,7 @@ Run:  /work/venv/bin/python benchmarks/response_bench.py [--quick] [--json FILE]
 sidereal time on the time grid (a^2 is a trigonometric polynomial of degree 4 in it,
 JKS 1998, gr-qc/9804014).  The baseline, measured in the same run on the same grid, is the
 brute average: a(t) at every sky position and every time sample
-(:func:`cwlimits.response.amplitude_modulation`), squared and averaged.  Both give the same
+(:func:`cwlimits.response.antenna.amplitude_modulation`), squared and averaged.  Both give the same
 numbers to rounding; the script prints the largest difference.  Sizes: 10 to 10 000 random
 sky positions over 30 days (10 to 1 000 with --quick), and one position, three detectors,
 one year (30 days with --quick).  No timing is asserted.
@@ -18,7 +18,7 @@ import numpy as np
 from astropy.coordinates import SkyCoord
 from benchutil import bench_parser, best_time, write_json
 
-from cwlimits import response as resp
+from cwlimits.response import antenna as resp
 
 START = "2027-01-01T00:00:00"
 SAMPLES_PER_DAY = 48  # time_averages' default grid density, used by the brute average too

@@ -8,7 +8,7 @@ Usage::
 
 It runs each ``benchmarks/*_bench.py`` script as a subprocess (``--quick`` passed on, and
 ``--json FILE`` for the script's figures), then its own measurement: the speed-up of
-:func:`cwlimits.executor.map_chunks` with 2 worker processes over the serial run, on a
+:func:`cwlimits.runtime.executor.map_chunks` with 2 worker processes over the serial run, on a
 CPU-bound numpy workload.  Every figure is a ratio against a baseline measured in the same
 run, on the same machine, so figures from different machines compare.  The merged figures
 go to ``benchmarks/results.json`` (or ``--json FILE``).  A script that cannot import what
@@ -36,7 +36,7 @@ from benchutil import best_time  # noqa: E402
 from goals import evaluate  # noqa: E402
 
 from cwlimits import __version__  # noqa: E402
-from cwlimits.executor import chunk_seed, make_executor, map_chunks  # noqa: E402
+from cwlimits.runtime.executor import chunk_seed, make_executor, map_chunks  # noqa: E402
 
 # (items, frequencies per item, chunk size, repeats): the workload is sum_k sin(x_i * k),
 # about items * frequencies sine evaluations, all in numpy.

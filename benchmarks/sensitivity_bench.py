@@ -3,7 +3,7 @@
 Run:  /work/venv/bin/python benchmarks/sensitivity_bench.py [--quick] [--json FILE]
       /work/venv/bin/python benchmarks/sensitivity_bench.py --profile-memory 100000
 
-One curve :func:`cwlimits.sensitivity.strain_sensitivity` with the embedded design fit
+One curve :func:`cwlimits.sensitivity.model.strain_sensitivity` with the embedded design fit
 ("second-gen-fit") for the fictional demo target "Fict Quill" of ``target_lists/demo.csv``
 and a 12 x 10-day StackSlide setup (H1, L1; 300-day span), over 10 000 and 100 000 equal
 bands between 50 and 550 Hz (1 000 and 5 000 with --quick).
@@ -55,7 +55,7 @@ def _inputs(n_bands):
     import numpy as np
 
     import cwlimits
-    from cwlimits.setup import SearchSetup
+    from cwlimits.searchspace.searchsetup import SearchSetup
 
     target = cwlimits.load_targets(CATALOGUE).target(TARGET)
     setup = SearchSetup(10 * u.day, 12, (F_LO_HZ * u.Hz, F_HI_HZ * u.Hz),
@@ -66,7 +66,7 @@ def _inputs(n_bands):
 
 def child(n_bands, out):
     """Build one curve in this (fresh) process; write its figures to ``out``."""
-    from cwlimits.sensitivity import strain_sensitivity
+    from cwlimits.sensitivity.model import strain_sensitivity
 
     setup, target, bands = _inputs(n_bands)
     rss_before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * KIB
@@ -110,7 +110,8 @@ def _wrap_for_memory(table, shapes):
     """
     import tracemalloc
 
-    from cwlimits import detection, sensitivity
+    from cwlimits.sensitivity import model as sensitivity
+    from cwlimits.statistics import detection
 
     stack = []  # one running maximum of the peak per active wrapped call
 
@@ -162,7 +163,7 @@ def profile_memory(n_bands):
     """One ``n_bands`` curve under tracemalloc; print and return the per-function table."""
     import tracemalloc
 
-    from cwlimits import sensitivity
+    from cwlimits.sensitivity import model as sensitivity
 
     setup, target, bands = _inputs(n_bands)
     table, shapes = {}, {}

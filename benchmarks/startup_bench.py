@@ -4,7 +4,7 @@ Run:  python benchmarks/startup_bench.py [--quick] [--json FILE]
 
 Baseline (measured in the same run): ``python -c pass``.  Then ``cwlimits --help``,
 ``cwlimits plan --help`` (a command's help) and ``cwlimits --version``, each a fresh
-interpreter running the working tree's ``cwlimits.cli``.  Bytecode is cached in a
+interpreter running the working tree's ``cwlimits.cli.app``.  Bytecode is cached in a
 temporary folder (``PYTHONPYCACHEPREFIX``) and one warm-up run precedes the timings, as for
 an installed package; each figure is the best of ``repeats`` runs.  Goal (issue 16): at
 most 0.3 s on a quiet machine, i.e. at most ~10x the bare interpreter.  No timing is
@@ -47,7 +47,7 @@ def main(argv=None):
         figures = {"python_c_pass_s": bare_s, "repeats": repeats, "goals": []}
         print(f"   python -c pass                 1.00   ({bare_s * 1e3:.0f} ms, baseline)")
         for name, cli_args in COMMANDS.items():
-            command = run("-m", "cwlimits.cli", *cli_args)
+            command = run("-m", "cwlimits.cli.app", *cli_args)
             command()  # warm-up: writes the bytecode cache
             _, seconds = best_time(command, repeats)
             ratio = seconds / bare_s

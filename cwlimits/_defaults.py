@@ -19,21 +19,21 @@ DEFAULT_NOISE_MODEL = "second-gen-fit"
 OBJECTIVES = ("depth", "beat-age")
 MEASURES = ("width", "integral")
 CASES = ("nominal", "optimistic", "pessimistic")
-#: File suffixes a figure can be written to (cwlimits.plots).
+#: File suffixes a figure can be written to (cwlimits.plotting.figures).
 PLOT_SUFFIXES = (".png", ".svg", ".pdf")
-#: Items per chunk of a long run (cwlimits.executor).
+#: Items per chunk of a long run (cwlimits.runtime.executor).
 DEFAULT_CHUNK_SIZE = 4096
 #: Default start of the data, UTC (cwlimits.sensitivity).
 DEFAULT_START = "2030-01-01T00:00:00"
-#: Injections per chunk of a validation campaign (cwlimits.validation).
+#: Injections per chunk of a validation campaign (cwlimits.simulation.campaigns).
 DEFAULT_CAMPAIGN_CHUNK = 200
-#: File name of the results store in an output folder (cwlimits.store).
+#: File name of the results store in an output folder (cwlimits.runtime.store).
 STORE_NAME = "cwlimits-store.sqlite"
-#: Unit costs in seconds per template (cwlimits.setup).
+#: Unit costs in seconds per template (cwlimits.searchspace.searchsetup).
 DEFAULT_UNIT_COSTS_S = {"coherent": 7e-8, "semicoherent": 6e-9}
-#: Fiducial moment of inertia, kg m^2 (common practice; cwlimits.fiducial).
+#: Fiducial moment of inertia, kg m^2 (common practice; cwlimits.targets.fiducial).
 DEFAULT_MOMENT_OF_INERTIA_KG_M2 = 1e38
-#: Steps of ``cwlimits report`` (cwlimits.analysis).
+#: Steps of ``cwlimits report`` (cwlimits.report.chain).
 REPORT_STEPS = 5
 #: Known pulsars (cwlimits.pulsars): search kinds, emission model names, half-width of the
 #: timing box in sigma (common practice: 3 sigma), noise-only data sets of the expected
@@ -55,7 +55,7 @@ def builtin_detector_names():
     """Site codes of the built-in detectors, in file order, read without astropy.
 
     The first column of ``cwlimits/data/detectors.csv`` (the table that
-    :func:`cwlimits.response.builtin_detectors` reads in full), for the help text.
+    :func:`cwlimits.response.antenna.builtin_detectors` reads in full), for the help text.
     """
     import csv
     from importlib import resources

@@ -20,7 +20,7 @@ import os
 import secrets
 from pathlib import Path
 
-from .errors import InputError
+from cwlimits.errors import InputError
 
 __all__ = ["atomic_write", "check_output_file", "check_output_folder", "make_folder",
            "written_by_cwlimits", "FIGURE_MARK", "TEMP_SUFFIX"]
@@ -170,7 +170,7 @@ def check_output_folder(path, option="--out-dir"):
 
     The folder may exist (then it must be a writable folder, not a link) or be missing
     (then its nearest existing parent must be a writable folder).  What may be replaced
-    inside it is the caller's rule (see :mod:`cwlimits.report`).
+    inside it is the caller's rule (see :mod:`cwlimits.report.html`).
     """
     if path is None:
         return None

@@ -22,7 +22,7 @@ import contextvars
 import math
 import os
 
-from .errors import SizeLimitError
+from cwlimits.errors import SizeLimitError
 
 __all__ = ["SIZE_LIMITS", "allow_large", "large_allowed", "check_size", "human_bytes"]
 

@@ -3,7 +3,7 @@
 import tomllib
 from pathlib import Path
 
-from .errors import ConfigError
+from cwlimits.errors import ConfigError
 
 __all__ = ["load_toml"]
 

@@ -10,7 +10,7 @@ import re
 import astropy.units as u
 import numpy as np
 
-from .errors import InputError, UnitsMismatchError
+from cwlimits.errors import InputError, UnitsMismatchError
 
 __all__ = ["to_value", "positive_value", "parse_quantity", "parse_unit", "DIMENSIONLESS"]
 

@@ -27,9 +27,9 @@ import astropy.units as u
 import numpy as np
 from astropy.table import MaskedColumn, Table
 
-from ._files import atomic_write
-from ._units import parse_unit
-from .errors import InputError, TableError
+from cwlimits._files import atomic_write
+from cwlimits._units import parse_unit
+from cwlimits.errors import InputError, TableError
 
 __all__ = ["RawTable", "read_table", "write_table", "neutralise_cell"]
 
@@ -342,7 +342,7 @@ def write_table(table, path, *, assumptions=None, title=None):
     suffix = path.suffix.lower()
     if suffix not in (".csv", ".ecsv"):
         raise InputError("output table must end in .csv or .ecsv", file=str(path))
-    from . import __version__
+    from cwlimits import __version__
 
     table = Table(table, copy=True)
     meta = {"title": title or "", "written_by": f"cwlimits {__version__}"}

@@ -15,8 +15,8 @@ sys.path.insert(0, str(pathlib.Path(__file__).parent))
 
 from _chunk_jobs import slow_draws  # noqa: E402
 
-from cwlimits.executor import map_chunks  # noqa: E402
-from cwlimits.store import ResultStore  # noqa: E402
+from cwlimits.runtime.executor import map_chunks
+from cwlimits.runtime.store import ResultStore
 
 
 def main(argv):

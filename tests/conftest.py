@@ -34,7 +34,7 @@ def write_file(tmp_path):
 @pytest.fixture(scope="session")
 def demo_report(tmp_path_factory):
     """The report of one ``cwlimits demo`` run, shared by the tests that inspect it."""
-    from cwlimits.cli import main
+    from cwlimits.cli.app import main
 
     out = tmp_path_factory.mktemp("demo") / "report"
     assert main(["-q", "demo", "--out-dir", str(out)]) == 0

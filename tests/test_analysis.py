@@ -2,12 +2,12 @@ import astropy.units as u
 import numpy as np
 from scipy import stats
 
-from cwlimits.analysis import simulate_results
-from cwlimits.sensitivity import SignalModel
+from cwlimits.report.chain import simulate_results
+from cwlimits.sensitivity.model import SignalModel
 
 
 def _model(n_bands, n_templates, n_seg):
-    from cwlimits.detection import QuadratureRule
+    from cwlimits.statistics.detection import QuadratureRule
 
     f = np.arange(n_bands) * u.Hz + 100 * u.Hz
     return SignalModel(f_lo=f, f_hi=f + 1 * u.Hz, psd=np.full(n_bands, 1e-46) / u.Hz,

@@ -14,9 +14,9 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import cwlimits
-from cwlimits.cli import main
+from cwlimits.cli.app import main
 from cwlimits.errors import CatalogueError, TableError
-from cwlimits.results import load_results
+from cwlimits.limits.results import load_results
 
 BAD = pathlib.Path(__file__).parent / "data" / "bad"
 CATALOGUES = sorted((BAD / "catalogue").iterdir())

@@ -5,7 +5,7 @@ import numpy as np
 import pytest
 
 import cwlimits
-from cwlimits.cli import main
+from cwlimits.cli.app import main
 
 
 def test_help_lists_commands_with_examples(capsys):
@@ -19,7 +19,7 @@ def test_help_lists_commands_with_examples(capsys):
 
 
 def _commands():
-    from cwlimits.cli import _command_modules
+    from cwlimits.cli.app import _command_modules
 
     return [m.__name__.rsplit(".", 1)[1] for m in _command_modules()]
 
@@ -191,7 +191,7 @@ def test_convert_bad_table_names_row_and_column(tmp_path, capsys, write_file):
 
 def test_internal_error_exit_1(monkeypatch, capsys, demo_catalogue_path):
     # the command imports the library function when it runs: patch it where it lives
-    import cwlimits.indirect as command
+    import cwlimits.targets.indirect as command
 
     def boom(*args, **kwargs):
         raise ZeroDivisionError("oops")

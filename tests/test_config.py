@@ -1,10 +1,10 @@
 import astropy.units as u
 import pytest
 
-from cwlimits.cli import main
-from cwlimits.config import CONFIG_KEYS, load_config
+from cwlimits.cli.app import main
 from cwlimits.errors import ConfigError
-from cwlimits.setup import SearchSetup
+from cwlimits.report.config import CONFIG_KEYS, load_config
+from cwlimits.searchspace.searchsetup import SearchSetup
 
 
 @pytest.fixture

@@ -5,7 +5,7 @@ import pytest
 from references import ELLIPTICITY_COEFFICIENT, RMODE_COEFFICIENT
 
 import cwlimits
-from cwlimits.conversions import (
+from cwlimits.targets.conversions import (
     ellipticity,
     mass_quadrupole,
     rmode_amplitude,

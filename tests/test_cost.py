@@ -12,11 +12,11 @@ from references_cost import (
     refinement_fdot,
 )
 
-from cwlimits.cli import main
-from cwlimits.cost import computing_cost, count_templates, plot_cost_scan, scan_cost
+from cwlimits.cli.app import main
 from cwlimits.errors import InputError
-from cwlimits.parameter_space import AgeBasedSpace, BoxSpace
-from cwlimits.setup import SearchSetup
+from cwlimits.searchspace.cost import computing_cost, count_templates, plot_cost_scan, scan_cost
+from cwlimits.searchspace.parameter_space import AgeBasedSpace, BoxSpace
+from cwlimits.searchspace.searchsetup import SearchSetup
 from cwlimits.tables import read_table
 
 DAY = 86400.0
@@ -59,12 +59,12 @@ def test_coherent_count_is_theta_mu_sqrtdet_volume():
 @pytest.mark.parametrize("kind", ["covering", "cubic"])
 def test_density_formula_counts_actual_lattice_templates(kind):
     # reference: the definition of the count - the number of templates of an actual bank
-    # (cwlimits.lattices.nearest_template) inside a box in (f, fdot) - against
+    # (cwlimits.searchspace.lattices.nearest_template) inside a box in (f, fdot) - against
     # theta mu^(-1) sqrt(det g_2) area.  The box spans ~120 templates per side; templates
     # are found by dense random sampling (fixed seed); tolerance 1.5 % for the box edges
     # (measured 0.3 %)
-    from cwlimits.lattices import nearest_template
-    from cwlimits.metric import coherent_metric
+    from cwlimits.searchspace.lattices import nearest_template
+    from cwlimits.searchspace.metric import coherent_metric
 
     g = coherent_metric(1 * u.day, 2)
     mu = 0.3
@@ -172,7 +172,7 @@ def test_bands_scalar_array_broadcast_and_many_bands():
 
 def test_targets_as_input(demo_catalogue_path):
     # a cwlimits Target (the fictional demo catalogue) and any object with .age
-    from cwlimits.targets import load_targets
+    from cwlimits.targets.catalogue import load_targets
 
     target = load_targets(demo_catalogue_path).target("Fict Ember")
     s = _setup()
@@ -288,7 +288,7 @@ def test_cli_needs_setup_values(capsys):
 def test_gapped_segments_use_the_semicoherent_metric_of_their_mid_times():
     # reference: Pletsch 2010 (segments with gaps): the semi-coherent count is
     # theta mu^(-3/2) sqrt(det g_semi) V_3 with the metric of the given mid-times
-    from cwlimits.metric import semicoherent_sqrt_det
+    from cwlimits.searchspace.metric import semicoherent_sqrt_det
 
     s = _setup(t_seg=10 * u.day, n_seg=4, span=100 * u.day)
     row = count_templates(s, 250 * u.yr)[0]

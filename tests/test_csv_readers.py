@@ -15,12 +15,12 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import cwlimits
-from cwlimits.cli import main
+from cwlimits.cli.app import main
 from cwlimits.errors import CwlimitsError
+from cwlimits.limits.results import load_results
 from cwlimits.noise import read_noise_file
 from cwlimits.noise.estimate import read_timeseries
-from cwlimits.response import load_detectors
-from cwlimits.results import load_results
+from cwlimits.response.antenna import load_detectors
 from cwlimits.tables import read_table
 
 CATALOGUE_HEADER = ("name,ra [deg],dec [deg],distance [kpc],distance_max [kpc],age [yr],"

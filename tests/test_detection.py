@@ -1,4 +1,4 @@
-"""Tests of cwlimits.detection against published values, scipy.stats and a Monte Carlo.
+"""Tests of cwlimits.statistics.detection against published values, scipy.stats and a Monte Carlo.
 
 The Monte-Carlo estimator here is independent of the package: it draws the orientation from
 textbook antenna patterns, the mismatch, and the non-central chi-squared statistic from its
@@ -12,13 +12,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import integrate, stats
 
-from cwlimits import detection as det
-from cwlimits.errors import (
-    ComputationError,
-    CwlimitsError,
-    InputError,
-    UnitsMismatchError,
-)
+from cwlimits.errors import ComputationError, CwlimitsError, InputError, UnitsMismatchError
+from cwlimits.statistics import detection as det
 
 # ---------------------------------------------------------------------------------------
 # Reference values (value, tolerance, reason, source)

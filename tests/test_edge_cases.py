@@ -9,8 +9,8 @@ import numpy as np
 import pytest
 
 import cwlimits
-from cwlimits.results import SearchResults
-from cwlimits.setup import SearchSetup
+from cwlimits.limits.results import SearchResults
+from cwlimits.searchspace.searchsetup import SearchSetup
 
 DEMO = pathlib.Path(__file__).resolve().parent.parent / "target_lists" / "demo.csv"
 

@@ -16,14 +16,14 @@ import numpy as np
 import pytest
 from _chunk_jobs import counting, fail_at, reversed_delay, toy_draws
 
-from cwlimits.commands._execution import (
+from cwlimits.cli.commands._execution import (
     add_executor_args,
     execution_config,
     executor_from_args,
     progress_from_args,
 )
 from cwlimits.errors import ComputationError, ConfigError, CwlimitsError, InputError
-from cwlimits.executor import (
+from cwlimits.runtime.executor import (
     SerialExecutor,
     chunk_bounds,
     chunk_seed,
@@ -31,7 +31,7 @@ from cwlimits.executor import (
     map_chunks,
     named_seed,
 )
-from cwlimits.store import ResultStore
+from cwlimits.runtime.store import ResultStore
 
 N_ITEMS = 10_000
 CHUNK = 700  # not a divisor of N_ITEMS: the last chunk is short (10000 = 14 * 700 + 200)
@@ -125,7 +125,7 @@ def test_process_pool_gives_the_same_bits(workers):
 def test_completion_out_of_order_gives_the_same_bits(caplog):
     # Earlier chunks sleep longer, so with 3 threads later chunks finish first.
     func = functools.partial(reversed_delay, n_items=50.0, seconds=0.05)
-    with caplog.at_level(logging.INFO, logger="cwlimits.executor"), \
+    with caplog.at_level(logging.INFO, logger="cwlimits.runtime.executor"), \
             concurrent.futures.ThreadPoolExecutor(3) as executor:
         out = map_chunks(func, ITEMS, chunk_size=CHUNK, seed=SEED, executor=executor,
                          desc="toy")

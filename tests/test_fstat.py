@@ -1,4 +1,4 @@
-"""Tests of cwlimits.fstat: the F-statistic's noise distribution (scipy.stats.chi2), its
+"""Tests of cwlimits.simulation.fstat: the F-statistic's noise distribution (scipy.stats.chi2), its
 non-centrality against the sensitivity model's rho^2, parameter recovery (JKS 1998), the
 FFT path against the direct sums, and the median noise level."""
 
@@ -8,10 +8,10 @@ import pytest
 from astropy.coordinates import SkyCoord
 from scipy import stats
 
-from cwlimits import fstat as fs
-from cwlimits import synthetic as sy
 from cwlimits.errors import InputError
-from cwlimits.response import orientation_factor, time_averages
+from cwlimits.response.antenna import orientation_factor, time_averages
+from cwlimits.simulation import fstat as fs
+from cwlimits.simulation import synthetic as sy
 
 # ------------------------------------------------------------------ reference values
 # KS tests against scipy.stats.chi2 with fixed seeds: reject below this p-value.
@@ -88,7 +88,7 @@ def _loud(rho_target=30.0, n_seg=5, fdot=0.0, rng=3, cosi=0.35, psi=0.4, phi0=2.
 @pytest.mark.parametrize(("n_seg", "rho"), [(1, 30.0), (5, 30.0), (40, 200.0)])
 def test_loud_signal_two_f_matches_the_model_rho2(n_seg, rho):
     # E[2F] = 4N + rho^2 with rho^2 = h0^2 T_data / S_n R^2 (JKS 1998; the sensitivity
-    # model's normalisation, cwlimits.detection), std sqrt(2 (4N + 2 rho^2)).  The last
+    # model's normalisation, cwlimits.statistics.detection), std sqrt(2 (4N + 2 rho^2)).  The last
     # case (rho^2 = 4e4) pins the normalisation to ~1 % (4 sigma = 4 %).
     data, injected, sig, df = _loud(rho_target=rho, n_seg=n_seg, rng=30 + n_seg)
     rho2 = fs.expected_rho2(injected, sig).value

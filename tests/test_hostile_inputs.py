@@ -1,4 +1,4 @@
-"""Hostile inputs of issue 14, items 7-16, each through ``cwlimits.cli.main``.
+"""Hostile inputs of issue 14, items 7-16, each through ``cwlimits.cli.app.main``.
 
 The rule under test is the README's promise (common practice for command-line tools): bad
 input prints ``error: ...`` naming the file and key (or the option) and the value as the
@@ -18,10 +18,10 @@ from scipy import stats
 
 from cwlimits import tables
 from cwlimits._sizes import SIZE_LIMITS, allow_large, check_size, human_bytes
-from cwlimits.cli import main
-from cwlimits.config import load_config
+from cwlimits.cli.app import main
 from cwlimits.errors import ConfigError, CwlimitsWarning, InputError, SizeLimitError
-from cwlimits.setup import SearchSetup
+from cwlimits.report.config import load_config
+from cwlimits.searchspace.searchsetup import SearchSetup
 
 pytestmark = pytest.mark.filterwarnings("error")
 

@@ -15,7 +15,7 @@ from references import (
 )
 
 import cwlimits
-from cwlimits.indirect import (
+from cwlimits.targets.indirect import (
     MASS_QUADRUPOLE,
     R_MODE,
     age_limit,

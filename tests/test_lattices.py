@@ -19,14 +19,14 @@ from references_cost import ball_volume as ball_volume_ref
 from scipy import optimize, stats
 
 from cwlimits.errors import InputError
-from cwlimits.lattices import (
+from cwlimits.searchspace.lattices import (
     Lattice,
     ball_volume,
     get_lattice,
     nearest_template,
     sample_mismatch,
 )
-from cwlimits.metric import coherent_metric
+from cwlimits.searchspace.metric import coherent_metric
 
 
 def test_ball_volume_scalar_array_broadcast():

@@ -8,20 +8,20 @@ import pytest
 from scipy import integrate, optimize, stats
 
 import cwlimits
-from cwlimits.cli import main
-from cwlimits.conversions import ellipticity, rmode_amplitude
+from cwlimits.cli.app import main
 from cwlimits.errors import CwlimitsWarning
-from cwlimits.limits import (
+from cwlimits.limits.results import SearchResults
+from cwlimits.limits.upper import (
     ChainWarning,
     band_posterior,
     posterior_quantiles,
     sample_band,
     upper_limits,
 )
-from cwlimits.response import SIDEREAL_DAY, time_averages
-from cwlimits.results import SearchResults
-from cwlimits.sensitivity import DEFAULT_START, signal_model, strain_sensitivity
-from cwlimits.setup import SearchSetup
+from cwlimits.response.antenna import SIDEREAL_DAY, time_averages
+from cwlimits.searchspace.searchsetup import SearchSetup
+from cwlimits.sensitivity.model import DEFAULT_START, signal_model, strain_sensitivity
+from cwlimits.targets.conversions import ellipticity, rmode_amplitude
 
 ROOT = pathlib.Path(__file__).resolve().parent.parent
 CATALOGUE = ROOT / "target_lists" / "demo.csv"
@@ -244,7 +244,7 @@ def test_limit_scales_as_sqrt_psd_over_t(target, method):
 @pytest.mark.parametrize("method", ["bayes", "frequentist"])
 def test_fixed_distance_ellipticity_is_the_conversion(target, method):
     # eps = c^4 d h0 / (4 pi^2 G I f^2) (JKS 1998 eq. 22) at the band centre; alpha from
-    # Owen 2010 eq. 24, via cwlimits.conversions.
+    # Owen 2010 eq. 24, via cwlimits.targets.conversions.
     res = _results([40.0, 80.0], width=0.5)
     t = upper_limits(res, _setup(), target, method, rng=1, distance_prior="fixed")
     eps = ellipticity(t["h0_limit"], t["f_mid"], target.distance)
@@ -402,7 +402,7 @@ def test_cli_writes_table_plots_and_resumes(files, capsys, caplog):
     assert (tmp / "o" / "cwlimits-store.sqlite").exists()
     first = out.read_text()
     assert "seed" in first and "assumptions" in first
-    caplog.set_level("INFO", logger="cwlimits.executor")
+    caplog.set_level("INFO", logger="cwlimits.runtime.executor")
     assert _cli(results, setup, "--out", str(out), "--seed", "3", "--verbose") == 0
     assert "1 chunks from the store, 0 to compute" in caplog.text
     table = cwlimits.tables.read_table(out)
@@ -510,8 +510,8 @@ def test_inertia_range_lies_between_its_ends(target, method):
 @pytest.mark.slow
 def test_two_worker_processes_give_the_same_bits(target):
     # map_chunks spawns one random stream per chunk from the root seed, so the numbers do
-    # not depend on where chunks run (cwlimits.executor's contract).
-    from cwlimits.executor import make_executor
+    # not depend on where chunks run (cwlimits.runtime.executor's contract).
+    from cwlimits.runtime.executor import make_executor
 
     res = _results(np.linspace(35, 90, 12), width=0.5)
     serial = upper_limits(res, _setup(), target, "bayes", rng=7, chunk_size=5)

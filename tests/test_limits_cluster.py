@@ -11,8 +11,8 @@ import numpy as np
 import pytest
 
 import cwlimits
-from cwlimits.analysis import simulate_results
-from cwlimits.setup import SearchSetup
+from cwlimits.report.chain import simulate_results
+from cwlimits.searchspace.searchsetup import SearchSetup
 
 DEMO = pathlib.Path(__file__).resolve().parent.parent / "target_lists" / "demo.csv"
 

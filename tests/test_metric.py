@@ -7,7 +7,7 @@ import sympy as sp
 from references_cost import coherent_sqrt_det_3, refinement_fddot, refinement_fdot
 
 from cwlimits.errors import InputError, UnitsMismatchError
-from cwlimits.metric import (
+from cwlimits.searchspace.metric import (
     coherent_metric,
     coherent_sqrt_det,
     contiguous_mid_times,

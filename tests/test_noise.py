@@ -11,7 +11,7 @@ import scipy.signal
 import scipy.stats
 from astropy.table import QTable
 
-from cwlimits.cli import main
+from cwlimits.cli.app import main
 from cwlimits.errors import CwlimitsError, InputError, OutOfRangeError, TableError
 from cwlimits.noise import (
     DEFAULT_NOISE_MODEL,

@@ -22,10 +22,10 @@ import astropy.units as u
 import numpy as np
 import pytest
 
-from cwlimits.cli import main
-from cwlimits.report import MANIFEST_NAME
-from cwlimits.setup import SearchSetup
-from cwlimits.store import STORE_NAME, ResultStore, is_store, open_store
+from cwlimits.cli.app import main
+from cwlimits.report.html import MANIFEST_NAME
+from cwlimits.runtime.store import STORE_NAME, ResultStore, is_store, open_store
+from cwlimits.searchspace.searchsetup import SearchSetup
 
 HERE = pathlib.Path(__file__).parent
 ROOT = HERE.parent
@@ -167,7 +167,7 @@ def test_rerun_replaces_its_own_report_and_refuses_one_with_user_files(project, 
 
 
 def test_a_tampered_manifest_never_deletes_outside_the_folder(tmp_path):
-    from cwlimits.report import Report, file_sha256
+    from cwlimits.report.html import Report, file_sha256
 
     victim = tmp_path / "victim.txt"
     victim.write_text("outside the report\n")
@@ -282,22 +282,22 @@ def _output_cases(tmp_path):
 COMMANDS = [
     # (argv before the output option, option, file name, module, function that does work;
     # the commands import the library functions when they run: patched where they live)
-    (["indirect", str(CATALOGUE)], "--out", "x.csv", "cwlimits.indirect",
+    (["indirect", str(CATALOGUE)], "--out", "x.csv", "cwlimits.targets.indirect",
      "indirect_limits"),
     (["noise", "second-gen-fit", "--band", "20Hz", "30Hz", "--step", "1Hz"], "--plot",
      "asd.png", "cwlimits.noise", "band_psd"),
     (["noise", "second-gen-fit", "--band", "20Hz", "30Hz", "--step", "1Hz"], "--out",
      "n.csv", "cwlimits.noise", "band_psd"),
     (["plan", "--catalogue", str(CATALOGUE), "--target", "Fict Quill", "--budget", "10 h",
-      "--span", "30 day"], "--out", "plan.toml", "cwlimits.planning", "plan_search"),
+      "--span", "30 day"], "--out", "plan.toml", "cwlimits.planning.optimise", "plan_search"),
     (["rank", str(CATALOGUE), "--budget", "10 h", "--span", "30 day"], "--plans-dir",
-     "plans", "cwlimits.planning", "rank_targets"),
+     "plans", "cwlimits.planning.optimise", "rank_targets"),
     (["rank", str(CATALOGUE), "--budget", "10 h", "--span", "30 day"], "--out",
-     "rank.csv", "cwlimits.planning", "rank_targets"),
+     "rank.csv", "cwlimits.planning.optimise", "rank_targets"),
     (["convert", "--h0", "1e-25", "--f-gw", "100Hz", "--distance", "1kpc"], "--out",
-     "c.csv", "cwlimits.conversions", "ellipticity"),
+     "c.csv", "cwlimits.targets.conversions", "ellipticity"),
     (["response", "--ra", "1h", "--dec", "10d", "--start", "2030-01-01"], "--plot",
-     "r.png", "cwlimits.response", "time_averages"),
+     "r.png", "cwlimits.response.antenna", "time_averages"),
 ]
 
 
@@ -315,10 +315,10 @@ def test_unwritable_outputs_exit_2_before_any_work(tmp_path, capsys, monkeypatch
 
 def test_report_with_an_unwritable_output_exits_2_before_any_work(project, tmp_path, capsys,
                                                                   monkeypatch):
-    import cwlimits.analysis
+    import cwlimits.report.chain
 
     folder, config = project
-    monkeypatch.setattr(cwlimits.analysis, "indirect_limits", _boom)
+    monkeypatch.setattr(cwlimits.report.chain, "indirect_limits", _boom)
     for case, out in _output_cases(tmp_path).items():
         err = refused(["report", str(config(str(out)))], capsys, folder)
         assert "output" in err and "cannot" in err, case
@@ -366,7 +366,7 @@ def test_refused_limits_leave_no_store_behind(tmp_path, capsys, limits_files, ex
 def test_two_processes_on_one_store_compute_each_chunk_once(tmp_path):
     from _chunk_jobs import toy_draws
 
-    from cwlimits.executor import map_chunks
+    from cwlimits.runtime.executor import map_chunks
 
     store_path = tmp_path / "s.sqlite"
     jobs = [subprocess.Popen([sys.executable, str(HERE / "_store_job.py"), str(store_path),
@@ -393,7 +393,7 @@ def test_two_processes_on_one_store_compute_each_chunk_once(tmp_path):
 def test_a_claim_of_a_dead_process_is_taken_over(tmp_path):
     from _chunk_jobs import toy_draws
 
-    from cwlimits.executor import map_chunks
+    from cwlimits.runtime.executor import map_chunks
 
     dead = subprocess.Popen([sys.executable, "-c", "pass"])
     dead.wait()

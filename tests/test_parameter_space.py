@@ -3,7 +3,7 @@ import numpy as np
 import pytest
 
 from cwlimits.errors import InputError, UnitsMismatchError
-from cwlimits.parameter_space import AgeBasedSpace, BoxSpace
+from cwlimits.searchspace.parameter_space import AgeBasedSpace, BoxSpace
 
 YR = 365.25 * 86400.0
 FDOT = u.Hz / u.s
@@ -89,7 +89,7 @@ def test_around_spin_box():
 def test_box_for_target(demo_catalogue_path):
     # reference: GW frequency 2 f_rot for a mass quadrupole (common practice); the fictional
     # demo catalogue's one target with a spin
-    from cwlimits.targets import load_targets
+    from cwlimits.targets.catalogue import load_targets
 
     cat = load_targets(demo_catalogue_path)
     star = cat.target("Fict Pulsar Cinder")

@@ -16,13 +16,13 @@ import numpy as np
 import pytest
 from astropy.table import QTable
 
-from cwlimits import planning as P
-from cwlimits.cli import main
-from cwlimits.cost import computing_cost
+from cwlimits.cli.app import main
 from cwlimits.errors import CwlimitsError, InputError
-from cwlimits.sensitivity import strain_sensitivity
-from cwlimits.setup import load_setup
-from cwlimits.targets import load_targets
+from cwlimits.planning import optimise as P
+from cwlimits.searchspace.cost import computing_cost
+from cwlimits.searchspace.searchsetup import load_setup
+from cwlimits.sensitivity.model import strain_sensitivity
+from cwlimits.targets.catalogue import load_targets
 
 # A small problem that keeps the suite fast: 10 bands of 2 Hz, spans of weeks.
 BAND = (100 * u.Hz, 120 * u.Hz)
@@ -70,7 +70,7 @@ def _model(target, case="nominal", **kw):
 # ---------------------------------------------------------------------------------------
 
 def test_cost_kernel_equals_computing_cost(target):
-    # the vectorised cost must be cwlimits.cost.computing_cost (same formula, same
+    # the vectorised cost must be cwlimits.searchspace.cost.computing_cost (same formula, same
     # thin-direction rule) to rounding, on random setups
     case_target, model, _, base = _model(target)
     rng = np.random.default_rng(7)
@@ -344,7 +344,7 @@ def test_plan_file_round_trip_through_cli(tmp_path, target, demo_catalogue_path_
                                           capsys):
     cat = str(demo_catalogue_path_module)
     # the plan file must reproduce the planned numbers through the other commands, bit
-    # for bit (the setup-file contract of cwlimits.setup)
+    # for bit (the setup-file contract of cwlimits.searchspace.searchsetup)
     plan_path = tmp_path / "plan.toml"
     rc = main(["plan", "--catalogue", cat, "--target", "Fict Quill", "--budget", "300 h",
                "--span", "40 day", "--noise", NOISE, "--out", str(plan_path),
@@ -406,8 +406,8 @@ def test_rank_cli_writes_table_plans_and_plots(tmp_path, capsys):
 
 def test_rank_cli_resumes_from_its_store(tmp_path, capsys):
     # issue 9: a rerun of the same ranking takes every target from the store
-    # (cwlimits.store: one committed chunk per target) and gives the same table
-    from cwlimits.store import open_store
+    # (cwlimits.runtime.store: one committed chunk per target) and gives the same table
+    from cwlimits.runtime.store import open_store
 
     _twin_catalogue(tmp_path / "twins.csv", 0.5, 5.0)
     out = tmp_path / "rank.csv"
@@ -483,7 +483,7 @@ def test_cli_catalogue_without_age(tmp_path, capsys):
 
 def test_plot_axes_have_units_and_log_scales(tmp_path, target):
     # house style (common practice): labelled axes with units, log axes, a legend
-    from cwlimits.planning_plots import plot_cost_depth, plot_planned_strain
+    from cwlimits.plotting.planning import plot_cost_depth, plot_planned_strain
 
     plans = [P.plan_search(target, NOISE, b * u.h, SPAN, **OPTIONS) for b in (10, 300)]
     for fig in (plot_cost_depth(plans), plot_planned_strain(plans)):
@@ -498,7 +498,7 @@ def test_plot_axes_have_units_and_log_scales(tmp_path, target):
 
 def test_rank_with_workers_gives_the_same_numbers(tmp_path):
     # map_chunks promises identical results on any executor (executor module contract)
-    from cwlimits.executor import make_executor
+    from cwlimits.runtime.executor import make_executor
 
     cat = _twin_catalogue(tmp_path / "twins.csv", 1.0, 3.0)
     kw = dict(OPTIONS, budget_steps=3)
@@ -565,7 +565,7 @@ SHARED_SHAPE_RTOL = 0.01
 
 
 def test_orientation_nodes_are_those_of_orientation_factor_rule():
-    from cwlimits.response import orientation_factor_rule, time_averages
+    from cwlimits.response.antenna import orientation_factor_rule, time_averages
 
     av = time_averages("H1,L1", load_targets(
         pathlib.Path(__file__).resolve().parent.parent / "target_lists" / "demo.csv"

@@ -6,8 +6,8 @@ import logging
 import numpy as np
 from _chunk_jobs import toy_draws
 
-from cwlimits.executor import map_chunks
-from cwlimits.progress import is_terminal, progress
+from cwlimits.runtime.executor import map_chunks
+from cwlimits.runtime.progress import is_terminal, progress
 
 
 class FakeTerminal(io.StringIO):
@@ -66,13 +66,13 @@ def test_map_chunks_reports_each_chunk_to_a_progress_callback():
 
 
 def test_map_chunks_logs_its_plan_and_chunks_for_verbose(caplog):
-    with caplog.at_level(logging.INFO, logger="cwlimits.executor"):
+    with caplog.at_level(logging.INFO, logger="cwlimits.runtime.executor"):
         map_chunks(toy_draws, {"x": np.arange(300.0)}, chunk_size=100, seed=1, desc="toy")
     messages = [r.getMessage() for r in caplog.records]
     assert messages[0].startswith("toy: 300 items in 3 chunks of 100; 0 chunks from the "
                                   "store, 3 to compute")
     assert sum("finished" in m for m in messages) == 3
     caplog.clear()
-    with caplog.at_level(logging.WARNING, logger="cwlimits.executor"):
+    with caplog.at_level(logging.WARNING, logger="cwlimits.runtime.executor"):
         map_chunks(toy_draws, {"x": np.arange(300.0)}, chunk_size=100, seed=1)
     assert caplog.records == []  # without --verbose the CLI logs warnings only

@@ -11,8 +11,8 @@ from scipy import special, stats
 import cwlimits
 from cwlimits.errors import InputError
 from cwlimits.pulsars import DUAL_HARMONIC, RMODE, harmonics, targeted_sensitivity
-from cwlimits.response import SIDEREAL_DAY
-from cwlimits.targets import Target
+from cwlimits.response.antenna import SIDEREAL_DAY
+from cwlimits.targets.catalogue import Target
 
 # Rule of thumb for the expected 95 % Bayesian upper limit of a targeted search with one
 # detector, uniform h0 and orientation priors, averaged over the sky: h95 ~ 10.8
@@ -139,7 +139,7 @@ def test_dual_harmonic_rows_and_spindown_ratio():
 
 
 def test_cli_targeted(tmp_path, capsys):
-    from cwlimits.cli import main
+    from cwlimits.cli.app import main
 
     cat = tmp_path / "c.csv"
     cat.write_text("name,ra,dec,distance,age,f_rot,fdot_rot\nP,1,2,1.5,,30,-4e-11\n"
@@ -160,7 +160,7 @@ def test_cli_targeted(tmp_path, capsys):
 
 
 def test_summary_of_every_known_pulsar_and_the_figure(tmp_path, capsys):
-    from cwlimits.cli import main
+    from cwlimits.cli.app import main
     from cwlimits.pulsars.data import add_noise, simulate_pulsar_signal, write_down_converted
     from cwlimits.pulsars.summary import known_pulsar_summary, sensitivity_curve
 

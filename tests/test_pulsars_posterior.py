@@ -8,7 +8,7 @@ import pytest
 from astropy.coordinates import SkyCoord
 
 import cwlimits
-from cwlimits.cli import main
+from cwlimits.cli.app import main
 from cwlimits.noise import get_noise
 from cwlimits.pulsars.data import (
     add_noise,
@@ -17,8 +17,8 @@ from cwlimits.pulsars.data import (
     write_down_converted,
 )
 from cwlimits.pulsars.posterior import pulsar_posterior, spindown_ratios
-from cwlimits.response import SIDEREAL_DAY
-from cwlimits.targets import Target
+from cwlimits.response.antenna import SIDEREAL_DAY
+from cwlimits.targets.catalogue import Target
 
 START = 1.3e9  # GPS s
 COARSE = {"n_h0": 80, "n_cosi": 12, "n_psi": 12}
@@ -325,10 +325,11 @@ def test_heterodyned_form_against_the_time_domain_formula(harmonic):
 
 
 def test_band_data_input_with_gaps():
-    # cwlimits.synthetic band data (noise of two levels, random gaps inside the segments),
+    # cwlimits.simulation.synthetic band data (noise of two levels, random gaps inside the
+    # segments),
     # a Doppler-modulated signal injected: pulsar_posterior down-converts it itself
     from cwlimits.pulsars.data import from_band_data
-    from cwlimits.synthetic import CWSignal, inject, simulate_noise
+    from cwlimits.simulation.synthetic import CWSignal, inject, simulate_noise
 
     t = _pulsar()
     starts = START + np.arange(8) * 5 * 3600.0

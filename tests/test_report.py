@@ -8,9 +8,9 @@ import numpy as np
 from astropy.table import QTable
 
 import cwlimits
-from cwlimits.cli import main
-from cwlimits.plots import plot_indirect_limits, plot_strain_curves
-from cwlimits.report import Report
+from cwlimits.cli.app import main
+from cwlimits.plotting.figures import plot_indirect_limits, plot_strain_curves
+from cwlimits.report.html import Report
 
 
 class _Links(html.parser.HTMLParser):
@@ -135,8 +135,8 @@ def test_plan_files_of_the_report_reproduce_its_numbers(demo_report):
     # issue 8: the report's numbers equal those of the individual commands
     import astropy.units as u
 
-    from cwlimits.sensitivity import strain_sensitivity
-    from cwlimits.setup import load_setup
+    from cwlimits.searchspace.searchsetup import load_setup
+    from cwlimits.sensitivity.model import strain_sensitivity
 
     plan = sorted(demo_report.glob("plan_*.toml"))[0]
     slug = plan.stem[len("plan_"):]

@@ -10,10 +10,10 @@ import astropy.units as u
 import numpy as np
 import pytest
 
-from cwlimits.analysis import run_report
-from cwlimits.config import load_config
-from cwlimits.report import Report
-from cwlimits.setup import SearchSetup
+from cwlimits.report.chain import run_report
+from cwlimits.report.config import load_config
+from cwlimits.report.html import Report
+from cwlimits.searchspace.searchsetup import SearchSetup
 
 # A label names its unit in brackets, says it is dimensionless, or is a category axis.
 _UNIT = re.compile(r"\[[^\]]+\]|dimensionless|^target$")
@@ -98,7 +98,7 @@ def test_svg_after_png_has_the_layout_matplotlib_gives_the_svg(tmp_path):
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from cwlimits.plots import new_figure, save_figure, tidy_log_axes
+    from cwlimits.plotting.figures import new_figure, save_figure, tidy_log_axes
 
     def make():
         fig, ax = new_figure()

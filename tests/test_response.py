@@ -16,9 +16,9 @@ from erfa import ErfaWarning
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from cwlimits import response as resp
-from cwlimits.cli import main
+from cwlimits.cli.app import main
 from cwlimits.errors import ConfigError, CwlimitsError, InputError, TableError
+from cwlimits.response import antenna as resp
 from cwlimits.tables import read_table
 
 # ------------------------------------------------------------------ reference values
@@ -571,7 +571,7 @@ def test_cli_plot_and_csv(tmp_path, capsys):
 
 
 def test_cli_catalogue_target(tmp_path, capsys):
-    targets = pytest.importorskip("cwlimits.targets")
+    targets = pytest.importorskip("cwlimits.targets.catalogue")
     cat = tmp_path / "cat.csv"
     cat.write_text("# fictional demo targets\nname,ra,dec,distance [kpc],age [yr]\n"
                    "Fictional A,187.5,-45,1.0,1000\n")

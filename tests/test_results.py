@@ -3,7 +3,7 @@ import numpy as np
 import pytest
 
 from cwlimits.errors import TableError
-from cwlimits.results import load_results
+from cwlimits.limits.results import load_results
 
 
 def test_read_lower_edges_and_sort(write_file):

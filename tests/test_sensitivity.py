@@ -3,11 +3,11 @@ import numpy as np
 import pytest
 
 import cwlimits
-from cwlimits.cli import main
+from cwlimits.cli.app import main
 from cwlimits.noise import band_psd, get_noise
-from cwlimits.response import SIDEREAL_DAY
-from cwlimits.sensitivity import sensitivity_depth, signal_model, strain_sensitivity
-from cwlimits.setup import SearchSetup
+from cwlimits.response.antenna import SIDEREAL_DAY
+from cwlimits.searchspace.searchsetup import SearchSetup
+from cwlimits.sensitivity.model import sensitivity_depth, signal_model, strain_sensitivity
 
 
 @pytest.fixture(scope="module")
@@ -173,8 +173,8 @@ def test_cli_unknown_target(in_repo, tmp_path, capsys):
 
 def test_tabulated_depths_equal_the_direct_solve(target):
     # the spline table of D(threshold) against a direct solve of every band (same core)
-    from cwlimits.detection import critical_depth, false_alarm_threshold
-    from cwlimits.sensitivity import _TABULATE_MIN, _depths
+    from cwlimits.sensitivity.model import _TABULATE_MIN, _depths
+    from cwlimits.statistics.detection import critical_depth, false_alarm_threshold
 
     setup = _setup(band=(100 * u.Hz, 300 * u.Hz), band_width=1 * u.Hz)
     model = signal_model(setup, "second-gen-fit", target)

@@ -5,7 +5,7 @@ import numpy as np
 import pytest
 
 from cwlimits.errors import ConfigError, InputError
-from cwlimits.setup import SETUP_KEYS, SearchSetup, load_setup
+from cwlimits.searchspace.searchsetup import SETUP_KEYS, SearchSetup, load_setup
 
 BAND = (50 * u.Hz, 60.5 * u.Hz)
 

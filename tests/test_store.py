@@ -17,8 +17,8 @@ import pytest
 from _chunk_jobs import toy_draws
 
 from cwlimits.errors import ComputationError, ConfigError, InputError
-from cwlimits.executor import map_chunks
-from cwlimits.store import (
+from cwlimits.runtime.executor import map_chunks
+from cwlimits.runtime.store import (
     STORE_NAME,
     ResultStore,
     canonical_json,
@@ -229,7 +229,7 @@ def test_the_job_script_records_its_configuration(tmp_path):
 
 def test_store_command_lists_and_clears(tmp_path, capsys):
     # 'cwlimits store': the runs and chunks a store holds, and deleting it
-    from cwlimits.cli import main
+    from cwlimits.cli.app import main
 
     with open_store(tmp_path) as store:
         run_id = store.begin_run({"command": "limits", "seed": 1})

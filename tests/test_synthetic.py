@@ -1,4 +1,4 @@
-"""Tests of cwlimits.synthetic: noise PSD against scipy.signal.welch, the band-series
+"""Tests of cwlimits.simulation.synthetic: noise PSD against scipy.signal.welch, the band-series
 normalisation against an FFT heterodyne of real series, and the signal model against the
 antenna patterns of the response module (JKS 1998)."""
 
@@ -11,10 +11,10 @@ import scipy.signal
 from astropy import constants as const
 from astropy.coordinates import BarycentricMeanEcliptic, SkyCoord
 
-from cwlimits import synthetic as sy
 from cwlimits.errors import CwlimitsError, InputError, OutOfRangeError
 from cwlimits.noise import get_noise
-from cwlimits.response import amplitude_modulation, antenna_patterns, get_detector
+from cwlimits.response.antenna import amplitude_modulation, antenna_patterns, get_detector
+from cwlimits.simulation import synthetic as sy
 
 # ------------------------------------------------------------------ reference values
 # Mean sidereal day, 86164.0905 s (IERS Conventions; from memory): the antenna patterns
@@ -30,7 +30,7 @@ PSD = 4e-46 * u.Hz**-1
 
 def test_band_noise_variance_and_two_sided_psd_match_welch():
     # Complex white noise of one-sided PSD S_n in a band B: E|z|^2 = S_n B / 2, i.e. a flat
-    # two-sided PSD S_n / 2 (derivation in cwlimits.synthetic).  Check against
+    # two-sided PSD S_n / 2 (derivation in cwlimits.simulation.synthetic).  Check against
     # scipy.signal.welch (two-sided, boxcar, no overlap: independent exponential bins).
     b = 0.5 * u.Hz
     data = sy.simulate_noise("H1", PSD, 100 * u.Hz, b, 8192 * u.s,

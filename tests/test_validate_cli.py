@@ -1,4 +1,4 @@
-"""Tests of ``cwlimits validate`` and ``cwlimits calibrate`` through ``cwlimits.cli.main``."""
+"""Tests of ``cwlimits validate`` and ``cwlimits calibrate`` through ``cwlimits.cli.app.main``."""
 
 import math
 
@@ -7,10 +7,10 @@ import numpy as np
 import pytest
 from astropy.table import QTable
 
-from cwlimits import validation
-from cwlimits.cli import main
-from cwlimits.setup import DEFAULT_UNIT_COSTS, load_setup
-from cwlimits.store import STORE_NAME, open_store
+from cwlimits.cli.app import main
+from cwlimits.runtime.store import STORE_NAME, open_store
+from cwlimits.searchspace.searchsetup import DEFAULT_UNIT_COSTS, load_setup
+from cwlimits.simulation import campaigns as validation
 
 TARGET = "Fict Ember"  # a fictional demo target (target_lists/demo.csv)
 

@@ -1,5 +1,6 @@
-"""Tests of cwlimits.validation: simulated searches against the semi-analytic model of
-cwlimits.detection (StackSlide 2F ~ non-central chi^2_{4N}, Wette 2012, arXiv:1111.5650)."""
+"""Tests of cwlimits.simulation.campaigns: simulated searches against the semi-analytic model of
+cwlimits.statistics.detection (StackSlide 2F ~ non-central chi^2_{4N}, Wette 2012,
+arXiv:1111.5650)."""
 
 from dataclasses import replace
 
@@ -10,15 +11,15 @@ from astropy.coordinates import SkyCoord
 from scipy import stats
 
 from cwlimits.errors import InputError
-from cwlimits.fstat import stackslide_fstat
-from cwlimits.store import open_store
-from cwlimits.synthetic import _jks_amplitudes, _signal_from_amplitudes, simulate_noise
-from cwlimits.validation import (
+from cwlimits.runtime.store import open_store
+from cwlimits.simulation.campaigns import (
     _campaign_chunk,
     injection_campaign,
     plot_efficiency,
     simulation_layout,
 )
+from cwlimits.simulation.fstat import stackslide_fstat
+from cwlimits.simulation.synthetic import _jks_amplitudes, _signal_from_amplitudes, simulate_noise
 
 SKY = SkyCoord("3h10m", "+20d")  # an arbitrary test direction (not a real object)
 # Binomial counts: |k - n P| / sqrt(n P (1 - P)) below this (>= 3 sigma, BRIEF).

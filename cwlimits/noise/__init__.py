@@ -8,13 +8,19 @@ data-time-weighted combination of detectors and stretches (:func:`combine_noise`
 a grid, and :func:`get_noise` turns a model name or a file path into a source.
 """
 
-from ._base import NoiseSource, band_psd
-from .combine import EffectiveNoise, combine_noise, estimate_stretches
-from .estimate import EstimatedNoise, band_floor, estimate_psd, median_bias, read_timeseries
-from .files import TabulatedNoise, read_noise_file
-from .models import DEFAULT_NOISE_MODEL, NOISE_MODELS, AnalyticNoise, noise_model
-from .plot import plot_asd
-from .resolve import get_noise
+from cwlimits.noise._base import NoiseSource, band_psd
+from cwlimits.noise.combine import EffectiveNoise, combine_noise, estimate_stretches
+from cwlimits.noise.estimate import (
+    EstimatedNoise,
+    band_floor,
+    estimate_psd,
+    median_bias,
+    read_timeseries,
+)
+from cwlimits.noise.files import TabulatedNoise, read_noise_file
+from cwlimits.noise.models import DEFAULT_NOISE_MODEL, NOISE_MODELS, AnalyticNoise, noise_model
+from cwlimits.noise.resolve import get_noise
+from cwlimits.plotting.noise import plot_asd
 
 __all__ = [
     "NoiseSource",

@@ -8,8 +8,8 @@ a strain time series, or a data-time-weighted combination of those.
 import astropy.units as u
 import numpy as np
 
-from .._units import to_value
-from ..errors import InputError, OutOfRangeError
+from cwlimits._units import to_value
+from cwlimits.errors import InputError, OutOfRangeError
 
 __all__ = ["NoiseSource", "band_psd"]
 

@@ -17,10 +17,10 @@ with duty factor d contributes T_k = d * T_obs.
 import astropy.units as u
 import numpy as np
 
-from .._units import to_value
-from ..errors import InputError
-from ._base import NoiseSource
-from .estimate import estimate_psd
+from cwlimits._units import to_value
+from cwlimits.errors import InputError
+from cwlimits.noise._base import NoiseSource
+from cwlimits.noise.estimate import estimate_psd
 
 __all__ = ["EffectiveNoise", "combine_noise", "estimate_stretches"]
 

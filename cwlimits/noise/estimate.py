@@ -30,11 +30,17 @@ import numpy as np
 import scipy.signal
 from scipy.special import digamma
 
-from .._units import parse_quantity, to_value
-from ..errors import InputError, TableError
-from ..tables import read_table
-from ._base import PSD_UNIT, _band_edges_hz
-from .files import TabulatedNoise, _data_lines, _is_numeric_line, _read_plain, _read_text
+from cwlimits._units import parse_quantity, to_value
+from cwlimits.errors import InputError, TableError
+from cwlimits.noise._base import PSD_UNIT, _band_edges_hz
+from cwlimits.noise.files import (
+    TabulatedNoise,
+    _data_lines,
+    _is_numeric_line,
+    _read_plain,
+    _read_text,
+)
+from cwlimits.tables import read_table
 
 __all__ = ["EstimatedNoise", "estimate_psd", "band_floor", "median_bias", "read_timeseries"]
 

@@ -12,10 +12,10 @@ from pathlib import Path
 import astropy.units as u
 import numpy as np
 
-from .._units import to_value
-from ..errors import InputError, TableError
-from ..tables import read_table
-from ._base import ASD_UNIT, PSD_UNIT, NoiseSource
+from cwlimits._units import to_value
+from cwlimits.errors import InputError, TableError
+from cwlimits.noise._base import ASD_UNIT, PSD_UNIT, NoiseSource
+from cwlimits.tables import read_table
 
 __all__ = ["TabulatedNoise", "read_noise_file"]
 

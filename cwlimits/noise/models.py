@@ -18,9 +18,9 @@ third-gen-fit       third-generation design                    200 Hz     1 Hz  
 Names of earlier versions of cwlimits are refused with a message naming the new one.
 """
 
-from .. import _defaults
-from ..errors import InputError
-from ._base import NoiseSource
+from cwlimits import _defaults
+from cwlimits.errors import InputError
+from cwlimits.noise._base import NoiseSource
 
 __all__ = ["AnalyticNoise", "NOISE_MODELS", "DEFAULT_NOISE_MODEL", "noise_model"]
 

@@ -2,10 +2,10 @@
 
 from pathlib import Path
 
-from ..errors import InputError
-from ._base import NoiseSource
-from .files import read_noise_file
-from .models import _RETIRED_NOISE_MODELS, NOISE_MODELS, noise_model
+from cwlimits.errors import InputError
+from cwlimits.noise._base import NoiseSource
+from cwlimits.noise.files import read_noise_file
+from cwlimits.noise.models import _RETIRED_NOISE_MODELS, NOISE_MODELS, noise_model
 
 __all__ = ["get_noise"]
 

@@ -25,7 +25,7 @@ column         unit    meaning
 A noiseless signal y in this format is h0 e^{i phi0} [(1 + cos^2 iota)/4 F+ -
 (i cos iota / 2) Fx] (see :mod:`.likelihood`): the complex heterodyne has no factor 2.
 Noise of one-sided PSD S_n averaged over dt has sigma^2 = S_n / (4 dt) per part (the
-normalisation of :mod:`cwlimits.synthetic`, whose band series has variance S_n B / 4 per
+normalisation of :mod:`cwlimits.simulation.synthetic`, whose band series has variance S_n B / 4 per
 part at rate B).
 
 Every problem (non-monotonic times, a NaN sample, a detector the setup does not have, a
@@ -39,12 +39,12 @@ import astropy.units as u
 import numpy as np
 from astropy.table import QTable
 
-from .. import _defaults
-from .._units import to_value
-from ..errors import InputError, TableError
-from ..response import amplitude_modulation, get_detector
-from ..tables import read_table, write_table
-from .likelihood import StretchSums
+from cwlimits import _defaults
+from cwlimits._units import to_value
+from cwlimits.errors import InputError, TableError
+from cwlimits.pulsars.likelihood import StretchSums
+from cwlimits.response.antenna import amplitude_modulation, get_detector
+from cwlimits.tables import read_table, write_table
 
 __all__ = ["DownConvertedData", "read_down_converted", "write_down_converted",
            "from_band_data", "simulate_pulsar_signal", "add_noise", "stretch_sums",
@@ -113,7 +113,7 @@ class DownConvertedData:
     def modulation(self, coord):
         """sin(zeta) a(t) and sin(zeta) b(t) at every sample (cached per sky position).
 
-        From :func:`cwlimits.response.amplitude_modulation` (JKS 1998, eqs. 10-13).
+        From :func:`cwlimits.response.antenna.amplitude_modulation` (JKS 1998, eqs. 10-13).
         """
         key = (float(coord.icrs.ra.rad), float(coord.icrs.dec.rad))
         if key not in self._cache:
@@ -134,7 +134,7 @@ class DownConvertedData:
         The form of :mod:`.likelihood` (Dupuis & Woan 2005, eq. 4); the full simulation
         with Doppler (:func:`simulate_pulsar_signal`) gives the same (tested).
         """
-        from .likelihood import orientation_coefficients
+        from cwlimits.pulsars.likelihood import orientation_coefficients
 
         a, b = self.modulation(coord)
         p, q = orientation_coefficients(cosi, psi_rad, harmonic)
@@ -310,7 +310,7 @@ def stretch_sums(data, coord):
 
 
 def from_band_data(band, target, *, harmonic=2.0, average=None, doppler=True):
-    """Down-convert a :class:`~cwlimits.synthetic.BandData` with a known pulsar's phase.
+    """Down-convert a :class:`~cwlimits.simulation.synthetic.BandData` with a known pulsar's phase.
 
     Each sample is multiplied by exp(-i dPhi) with dPhi the heterodyned template phase of
     the harmonic (f = k f_rot, fdot = k fdot_rot, fddot = k fddot_rot at the band's
@@ -377,7 +377,7 @@ def simulate_pulsar_signal(target, detectors, start, n_stretches, stretch_length
     """Simulated down-converted data of a known pulsar (noiseless signal, sigma set).
 
     The signal is made the long way, to exercise the Doppler modulation: band data of
-    :mod:`cwlimits.synthetic` around the harmonic's frequency (bandwidth wide enough for
+    :mod:`cwlimits.simulation.synthetic` around the harmonic's frequency (bandwidth wide enough for
     the Doppler shift), the signal injected with ``doppler``, then :func:`from_band_data`.
     Add noise with :func:`add_noise`.
 
@@ -411,8 +411,8 @@ def simulate_pulsar_signal(target, detectors, start, n_stretches, stretch_length
         lost without it).
     rng : None, int or Generator
     """
-    from ..response import get_detectors
-    from ..synthetic import BandData, CWSignal, inject
+    from cwlimits.response.antenna import get_detectors
+    from cwlimits.simulation.synthetic import BandData, CWSignal, inject
 
     rng = np.random.default_rng(rng)
     dets = get_detectors(detectors)

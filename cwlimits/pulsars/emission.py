@@ -24,7 +24,7 @@ from dataclasses import dataclass
 
 import astropy.units as u
 
-from ..errors import InputError
+from cwlimits.errors import InputError
 
 __all__ = ["EmissionModel", "SINGLE_HARMONIC", "DUAL_HARMONIC", "RMODE", "EMISSION_MODELS",
            "get_emission", "harmonics"]

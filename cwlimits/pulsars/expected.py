@@ -9,15 +9,17 @@
   set by the network's antenna-pattern time averages A, B, C (Jaranowski, Krolak & Schutz
   1998, gr-qc/9804014), the data time and the noise: S_aa = 4 sum_d T_d sin^2(zeta_d) A_d /
   S_d (and likewise B, C), for samples whose real and imaginary parts have variance
-  S_n B / 4 (the normalisation of :mod:`cwlimits.synthetic`).  The result is reported with
+  S_n B / 4 (the normalisation of :mod:`cwlimits.simulation.synthetic`).  The result is reported
+  with
   the factor K = h95 / sqrt(S_eff / T_eff) for comparison with the published rule of thumb.
 * **Narrow-band** (the spin is known only to within a box larger than one template): a
   fully coherent F-statistic search over the box.  The template count comes from the
-  coherent metric of :mod:`cwlimits.metric` (:func:`cwlimits.cost.count_templates` with one
+  coherent metric of :mod:`cwlimits.searchspace.metric`
+  (:func:`cwlimits.searchspace.cost.count_templates` with one
   segment as long as the span); the threshold carries the trials factor
-  (:func:`cwlimits.detection.false_alarm_threshold`); the sensitivity is the h0 detected
+  (:func:`cwlimits.statistics.detection.false_alarm_threshold`); the sensitivity is the h0 detected
   with probability ``confidence`` above it, averaged over the orientation prior and the
-  lattice mismatch (:func:`cwlimits.detection.solve_amplitude`; Wette 2012,
+  lattice mismatch (:func:`cwlimits.statistics.detection.solve_amplitude`; Wette 2012,
   arXiv:1111.5650); the cost is N_templates x N_det x the coherent unit cost.
 * **Choice** (``kind='auto'``): targeted when the timing box (``n_sigma`` times the
   catalogue uncertainties, scaled to the harmonic) has a metric mismatch below the
@@ -31,21 +33,21 @@ import astropy.units as u
 import numpy as np
 from astropy.table import QTable
 
-from .. import _defaults
-from .._units import to_value
-from ..cost import count_templates
-from ..detection import QuadratureRule, false_alarm_threshold, solve_amplitude
-from ..errors import InputError
-from ..indirect import spindown_limit
-from ..lattices import sample_mismatch
-from ..metric import coherent_metric
-from ..noise import DEFAULT_NOISE_MODEL
-from ..parameter_space import BoxSpace
-from ..response import orientation_factor, time_averages
-from ..sensitivity import DEFAULT_START
-from .emission import get_emission, harmonics
-from .grid import OrientationPrior, grid_posterior_known, quantile_from_grid
-from .likelihood import noise_only_sums
+from cwlimits import _defaults
+from cwlimits._units import to_value
+from cwlimits.errors import InputError
+from cwlimits.noise import DEFAULT_NOISE_MODEL
+from cwlimits.pulsars.emission import get_emission, harmonics
+from cwlimits.pulsars.grid import OrientationPrior, grid_posterior_known, quantile_from_grid
+from cwlimits.pulsars.likelihood import noise_only_sums
+from cwlimits.response.antenna import orientation_factor, time_averages
+from cwlimits.searchspace.cost import count_templates
+from cwlimits.searchspace.lattices import sample_mismatch
+from cwlimits.searchspace.metric import coherent_metric
+from cwlimits.searchspace.parameter_space import BoxSpace
+from cwlimits.sensitivity.model import DEFAULT_START
+from cwlimits.statistics.detection import QuadratureRule, false_alarm_threshold, solve_amplitude
+from cwlimits.targets.indirect import spindown_limit
 
 __all__ = ["targeted_sensitivity", "network_sums", "coherent_mismatch", "KINDS",
            "DEFAULT_N_SIGMA"]
@@ -72,7 +74,7 @@ def coherent_mismatch(setup):
 
 
 def _noise_psd(noise, detectors, f_hz):
-    from ..noise import get_noise
+    from cwlimits.noise import get_noise
 
     if isinstance(noise, dict):
         missing = [d for d in detectors if d not in noise]
@@ -239,7 +241,7 @@ def targeted_sensitivity(target, setup, noise=DEFAULT_NOISE_MODEL, *, kind="auto
     Dupuis & Woan 2005, arXiv:gr-qc/0508096 (the Bayesian targeted limit); Prix 2007,
     arXiv:0707.0428 (template counting); Wette 2012, arXiv:1111.5650 (sensitivity).
     """
-    from ..fiducial import DEFAULT_MOMENT_OF_INERTIA
+    from cwlimits.targets.fiducial import DEFAULT_MOMENT_OF_INERTIA
 
     inertia = DEFAULT_MOMENT_OF_INERTIA if moment_of_inertia is None else moment_of_inertia
     if kind not in KINDS:

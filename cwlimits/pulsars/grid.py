@@ -19,8 +19,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import special, stats
 
-from ..errors import InputError
-from .likelihood import known_noise_log_likelihood, orientation_coefficients
+from cwlimits.errors import InputError
+from cwlimits.pulsars.likelihood import known_noise_log_likelihood, orientation_coefficients
 
 __all__ = ["OrientationPrior", "H0_PRIORS", "h0_grid", "grid_posterior_known", "zoom_window",
            "quantile_from_grid", "DEFAULT_GRID", "MAX_GRID_POINTS", "check_grid"]

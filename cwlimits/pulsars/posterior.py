@@ -29,13 +29,10 @@ import numpy as np
 from astropy.table import QTable
 from scipy import special
 
-from .. import _defaults
-from ..conversions import ellipticity, mass_quadrupole
-from ..errors import InputError
-from ..fiducial import DEFAULT_MOMENT_OF_INERTIA
-from ..indirect import spindown_limit
-from .data import DownConvertedData, stretch_sums
-from .grid import (
+from cwlimits import _defaults
+from cwlimits.errors import InputError
+from cwlimits.pulsars.data import DownConvertedData, stretch_sums
+from cwlimits.pulsars.grid import (
     H0_PRIORS,
     OrientationPrior,
     _h0_weights,
@@ -47,7 +44,10 @@ from .grid import (
     quantile_from_grid,
     zoom_window,
 )
-from .likelihood import orientation_coefficients, student_log_likelihood
+from cwlimits.pulsars.likelihood import orientation_coefficients, student_log_likelihood
+from cwlimits.targets.conversions import ellipticity, mass_quadrupole
+from cwlimits.targets.fiducial import DEFAULT_MOMENT_OF_INERTIA
+from cwlimits.targets.indirect import spindown_limit
 
 __all__ = ["PulsarPosterior", "pulsar_posterior", "limit_table", "spindown_ratios",
            "NOISE_MODES", "SAMPLERS", "HARMONICS"]
@@ -154,7 +154,7 @@ def pulsar_posterior(data, target, *, noise="student-t", h0_prior="uniform", h0_
     Parameters
     ----------
     data : DownConvertedData, BandData or str/Path
-        Down-converted samples (:mod:`.data`), band data of :mod:`cwlimits.synthetic`
+        Down-converted samples (:mod:`.data`), band data of :mod:`cwlimits.simulation.synthetic`
         (down-converted here with the target's timing solution and Doppler), or a file.
     target : Target
         A known pulsar: its position sets the antenna patterns; its ``cosi``/``psi``
@@ -251,8 +251,8 @@ def pulsar_posterior(data, target, *, noise="student-t", h0_prior="uniform", h0_
 
 
 def _as_data(data, target, harmonic):
-    from ..synthetic import BandData
-    from .data import from_band_data, read_down_converted
+    from cwlimits.pulsars.data import from_band_data, read_down_converted
+    from cwlimits.simulation.synthetic import BandData
 
     if isinstance(data, DownConvertedData):
         return data

@@ -13,12 +13,12 @@ import astropy.units as u
 import numpy as np
 from astropy.table import QTable
 
-from ..errors import InputError
-from ..fiducial import DEFAULT_MOMENT_OF_INERTIA
-from ..noise import DEFAULT_NOISE_MODEL
-from ..sensitivity import DEFAULT_START
-from .expected import _noise_psd, targeted_sensitivity
-from .posterior import pulsar_posterior, spindown_ratios
+from cwlimits.errors import InputError
+from cwlimits.noise import DEFAULT_NOISE_MODEL
+from cwlimits.pulsars.expected import _noise_psd, targeted_sensitivity
+from cwlimits.pulsars.posterior import pulsar_posterior, spindown_ratios
+from cwlimits.sensitivity.model import DEFAULT_START
+from cwlimits.targets.fiducial import DEFAULT_MOMENT_OF_INERTIA
 
 __all__ = ["known_pulsar_summary", "sensitivity_curve"]
 

@@ -1,0 +1,329 @@
+"""``cwlimits response``: a network's response to a CW source at a sky position."""
+
+import io
+import re
+import warnings
+
+from cwlimits._defaults import PLOT_SUFFIXES, builtin_detector_names
+from cwlimits.cli.commands._common import (
+    add_parser,
+    add_target_args,
+    check_output_path,
+    echo,
+    format_assumptions,
+    format_rows,
+    quantity_arg,
+    resolve_target,
+)
+from cwlimits.errors import InputError
+
+__all__ = ["ORDER", "register", "run"]
+
+ORDER = 35
+
+_QUANTILES = (0.05, 0.10, 0.25, 0.50, 0.75, 0.90, 0.95)
+#: Column names of the antenna-pattern averages: <a^2>, <b^2>, <ab> over the data and
+#: <a^2><b^2> - <ab>^2: A, B, C and D = AB - C^2 in the notation of Jaranowski, Krolak &
+#: Schutz 1998, gr-qc/9804014 (Sect. III).
+_AVERAGE_COLUMNS = ("mean_a2", "mean_b2", "mean_ab", "determinant")
+
+
+def register(subparsers, common):
+    """Add the ``response`` subcommand."""
+    parser = add_parser(
+        subparsers, common, "response",
+        help="antenna-pattern averages A, B, C and the orientation factor R^2",
+        description="Average a network's antenna patterns over an observation for one sky "
+                    "position and give the distribution of the orientation factor R^2 "
+                    "(rho^2 = R^2 h0^2 T_data / S_n) over uniform cos(iota) and psi.",
+        examples=[
+            "cwlimits response --ra 12h30m --dec -45d --detectors H1,L1 "
+            "--start 2030-01-01T00:00:00 --span 1yr --duty 0.7",
+            "cwlimits response --catalogue targets.csv --target 'Fictional A' "
+            "--detectors H1,L1,V1 --start 2030-01-01 --span 180d --out response.ecsv",
+            "cwlimits response --ra 187.5 --dec -45 --detectors X1 --start 2030-01-01 "
+            "--plot daily.png",
+        ])
+    # Let a declination such as "-45d" or "-45:30:00" follow --dec without "=": argparse
+    # otherwise takes anything starting with "-" and not a plain number for an option.
+    # (This parser has no option that looks like a negative number.)
+    if hasattr(parser, "_negative_number_matcher"):
+        parser._negative_number_matcher = re.compile(r"^-(\d|\.\d)")
+    where = parser.add_argument_group("sky position (RA/Dec or a catalogue target)")
+    where.add_argument("--ra", help="right ascension, anything astropy SkyCoord parses "
+                       "(12h30m, 12:30:00 in hours, 187.5 in deg)")
+    where.add_argument("--dec", help="declination (-45d, -45:00:00, -45 in deg)")
+    add_target_args(where, required=False)
+    parser.add_argument("--detectors", default="H1,L1",
+                        help="comma-separated detector codes (built in: "
+                             f"{', '.join(builtin_detector_names())}; default H1,L1)")
+    parser.add_argument("--detector-file", metavar="FILE",
+                        help="CSV or TOML file defining more detectors (see the docs)")
+    parser.add_argument("--start", required=True,
+                        help="start of the observation: ISO date (UTC) or GPS seconds")
+    parser.add_argument("--span", type=quantity_arg("d", "span"), default="365.25 d",
+                        help="length of the observation (default 365.25 d)")
+    parser.add_argument("--duty", default="1",
+                        help="duty factor in (0, 1], one value or one per detector "
+                             "(comma-separated; default 1)")
+    parser.add_argument("--weights",
+                        help="relative weights proportional to 1/S_n, one per detector "
+                             "(comma-separated; default equal)")
+    parser.add_argument("--order", type=int, default=48,
+                        help="quadrature nodes per dimension for the R^2 quantiles "
+                             "(default 48)")
+    parser.add_argument("--out", metavar="FILE", help="write a table (.csv or .ecsv)")
+    parser.add_argument("--plot", metavar="FILE",
+                        help="plot a(t), b(t) over one sidereal day (.png, .pdf, .svg)")
+    parser.set_defaults(run=run)
+
+
+def _numbers(text, name):
+    import numpy as np
+
+
+    try:
+        values = [float(x) for x in str(text).split(",") if x.strip()]
+    except ValueError:
+        raise InputError(f"--{name}: expected numbers separated by commas",
+                         value=text) from None
+    if not values:
+        raise InputError(f"--{name}: expected at least one number", value=text)
+    return values[0] if len(values) == 1 else np.array(values)
+
+
+def _sky_position(args):
+    import astropy.units as u
+    from astropy.coordinates import SkyCoord
+
+
+    if args.catalogue or args.target:
+        if not (args.catalogue and args.target) or args.ra or args.dec:
+            raise InputError("give --catalogue FILE with --target NAME, or --ra with --dec")
+        target = resolve_target(args)
+        return target.coord, f"target {target.name} in {args.catalogue}"
+    if not (args.ra and args.dec):
+        raise InputError("give a sky position: --ra and --dec, or --catalogue and --target")
+    ra = _angle(args.ra, "--ra", u.hourangle if ":" in args.ra else u.deg)
+    dec = _angle(args.dec, "--dec", u.deg)
+    # Out-of-range angles are errors, as in catalogues: astropy would wrap 25h to 01h.
+    if not 0 <= ra.deg < 360 * (1 - 1e-15):
+        raise InputError("--ra: right ascension must lie in [0h, 24h) = [0, 360) deg",
+                         value=args.ra)
+    if not -90 <= dec.deg <= 90:
+        raise InputError("--dec: declination must lie in [-90, 90] deg", value=args.dec)
+    return SkyCoord(ra, dec), f"RA {args.ra}, Dec {args.dec}"
+
+
+def _angle(text, option, bare_unit):
+    """``text`` as an astropy Angle: with its own unit, else in ``bare_unit``."""
+    import astropy.units as u
+    import numpy as np
+    from astropy.coordinates import Angle
+    from astropy.utils.exceptions import AstropyWarning
+
+    try:
+        with warnings.catch_warnings():
+            # astropy warns about 24h or 75 minutes and goes on; for us that is bad input
+            warnings.simplefilter("error", AstropyWarning)
+            try:
+                angle = Angle(text)
+            except (u.UnitsError, ValueError):
+                angle = Angle(text, unit=bare_unit)
+        value = float(angle.deg)
+    except (ValueError, TypeError, u.UnitsError, AstropyWarning) as exc:
+        raise InputError(f"{option}: cannot read the sky position ({exc}); e.g. --ra 12h30m "
+                         "--dec -45d", value=text) from None
+    if not np.isfinite(value) or np.ndim(angle.deg) != 0:
+        raise InputError(f"{option}: needs one finite angle", value=text)
+    return angle
+
+
+def run(args):
+    """Run ``cwlimits response``; return the exit code."""
+    import astropy.units as u
+    import numpy as np
+
+    from cwlimits._files import atomic_write
+    from cwlimits._sizes import check_size
+    from cwlimits.response import antenna as resp
+
+
+
+    out = check_output_path(args.out)
+    plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
+    extra = resp.load_detectors(args.detector_file) if args.detector_file else None
+    detectors = resp.get_detectors(args.detectors, extra)
+    coord, where = _sky_position(args)
+    if args.order < 1:
+        raise InputError("--order must be at least 1", value=args.order)
+    check_size("quadrature", float(args.order) ** 2, f"--order {args.order}")
+    duty = _numbers(args.duty, "duty")
+    weights = None if args.weights is None else _numbers(args.weights, "weights")
+    averages = resp.time_averages(detectors, coord, args.start, args.span, duty=duty,
+                                  weights=weights)
+    R2, w = resp.orientation_factor_rule(averages, order=args.order)
+    network = _summary(R2, w)
+    single = []
+    for i, det in enumerate(detectors):
+        sz = np.sin(det.zeta) ** 2
+        r2, wd = resp.orientation_factor_rule(
+            _one(averages, i, sz), order=args.order)
+        single.append(_summary(r2, wd))
+
+    # Formatting future UTC dates makes ERFA warn "dubious year"; see cwlimits.response.
+    with resp._QuietTime():
+        assumptions = _assumptions(averages, where, args)
+        echo(args, f"sky position: {where} (ICRS {coord.to_string('hmsdms')})")
+        headers = ["detector", "weight", "T_data [d]", *_AVERAGE_COLUMNS, "mean R^2"]
+        rows = []
+        for i, det in enumerate(detectors):
+            a, b, c = (float(x[i]) for x in (averages.A_det, averages.B_det, averages.C_det))
+            rows.append([det.name, f"{averages.weights[i]:.4f}",
+                         f"{averages.t_data[i].to_value(u.d):.3f}", f"{a:.6f}", f"{b:.6f}",
+                         f"{c:+.6f}", f"{a * b - c * c:.6f}", f"{single[i]['mean']:.5f}"])
+        rows.append(["network", "1", f"{np.sum(averages.t_data.to_value(u.d)):.3f}",
+                     f"{float(averages.A):.6f}", f"{float(averages.B):.6f}",
+                     f"{float(averages.C):+.6f}", f"{float(averages.D):.6f}",
+                     f"{network['mean']:.5f}"])
+        echo(args, format_rows(headers, rows))
+        echo(args)
+        echo(args, "network R^2 over uniform cos(iota) in [-1, 1] and psi "
+                   "(rho^2 = R^2 h0^2 T_data / S_n):")
+        echo(args, "  mean " + f"{network['mean']:.5f}   " + "   ".join(
+            f"q{int(round(100 * q)):02d} {v:.5f}" for q, v in zip(_QUANTILES, network['q'],
+                                                                     strict=True)))
+        echo(args)
+        echo(args, format_assumptions(assumptions))
+        # The figure is drawn into memory first and written only once the table is, so
+        # a failure leaves neither behind.
+        figure = _plot(plot, detectors, coord, averages.start) if plot is not None else None
+        if out is not None:
+            _write(out, detectors, averages, network, single, assumptions)
+            echo(args, f"wrote {out}")
+        if figure is not None:
+            atomic_write(plot, lambda handle: handle.write(figure), binary=True)
+            echo(args, f"wrote {plot}")
+    return 0
+
+
+def _one(averages, i, sin2zeta):
+    """ResponseAverages of detector i alone (for its own R^2 quantiles)."""
+    from cwlimits.response import antenna as resp
+
+
+    fields = dict(averages.__dict__)
+    fields.update(A=averages.A_det[i] * sin2zeta, B=averages.B_det[i] * sin2zeta,
+                  C=averages.C_det[i] * sin2zeta)
+    return resp.ResponseAverages(**fields)
+
+
+def _summary(R2, w):
+    import numpy as np
+
+    from cwlimits.response import antenna as resp
+
+
+
+    return {"mean": float(np.sum(R2.value * w)),
+            "q": [float(x) for x in resp.weighted_quantiles(R2, w, _QUANTILES)]}
+
+
+def _assumptions(averages, where, args):
+    """The assumptions behind the numbers, printed and written with the table."""
+    import astropy.units as u
+
+
+    return {
+        "sky_position": where,
+        "start": f"{averages.start.isot} UTC",
+        "span": f"{averages.span.to(u.d):.6g}",
+        "duty": args.duty,
+        "weights": args.weights or "equal (proportional to 1/S_n)",
+        "averages": f"{averages.method}; data gaps spread evenly over the span",
+        "apparent_coordinates": f"TETE at the middle of the span ({averages.epoch.isot})",
+        "earth_orientation": "bundled IERS tables, UT1 = UTC outside them; no polar motion",
+        "R2": "rho^2 = R^2 h0^2 T_data/S_n (network: h0^2 R^2 sum_d weight_d T_d/S_d); "
+              "R^2 = A alpha1 + B alpha2 + 2 C alpha3 with A+ = (1+cosi^2)/2, Ax = cosi, "
+              "sin^2(zeta) in the network A, B, C (JKS 1998 gr-qc/9804014)",
+        "columns": "mean_a2, mean_b2, mean_ab = the time averages <a^2>, <b^2>, <ab> of the "
+                   "antenna-pattern functions a(t), b(t) (A, B, C of JKS 1998); determinant "
+                   "= mean_a2 mean_b2 - mean_ab^2 (their D)",
+        "average_rows": "detector rows: <a^2>, <b^2>, <ab> without sin^2(zeta); network "
+                        "row: weighted sum with sin^2(zeta); site columns nan on it",
+        "R2_quantiles": f"quadrature rule, {args.order}x{args.order} nodes, uniform "
+                        "cos(iota) in [-1,1] and psi",
+    }
+
+
+def _write(out, detectors, averages, network, single, assumptions):
+    import astropy.units as u
+    import numpy as np
+    from astropy.table import QTable
+
+
+    names = [d.name for d in detectors] + ["network"]
+    nan = [np.nan]
+    table = QTable()
+    table["detector"] = names
+    table["latitude"] = [d.latitude.to_value(u.deg) for d in detectors] + nan << u.deg
+    table["longitude"] = [d.longitude.to_value(u.deg) for d in detectors] + nan << u.deg
+    table["gamma"] = [d.gamma.to_value(u.deg) for d in detectors] + nan << u.deg
+    table["zeta"] = [d.zeta.to_value(u.deg) for d in detectors] + nan << u.deg
+    table["weight"] = list(averages.weights) + [1.0] << u.one
+    table["t_data"] = list(averages.t_data.to_value(u.d)) + [
+        float(np.sum(averages.t_data.to_value(u.d)))] << u.d
+    for key, column in zip(("A", "B", "C"), _AVERAGE_COLUMNS[:3], strict=True):
+        per = getattr(averages, f"{key}_det").to_value(u.one)
+        table[column] = list(per) + [float(getattr(averages, key))] << u.one
+    table["determinant"] = table["mean_a2"] * table["mean_b2"] - table["mean_ab"] ** 2
+    rows = single + [network]
+    table["R2_mean"] = [r["mean"] for r in rows] << u.one
+    for j, q in enumerate(_QUANTILES):
+        table[f"R2_q{int(round(100 * q)):02d}"] = [r["q"][j] for r in rows] << u.one
+    resp_title = "cwlimits response: antenna-pattern averages and orientation factor R^2"
+    from cwlimits.tables import write_table
+
+    write_table(table, out, assumptions=assumptions, title=resp_title)
+
+
+def _plot(path, detectors, coord, start):
+    import astropy.units as u
+    import matplotlib
+    import numpy as np
+
+    from cwlimits.response import antenna as resp
+
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from cwlimits.plotting.figures import figure_metadata
+
+    hours = np.linspace(0.0, resp.SIDEREAL_DAY.to_value(u.h), 289)
+    times = start + hours * u.h
+    # Okabe-Ito colours plus line styles and markers: readable in greyscale too.
+    colours = ["#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9"]
+    markers = ["o", "s", "^", "D", "v", "P"]
+    fig, ax = plt.subplots(figsize=(7.0, 4.2))
+    for i, det in enumerate(detectors):
+        a, b = resp.amplitude_modulation(det, coord, times)
+        colour, marker = colours[i % len(colours)], markers[i % len(markers)]
+        ax.plot(hours, a.value, color=colour, linestyle="-", marker=marker, markevery=24,
+                label=f"{det.name} a(t)")
+        ax.plot(hours, b.value, color=colour, linestyle="--", marker=marker,
+                markevery=(12, 24), fillstyle="none", label=f"{det.name} b(t)")
+    ax.set_xlabel(f"time since {start.iso[:19]} UTC [h]")
+    ax.set_ylabel("amplitude modulation a(t), b(t) [dimensionless]")
+    ax.set_title("Amplitude modulation over one sidereal day (JKS 1998)")
+    ax.set_xlim(hours[0], hours[-1])
+    ax.grid(True, alpha=0.3)
+    ax.legend(fontsize="small", ncol=2)
+    fig.tight_layout()
+    buffer = io.BytesIO()
+    try:
+        fmt = path.suffix.lstrip(".").lower()
+        fig.savefig(buffer, format=fmt, metadata=figure_metadata(fmt))
+    finally:
+        plt.close(fig)
+    return buffer.getvalue()

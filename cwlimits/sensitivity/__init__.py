@@ -1,0 +1,22 @@
+"""Predicted strain sensitivity of a semi-coherent search, band by band.
+
+:mod:`.model` builds the signal model of a setup (noise, response and template bank per
+band, :func:`signal_model`) and solves it for the h0 a search detects at a given false-alarm
+and detection probability (:func:`strain_sensitivity`, :func:`sensitivity_depth`).
+"""
+
+from .model import (
+    DEFAULT_START,
+    SignalModel,
+    sensitivity_depth,
+    signal_model,
+    strain_sensitivity,
+)
+
+__all__ = [
+    "DEFAULT_START",
+    "SignalModel",
+    "signal_model",
+    "strain_sensitivity",
+    "sensitivity_depth",
+]
