@@ -106,11 +106,11 @@ def main(argv=None):
     sub = slice(0, n_distinct)
     d_distinct, t_distinct = cpu(lambda: det.critical_depth(
         thr[sub], n_seg[sub], 1 * u.s, distinct, 0.0, CONFIDENCE).value)
-    row = det._signal_rule(rule, 0.0)
+    row = det.product_signal_rule(rule, 0.0)
     ref = slice(0, n_before)
-    a_before, t_before = cpu(lambda: det._solve_log_a(
+    a_before, t_before = cpu(lambda: det.solve_log_amplitude(
         thr[ref], n_seg[ref], CONFIDENCE, row, tabulate=False, interpolate=False))
-    a_each = det._solve_log_a(thr[ref], n_seg[ref], CONFIDENCE, row, tabulate=False)
+    a_each = det.solve_log_amplitude(thr[ref], n_seg[ref], CONFIDENCE, row, tabulate=False)
     table_error = float(np.max(np.abs(depth[ref] * np.sqrt(a_each) - 1)))
     interp_error = float(np.max(np.abs(np.sqrt(a_before / a_each) - 1)))
     fine = fixed_sky_rule(64, 256, max_nodes=None)

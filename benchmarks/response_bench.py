@@ -34,7 +34,7 @@ def brute_a2(detector, coord, span):
     """<a^2> by evaluating a(t) on the same midpoint grid as time_averages."""
     days = (span / resp.SIDEREAL_DAY).to_value(u.one)
     count = max(64, int(np.ceil(days * SAMPLES_PER_DAY)))
-    times = resp._as_time(START) + (np.arange(count) + 0.5) / count * span
+    times = resp.as_time(START) + (np.arange(count) + 0.5) / count * span
     a, _ = resp.amplitude_modulation(detector, coord[:, None], times[None, :])
     return np.mean(a.value**2, axis=-1)
 

@@ -147,11 +147,11 @@ def _wrap_for_memory(table, shapes):
     # sensitivity imports these names into its own namespace: wrap them there.
     for name in ("strain_sensitivity", "signal_model", "count_templates", "band_psd",
                  "time_averages", "orientation_factor_rule", "estimate_sensitivity",
-                 "_mismatch_rule", "_add_indirect"):
+                 "_mismatch_rule", "add_indirect_columns"):
         wrap(sensitivity, name, f"sensitivity.{name}")
     wrap(sensitivity.SignalModel, "signal_rule", "SignalModel.signal_rule")
-    for name in ("critical_depth", "false_alarm_threshold", "_solve", "_solve_log_a",
-                 "_detection_probability", "_signal_sf", "_signal_rule"):
+    for name in ("critical_depth", "false_alarm_threshold", "_solve", "solve_log_amplitude",
+                 "_detection_probability", "_signal_sf", "product_signal_rule"):
         wrap(detection, name, f"detection.{name}")
     wrap(detection.elementwise, "bracket_root", "scipy elementwise.bracket_root")
     wrap(detection.elementwise, "find_root", "scipy elementwise.find_root")

@@ -12,7 +12,14 @@ import numpy as np
 
 from cwlimits.errors import InputError, UnitsMismatchError
 
-__all__ = ["to_value", "positive_value", "parse_quantity", "parse_unit", "DIMENSIONLESS"]
+__all__ = [
+    "to_value",
+    "as_frequency_hz",
+    "positive_value",
+    "parse_quantity",
+    "parse_unit",
+    "DIMENSIONLESS",
+]
 
 DIMENSIONLESS = u.dimensionless_unscaled
 
@@ -55,6 +62,15 @@ def to_value(quantity, unit, name, *, allow_bare=False):
             f"not '{quantity.unit}'",
             value=str(quantity),
         ) from None
+
+
+def as_frequency_hz(f, name="frequency"):
+    """Frequency Quantity (or string) -> float array in Hz, finite values only."""
+    f_hz = to_value(f, u.Hz, name)
+    if not np.all(np.isfinite(f_hz)):
+        bad = f_hz[~np.isfinite(f_hz)].flat[0]
+        raise InputError(f"{name} must be finite (in Hz)", value=float(bad))
+    return f_hz
 
 
 def positive_value(quantity, unit, name):

@@ -643,7 +643,7 @@ def test_solution_properties(n_seg, log_p, confidence):
 def _fixed_sky_rule():
     """A fixed-sky R2 x mismatch rule (textbook patterns above; mismatch uniform [0, 0.4))."""
     rng = np.random.default_rng(21)
-    return det._signal_rule(draw_r2(20_000, rng, "fixed"), rng.uniform(0, 0.4, 64))
+    return det.product_signal_rule(draw_r2(20_000, rng, "fixed"), rng.uniform(0, 0.4, 64))
 
 
 def _setups(n, rng):
@@ -660,8 +660,8 @@ def test_interpolated_solve_matches_the_direct_solve(confidence):
     # sqrt(1/a) within 1e-6 (measured <= 2e-7 at 96 points).
     rule = _fixed_sky_rule()
     thr, n_seg = _setups(200, np.random.default_rng(5))
-    fast = det._solve_log_a(thr, n_seg, confidence, rule, tabulate=False)
-    direct = det._solve_log_a(thr, n_seg, confidence, rule, tabulate=False,
+    fast = det.solve_log_amplitude(thr, n_seg, confidence, rule, tabulate=False)
+    direct = det.solve_log_amplitude(thr, n_seg, confidence, rule, tabulate=False,
                               interpolate=False)
     assert np.max(np.abs(np.sqrt(direct / fast) - 1)) < 1e-6
 
@@ -674,9 +674,9 @@ def test_tabulated_depth_matches_the_per_setup_solve(confidence):
     rule = _fixed_sky_rule()
     thr, n_seg = _setups(det._TABLE_MIN_ELEMENTS + 500, np.random.default_rng(6))
     det._TABLE_CACHE.clear()
-    table = det._solve_log_a(thr, n_seg, confidence, rule)
+    table = det.solve_log_amplitude(thr, n_seg, confidence, rule)
     assert det._TABLE_CACHE  # the table path was taken
-    each = det._solve_log_a(thr, n_seg, confidence, rule, tabulate=False)
+    each = det.solve_log_amplitude(thr, n_seg, confidence, rule, tabulate=False)
     assert np.max(np.abs(np.sqrt(each / table) - 1)) < 5e-5
     # and through the public function, with the exact solve as the outside reference
     # (scipy.stats.ncx2.sf throughout): within Sankaran's 3e-5 on P plus the table
@@ -696,7 +696,7 @@ def test_likelihood_rows_match_the_direct_sum(n_seg):
     w /= w.sum(axis=1, keepdims=True)
     obs = np.maximum(4 * n_seg + rng.uniform(-2, 8, 5) * np.sqrt(8 * n_seg), 1.0)
     a = np.linspace(0, 1, 200)[None, :] * (obs[:, None] + 60 * np.sqrt(obs[:, None])) / 0.05
-    fast = det._likelihood_rows(obs, a, n_seg, c, w, method="auto")
+    fast = det.likelihood_rows(obs, a, n_seg, c, w, method="auto")
     ref = det._likelihood(obs[:, None], a, n_seg, c[:, None, :], w[:, None, :], "auto")
     keep = ref > 1e-30 * ref.max(axis=1, keepdims=True)
     assert np.max(np.abs(fast[keep] / ref[keep] - 1)) < 1e-6

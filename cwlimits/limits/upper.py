@@ -46,11 +46,11 @@ from scipy.optimize import elementwise
 from cwlimits.errors import ComputationError, CwlimitsWarning, InputError
 from cwlimits.limits.results import STATISTIC_COLUMNS, SearchResults, load_results
 from cwlimits.noise import DEFAULT_NOISE_MODEL
-from cwlimits.sensitivity.model import DEFAULT_START, _add_indirect, signal_model
+from cwlimits.sensitivity.model import DEFAULT_START, add_indirect_columns, signal_model
 from cwlimits.statistics.detection import (
     QuadratureRule,
-    _likelihood_rows,
     combine_rules,
+    likelihood_rows,
     solve_amplitude,
 )
 from cwlimits.targets.conversions import ellipticity, rmode_amplitude
@@ -161,8 +161,8 @@ def _posterior_on_grid(obs_sum, n_seg, c, w, prior="uniform", x_min=None):
     grid = _x_grid(obs_sum, n_seg, c, w, None if prior == "uniform" else x_min)
     # One code path with the sensitivity: the marginal likelihood of detection.py (its
     # density, "auto" method) with T/S = 1 s Hz, so that a = x^2; evaluated per band on a
-    # fine grid in sqrt(rho2) and interpolated (detection._likelihood_rows).
-    like = _likelihood_rows(obs_sum, grid**2, n_seg, c, w, method="auto")
+    # fine grid in sqrt(rho2) and interpolated (detection.likelihood_rows).
+    like = likelihood_rows(obs_sum, grid**2, n_seg, c, w, method="auto")
     if prior == "uniform":
         dens = like
         cdf = integrate.cumulative_trapezoid(like, grid, axis=-1, initial=0.0)
@@ -617,7 +617,7 @@ def _frequentist_chunk(chunk, rng, *, rule_c, rule_w, n_seg, confidence, d_nom, 
 def _emcee_log_prob(theta, obs_sum, n_seg, a_net, b_net, c_net, mu_nodes, mu_weights,
                     x_top):
     """Log posterior of (x, cosi, psi) given 2F*, up to a constant; vectorised over walkers."""
-    from cwlimits.response.antenna import _orientation_factor
+    from cwlimits.response.antenna import orientation_factor_kernel
 
     x, cosi, psi = theta[:, 0], theta[:, 1], theta[:, 2]
     # R2 has period pi/2 in psi: one period is the whole uniform prior.
@@ -625,7 +625,7 @@ def _emcee_log_prob(theta, obs_sum, n_seg, a_net, b_net, c_net, mu_nodes, mu_wei
     out = np.full(len(x), -np.inf)
     if not np.any(inside):
         return out
-    r2 = _orientation_factor(a_net, b_net, c_net, cosi[inside], psi[inside])
+    r2 = orientation_factor_kernel(a_net, b_net, c_net, cosi[inside], psi[inside])
     rho2 = (r2 * x[inside] ** 2)[:, None] * (1.0 - mu_nodes)[None, :]
     # Eq. of JKS 1998 / Wette 2012: 2F* ~ ncx2(4N, rho2), mismatch marginalised.
     dens = np.sum(mu_weights * stats.ncx2.pdf(obs_sum, 4.0 * n_seg, rho2), axis=1)
@@ -924,7 +924,7 @@ def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=No
     table["h0_limit"] = out["h0"] << u.one
     table["eps_limit"] = out["eps"] << u.one
     table["alpha_limit"] = out["alpha"] << u.one
-    _add_indirect(table, target, "h0_limit")
+    add_indirect_columns(table, target, "h0_limit")
     if target.has_spin and target.fdot_rot is not None:
         h_sd = spindown_limit(target.f_rot, target.fdot_rot, target.distance, i_fixed
                               * u.kg * u.m**2).value

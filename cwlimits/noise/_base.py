@@ -8,7 +8,7 @@ a strain time series, or a data-time-weighted combination of those.
 import astropy.units as u
 import numpy as np
 
-from cwlimits._units import to_value
+from cwlimits._units import as_frequency_hz
 from cwlimits.errors import InputError, OutOfRangeError
 
 __all__ = ["NoiseSource", "band_psd"]
@@ -19,15 +19,6 @@ ASD_UNIT = u.Hz**-0.5
 # Gauss-Legendre rule on [-1, 1] used panel by panel in band_psd; 8 nodes integrate a
 # polynomial of degree 15 exactly, plenty for a smooth S_n^-1 over one panel.
 _GL_NODES, _GL_WEIGHTS = np.polynomial.legendre.leggauss(8)
-
-
-def _frequency_hz(f, name="frequency"):
-    """Frequency Quantity (or string) -> float array in Hz, finite values only."""
-    f_hz = to_value(f, u.Hz, name)
-    if not np.all(np.isfinite(f_hz)):
-        bad = f_hz[~np.isfinite(f_hz)].flat[0]
-        raise InputError(f"{name} must be finite (in Hz)", value=float(bad))
-    return f_hz
 
 
 def _fmt_hz(x_hz):
@@ -116,16 +107,16 @@ class NoiseSource:
         UnitsMismatchError, InputError
             ``f`` is not a frequency, or not finite.
         """
-        return self._psd_checked(_frequency_hz(f), clip) << PSD_UNIT
+        return self._psd_checked(as_frequency_hz(f), clip) << PSD_UNIT
 
     def asd(self, f, *, clip=False):
         """Amplitude spectral density sqrt(S_n(f)) in Hz^-1/2; see :meth:`psd`."""
-        return np.sqrt(self._psd_checked(_frequency_hz(f), clip)) << ASD_UNIT
+        return np.sqrt(self._psd_checked(as_frequency_hz(f), clip)) << ASD_UNIT
 
 
 def _band_edges_hz(f_lo, f_hi):
-    lo = _frequency_hz(f_lo, "f_lo")
-    hi = _frequency_hz(f_hi, "f_hi")
+    lo = as_frequency_hz(f_lo, "f_lo")
+    hi = as_frequency_hz(f_hi, "f_hi")
     lo, hi = np.broadcast_arrays(lo, hi)
     if np.any(hi <= lo):
         i = np.flatnonzero(hi.ravel() <= lo.ravel())[0]

@@ -75,16 +75,16 @@ from cwlimits.response.antenna import (
     orientation_factor_rule,
     time_averages,
 )
-from cwlimits.searchspace.cost import _sqrt_dets, computing_cost
+from cwlimits.searchspace.cost import computing_cost, sqrt_block_determinants
 from cwlimits.searchspace.lattices import get_lattice, sample_mismatch
 from cwlimits.searchspace.metric import (
-    _coherent_metric_scaled,
-    _contiguous_offsets,
-    _semicoherent_metric_scaled,
+    coherent_metric_scaled,
+    contiguous_offsets,
+    semicoherent_metric_scaled,
 )
 from cwlimits.searchspace.parameter_space import AgeBasedSpace
 from cwlimits.searchspace.searchsetup import DEFAULT_UNIT_COSTS, SearchSetup
-from cwlimits.sensitivity.model import DEFAULT_START, _noise_sources, strain_sensitivity
+from cwlimits.sensitivity.model import DEFAULT_START, noise_per_detector, strain_sensitivity
 from cwlimits.statistics.detection import (
     QuadratureRule,
     combine_rules,
@@ -269,10 +269,10 @@ def _canonical_r2_rule():
     planner scales it to each target's mean R^2.  The nodes are those of
     :func:`cwlimits.response.antenna.orientation_factor_rule` (order 16).
     """
-    from cwlimits.response.antenna import _orientation_factor
+    from cwlimits.response.antenna import orientation_factor_kernel
 
     w, cosi, psi = _orientation_nodes(16)
-    r2 = _orientation_factor(0.5, 0.5, 0.0, cosi, psi)
+    r2 = orientation_factor_kernel(0.5, 0.5, 0.0, cosi, psi)
     return combine_rules(QuadratureRule(np.asarray(r2, float), w), 0.0, max_nodes=_R2_NODES)
 
 
@@ -340,14 +340,14 @@ class _TargetModel:
         self.volumes = np.stack([space.volume(lo, hi, k).value for k in (1, 2, 3)])
         self.theta = np.array([get_lattice(base.lattice, k).normalised_thickness
                                for k in (1, 2, 3)])
-        self.sd_coh = np.array(_sqrt_dets(_coherent_metric_scaled(0.0, 3), 1.0, 3))
+        self.sd_coh = np.array(sqrt_block_determinants(coherent_metric_scaled(0.0, 3), 1.0, 3))
         self.powers = np.array([1.0, 3.0, 6.0])          # k (k + 1) / 2
         self._sd_semi = {}
         self.n_det = base.n_detectors
         self.c_coh = base.cost_coherent.to_value(u.h)
         self.c_semi = base.cost_semicoherent.to_value(u.h)
         detectors = get_detectors(list(base.detectors))
-        sources = _noise_sources(noise, [d.name for d in detectors])
+        sources = noise_per_detector(noise, [d.name for d in detectors])
         psd_det = np.array([band_psd(s, lo, hi).to_value(1 / u.Hz) for s in sources])
         # Equal data times per detector: harmonic mean of the PSDs (sensitivity module;
         # Cutler & Schutz 2005, gr-qc/0504011).
@@ -406,8 +406,8 @@ class _TargetModel:
         n = np.asarray(n, int)
         missing = sorted(set(np.unique(n).tolist()) - set(self._sd_semi))
         if missing:
-            off, mask = _contiguous_offsets(np.array(missing))
-            g = _semicoherent_metric_scaled(off, mask, 3)
+            off, mask = contiguous_offsets(np.array(missing))
+            g = semicoherent_metric_scaled(off, mask, 3)
             dets = np.stack([np.sqrt(np.linalg.det(g[..., :k, :k])) for k in (1, 2, 3)], -1)
             self._sd_semi.update(zip(missing, dets, strict=True))
         return np.stack([self._sd_semi[int(x)] for x in n.ravel()]).reshape(n.shape + (3,))

@@ -2,8 +2,8 @@
 
 import numpy as np
 
+from cwlimits._units import as_frequency_hz
 from cwlimits.errors import InputError
-from cwlimits.noise._base import _frequency_hz
 
 __all__ = ["plot_asd"]
 
@@ -48,9 +48,9 @@ def plot_asd(sources, path, f_min=None, f_max=None, *, n_points=1000, title=None
         raise InputError(f"plot file must end in {', '.join(_SUFFIXES)}", file=str(path))
     if not isinstance(sources, (list, tuple)):
         sources = [sources]
-    hi = float(_frequency_hz(f_max)) if f_max is not None else max(
+    hi = float(as_frequency_hz(f_max)) if f_max is not None else max(
         s._f_max_hz for s in sources)
-    lo = float(_frequency_hz(f_min)) if f_min is not None else max(
+    lo = float(as_frequency_hz(f_min)) if f_min is not None else max(
         min(s._f_min_hz for s in sources), hi * 1e-4)
     if not 0 < lo < hi:
         raise InputError("plot range needs 0 < f_min < f_max", value=f"{lo:g}-{hi:g} Hz")

@@ -236,10 +236,11 @@ def _check(path, values, found):
 
     if values["seed"] < 0:
         _fail(path, "seed", "must be a whole number >= 0", written("seed"))
-    from cwlimits.response.antenna import _as_time, get_detectors
+    from cwlimits._time import as_time
+    from cwlimits.response.antenna import get_detectors
 
     try:
-        _as_time(values["data.start"], "data.start")
+        as_time(values["data.start"], "data.start")
     except InputError:
         _fail(path, "data.start", "not a date and time; use an ISO date such as "
               "\"2030-01-01T00:00:00\" (UTC) or GPS seconds", written("data.start"))

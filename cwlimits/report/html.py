@@ -191,10 +191,10 @@ def _delete_listed(folder, names):
 
 def _process_is_live(record):
     """Whether the process of a staging marker may still be writing (runtime.store)."""
-    from cwlimits.runtime.store import _claim_is_live
+    from cwlimits.runtime.store import claim_is_live
 
     try:
-        return _claim_is_live(int(record["pid"]), str(record["host"]),
+        return claim_is_live(int(record["pid"]), str(record["host"]),
                               str(record["created_at"]))
     except (KeyError, TypeError, ValueError):
         return True  # unreadable marker: not provably stale, leave it

@@ -30,7 +30,6 @@ is silenced inside this module only.
 import functools
 import math
 import re
-import warnings
 from dataclasses import dataclass
 from importlib import resources
 from pathlib import Path
@@ -41,11 +40,10 @@ import numpy as np
 from astropy.coordinates import ICRS, TETE, BaseCoordinateFrame, EarthLocation, SkyCoord
 from astropy.time import Time
 from astropy.utils import iers
-from astropy.utils.exceptions import AstropyWarning
-from erfa import ErfaWarning
 from scipy.interpolate import CubicSpline
 from scipy.special import roots_legendre
 
+from cwlimits._time import QuietTime, as_time
 from cwlimits._toml import load_toml
 from cwlimits._units import parse_quantity, to_value
 from cwlimits.errors import ConfigError, InputError, TableError
@@ -495,56 +493,6 @@ def _read_detector_toml(path):
 
 # --------------------------------------------------------------- time and sky handling
 
-class _QuietTime(warnings.catch_warnings):
-    """Offline IERS settings and no ERFA 'dubious year' warning (see module docstring)."""
-
-    def __enter__(self):
-        result = super().__enter__()
-        warnings.filterwarnings("ignore", message=r".*dubious year", category=ErfaWarning)
-        # Astropy's GCRS -> TETE step also builds the Earth-orientation matrix (used only
-        # for an observer off the geocentre) and warns when polar motion is not tabulated;
-        # the geocentric direction used here does not depend on it.
-        warnings.filterwarnings("ignore", message=r"Tried to get polar motions",
-                                category=AstropyWarning)
-        # With downloads off, an expired bundled leap-second table is still used (no leap
-        # second can have been missed by more than the table's ~6-month horizon: <= 1 s).
-        warnings.filterwarnings("ignore", message=r"leap-second file is expired",
-                                category=iers.IERSStaleWarning)
-        self._conf = iers.conf.set_temp("auto_download", False)
-        self._conf.__enter__()
-        return result
-
-    def __exit__(self, *exc):
-        self._conf.__exit__(*exc)
-        return super().__exit__(*exc)
-
-
-def _as_time(times, name="times"):
-    """Return an astropy Time from a Time, ISO string(s) (UTC) or GPS seconds."""
-    with _QuietTime():
-        if isinstance(times, Time):
-            return times
-        try:
-            if isinstance(times, u.Quantity):
-                return Time(to_value(times, u.s, name), format="gps")
-            array = np.asarray(times)
-            if array.dtype.kind in "US" and array.ndim == 0:
-                try:
-                    return Time(float(str(array)), format="gps")
-                except ValueError:
-                    pass
-            if array.dtype.kind in "US":
-                return Time(array if array.ndim else str(array), scale="utc")
-            if array.dtype.kind in "iuf":
-                return Time(array.astype(float), format="gps")
-        except (ValueError, TypeError):
-            raise InputError(f"{name}: cannot read as a time; use an astropy Time, an ISO "
-                             "date such as '2030-01-01T00:00:00' (UTC) or GPS seconds",
-                             value=str(times)) from None
-    raise InputError(f"{name}: cannot read as a time; use an astropy Time, an ISO date "
-                     "(UTC) or GPS seconds", value=repr(times))
-
-
 @functools.lru_cache(maxsize=1)
 def _ut1_table_range_mjd():
     """(first, last) MJD of the UT1 - UTC values of the table astropy's IERS_Auto reads.
@@ -572,7 +520,7 @@ def _ut1_table_range_mjd():
 
 def _offline_ut1(times):
     """A copy of ``times`` whose UT1 - UTC comes from the bundled IERS table (0 outside)."""
-    with _QuietTime():
+    with QuietTime():
         t = times.copy()
         span = _ut1_table_range_mjd()
         mjd = np.asarray(t.utc.mjd)
@@ -593,7 +541,7 @@ def _offline_ut1(times):
 def _gast_rad(times):
     """Greenwich apparent sidereal time (rad) from astropy, without polar motion."""
     t = _offline_ut1(times)
-    with _QuietTime():
+    with QuietTime():
         # 'greenwich' skips the TIO locator / polar motion (<~0.5 arcsec): astropy would
         # otherwise look up polar motion, which is not tabulated for future dates.
         return np.asarray(t.sidereal_time("apparent", "greenwich").to_value(u.rad))
@@ -620,7 +568,7 @@ def _gast_grid_rad(start, offsets_s):
     span = float(offsets_s[-1] - offsets_s[0])
     count = max(4, int(math.ceil(span / _EO_NODE_STEP_S)) + 1)
     nodes_s = np.linspace(offsets_s[0], offsets_s[-1], count)
-    with _QuietTime():
+    with QuietTime():
         node_times = _offline_ut1(start + nodes_s * u.s)
         ut1 = node_times.ut1
         eo = np.unwrap(_gast_rad(node_times) - erfa.era00(ut1.jd1, ut1.jd2))
@@ -637,7 +585,7 @@ def _cached_gast_moments(start_jd, span_s, count):
     detector (a longitude only rotates the moments), target and call that shares the
     start, span and sampling: planning asks for the same year for each target and case.
     """
-    with _QuietTime():
+    with QuietTime():
         start = Time(start_jd[0], start_jd[1], format="jd", scale="utc")
     return _lst_moments(_gast_grid_rad(start, (np.arange(count) + 0.5) / count * span_s))
 
@@ -651,7 +599,7 @@ def _epoch(times):
     """Middle of the range of ``times`` (the epoch of the apparent coordinates)."""
     if times.isscalar:
         return times
-    with _QuietTime():
+    with QuietTime():
         return times.min() + (times.max() - times.min()) / 2
 
 
@@ -673,11 +621,11 @@ def _apparent_radec(coord, epoch):
                          "SkyCoord('12h30m', '-45d'))", value=repr(coord))
     if coord.frame.name not in _INERTIAL_FRAMES:
         # e.g. TETE or Earth-fixed frames themselves: astropy's own transform
-        with _QuietTime():
+        with QuietTime():
             apparent = coord.transform_to(TETE(obstime=_offline_ut1(epoch)))
         return (np.asarray(apparent.spherical.lon.to_value(u.rad)),
                 np.asarray(apparent.spherical.lat.to_value(u.rad)))
-    with _QuietTime():
+    with QuietTime():
         icrs = coord.transform_to(ICRS())
         tt = epoch.tt
         # ERFA atci13: ICRS -> CIRS for a geocentric observer (light deflection, annual
@@ -795,7 +743,7 @@ def _averages_one(lat, gamma, ra, dec, moments):
     return results
 
 
-def _orientation_factor(A, B, C, cosi, psi):
+def orientation_factor_kernel(A, B, C, cosi, psi):
     """R^2 = A alpha1 + B alpha2 + 2 C alpha3 (sin^2 zeta already folded into A, B, C).
 
     alpha1 = A+^2 cos^2 2psi + Ax^2 sin^2 2psi, alpha2 = A+^2 sin^2 2psi + Ax^2 cos^2 2psi,
@@ -813,7 +761,7 @@ def _orientation_factor(A, B, C, cosi, psi):
 
 def _pattern_inputs(detector, coord, times):
     detector = get_detector(detector)
-    times = _as_time(times)
+    times = as_time(times)
     ra, dec = _apparent_radec(coord, _epoch(times))
     gast = _gast_rad(times)
     return detector, ra, dec, gast
@@ -975,7 +923,7 @@ def _per_detector(values, n, name, default):
 def _observation(detectors, start, span, duty, weights, method, samples_per_day):
     detectors = get_detectors(detectors)
     n = len(detectors)
-    start = _as_time(start, "start")
+    start = as_time(start, "start")
     if not start.isscalar:
         raise InputError("start: give one time", value=str(start))
     span_s = float(to_value(span, u.s, "span"))
@@ -1000,7 +948,7 @@ def _observation(detectors, start, span, duty, weights, method, samples_per_day)
     whole = round(days) >= 1 and abs(days - round(days)) * SIDEREAL_DAY.to_value(u.s) < 1.0
     if method == "auto":
         method = "closed" if whole else "sampled"
-    with _QuietTime():
+    with QuietTime():
         epoch = start + span_s / 2 * u.s
         if method == "closed":
             moments = (None,) * n
@@ -1187,7 +1135,7 @@ def orientation_factor(A, B, C, cosi, psi):
     x = to_value(cosi, u.one, "cosi")
     if np.any(np.abs(x) > 1):
         raise InputError("cosi must be within [-1, 1]", value=np.asarray(x).tolist())
-    return _orientation_factor(A_, B_, C_, x, to_value(psi, u.rad, "psi")) << u.one
+    return orientation_factor_kernel(A_, B_, C_, x, to_value(psi, u.rad, "psi")) << u.one
 
 
 def _source_averages(source, coord, start, span, duty, weights, method):
@@ -1260,7 +1208,7 @@ def orientation_factor_samples(source, coord=None, start=None, span=None, *, dut
     psi = rng.uniform(0.0, np.pi, n)
     if sky == "fixed":
         A, B, C = _source_averages(source, coord, start, span, duty, weights, method)
-        R2 = _orientation_factor(A[..., None], B[..., None], C[..., None], cosi, psi)
+        R2 = orientation_factor_kernel(A[..., None], B[..., None], C[..., None], cosi, psi)
     else:
         if isinstance(source, ResponseAverages) or coord is not None:
             raise InputError("sky='isotropic' draws the sky positions: give detectors, "
@@ -1272,7 +1220,7 @@ def orientation_factor_samples(source, coord=None, start=None, span=None, *, dut
         ra = rng.uniform(0.0, 2 * np.pi, n)
         dec = np.arcsin(rng.uniform(-1.0, 1.0, n))
         _, A, B, C = obs.abc(ra, dec)
-        R2 = _orientation_factor(A, B, C, cosi, psi)
+        R2 = orientation_factor_kernel(A, B, C, cosi, psi)
     if return_angles:
         return R2 << u.one, cosi, psi * u.rad
     return R2 << u.one
@@ -1337,7 +1285,7 @@ def orientation_factor_rule(source, coord=None, start=None, span=None, *, duty=1
     X, P = X.ravel(), P.ravel()
     if sky == "fixed":
         A, B, C = _source_averages(source, coord, start, span, duty, weights, method)
-        R2 = _orientation_factor(A[..., None], B[..., None], C[..., None], X, P)
+        R2 = orientation_factor_kernel(A[..., None], B[..., None], C[..., None], X, P)
     else:
         if isinstance(source, ResponseAverages) or coord is not None:
             raise InputError("sky='isotropic' places its own sky nodes: give detectors, "
@@ -1354,7 +1302,7 @@ def orientation_factor_rule(source, coord=None, start=None, span=None, *, duty=1
         S, RA = np.meshgrid(s, ra, indexing="ij")
         w_sky = (ws[:, None] / 2 / (2 * n_dec) * np.ones(2 * n_dec)).ravel()
         _, A, B, C = obs.abc(RA.ravel(), np.arcsin(S.ravel()))
-        R2 = _orientation_factor(A[:, None], B[:, None], C[:, None], X, P).ravel()
+        R2 = orientation_factor_kernel(A[:, None], B[:, None], C[:, None], X, P).ravel()
         n_sky = w_sky.size
         W = (w_sky[:, None] * W[None, :]).ravel()
         X, P = np.tile(X, n_sky), np.tile(P, n_sky)

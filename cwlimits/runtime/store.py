@@ -118,7 +118,7 @@ def _pid_alive(pid):
     return True
 
 
-def _claim_is_live(pid, host, claimed_at):
+def claim_is_live(pid, host, claimed_at):
     """Whether the process that claimed a chunk may still be computing it."""
     if host == socket.gethostname():
         return pid != os.getpid() and _pid_alive(pid)
@@ -573,7 +573,7 @@ class ResultStore:
             row = self._db.execute(
                 "SELECT session_id, pid, host, claimed_at FROM claims WHERE run_id = ? AND "
                 "part = ? AND chunk = ?", (run_id, part, index)).fetchone()
-            if row is not None and row[0] != session and _claim_is_live(*row[1:]):
+            if row is not None and row[0] != session and claim_is_live(*row[1:]):
                 return "taken"
             self._db.execute("INSERT OR REPLACE INTO claims VALUES (?, ?, ?, ?, ?, ?, ?)",
                              (run_id, part, index, session, os.getpid(),
@@ -613,7 +613,7 @@ class ResultStore:
             return []
         rows = self._db.execute("SELECT DISTINCT pid, host, claimed_at FROM claims")
         return sorted({f"{pid}@{host}" for pid, host, at in rows
-                       if _claim_is_live(pid, host, at)})
+                       if claim_is_live(pid, host, at)})
 
     def runs(self):
         """The run ids in the store, oldest first."""

@@ -47,9 +47,9 @@ from cwlimits.errors import InputError
 from cwlimits.plotting.figures import PLOT_SUFFIXES
 from cwlimits.searchspace.lattices import get_lattice
 from cwlimits.searchspace.metric import (
-    _coherent_metric_scaled,
     _segments,
-    _semicoherent_metric_scaled,
+    coherent_metric_scaled,
+    semicoherent_metric_scaled,
 )
 from cwlimits.searchspace.parameter_space import VOLUME_UNITS, AgeBasedSpace, ParameterSpace
 
@@ -121,7 +121,7 @@ def _stage(sqrt_dets, thickness, mismatch, volumes):
     return np.where(inside, np.maximum(n, 1.0), 0.0), np.where(inside, best + 1, 0)
 
 
-def _sqrt_dets(g_scaled, t_seg_s, n_dims):
+def sqrt_block_determinants(g_scaled, t_seg_s, n_dims):
     """sqrt(det) of the leading k x k blocks, unscaled to SI (s^(k(k+1)/2))."""
     return [np.sqrt(np.linalg.det(g_scaled[:k, :k])) * t_seg_s ** (k * (k + 1) / 2)
             for k in range(1, n_dims + 1)]
@@ -167,9 +167,9 @@ def count_templates(setup, target_or_space, bands=None):
     thickness = [get_lattice(setup.lattice, k).normalised_thickness
                  for k in range(1, n_dims + 1)]
     t = setup.t_seg.to_value(u.s)
-    coh = _sqrt_dets(_coherent_metric_scaled(0.0, n_dims), t, n_dims)
+    coh = sqrt_block_determinants(coherent_metric_scaled(0.0, n_dims), t, n_dims)
     _, off, mask = _segments(setup.t_seg, None, setup.segment_mid_times)
-    semi = _sqrt_dets(_semicoherent_metric_scaled(off, mask, n_dims), t, n_dims)
+    semi = sqrt_block_determinants(semicoherent_metric_scaled(off, mask, n_dims), t, n_dims)
     n_coh, d_coh = _stage(coh, thickness, setup.mismatch_coherent, volumes)
     n_semi, d_semi = _stage(semi, thickness, setup.mismatch_semicoherent, volumes)
     table = QTable()

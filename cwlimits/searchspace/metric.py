@@ -81,7 +81,7 @@ def _moments(a, b, m_max):
     return (b ** (m + 1) - a ** (m + 1)) / ((m + 1) * (b - a))
 
 
-def _coherent_metric_scaled(offset, n_dims):
+def coherent_metric_scaled(offset, n_dims):
     """Metric in the scaled coordinates u_k = f^(k) T^(k+1) for a unit-length segment.
 
     ``offset`` is the segment mid-time minus the reference time, in units of T (broadcasts).
@@ -118,7 +118,7 @@ def _unscale(g_scaled, t_seg_s, n_dims):
 def _coherent_metric(t_seg_s, n_dims, offset_s=0.0):
     t_seg_s = np.asarray(t_seg_s, float)
     offset = np.asarray(offset_s, float) / t_seg_s
-    return _unscale(_coherent_metric_scaled(offset, n_dims), t_seg_s, n_dims)
+    return _unscale(coherent_metric_scaled(offset, n_dims), t_seg_s, n_dims)
 
 
 def _sqrt_det_scaled(g_scaled):
@@ -135,7 +135,7 @@ def _taylor_jacobian(delta, n_dims):
     return np.where(j >= k, delta ** p * inv_fact, 0.0)
 
 
-def _semicoherent_metric_scaled(mid, mask, n_dims):
+def semicoherent_metric_scaled(mid, mask, n_dims):
     """Average of the segment metrics in common coordinates (scaled by the segment length).
 
     ``mid`` (..., N): segment mid-times minus the reference time, in units of T;
@@ -149,7 +149,7 @@ def _semicoherent_metric_scaled(mid, mask, n_dims):
     return (per_seg * w).sum(axis=-3) / w.sum(axis=-3)
 
 
-def _contiguous_offsets(n_seg):
+def contiguous_offsets(n_seg):
     """Mid-times of contiguous segments about the middle of the span, in units of T.
 
     ``n_seg`` (array of ints) -> (offsets (..., N_max), mask (..., N_max)).
@@ -230,7 +230,7 @@ def coherent_sqrt_det(t_seg, n_dims=3):
     n_dims = _check_n_dims(n_dims)
     t = _check_t_seg(t_seg)
     # det of the scaled metric is a pure number; the scaling contributes T^(n(n+1)/2)
-    c = _sqrt_det_scaled(_coherent_metric_scaled(0.0, n_dims))
+    c = _sqrt_det_scaled(coherent_metric_scaled(0.0, n_dims))
     power = n_dims * (n_dims + 1) // 2
     return c * t ** power << u.s ** power
 
@@ -321,7 +321,7 @@ def _segments(t_seg, n_seg, mid_times):
         if n.dtype.kind not in "iu" or np.any(n < 1):
             raise InputError("n_seg (number of segments) must be integers >= 1",
                              value=n_seg)
-        off, mask = _contiguous_offsets(n)
+        off, mask = contiguous_offsets(n)
         return t, off, mask
     mids = to_value(mid_times, u.s, "mid_times")
     if mids.ndim == 0 or mids.shape[-1] < 1:
@@ -363,7 +363,7 @@ def semicoherent_metric(t_seg, n_seg=None, mid_times=None, n_dims=3):
     """
     n_dims = _check_n_dims(n_dims)
     t, off, mask = _segments(t_seg, n_seg, mid_times)
-    return _unscale(_semicoherent_metric_scaled(off, mask, n_dims), t, n_dims)
+    return _unscale(semicoherent_metric_scaled(off, mask, n_dims), t, n_dims)
 
 
 def semicoherent_sqrt_det(t_seg, n_seg=None, mid_times=None, n_dims=3):
@@ -392,7 +392,7 @@ def semicoherent_sqrt_det(t_seg, n_seg=None, mid_times=None, n_dims=3):
     n_dims = _check_n_dims(n_dims)
     t, off, mask = _segments(t_seg, n_seg, mid_times)
     power = n_dims * (n_dims + 1) // 2
-    sd = _sqrt_det_scaled(_semicoherent_metric_scaled(off, mask, n_dims))
+    sd = _sqrt_det_scaled(semicoherent_metric_scaled(off, mask, n_dims))
     return sd * np.asarray(t) ** power << u.s ** power
 
 
@@ -429,8 +429,8 @@ def refinement_factors(n_seg=None, mid_times=None, t_seg=None, n_dims=3):
     elif t_seg is None:
         raise InputError("refinement_factors with mid_times needs t_seg")
     t, off, mask = _segments(t_seg, n_seg, mid_times)
-    semi = _semicoherent_metric_scaled(off, mask, n_dims)
-    coh = _coherent_metric_scaled(0.0, n_dims)
+    semi = semicoherent_metric_scaled(off, mask, n_dims)
+    coh = coherent_metric_scaled(0.0, n_dims)
     ratios = [np.ones(semi.shape[:-2])]
     for k in range(1, n_dims + 1):
         ratios.append(np.sqrt(np.linalg.det(semi[..., :k, :k]) / np.linalg.det(coh[:k, :k])))

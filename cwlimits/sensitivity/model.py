@@ -149,7 +149,7 @@ class SignalModel:
         return len(self.f_lo)
 
 
-def _noise_sources(noise, detectors):
+def noise_per_detector(noise, detectors):
     """One noise source per detector from a spec, a source, or a mapping by detector."""
     if isinstance(noise, dict):
         missing = [d for d in detectors if d not in noise]
@@ -254,7 +254,7 @@ def signal_model(setup, noise, target=None, bands=None, *, start=DEFAULT_START,
         raise InputError("without a target give sky='isotropic' and n_templates")
     detectors = get_detectors(list(setup.detectors))
     names = [d.name for d in detectors]
-    sources = _noise_sources(noise, names)
+    sources = noise_per_detector(noise, names)
     counts = count_templates(setup, target if target is not None else 1e3 * u.yr, bands)
     lo, hi = counts["f_min"], counts["f_max"]
     cache = {} if _cache is None else _cache
@@ -428,7 +428,7 @@ def strain_sensitivity(setup, noise, bands=None, target=None, *, confidence=0.95
         "meaning": "expected sensitivity of the search, not a measured limit",
     })
     if target is not None:
-        _add_indirect(table, target)
+        add_indirect_columns(table, target)
         info["indirect"] = ("h0_age: age-based limit (Wette et al. 2008, n = 5, "
                             "I = 1e38 kg m^2); optimistic/pessimistic over the distance "
                             "and age ranges")
@@ -480,7 +480,7 @@ def _depths(sm, threshold_sum, confidence):
     return depth
 
 
-def _add_indirect(table, target, h0_column="h0"):
+def add_indirect_columns(table, target, h0_column="h0"):
     """Columns comparing ``h0_column`` with the target's age-based limit."""
     nominal = age_limit(target.distance, target.age)
     optimistic, pessimistic = limit_range((target.distance_min, target.distance_max),
@@ -526,7 +526,7 @@ def sensitivity_depth(setups, noise=None, target=None, bands=None, *, confidence
     tabulated depth (:func:`cwlimits.statistics.detection.critical_depth`).
     """
     from cwlimits.noise import DEFAULT_NOISE_MODEL
-    from cwlimits.statistics.detection import _signal_rule, _solve_log_a
+    from cwlimits.statistics.detection import product_signal_rule, solve_log_amplitude
 
     single = not isinstance(setups, (list, tuple))
     items = [setups] if single else list(setups)
@@ -558,11 +558,11 @@ def sensitivity_depth(setups, noise=None, target=None, bands=None, *, confidence
                 w_rows.append(w[r])
             local[r] = row_of[key]
         rid[i] = local[np.broadcast_to(index, (nb,))]
-    rule = _signal_rule(QuadratureRule(np.array(c_rows), np.array(w_rows)), 0.0)
+    rule = product_signal_rule(QuadratureRule(np.array(c_rows), np.array(w_rows)), 0.0)
     n_seg = np.array([m.n_seg for m in models], float)[:, None]
     thr = np.asarray(false_alarm_threshold(
         false_alarm, np.stack([m.n_templates for m in models]), n_seg).value)
-    a = _solve_log_a(thr.ravel(), np.broadcast_to(n_seg, thr.shape).ravel(), confidence,
+    a = solve_log_amplitude(thr.ravel(), np.broadcast_to(n_seg, thr.shape).ravel(), confidence,
                      rule, rid=rid.ravel()).reshape(thr.shape)
     t_data = np.array([m.t_data.to_value(u.s) for m in models])[:, None]
     with np.errstate(divide="ignore"):

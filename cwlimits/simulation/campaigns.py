@@ -37,12 +37,11 @@ from astropy.table import QTable
 from scipy import stats
 
 from cwlimits import _defaults
+from cwlimits._time import gps_seconds
 from cwlimits._units import to_value
 from cwlimits.errors import InputError
 from cwlimits.response.antenna import (
     SIDEREAL_DAY,
-    _as_time,
-    _QuietTime,
     amplitude_modulation,
     get_detectors,
     orientation_factor_rule,
@@ -318,16 +317,6 @@ def _sampled_modulation(dets, coord, times_s):
     return np.array([x[0] for x in out]), np.array([x[1] for x in out])
 
 
-def _gps_seconds(start):
-    """GPS seconds of a Quantity ['time'] (GPS), an astropy Time or an ISO UTC string."""
-    # the response module's reader: offline IERS, no ERFA "dubious year" for future dates
-    with _QuietTime():
-        time = _as_time(start, "start")
-        if not time.isscalar:
-            raise InputError("start: give one time", value=str(start))
-        return float(time.gps)
-
-
 def injection_campaign(coord, *, detectors="H1", psd=1e-46 * PSD_UNIT, f_ref=100 * u.Hz,
                        bandwidth=None, t_seg=2048 * u.s, n_seg=4,
                        start=1.2e9 * u.s, h0_values=None, n_injections=200,
@@ -425,7 +414,7 @@ def injection_campaign(coord, *, detectors="H1", psd=1e-46 * PSD_UNIT, f_ref=100
         raise InputError(f"the band centre must lie above half the band width "
                          f"({b_hz / 2:.4g} Hz) so that the band stays above 0 Hz",
                          value=str(f_ref))
-    start_s = _gps_seconds(start)
+    start_s = gps_seconds(start)
     starts_s = start_s + np.arange(n_seg) * t_seg_s
     t_ref_s = start_s + n_seg * t_seg_s / 2
     # the layout of the data (no samples drawn): its cached a(t), b(t) serve every chunk

@@ -74,8 +74,7 @@ from scipy.interpolate import CubicSpline
 
 from cwlimits._units import to_value
 from cwlimits.errors import InputError, OutOfRangeError
-from cwlimits.noise import get_noise
-from cwlimits.noise._base import NoiseSource
+from cwlimits.noise import NoiseSource, get_noise
 from cwlimits.response.antenna import amplitude_modulation, antenna_patterns, get_detectors
 
 __all__ = [

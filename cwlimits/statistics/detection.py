@@ -309,7 +309,7 @@ class _SignalRule:
     batch_shape: tuple
 
 
-def _signal_rule(r2_rule, mismatch_rule, max_nodes=DEFAULT_MAX_NODES):
+def product_signal_rule(r2_rule, mismatch_rule, max_nodes=DEFAULT_MAX_NODES):
     """Product rule over R2 and mismatch for ``c = R2 (1 - mu)``, condensed if large.
 
     References
@@ -366,7 +366,7 @@ def combine_rules(r2_rule, mismatch_rule=0.0, max_nodes=DEFAULT_MAX_NODES):
     the depth moves by <= 2e-4 with the default 132 nodes at confidences up to 0.999
     (tests/test_detection.py::test_condensed_rule_matches_full_rule).
     """
-    rule = _signal_rule(r2_rule, mismatch_rule, max_nodes)
+    rule = product_signal_rule(r2_rule, mismatch_rule, max_nodes)
     k = rule.c.shape[-1]
     return QuadratureRule(rule.c.reshape(rule.batch_shape + (k,)),
                           rule.w.reshape(rule.batch_shape + (k,)), name="signal rule")
@@ -574,7 +574,7 @@ def _initial_log_a(threshold_sum, n_seg, probability, c_sorted, w_cum, c_mean):
     return np.maximum(g_mean, g_q)
 
 
-def _solve_log_a(threshold_sum, n_seg, probability, rule, method="auto", xatol=1e-9,
+def solve_log_amplitude(threshold_sum, n_seg, probability, rule, method="auto", xatol=1e-9,
                  tabulate=True, interpolate=True, rid=None):
     """Normalised amplitude ``a = h0^2 T_data / S_n`` at which ``P_det = probability``.
 
@@ -786,7 +786,7 @@ def _likelihood(observed_sum, a, n_seg, c, w, method="exact"):
     return np.sum(w * pdf, axis=-1)
 
 
-#: Points of the grid in sqrt(rho2) on which :func:`_likelihood_rows` evaluates the
+#: Points of the grid in sqrt(rho2) on which :func:`likelihood_rows` evaluates the
 #: density of each row before interpolating it (cubic in the log density).  Measured
 #: against the direct sum: relative error <= 1e-6 where the density exceeds 1e-30 of its
 #: peak, N = 1..1000 (tests/test_detection.py::test_likelihood_rows_match_the_direct_sum).
@@ -796,7 +796,7 @@ _LIKELIHOOD_POINTS = 512
 _LIKELIHOOD_SIGMAS = 14.0
 
 
-def _likelihood_rows(observed_sum, a, n_seg, c, w, method="exact"):
+def likelihood_rows(observed_sum, a, n_seg, c, w, method="exact"):
     """``sum_i w_i ncx2.pdf(2F*_b; 4N, a_bg c_bi)`` for rows ``b``: one observation per row.
 
     The same density as :func:`_likelihood` (``method`` as there), evaluated without one
@@ -991,7 +991,7 @@ def detection_probability(h0, threshold, n_seg, t_data, psd, r2_rule, mismatch_r
     """
     thr, nseg = _common_inputs(threshold, n_seg, convention, method)
     a = _amplitude(h0, t_data, psd, "to turn h0 into a signal-to-noise ratio")
-    rule = _signal_rule(r2_rule, mismatch_rule, max_nodes)
+    rule = product_signal_rule(r2_rule, mismatch_rule, max_nodes)
     shape = np.broadcast_shapes(a.shape, thr.shape, nseg.shape, rule.batch_shape)
     # Each output element reads its own rule row (rules may carry per-setup batch axes).
     rid = _rule_index(rule, shape).reshape(shape)
@@ -1004,8 +1004,8 @@ def _solve(threshold, n_seg, r2_rule, mismatch_rule, probability, convention, me
            max_nodes):
     thr, nseg = _common_inputs(threshold, n_seg, convention, method)
     prob = _check_open_unit(to_value(probability, u.one, "confidence"), "confidence")
-    rule = _signal_rule(r2_rule, mismatch_rule, max_nodes)
-    return _solve_log_a(thr, nseg, prob, rule, method)
+    rule = product_signal_rule(r2_rule, mismatch_rule, max_nodes)
+    return solve_log_amplitude(thr, nseg, prob, rule, method)
 
 
 def solve_amplitude(threshold, n_seg, t_data, psd, r2_rule, mismatch_rule=0.0,
@@ -1146,7 +1146,7 @@ def marginal_likelihood(observed, h0, n_seg, t_data, psd, r2_rule, mismatch_rule
                          value=_first_bad(obs, bad))
     a = _amplitude(h0, t_data, psd, "for the likelihood")
     obs_sum = _to_sum(obs, nseg, convention)
-    rule = _signal_rule(r2_rule, mismatch_rule, max_nodes)
+    rule = product_signal_rule(r2_rule, mismatch_rule, max_nodes)
     shape = np.broadcast_shapes(obs.shape, a.shape, nseg.shape, rule.batch_shape)
     # Same rule rows and the same rho2 = a c as detection_probability: one model for both
     # the frequentist and the Bayesian side.

@@ -172,7 +172,7 @@ def run(args):
         single.append(_summary(r2, wd))
 
     # Formatting future UTC dates makes ERFA warn "dubious year"; see cwlimits.response.
-    with resp._QuietTime():
+    with resp.QuietTime():
         assumptions = _assumptions(averages, where, args)
         echo(args, f"sky position: {where} (ICRS {coord.to_string('hmsdms')})")
         headers = ["detector", "weight", "T_data [d]", *_AVERAGE_COLUMNS, "mean R^2"]

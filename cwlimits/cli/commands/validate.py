@@ -191,10 +191,10 @@ def run(args):
     import astropy.units as u
     import numpy as np
 
+    from cwlimits._time import gps_seconds
     from cwlimits.noise import NOISE_MODELS, get_noise
     from cwlimits.runtime.store import file_hash, open_store
     from cwlimits.simulation.campaigns import (
-        _gps_seconds,
         injection_campaign,
         plot_efficiency,
         simulation_layout,
@@ -211,7 +211,7 @@ def run(args):
     f_hz = _frequency(args, setup, band.to_value(u.Hz))
     source = get_noise(args.noise)
     psd = source.psd(f_hz * u.Hz).to(u.Hz**-1)
-    start_s = _gps_seconds(args.start)
+    start_s = gps_seconds(args.start)
     h0_values = None if args.h0 is None else np.asarray(args.h0, dtype=float)
 
     coord = target.coord
