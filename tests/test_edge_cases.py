@@ -48,7 +48,7 @@ def test_band_at_the_edge_of_the_noise_model(target):
     edge = cwlimits.strain_sensitivity(_coherent(band=(20 * u.Hz, 22 * u.Hz)), "second-gen-fit",
                                        target=target)
     assert np.all(np.isfinite(edge["h0"].value))
-    with pytest.raises(cwlimits.OutOfRangeError):
+    with pytest.raises(cwlimits.errors.OutOfRangeError):
         cwlimits.strain_sensitivity(_coherent(band=(19.5 * u.Hz, 21.5 * u.Hz)),
                                     "second-gen-fit", target=target)
 

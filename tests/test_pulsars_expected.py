@@ -184,7 +184,7 @@ def test_summary_of_every_known_pulsar_and_the_figure(tmp_path, capsys):
     # the curve h95(f) = K / sqrt(sum_d T_d / S_d(f)) reproduces a targeted row at its
     # own f_gw (the same K and the same noise)
     k = float(table["factor_k"][0])
-    curve = sensitivity_curve(setup, cwlimits.DEFAULT_NOISE_MODEL, k, table["f_gw"][:1])
+    curve = sensitivity_curve(setup, cwlimits.noise.DEFAULT_NOISE_MODEL, k, table["f_gw"][:1])
     assert curve[0].value == pytest.approx(table["h95_predicted"][0], rel=1e-9)
     path = write_down_converted(data, tmp_path / "p.csv")
     out, plot = tmp_path / "known.csv", tmp_path / "known.png"

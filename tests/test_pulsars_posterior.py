@@ -139,7 +139,7 @@ def test_expected_limit_model_against_the_median_limit():
     # 2000 model draws (~0.8 %): 5 % is more than 3 sigma of their difference.
     t = _pulsar()
     n_str, length = 24, SIDEREAL_DAY / 8  # three whole sidereal days, back to back
-    psd = get_noise(cwlimits.DEFAULT_NOISE_MODEL).psd(60 * u.Hz)
+    psd = get_noise(cwlimits.noise.DEFAULT_NOISE_MODEL).psd(60 * u.Hz)
     layout = simulate_pulsar_signal(t, "H1,L1", START, n_str, length, h0=0.0, cosi=0.0,
                                     psi=0.0, phi0=0.0, psd=psd, max_gap=0.0, rng=0)
     rng = np.random.default_rng(8)

@@ -105,7 +105,7 @@ def test_bad_arguments(target, kwargs, match):
 
 
 def test_band_outside_the_noise_model(target):
-    with pytest.raises(cwlimits.OutOfRangeError):
+    with pytest.raises(cwlimits.errors.OutOfRangeError):
         strain_sensitivity(_setup(band=(5 * u.Hz, 30 * u.Hz)), "second-gen-fit", target=target)
 
 
