@@ -4,6 +4,9 @@ Issue 8 asks that each figure's axes are labelled with units; this runs a small 
 (fixed setup, simulated results) and inspects every matplotlib figure it saves.
 """
 
+import contextlib
+import io
+import logging
 import re
 
 import astropy.units as u
@@ -17,6 +20,7 @@ from cwlimits.searchspace.searchsetup import SearchSetup
 
 # A label names its unit in brackets, says it is dimensionless, or is a category axis.
 _UNIT = re.compile(r"\[[^\]]+\]|dimensionless|^target$")
+_CHAIN_OUTPUT = {}
 
 
 @pytest.fixture(scope="module")
@@ -43,8 +47,30 @@ def figures(tmp_path_factory, request):
     mp = pytest.MonkeyPatch()
     mp.setattr(Report, "figure", spy)
     request.addfinalizer(mp.undo)
-    run_report(load_config(folder / "a.toml"), echo=lambda text: None, simulate=True)
+    # no echo given: the library logs its steps (cwlimits.report logger) and prints nothing
+    records = []
+    handler = logging.Handler(logging.INFO)
+    handler.emit = records.append
+    logger = logging.getLogger("cwlimits.report")
+    level = logger.level
+    logger.addHandler(handler)
+    logger.setLevel(logging.INFO)
+    stdout = io.StringIO()
+    try:
+        with contextlib.redirect_stdout(stdout):
+            run_report(load_config(folder / "a.toml"), simulate=True)
+    finally:
+        logger.removeHandler(handler)
+        logger.setLevel(level)
+    _CHAIN_OUTPUT.update(stdout=stdout.getvalue(), log=[r.getMessage() for r in records])
     return seen
+
+
+def test_the_chain_logs_its_steps_and_prints_nothing(figures):
+    # issue 15 item 11: library code does not print; it logs (common practice for libraries)
+    assert _CHAIN_OUTPUT["stdout"] == ""
+    assert "indirect limits of 2 targets" in _CHAIN_OUTPUT["log"]
+    assert any(m.startswith("upper limits of Fict Quill") for m in _CHAIN_OUTPUT["log"])
 
 
 def test_every_axis_has_labels_with_units(figures):

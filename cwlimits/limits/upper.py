@@ -113,7 +113,7 @@ BAYES_MAX_2F = 3e6
 _MIN_LOG_LIKELIHOOD = -700.0
 
 
-class ChainWarning(UserWarning):
+class ChainWarning(CwlimitsWarning):
     """An emcee chain too short for its autocorrelation time."""
 
 

@@ -14,6 +14,7 @@ versions, seed, input hashes) that reruns the same report exactly.  Every step c
 same public functions as the individual commands, so the numbers are theirs.
 """
 
+import logging
 from dataclasses import replace
 
 import astropy.units as u
@@ -33,6 +34,8 @@ from cwlimits.sensitivity.model import signal_model, strain_sensitivity
 from cwlimits.targets.catalogue import load_targets
 from cwlimits.targets.indirect import indirect_limits
 
+_log = logging.getLogger("cwlimits.report")
+
 __all__ = ["run_report", "simulate_results", "CAUTION", "STEPS"]
 
 CAUTION = ("Every number in this report is an upper limit or a predicted sensitivity under "
@@ -40,7 +43,7 @@ CAUTION = ("Every number in this report is an upper limit or a predicted sensiti
            "index range, Gaussian stationary noise), not a detection claim.")
 
 
-def run_report(config, *, echo=print, progress=None, simulate=False, overwrite=False,
+def run_report(config, *, echo=None, progress=None, simulate=False, overwrite=False,
                output_option=None):
     """Run the analysis of ``config`` and write its report; return the report folder.
 
@@ -48,7 +51,8 @@ def run_report(config, *, echo=print, progress=None, simulate=False, overwrite=F
     ----------
     config : AnalysisConfig
     echo : callable
-        Receives one line of text per step (``print`` by default).
+        Receives one line of text per step; by default each line is logged at level INFO
+        on the ``cwlimits.report`` logger (the library prints nothing itself).
     progress : callable, optional
         ``progress(n)`` is called after each finished step (:data:`STEPS` in all).
     simulate : bool
@@ -68,6 +72,8 @@ def run_report(config, *, echo=print, progress=None, simulate=False, overwrite=F
         Before any work, if the output folder may not or cannot be written
         (:func:`cwlimits.report.html.check_report_folder`).
     """
+    if echo is None:
+        echo = _log.info
     progress = progress or (lambda n=1: None)
     # The output folder is checked first: a refused or unwritable one costs no work.
     check_report_folder(config["output"], overwrite,
