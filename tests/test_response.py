@@ -741,3 +741,25 @@ def test_apparent_place_matches_astropy_tete(epoch):
         ref = coord.transform_to(TETE(obstime=resp._offline_ut1(t)))
     assert np.max(np.abs(_wrapped(ra - ref.ra.to_value(u.rad)))) < APPARENT_TOL_RAD
     assert np.max(np.abs(dec - ref.dec.to_value(u.rad))) < APPARENT_TOL_RAD
+
+
+def test_network_abc_per_band_matches_network_averages_of_each_weighting():
+    # One implementation of the network averages (issue 15): per-band weights (columns)
+    # give, column by column, the A, B, C that time_averages computes for those weights
+    # (A = sum_d w_d sin^2(zeta_d) A_d, Prix & Krishnan 2009, arXiv:0907.2569).
+    coord = SkyCoord(ra=1.1 * u.rad, dec=-0.4 * u.rad)
+    weights = np.array([[1.0, 2.0, 0.5], [1.0, 1.0, 3.0]])     # (H1, L1) x 3 bands
+    av = resp.time_averages(["H1", "L1"], coord, "2031-02-03T00:00:00", 3 * u.day)
+    A, B, C = av.network_abc(weights)
+    assert A.shape == (3,)
+    for k in range(3):
+        ref = resp.time_averages(["H1", "L1"], coord, "2031-02-03T00:00:00", 3 * u.day,
+                                 weights=weights[:, k])
+        assert A[k] == pytest.approx(float(ref.A), rel=1e-12)
+        assert B[k] == pytest.approx(float(ref.B), rel=1e-12)
+        assert C[k] == pytest.approx(float(ref.C), abs=1e-12)
+    one = av.for_detector(1)
+    alone = resp.time_averages(["L1"], coord, "2031-02-03T00:00:00", 3 * u.day)
+    assert float(one.A) == pytest.approx(float(alone.A), rel=1e-12)
+    with pytest.raises(InputError, match="one positive weight per detector"):
+        av.network_abc(np.ones(3))

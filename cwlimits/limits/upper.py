@@ -985,12 +985,7 @@ def _network_abc(setup, sm, target, start, band_index):
 
     detectors = get_detectors(list(setup.detectors))
     av = time_averages(detectors, target.coord, start, setup.total_span)
-    a_d, b_d, c_d = (np.asarray(getattr(av, k).to_value(u.one)) for k in
-                     ("A_det", "B_det", "C_det"))
-    sin2zeta = np.sin(u.Quantity([d.zeta for d in detectors]).to_value(u.rad)) ** 2
-    inv = 1.0 / sm.psd_det.to_value(1 / u.Hz)[:, band_index]       # equal T_d
-    weights = inv / inv.sum(axis=0)
-    return tuple((weights * (sin2zeta * x)[:, None]).sum(axis=0) for x in (a_d, b_d, c_d))
+    return av.network_abc(1.0 / sm.psd_det.to_value(1 / u.Hz)[:, band_index])  # equal T_d
 
 
 def _emcee_items(setup, sm, arrays, target, start, idx, hmax):

@@ -394,9 +394,7 @@ class _TargetModel:
         # plan uses its own span.
         av = time_averages(detectors, coord, start, span_s * u.s)
         _, w, cosi, psi = orientation_factor_rule(av, order=16, return_nodes=True)
-        sin2zeta = np.sin(u.Quantity([d.zeta for d in detectors]).to_value(u.rad)) ** 2
-        abc = [float(np.sum(weights * sin2zeta * np.asarray(getattr(av, k).to_value(u.one))))
-               for k in ("A_det", "B_det", "C_det")]
+        abc = [float(x) for x in av.network_abc(weights)]
         r2 = orientation_factor(*abc, cosi, psi)
         r2 = np.asarray(getattr(r2, "value", r2))
         return combine_rules(QuadratureRule(r2, w), 0.0, max_nodes=_R2_NODES)

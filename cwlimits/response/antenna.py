@@ -30,7 +30,7 @@ is silenced inside this module only.
 import functools
 import math
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from importlib import resources
 from pathlib import Path
 
@@ -1016,6 +1016,58 @@ class ResponseAverages:
     def orientation_factor(self, cosi, psi):
         """R^2 at ``cosi``, ``psi`` for these averages; see :func:`orientation_factor`."""
         return orientation_factor(self.A, self.B, self.C, cosi, psi)
+
+    def detector_abc(self):
+        """Per-detector A, B, C with sin^2(zeta) folded in, floats ``(n_det, *sky shape)``.
+
+        ``sin^2(zeta_d) A_d`` is the A of detector d alone in :func:`orientation_factor`
+        (JKS 1998, gr-qc/9804014, eqs. 10-13: F+ = sin(zeta) (a cos 2psi + b sin 2psi)).
+        """
+        sky_ndim = np.ndim(self.A_det) - 1
+        sz = np.sin(u.Quantity([d.zeta for d in self.detectors]).to_value(u.rad)) ** 2
+        sz = sz.reshape((-1,) + (1,) * sky_ndim)
+        return tuple(sz * np.asarray(x.to_value(u.one)) for x in
+                     (self.A_det, self.B_det, self.C_det))
+
+    def for_detector(self, i):
+        """These averages for detector ``i`` alone (its own R^2 rule and quantiles)."""
+        a, b, c = (x[i] << u.one for x in self.detector_abc())
+        return replace(self, A=a, B=b, C=c)
+
+    def network_abc(self, weights=None):
+        """Network A, B, C for detector weights of one's own (per band, say), as floats.
+
+        The one implementation of the network-weighted averages: ``A = sum_d w_d
+        sin^2(zeta_d) A_d`` (likewise B, C) with ``w_d`` the weights normalised over the
+        detectors, so that ``rho^2 = R^2 h0^2 T_data / S_eff`` for a network whose
+        detectors weigh ``T_d / S_d`` (Cutler & Schutz 2005, gr-qc/0504011; Prix &
+        Krishnan 2009, arXiv:0907.2569).
+
+        Parameters
+        ----------
+        weights : array_like, optional
+            Shape ``(n_detectors, ...)``, e.g. ``T_d / S_d`` per detector and band; each
+            column is normalised to sum 1.  ``None`` uses the weights of these averages
+            (then the result equals ``A``, ``B``, ``C``).
+
+        Returns
+        -------
+        A, B, C : ndarray
+            Shape ``weights.shape[1:] + sky shape``.
+        """
+        per = self.detector_abc()
+        if weights is None:
+            weights = self.weights
+        w = np.asarray(weights, dtype=float)
+        if w.shape[:1] != (len(self.detectors),) or np.any(~(w > 0)):
+            raise InputError(f"weights: need one positive weight per detector "
+                             f"({len(self.detectors)}), got shape {w.shape}")
+        w = w / w.sum(axis=0, keepdims=True)
+        sky_ndim = per[0].ndim - 1
+        w = w.reshape(w.shape + (1,) * sky_ndim)
+        extra = (1,) * (w.ndim - 1 - sky_ndim)
+        return tuple(np.sum(w * x.reshape(x.shape[:1] + extra + x.shape[1:]), axis=0)
+                     for x in per)
 
 
 def time_averages(detectors, coord, start, span, *, duty=1.0, weights=None, method="auto",

@@ -273,18 +273,15 @@ def signal_model(setup, noise, target=None, bands=None, *, start=DEFAULT_START,
     inv = (t_det / psd_det).to_value(u.s * u.Hz)
     psd = (t_data.to_value(u.s) / inv.sum(axis=0)) << 1 / u.Hz
     weights = inv / inv.sum(axis=0)                              # (n_det, n_bands)
-    sin2zeta = np.sin(u.Quantity([d.zeta for d in detectors]).to_value(u.rad)) ** 2
     span = setup.total_span
     if sky == "target":
         sky_key = ("averages", tuple(names), target.coord.ra.deg, target.coord.dec.deg,
                    str(start), float(span.to_value(u.s)))
         av = cached(sky_key, lambda: time_averages(detectors, target.coord, start, span))
-        a_d, b_d, c_d = (np.asarray(getattr(av, k).to_value(u.one)) for k in
-                         ("A_det", "B_det", "C_det"))
         _, w, cosi, psi = cached(sky_key + (order,), lambda: orientation_factor_rule(
             av, order=order, return_nodes=True))
         # Network averages per band: A(f) = sum_d w_d(f) sin^2(zeta_d) A_d (response module).
-        A, B, C = ((weights * (sin2zeta * x)[:, None]).sum(axis=0) for x in (a_d, b_d, c_d))
+        A, B, C = av.network_abc(weights)
         same = np.allclose(weights, weights[:, :1])
         if same:
             A, B, C = A[:1], B[:1], C[:1]

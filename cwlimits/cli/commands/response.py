@@ -165,10 +165,8 @@ def run(args):
     R2, w = resp.orientation_factor_rule(averages, order=args.order)
     network = _summary(R2, w)
     single = []
-    for i, det in enumerate(detectors):
-        sz = np.sin(det.zeta) ** 2
-        r2, wd = resp.orientation_factor_rule(
-            _one(averages, i, sz), order=args.order)
+    for i in range(len(detectors)):
+        r2, wd = resp.orientation_factor_rule(averages.for_detector(i), order=args.order)
         single.append(_summary(r2, wd))
 
     # Formatting future UTC dates makes ERFA warn "dubious year"; see cwlimits.response.
@@ -205,17 +203,6 @@ def run(args):
             atomic_write(plot, lambda handle: handle.write(figure), binary=True)
             echo(args, f"wrote {plot}")
     return 0
-
-
-def _one(averages, i, sin2zeta):
-    """ResponseAverages of detector i alone (for its own R^2 quantiles)."""
-    from cwlimits.response import antenna as resp
-
-
-    fields = dict(averages.__dict__)
-    fields.update(A=averages.A_det[i] * sin2zeta, B=averages.B_det[i] * sin2zeta,
-                  C=averages.C_det[i] * sin2zeta)
-    return resp.ResponseAverages(**fields)
 
 
 def _summary(R2, w):
