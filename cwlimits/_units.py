@@ -16,6 +16,8 @@ __all__ = [
     "to_value",
     "as_frequency_hz",
     "positive_value",
+    "fraction",
+    "positive_finite",
     "parse_quantity",
     "parse_unit",
     "DIMENSIONLESS",
@@ -71,6 +73,51 @@ def as_frequency_hz(f, name="frequency"):
         bad = f_hz[~np.isfinite(f_hz)].flat[0]
         raise InputError(f"{name} must be finite (in Hz)", value=float(bad))
     return f_hz
+
+
+def _first_bad(values, bad):
+    return float(values[bad].flat[0]) if values.ndim else float(values)
+
+
+def fraction(value, name):
+    """A probability, confidence or false-alarm level: floats strictly between 0 and 1.
+
+    The one check of an open unit interval (NaN fails it).  Returns a float for a scalar,
+    else a float array.
+
+    Raises
+    ------
+    InputError
+        ``"<name> must lie strictly between 0 and 1"``, with the first offending value.
+    """
+    try:
+        values = np.asarray(value, dtype=float)
+    except (TypeError, ValueError):
+        raise InputError(f"{name} must be a number strictly between 0 and 1",
+                         value=str(value)) from None
+    bad = ~((values > 0) & (values < 1))
+    if np.any(bad):
+        raise InputError(f"{name} must lie strictly between 0 and 1",
+                         value=_first_bad(values, bad))
+    return float(values) if values.ndim == 0 else values
+
+
+def positive_finite(value, name, unit_text=""):
+    """Plain numbers that must be positive and finite (floats; a float for a scalar).
+
+    The one check of positive, finite numbers without a unit; for a Quantity use
+    :func:`positive_value`.  ``unit_text`` (e.g. ``" (in Hz)"``) ends the message.
+    """
+    try:
+        values = np.asarray(value, dtype=float)
+    except (TypeError, ValueError):
+        raise InputError(f"{name} must be a positive number{unit_text}",
+                         value=str(value)) from None
+    bad = ~(np.isfinite(values) & (values > 0))
+    if np.any(bad):
+        raise InputError(f"{name} must be positive and finite{unit_text}",
+                         value=_first_bad(values, bad))
+    return float(values) if values.ndim == 0 else values
 
 
 def positive_value(quantity, unit, name):

@@ -98,3 +98,18 @@ def test_far_and_old_target_limits_are_finite(target):
     table = cwlimits.strain_sensitivity(_coherent(), "second-gen-fit", target=far)
     assert np.all(np.isfinite(table["age_ratio"].value))
     assert not np.any(table["beats_age"])
+
+
+@pytest.mark.parametrize("value", [0.0, 1.0, float("nan"), -0.5, 1.5])
+def test_every_level_check_is_the_open_unit_interval(value):
+    # confidence, false-alarm and detection probabilities live in (0, 1) (common practice):
+    # one check, the same message from the statistics, the limits and the known pulsars
+    from cwlimits._units import fraction
+    from cwlimits.errors import InputError
+    from cwlimits.statistics.detection import false_alarm_threshold
+
+    for call in (lambda: fraction(value, "confidence"),
+                 lambda: false_alarm_threshold(value, 10, 1)):
+        with pytest.raises(InputError, match="strictly between 0 and 1"):
+            call()
+    assert fraction([0.05, 0.95], "levels").tolist() == [0.05, 0.95]

@@ -43,6 +43,7 @@ from astropy.table import QTable
 from scipy import integrate, interpolate, stats
 from scipy.optimize import elementwise
 
+from cwlimits._units import fraction
 from cwlimits.errors import ComputationError, CwlimitsWarning, InputError
 from cwlimits.limits.results import STATISTIC_COLUMNS, SearchResults, load_results
 from cwlimits.noise import DEFAULT_NOISE_MODEL
@@ -681,10 +682,7 @@ def _check_choice(value, choices, name):
 
 
 def _check_confidence(confidence):
-    value = float(confidence)
-    if not (0.0 < value < 1.0):
-        raise InputError("confidence must lie strictly between 0 and 1", value=confidence)
-    return value
+    return float(fraction(confidence, "confidence"))
 
 
 def _quantity_or_none(q, unit, name):

@@ -66,7 +66,7 @@ from astropy.table import QTable
 from scipy import optimize
 
 from cwlimits import _defaults
-from cwlimits._units import to_value
+from cwlimits._units import fraction, to_value
 from cwlimits.errors import ComputationError, InputError
 from cwlimits.noise import DEFAULT_NOISE_MODEL, band_psd
 from cwlimits.response.antenna import (
@@ -948,9 +948,8 @@ def _planner(target, noise, span, *, case, band, band_width, detectors, lattice,
     if span_s < t_min:
         raise InputError(f"span {u.Quantity(span)} is shorter than one segment "
                          f"(t_seg_min = {u.Quantity(t_seg_min)})", value=str(span))
-    for value, name in ((confidence, "confidence"), (false_alarm, "false_alarm")):
-        if not 0 < float(value) < 1:
-            raise InputError(f"{name} must lie strictly between 0 and 1", value=value)
+    fraction(confidence, "confidence")
+    fraction(false_alarm, "false_alarm")
     case_target = _case_target(target, case)
     base = _base_setup(band, band_width, detectors, lattice, braking_index, cost_coherent,
                        cost_semicoherent, duty_factor)

@@ -34,7 +34,7 @@ import numpy as np
 from astropy.table import QTable
 
 from cwlimits import _defaults
-from cwlimits._units import to_value
+from cwlimits._units import fraction, to_value
 from cwlimits.errors import InputError
 from cwlimits.noise import DEFAULT_NOISE_MODEL
 from cwlimits.pulsars.emission import get_emission, harmonics
@@ -251,8 +251,7 @@ def targeted_sensitivity(target, setup, noise=DEFAULT_NOISE_MODEL, *, kind="auto
     n_noise = int(n_noise)
     if not 1 <= n_noise <= 100000:
         raise InputError("n_noise must be between 1 and 100000", value=n_noise)
-    if not 0 < confidence < 1:
-        raise InputError("confidence must lie in (0, 1)", value=confidence)
+    confidence = fraction(confidence, "confidence")
     model = get_emission(emission)
     prior = (OrientationPrior.from_target(target) if orientation == "catalogue"
              else OrientationPrior())

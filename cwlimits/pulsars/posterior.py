@@ -30,6 +30,7 @@ from astropy.table import QTable
 from scipy import special
 
 from cwlimits import _defaults
+from cwlimits._units import fraction
 from cwlimits.errors import InputError
 from cwlimits.pulsars.data import DownConvertedData, stretch_sums
 from cwlimits.pulsars.grid import (
@@ -196,8 +197,7 @@ def pulsar_posterior(data, target, *, noise="student-t", h0_prior="uniform", h0_
     _check(orientation, ("catalogue", "uniform"), "orientation")
     _check(sampler, SAMPLERS, "sampler")
     _check(harmonic, HARMONICS, "harmonic")
-    if not 0 < confidence < 1:
-        raise InputError("confidence must lie in (0, 1)", value=confidence)
+    confidence = fraction(confidence, "confidence")
     if not target.has_spin:
         raise InputError(f"target '{target.name}' has no known spin (f_rot, fdot_rot)")
     data = _as_data(data, target, harmonic)

@@ -34,6 +34,7 @@ from astropy.time import Time
 from scipy.interpolate import CubicSpline
 
 from cwlimits import _defaults
+from cwlimits._units import fraction
 from cwlimits.errors import InputError
 from cwlimits.noise import band_psd, get_noise
 from cwlimits.response.antenna import (
@@ -336,10 +337,7 @@ def signal_model(setup, noise, target=None, bands=None, *, start=DEFAULT_START,
 
 
 def _check_probability(value, name):
-    value = np.asarray(value, float)
-    if np.any(~((value > 0) & (value < 1))):
-        raise InputError(f"{name} must lie strictly between 0 and 1", value=value.tolist())
-    return value
+    return np.asarray(fraction(value, name), float)
 
 
 def strain_sensitivity(setup, noise, bands=None, target=None, *, confidence=0.95,

@@ -38,7 +38,7 @@ from scipy import stats
 
 from cwlimits import _defaults
 from cwlimits._time import gps_seconds
-from cwlimits._units import to_value
+from cwlimits._units import fraction, to_value
 from cwlimits.errors import InputError
 from cwlimits.response.antenna import (
     SIDEREAL_DAY,
@@ -404,8 +404,7 @@ def injection_campaign(coord, *, detectors="H1", psd=1e-46 * PSD_UNIT, f_ref=100
                          value=(n_seg, n_injections, n_bins))
     for name, value in (("false_alarm", false_alarm), ("confidence", confidence),
                         ("interval", interval)):
-        if not 0 < float(value) < 1:
-            raise InputError(f"{name} must lie strictly between 0 and 1", value=value)
+        fraction(value, name)
     t_seg_s = float(to_value(t_seg, u.s, "t_seg"))
     m, band = simulation_layout(t_seg, n_det, n_seg, n_bins, bandwidth)
     b_hz = band.to_value(u.Hz)

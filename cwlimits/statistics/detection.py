@@ -38,7 +38,7 @@ from astropy.table import QTable
 from scipy import special, stats
 from scipy.optimize import elementwise
 
-from cwlimits._units import to_value
+from cwlimits._units import fraction, positive_finite, to_value
 from cwlimits.errors import ComputationError, InputError
 
 __all__ = [
@@ -102,21 +102,11 @@ def _check_method(method):
 
 
 def _check_open_unit(values, name):
-    values = np.asarray(values, dtype=float)
-    bad = ~((values > 0) & (values < 1))
-    if np.any(bad):
-        raise InputError(f"{name} must lie strictly between 0 and 1",
-                         value=_first_bad(values, bad))
-    return values
+    return np.asarray(fraction(values, name), dtype=float)
 
 
 def _check_positive(values, name, unit_text=""):
-    values = np.asarray(values, dtype=float)
-    bad = ~(np.isfinite(values) & (values > 0))
-    if np.any(bad):
-        raise InputError(f"{name} must be positive and finite{unit_text}",
-                         value=_first_bad(values, bad))
-    return values
+    return np.asarray(positive_finite(values, name, unit_text), dtype=float)
 
 
 def _check_n_seg(n_seg):

@@ -155,9 +155,9 @@ def run(args):
 
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
-    if not (0.0 < args.confidence < 1.0):
-        raise InputError("--confidence must lie strictly between 0 and 1",
-                         value=args.confidence)
+    from cwlimits._units import fraction
+
+    fraction(args.confidence, "--confidence")
     if args.posterior is not None and plot is None:
         raise InputError("--posterior BAND draws a figure: give --plot FILE too")
     for name in ("draws", "steps", "walkers"):

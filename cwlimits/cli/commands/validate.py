@@ -134,10 +134,11 @@ def _check_numbers(args):
             raise InputError("--h0-span needs 0 < LOW < HIGH", value=list(args.h0_span))
         if args.h0_steps < 2:
             raise InputError("--h0-steps must be at least 2", value=args.h0_steps)
+    from cwlimits._units import fraction
+
     for name, value in (("--confidence", args.confidence),
                         ("--false-alarm", args.false_alarm), ("--interval", args.interval)):
-        if not 0 < value < 1:
-            raise InputError(f"{name} must lie strictly between 0 and 1", value=value)
+        fraction(value, name)
     if args.seed is not None and args.seed < 0:
         raise InputError("--seed must be a non-negative integer", value=args.seed)
     steps = len(args.h0) if args.h0 is not None else args.h0_steps
