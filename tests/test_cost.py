@@ -331,3 +331,29 @@ def test_cli_spin_box(tmp_path, capsys, demo_catalogue_path):
     assert "box around the spin" in capsys.readouterr().out
     assert main(CLI + ["--spin-box", "1e-3", "0.1"]) == 2
     assert "--spin-box needs" in capsys.readouterr().err
+
+
+def test_lattice_counts_over_candidates_equal_count_templates_setup_by_setup():
+    # The vectorised rule planning uses is the cost stage's own: candidates along one axis
+    # give, row by row, count_templates of each setup (Prix 2007, arXiv:0707.0428, eq. 68)
+    from cwlimits.searchspace.cost import lattice_counts, sqrt_block_determinants
+    from cwlimits.searchspace.lattices import get_lattice
+    from cwlimits.searchspace.metric import coherent_metric_scaled
+    from cwlimits.searchspace.searchsetup import SearchSetup
+
+    space = AgeBasedSpace(3000 * u.yr)
+    lo, hi = np.array([100.0, 300.0]) * u.Hz, np.array([101.0, 302.0]) * u.Hz
+    volumes = np.stack([space.volume(lo, hi, k).value for k in (1, 2, 3)])
+    theta = [get_lattice("covering", k).normalised_thickness for k in (1, 2, 3)]
+    t_segs = np.array([0.5, 2.0, 8.0]) * u.day
+    mus = np.array([0.1, 0.3, 0.5])
+    sd = np.array([sqrt_block_determinants(coherent_metric_scaled(0.0, 3), t.to_value(u.s), 3)
+                   for t in t_segs])
+    counts, dims = lattice_counts(sd, theta, mus, volumes)
+    assert counts.shape == dims.shape == (3, 2)
+    for i, (t, mu) in enumerate(zip(t_segs, mus, strict=True)):
+        s = SearchSetup(t_seg=t, n_seg=4, mismatch_coherent=mu, lattice="covering",
+                        band=(100 * u.Hz, 110 * u.Hz))
+        ref = count_templates(s, space, bands=(lo, hi))
+        assert counts[i] == pytest.approx(np.asarray(ref["n_coh"]), rel=1e-12)
+        assert dims[i].tolist() == list(ref["dims_coh"])

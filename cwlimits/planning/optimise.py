@@ -19,18 +19,19 @@ Constraints (never broken by a returned plan): ``N T <= T_max``, ``T >= t_seg_mi
 
 Method
 ------
-The cost per band is evaluated by a vectorised copy of
-:func:`cwlimits.searchspace.cost.count_templates`
-(the same metric determinants, lattice thicknesses and thin-direction rule; tested to
-equal it).  The depth ``D = sqrt(T_data / a)``, with ``a = h0^2 T_data / S_n`` solving
-``P_det = confidence`` (:func:`cwlimits.statistics.detection.critical_depth`), depends on the setup
-only through ``N``, the mismatches, the dimensions of the two lattices and the number of
-trials; ``ln a`` is tabulated on a grid of ``(ln N, ln mu_coherent, ln mu_semicoherent,
-log10 trials)`` and interpolated linearly.  The tables are built once per process for the
-canonical orientation-factor shape (``A = B``, ``C = 0``, which long observations
-approach; JKS 1998) and shifted by ``-ln`` of each target's mean ``R^2`` (exact for a
-scaled rule; within 1 % in depth of tables built from the target's own rule, tested),
-so every target and case shares them.  The search is
+The cost per band of many candidate setups at once comes from the cost stage's own
+vectorised rule (:func:`cwlimits.searchspace.cost.lattice_counts`, the thin-direction rule
+of :func:`cwlimits.searchspace.cost.count_templates`, with the metric determinants
+tabulated per number of segments).  The depth ``D = sqrt(T_data / a)``, with ``a = h0^2
+T_data / S_n`` solving ``P_det = confidence``
+(:func:`cwlimits.statistics.detection.critical_depth`), depends on the setup only through
+``N``, the mismatches, the dimensions of the two lattices and the number of trials; ``ln
+a`` is tabulated on a grid of ``(ln N, ln mu_coherent, ln mu_semicoherent, log10 trials)``
+and interpolated linearly.  The tables are built once per process for the canonical
+orientation-factor shape (``A = B``, ``C = 0``, which long observations approach; JKS 1998)
+and shifted by ``-ln`` of each target's mean ``R^2`` (exact for a scaled rule; within 1 %
+in depth of tables built from the target's own rule, tested), so every target and case
+shares them.  The search is
 
 1. a vectorised grid over ``N`` and the mismatches (both searched in [0.03, 0.5]), and
    ``T`` for beat-age (absolute lattice ``t_seg_min 2^(j/2)``); for depth the segment
@@ -75,7 +76,7 @@ from cwlimits.response.antenna import (
     orientation_factor_rule,
     time_averages,
 )
-from cwlimits.searchspace.cost import computing_cost, sqrt_block_determinants
+from cwlimits.searchspace.cost import computing_cost, lattice_counts, sqrt_block_determinants
 from cwlimits.searchspace.lattices import get_lattice, sample_mismatch
 from cwlimits.searchspace.metric import (
     coherent_metric_scaled,
@@ -411,14 +412,11 @@ class _TargetModel:
         return np.stack([self._sd_semi[int(x)] for x in n.ravel()]).reshape(n.shape + (3,))
 
     def _counts(self, t_s, n, mu, sd):
-        """max_k theta_k mu^(-k/2) sd_k T^(k(k+1)/2) V_k, at least 1 (cost.count_templates)."""
-        k = np.arange(1, 4)
-        factor = (self.theta * np.asarray(mu)[:, None] ** (-k / 2) * sd
-                  * np.asarray(t_s)[:, None] ** self.powers)          # (c, 3)
-        counts = factor[:, :, None] * self.volumes[None]             # (c, 3, nb)
-        best = np.argmax(counts, axis=1)
-        value = np.take_along_axis(counts, best[:, None], axis=1)[:, 0]
-        return np.maximum(value, 1.0), best + 1
+        """Templates per candidate and band: the cost stage's thin-direction rule."""
+        sqrt_dets = sd * np.asarray(t_s)[:, None] ** self.powers     # (c, 3), SI
+        counts, dims = lattice_counts(sqrt_dets, self.theta, mu, self.volumes)
+        # every planned band holds some of the space; at least one template (and trial)
+        return np.maximum(counts, 1.0), np.maximum(dims, 1)
 
     def cost_info(self, t_s, n, mu_c, mu_f):
         t_s, n = np.asarray(t_s, float), np.asarray(n, int)

@@ -109,16 +109,48 @@ def _band_edges(setup, bands):
     return lo, hi
 
 
-def _stage(sqrt_dets, thickness, mismatch, volumes):
-    """max_k theta_k mu^(-k/2) sqrt(det g_k) V_k and the k that gives it (thin-direction rule)."""
-    k = np.arange(1, len(sqrt_dets) + 1)
-    factor = np.asarray(thickness) * mismatch ** (-k / 2) * np.asarray(sqrt_dets)
-    counts = factor.reshape((-1,) + (1,) * volumes[0].ndim) * np.stack(volumes)
-    best = np.argmax(counts, axis=0)
-    n = np.take_along_axis(counts, best[None], axis=0)[0]
-    inside = volumes[0] > 0
+def lattice_counts(sqrt_dets, thickness, mismatch, volumes):
+    """Templates per band of a lattice, vectorised over candidate setups and bands.
+
+    The thin-direction rule of :func:`count_templates`: ``N = max_k theta_k mu^(-k/2)
+    sqrt(det g_k) V_k`` over the nested projections ``k = 1..K``, at least one template
+    in a band with any parameter space and none in a band without (Prix 2007,
+    arXiv:0707.0428, eq. 68; Wette et al. 2008, arXiv:0802.3332).  Planning calls it for
+    many candidate setups at once.
+
+    Parameters
+    ----------
+    sqrt_dets : array_like (..., K)
+        ``sqrt(det g_k)`` of the leading blocks of the metric in SI units
+        (:func:`sqrt_block_determinants`), one row per candidate setup.
+    thickness : array_like (K,)
+        Normalised thickness ``theta_k`` of the lattice in k dimensions.
+    mismatch : array_like (...)
+        Maximum mismatch of each candidate.
+    volumes : array_like (K, *band shape)
+        Parameter-space volume of each band in k dimensions.
+
+    Returns
+    -------
+    counts, dims : ndarray (..., *band shape)
+        Template counts, and the k that gave each (0 for a band without any space).
+    """
+    sd = np.asarray(sqrt_dets, dtype=float)
+    vol = np.asarray(volumes, dtype=float)
+    k = np.arange(1, sd.shape[-1] + 1)
+    factor = np.asarray(thickness) * np.asarray(mismatch, float)[..., None] ** (-k / 2) * sd
+    axis = factor.ndim - 1
+    counts = factor.reshape(factor.shape + (1,) * (vol.ndim - 1)) * vol
+    best = np.expand_dims(np.argmax(counts, axis=axis), axis)
+    n = np.take_along_axis(counts, best, axis=axis).squeeze(axis)
+    inside = vol[0] > 0
     # never a fraction of a template: a band with any of the space holds at least one
-    return np.where(inside, np.maximum(n, 1.0), 0.0), np.where(inside, best + 1, 0)
+    return np.where(inside, np.maximum(n, 1.0), 0.0), np.where(inside, best.squeeze(axis) + 1, 0)
+
+
+def _stage(sqrt_dets, thickness, mismatch, volumes):
+    """One setup's counts per band (:func:`lattice_counts` without a candidate axis)."""
+    return lattice_counts(sqrt_dets, thickness, mismatch, np.stack(volumes))
 
 
 def sqrt_block_determinants(g_scaled, t_seg_s, n_dims):
