@@ -5,38 +5,8 @@ them into frequentist or Bayesian strain upper limits (:func:`upper_limits`) and
 ellipticity and r-mode amplitude limits beside the indirect limits.
 """
 
-from .results import (
-    RETIRED_RESULT_COLUMNS,
-    STATISTIC_COLUMNS,
-    SearchResults,
-    load_results,
-)
-from .upper import (
-    DISTANCE_PRIORS,
-    METHODS,
-    PRIORS,
-    SAMPLERS,
-    ChainWarning,
-    band_posterior,
-    check_bayes_range,
-    posterior_quantiles,
-    sample_band,
-    upper_limits,
-)
+from cwlimits.limits import results, upper
+from cwlimits.limits.results import *  # noqa: F403
+from cwlimits.limits.upper import *  # noqa: F403
 
-__all__ = [
-    "SearchResults",
-    "load_results",
-    "STATISTIC_COLUMNS",
-    "RETIRED_RESULT_COLUMNS",
-    "METHODS",
-    "PRIORS",
-    "DISTANCE_PRIORS",
-    "SAMPLERS",
-    "ChainWarning",
-    "upper_limits",
-    "check_bayes_range",
-    "band_posterior",
-    "posterior_quantiles",
-    "sample_band",
-]
+__all__ = [*results.__all__, *upper.__all__]

@@ -5,32 +5,7 @@ target at a budget and span (:func:`optimise_setup`, :func:`plan_search`), ranks
 and splits the budget between targets.
 """
 
-from .optimise import (
-    CASES,
-    DEFAULT_BAND,
-    MEASURES,
-    OBJECTIVES,
-    PowerLawModel,
-    Ranking,
-    SearchPlan,
-    allocate_budget,
-    as_budget,
-    optimise_setup,
-    plan_search,
-    rank_targets,
-)
+from cwlimits.planning import optimise
+from cwlimits.planning.optimise import *  # noqa: F403
 
-__all__ = [
-    "OBJECTIVES",
-    "MEASURES",
-    "CASES",
-    "DEFAULT_BAND",
-    "SearchPlan",
-    "Ranking",
-    "PowerLawModel",
-    "as_budget",
-    "optimise_setup",
-    "plan_search",
-    "allocate_budget",
-    "rank_targets",
-]
+__all__ = [*optimise.__all__]

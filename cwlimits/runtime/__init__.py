@@ -5,44 +5,10 @@ process or distributed executor; :mod:`.store` is the SQLite results store that 
 interrupted run resume without losing finished chunks; :mod:`.progress` shows progress.
 """
 
-from .executor import (
-    DEFAULT_CHUNK_SIZE,
-    SerialExecutor,
-    chunk_bounds,
-    chunk_seed,
-    make_executor,
-    map_chunks,
-    named_seed,
-)
-from .progress import (
-    is_terminal,
-    progress,
-)
-from .store import (
-    STORE_NAME,
-    ResultStore,
-    canonical_json,
-    config_hash,
-    file_hash,
-    is_store,
-    open_store,
-)
+from cwlimits.runtime import executor, store
+from cwlimits.runtime import progress as _progress  # its function progress() takes the name
+from cwlimits.runtime.executor import *  # noqa: F403
+from cwlimits.runtime.progress import *  # noqa: F403
+from cwlimits.runtime.store import *  # noqa: F403
 
-__all__ = [
-    "map_chunks",
-    "make_executor",
-    "chunk_bounds",
-    "chunk_seed",
-    "named_seed",
-    "SerialExecutor",
-    "DEFAULT_CHUNK_SIZE",
-    "progress",
-    "is_terminal",
-    "ResultStore",
-    "open_store",
-    "is_store",
-    "config_hash",
-    "canonical_json",
-    "file_hash",
-    "STORE_NAME",
-]
+__all__ = [*executor.__all__, *_progress.__all__, *store.__all__]

@@ -5,18 +5,7 @@ band, :func:`signal_model`) and solves it for the h0 a search detects at a given
 and detection probability (:func:`strain_sensitivity`, :func:`sensitivity_depth`).
 """
 
-from .model import (
-    DEFAULT_START,
-    SignalModel,
-    sensitivity_depth,
-    signal_model,
-    strain_sensitivity,
-)
+from cwlimits.sensitivity import model
+from cwlimits.sensitivity.model import *  # noqa: F403
 
-__all__ = [
-    "DEFAULT_START",
-    "SignalModel",
-    "signal_model",
-    "strain_sensitivity",
-    "sensitivity_depth",
-]
+__all__ = [*model.__all__]

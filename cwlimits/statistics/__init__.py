@@ -5,26 +5,7 @@ detection probability averaged over the signal population, the vectorised solve 
 amplitude at a detection probability, and the marginal likelihood used by the limits.
 """
 
-from .detection import (
-    QuadratureRule,
-    SensitivityEstimate,
-    combine_rules,
-    critical_depth,
-    detection_probability,
-    estimate_sensitivity,
-    false_alarm_threshold,
-    marginal_likelihood,
-    solve_amplitude,
-)
+from cwlimits.statistics import detection
+from cwlimits.statistics.detection import *  # noqa: F403
 
-__all__ = [
-    "QuadratureRule",
-    "SensitivityEstimate",
-    "combine_rules",
-    "false_alarm_threshold",
-    "detection_probability",
-    "solve_amplitude",
-    "critical_depth",
-    "marginal_likelihood",
-    "estimate_sensitivity",
-]
+__all__ = [*detection.__all__]
