@@ -133,7 +133,7 @@ class Target:
 
     @property
     def characteristic_age(self):
-        """f_rot / (2 |fdot_rot|), derived from the spin (None without one).
+        """f_rot / (2 abs(fdot_rot)), derived from the spin (None without one).
 
         The spin-down age of a star with braking index 3 born spinning much faster
         (Manchester & Taylor 1977, *Pulsars*, Sect. 6); a derived quantity only.
@@ -193,7 +193,7 @@ class TargetCatalogue:
 
     @property
     def characteristic_age(self):
-        """f_rot / (2 |fdot_rot|) per target (NaN without a known spin); derived.
+        """f_rot / (2 abs(fdot_rot)) per target (NaN without a known spin); derived.
 
         Braking index 3 spin-down from a much faster initial spin (Manchester & Taylor
         1977, *Pulsars*, Sect. 6).  Reported beside the catalogue, never used as the age.
