@@ -342,9 +342,10 @@ def load_targets(path):
 
     Examples
     --------
-    >>> cat = load_targets("target_lists/demo.csv")  # doctest: +SKIP
-    >>> cat.target(cat.names[0]).distance  # doctest: +SKIP
-    <Quantity 1.2 kpc>
+    >>> from importlib.resources import files
+    >>> cat = load_targets(files("cwlimits") / "data" / "demo.csv")  # the fictional demo
+    >>> cat.target("Fict Ember").distance
+    <Quantity 0.4 kpc>
     """
     table = read_table(path, error=CatalogueError)
     table.require("name", "distance")
