@@ -286,6 +286,6 @@ __all__ = [
     "ComputationError",
     "SizeLimitError",
     "CwlimitsWarning",
-    # size limits (README: "Size limits")
+    # size limits (docs: "Size limits")
     "allow_large",
 ]
