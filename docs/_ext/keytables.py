@@ -9,6 +9,7 @@ pages are written only when their text changes, so an unchanged build stays incr
 
 import importlib
 import inspect
+import json
 from pathlib import Path
 
 SUBPACKAGES = [
@@ -41,7 +42,9 @@ def _default(value):
         return "required"
     if value is None:
         return "none"
-    return f"`{value!r}`" if not hasattr(value, "unit") else f"`{value}`"
+    if hasattr(value, "unit"):
+        return f"`\"{value}\"`"
+    return f"`{json.dumps(value)}`"  # as written in TOML (strings quoted, true/false)
 
 
 def _config_page():
