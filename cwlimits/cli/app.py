@@ -73,7 +73,7 @@ def build_parser():
         target.add_argument("-q", "--quiet", action="store_true", default=default,
                             help="no progress bars or summaries, only errors")
         target.add_argument("--allow-large", action="store_true", default=default,
-                            help="lift the soft size limits (README: size limits) for a "
+                            help="lift the soft size limits (docs: size limits) for a "
                                  "legitimately large run")
     subparsers = parser.add_subparsers(dest="command", metavar="COMMAND")
     for module in _command_modules():

@@ -363,6 +363,7 @@ def read_timeseries(path, sample_rate=None):
         * ``.csv``/``.ecsv``: a ``strain`` (or ``h``) column, optionally a ``time``
           (or ``t``) column in seconds;
         * anything else: text with one number (strain) or two (time, strain) a line.
+
         CSV and text files may declare ``# sample_rate: 4096 Hz``.
     sample_rate : Quantity ['frequency'], optional
         Needed when the file declares none (no time column, no comment).

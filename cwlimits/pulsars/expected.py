@@ -209,7 +209,7 @@ def targeted_sensitivity(target, setup, noise=DEFAULT_NOISE_MODEL, *, kind="auto
     n_sigma : float
         Half-width of the timing box in standard deviations.
     fractional_width : float, optional
-        Box half-width as a fraction of f_gw and |fdot_gw| (e.g. 1e-3), instead of the
+        Box half-width as a fraction of f_gw and abs(fdot_gw) (e.g. 1e-3), instead of the
         timing uncertainties.
     false_alarm : float
         False-alarm probability of the narrow-band search over its whole box.

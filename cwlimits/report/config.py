@@ -1,6 +1,6 @@
 """The analysis configuration: one TOML file for a whole report (``cwlimits report``).
 
-Every key, its kind, unit and default is in :data:`CONFIG_KEYS`; the README lists them.
+Every key, its kind, unit and default is in :data:`CONFIG_KEYS` (the docs are written from it).
 Quantities are strings with a unit (``"1 yr"``, ``"1e6 h"``); a bare number (``"20"``) is
 an error, never read in a default unit.  Paths, the noise file of ``noise.model`` included,
 are relative to the configuration file's folder.  An unknown section or key, a value of
@@ -30,7 +30,7 @@ CONFIG_KEYS = {
     "title": ("str", None, "cwlimits report", "title of the report"),
     "seed": ("int", None, 2026, "seed of every random draw (a whole number >= 0)"),
     "allow_large": ("bool", None, False,
-                    "lift the soft size limits (README: size limits) for a large run"),
+                    "lift the soft size limits (docs: size limits) for a large run"),
     "output": ("path", None, None, "output folder (default reports/<config name>)"),
     "catalogue.path": ("path", None, _REQUIRED, "target catalogue (CSV or ECSV)"),
     "catalogue.targets": ("list[str]", None, None, "targets to consider (default: all)"),

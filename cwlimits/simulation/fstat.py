@@ -107,8 +107,8 @@ def noise_levels(data, *, method="median", fft_length=None):
 
     Notes
     -----
-    For circular complex white noise of E|z|^2 = S_n B / 2 the periodogram
-    P_j = |FFT(z)_j|^2 / (M_eff B) of a chunk with M_eff samples of data is exponential of
+    For circular complex white noise of E[abs(z)^2] = S_n B / 2 the periodogram
+    P_j = abs(FFT(z)_j)^2 / (M_eff B) of a chunk with M_eff samples of data is exponential of
     mean S_n / 2 (the two-sided PSD), so S_n = 2 median(P) / b(N) for N pooled values
     (b(N) -> ln 2; Allen et al. 2012, gr-qc/0509116, App. B).  Gaps only correlate bins.
     """

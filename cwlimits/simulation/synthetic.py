@@ -599,7 +599,7 @@ class CWSignal:
     Raises
     ------
     InputError
-        For a negative or non-finite h0, |cosi| > 1 or a non-positive frequency.
+        For a negative or non-finite h0, abs(cosi) > 1 or a non-positive frequency.
 
     Notes
     -----
@@ -842,7 +842,7 @@ def simulate_real_signal(detector, signal, sample_rate, duration, t_start, *, t_
 
 
 def heterodyne(series, sample_rate, f_ref, bandwidth):
-    """Band series of a real series: heterodyne at f_ref, keep |f - f_ref| < B/2, decimate.
+    """Band series of a real series: heterodyne at f_ref, keep abs(f - f_ref) < B/2, decimate.
 
     Parameters
     ----------

@@ -133,7 +133,7 @@ class Target:
 
     @property
     def characteristic_age(self):
-        """f_rot / (2 |fdot_rot|), derived from the spin (None without one).
+        """f_rot / (2 abs(fdot_rot)), derived from the spin (None without one).
 
         The spin-down age of a star with braking index 3 born spinning much faster
         (Manchester & Taylor 1977, *Pulsars*, Sect. 6); a derived quantity only.
@@ -193,7 +193,7 @@ class TargetCatalogue:
 
     @property
     def characteristic_age(self):
-        """f_rot / (2 |fdot_rot|) per target (NaN without a known spin); derived.
+        """f_rot / (2 abs(fdot_rot)) per target (NaN without a known spin); derived.
 
         Braking index 3 spin-down from a much faster initial spin (Manchester & Taylor
         1977, *Pulsars*, Sect. 6).  Reported beside the catalogue, never used as the age.
@@ -342,9 +342,10 @@ def load_targets(path):
 
     Examples
     --------
-    >>> cat = load_targets("target_lists/demo.csv")  # doctest: +SKIP
-    >>> cat.target(cat.names[0]).distance  # doctest: +SKIP
-    <Quantity 1.2 kpc>
+    >>> from importlib.resources import files
+    >>> cat = load_targets(files("cwlimits") / "data" / "demo.csv")  # the fictional demo
+    >>> cat.target("Fict Ember").distance
+    <Quantity 0.4 kpc>
     """
     table = read_table(path, error=CatalogueError)
     table.require("name", "distance")

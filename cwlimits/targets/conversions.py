@@ -103,8 +103,8 @@ def ellipticity(h0, f_gw, distance, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA)
     Examples
     --------
     >>> import astropy.units as u
-    >>> round(float(ellipticity(1e-24, 2 * u.Hz, 1 * u.kpc)), 3)
-    0.237
+    >>> round(float(ellipticity(1e-24, 2 * u.Hz, 1 * u.kpc)), 3)  # I = 1e38 kg m^2
+    0.236
     """
     return _finite("ellipticity", lambda: _strain(h0) * _eps_per_h0(
         f_gw, distance, moment_of_inertia), h0=h0, f_gw=f_gw, distance=distance) << u.one

@@ -107,7 +107,7 @@ def spindown_limit(f_rot, fdot_rot, distance, moment_of_inertia=DEFAULT_MOMENT_O
     f_rot : Quantity ['frequency']
         Spin frequency.
     fdot_rot : Quantity ['frequency drift']
-        Its time derivative; only |fdot_rot| enters.
+        Its time derivative; only abs(fdot_rot) enters.
     distance : Quantity ['length']
     moment_of_inertia : Quantity ['moment of inertia'], optional
         Default 1e38 kg m^2.
@@ -121,9 +121,9 @@ def spindown_limit(f_rot, fdot_rot, distance, moment_of_inertia=DEFAULT_MOMENT_O
 
     Notes
     -----
-    h0_sd = (1/d) sqrt(10 G I |fdot_rot| / (k^2 c^3 f_rot)), i.e.
-    (1/d) sqrt(5 G I |fdot|/(2 c^3 f)) for a mass quadrupole, numerically
-    8.06e-19 sqrt(I_38 |fdot|/f [s^-1]) / d_kpc.
+    h0_sd = (1/d) sqrt(10 G I abs(fdot_rot) / (k^2 c^3 f_rot)), i.e.
+    (1/d) sqrt(5 G I abs(fdot)/(2 c^3 f)) for a mass quadrupole, numerically
+    8.06e-19 sqrt(I_38 abs(fdot)/f [s^-1]) / d_kpc.
 
     References
     ----------
@@ -198,7 +198,7 @@ def rmode_spindown_limit(f_rot, fdot_rot, distance,
                          moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA):
     """Spin-down limit for r-mode emission at f_gw = 4/3 f_rot (Owen 2010, Sect. II).
 
-    h0 = (1/d) sqrt(45 G I |fdot| / (8 c^3 f)); see :func:`spindown_limit`.
+    h0 = (1/d) sqrt(45 G I abs(fdot) / (8 c^3 f)); see :func:`spindown_limit`.
     """
     return spindown_limit(f_rot, fdot_rot, distance, moment_of_inertia, kind=R_MODE)
 

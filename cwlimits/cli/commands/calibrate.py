@@ -13,8 +13,8 @@ ORDER = 85
 def example_setup():
     """The segments and band of a new setup file written without ``--setup``.
 
-    The example of the README's setup file; the header of the file says they are
-    placeholders.  (A function, so that building the parser needs no astropy.)
+    The example setup file of docs/guide-search-setups.md; the header of the file says they
+    are placeholders.  (A function, so that building the parser needs no astropy.)
     """
     import astropy.units as u
 
@@ -29,7 +29,7 @@ _EXAMPLES = [
 
 _PLACEHOLDER_NOTE = (
     "# Written by 'cwlimits calibrate' without --setup: the [unit_cost] values were measured\n"
-    "# on this machine; the segments and band ([data], [band]) are PLACEHOLDERS (the README\n"
+    "# on this machine; the segments and band ([data], [band]) are PLACEHOLDERS (the docs'\n"
     "# example, 12 x 10 day, 50-500 Hz): edit them, or override them on the command line.\n")
 
 

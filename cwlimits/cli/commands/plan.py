@@ -56,7 +56,7 @@ def plan_options(args):
     from cwlimits._sizes import check_size
 
     dets = tuple(d.strip() for d in args.detectors.split(",") if d.strip())
-    # sizes named by their options, before any planning (README: size limits)
+    # sizes named by their options, before any planning (docs: size limits)
     check_size("segments", max(args.n_seg_max, 1), f"--n-seg-max {args.n_seg_max}")
     width = args.band_width.to_value(u.Hz)
     if args.band and width > 0:

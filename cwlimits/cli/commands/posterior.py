@@ -33,8 +33,8 @@ def register(subparsers, common):
         help="Bayesian upper limit on a known pulsar's h0 from down-converted data",
         description="The posterior of h0, cos iota, psi and phi0 for band-limited complex "
                     "data heterodyned with a known pulsar's phase (one row per sample: "
-                    "detector, time [s], real, imag, optional sigma and stretch; see "
-                    "README), with the noise of each stretch marginalised (Student-t) or "
+                    "detector, time [s], real, imag, optional sigma and stretch; see the "
+                    "docs), with the noise of each stretch marginalised (Student-t) or "
                     "known, the h0 prior uniform or log-uniform and the orientation prior "
                     "uniform or the catalogue's.  Writes the limit with the ratios to the "
                     "spin-down limit, the ellipticity and Q22 limits, credible intervals "

@@ -15,7 +15,7 @@ def register(subparsers, common):
                     "and predicted sensitivity of each chosen target, and upper limits "
                     "where search results are supplied; written as index.html with every "
                     "figure (PNG, SVG) and table (CSV, ECSV) and a run record.  See the "
-                    "README for every configuration key.",
+                    "documentation (docs/, 'Configuration file keys') for every key.",
         examples=["cwlimits report analysis.toml",
                   "cwlimits report analysis.toml --quiet"])
     parser.add_argument("config", metavar="CONFIG", help="analysis configuration (TOML)")
