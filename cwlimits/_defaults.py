@@ -11,7 +11,8 @@ __all__ = ["DEFAULT_NOISE_MODEL", "OBJECTIVES", "MEASURES", "CASES", "PLOT_SUFFI
            "DEFAULT_UNIT_COSTS_S", "DEFAULT_MOMENT_OF_INERTIA_KG_M2", "MOMENT_OF_INERTIA_TEXT",
            "REPORT_STEPS", "PULSAR_KINDS", "EMISSION_NAMES", "PULSAR_N_SIGMA",
            "PULSAR_NOISE_DRAWS", "PULSAR_MAX_STRETCH", "PULSAR_NOISE_MODES",
-           "PULSAR_SAMPLERS", "PULSAR_HARMONICS", "builtin_detector_names"]
+           "PULSAR_SAMPLERS", "PULSAR_HARMONICS", "TABLE_SUFFIXES", "LATEX_TABULAR_SUFFIX",
+           "builtin_detector_names"]
 
 #: The noise model used when none is given (cwlimits.noise.models).
 DEFAULT_NOISE_MODEL = "second-gen-fit"
@@ -19,6 +20,11 @@ DEFAULT_NOISE_MODEL = "second-gen-fit"
 OBJECTIVES = ("depth", "beat-age")
 MEASURES = ("width", "integral")
 CASES = ("nominal", "optimistic", "pessimistic")
+#: File suffixes a table can be written to (cwlimits.tables.write_table): CSV with units in
+#: the header, ECSV, and LaTeX (an AASTeX ``deluxetable``; a name ending in
+#: ``LATEX_TABULAR_SUFFIX`` gives a plain ``table``/``tabular`` instead).
+TABLE_SUFFIXES = (".csv", ".ecsv", ".tex")
+LATEX_TABULAR_SUFFIX = ".tabular.tex"
 #: File suffixes a figure can be written to (cwlimits.plotting.figures).
 PLOT_SUFFIXES = (".png", ".svg", ".pdf")
 #: Items per chunk of a long run (cwlimits.runtime.executor).

@@ -3,6 +3,7 @@
 import argparse
 import sys
 
+from cwlimits._defaults import TABLE_SUFFIXES
 from cwlimits.errors import InputError
 
 __all__ = ["add_parser", "quantity_arg", "seed_arg", "number_arg", "refuse_overflow",
@@ -87,7 +88,7 @@ def refuse_overflow(table, hint):
                              f"'{name}', row {row + 1} is infinite): {hint}")
 
 
-def check_output_path(path, suffixes=(".csv", ".ecsv"), option="--out"):
+def check_output_path(path, suffixes=TABLE_SUFFIXES, option="--out"):
     """Validate an output file path before any work is done; return it as a Path.
 
     The one preflight of every output option (:func:`cwlimits._files.check_output_file`):

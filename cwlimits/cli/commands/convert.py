@@ -44,7 +44,7 @@ def register(subparsers, common):
     parser.add_argument("--moment-of-inertia", type=quantity_arg("kg m2",
                         "moment of inertia"), default=_defaults.MOMENT_OF_INERTIA_TEXT,
                         metavar="Q", help="default 1e38 kg m2")
-    parser.add_argument("--out", metavar="FILE", help="write the table (.csv or .ecsv)")
+    parser.add_argument("--out", metavar="FILE", help="write the table (.csv, .ecsv or .tex)")
     parser.set_defaults(run=run)
 
 

@@ -100,7 +100,7 @@ def register(subparsers, common):
                        help="seed of the Monte-Carlo and emcee (recorded in the output)")
     add_signal_model_args(parser)
     out = parser.add_argument_group("output")
-    out.add_argument("--out", metavar="FILE", help="per-band table (.csv or .ecsv); its "
+    out.add_argument("--out", metavar="FILE", help="per-band table (.csv, .ecsv or .tex); its "
                                                    "folder holds the resumable run store")
     out.add_argument("--plot", metavar="FILE",
                      help="h0 limits with the age-based band; FILE_eps and FILE_alpha for "

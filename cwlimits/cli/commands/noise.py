@@ -44,7 +44,7 @@ def register(subparsers, common):
     parser.add_argument("--step", type=quantity_arg("Hz", "step"),
                         help="band width (default: the range / 50)")
     parser.add_argument("--out", metavar="FILE",
-                        help="write the band table (.csv or .ecsv, with units and "
+                        help="write the band table (.csv, .ecsv or .tex, with units and "
                              "assumptions) instead of printing it")
     parser.add_argument("--plot", metavar="FILE", help="draw the ASD (.png, .svg or .pdf)")
     series = parser.add_argument_group("estimate from a strain time series")

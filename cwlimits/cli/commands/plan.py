@@ -101,7 +101,7 @@ def register(subparsers, common):
     out = parser.add_argument_group("output")
     out.add_argument("--out", metavar="PLAN.toml", help="write the plan (setup file)")
     out.add_argument("--table", metavar="FILE",
-                     help="per-band expected sensitivity of the plan (.csv or .ecsv)")
+                     help="per-band expected sensitivity of the plan (.csv, .ecsv or .tex)")
     out.add_argument("--plot", metavar="FILE",
                      help="planned h0(f) against the age-based limit (.png, .svg, .pdf)")
     out.add_argument("--trade-off", metavar="FILE",

@@ -78,7 +78,7 @@ def register(subparsers, common):
                         "moment of inertia"), default=MOMENT_OF_INERTIA_TEXT,
                         metavar="I", help="default 1e38 kg m2")
     parser.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
-    parser.add_argument("--out", metavar="FILE", help="limit table (.csv or .ecsv)")
+    parser.add_argument("--out", metavar="FILE", help="limit table (.csv, .ecsv or .tex)")
     parser.add_argument("--plot", metavar="FILE", help="posterior of h0 (.png/.svg/.pdf)")
     parser.add_argument("--corner", metavar="FILE", help="corner figure (.png/.svg/.pdf)")
     parser.set_defaults(run=run)

@@ -56,7 +56,7 @@ def register(subparsers, common):
     add_plan_args(parser)
     add_executor_args(parser, chunk_size=None)
     out = parser.add_argument_group("output")
-    out.add_argument("--out", metavar="FILE", help="ranking table (.csv or .ecsv)")
+    out.add_argument("--out", metavar="FILE", help="ranking table (.csv, .ecsv or .tex)")
     out.add_argument("--plot", metavar="FILE",
                      help="figure of merit against budget per target (.png, .svg, .pdf)")
     out.add_argument("--plot-plans", metavar="FILE",

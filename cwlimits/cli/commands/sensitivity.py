@@ -63,7 +63,7 @@ def register(subparsers, common):
                             "the template count)")
     add_signal_model_args(parser)
     out = parser.add_argument_group("output")
-    out.add_argument("--out", metavar="FILE", help="per-band table (.csv or .ecsv)")
+    out.add_argument("--out", metavar="FILE", help="per-band table (.csv, .ecsv or .tex)")
     out.add_argument("--plot", metavar="FILE", help="h0(f) against the age-based limit "
                                                    "(.png, .svg, .pdf)")
     parser.set_defaults(run=run)

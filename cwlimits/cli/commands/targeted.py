@@ -91,7 +91,7 @@ def register(subparsers, common):
     grp.add_argument("--start", default=DEFAULT_START,
                      help=f"start of the data, UTC (default {DEFAULT_START})")
     grp.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
-    parser.add_argument("--out", metavar="FILE", help="table (.csv or .ecsv)")
+    parser.add_argument("--out", metavar="FILE", help="table (.csv, .ecsv or .tex)")
     parser.set_defaults(run=run)
 
 

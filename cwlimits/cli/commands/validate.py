@@ -108,7 +108,7 @@ def register(subparsers, common):
                     help="coverage of the binomial intervals (default 0.95)")
     out = parser.add_argument_group("output")
     out.add_argument("--out", metavar="FILE",
-                     help="table per h0 (.csv or .ecsv); finished chunks are kept in "
+                     help="table per h0 (.csv, .ecsv or .tex); finished chunks are kept in "
                           "cwlimits-store.sqlite beside it, so a rerun resumes")
     out.add_argument("--plot", metavar="FILE",
                      help="efficiency against h0 with the model curve (.png, .svg, .pdf)")
