@@ -11,7 +11,8 @@ __all__ = ["DEFAULT_NOISE_MODEL", "OBJECTIVES", "MEASURES", "CASES", "PLOT_SUFFI
            "DEFAULT_UNIT_COSTS_S", "DEFAULT_MOMENT_OF_INERTIA_KG_M2", "MOMENT_OF_INERTIA_TEXT",
            "REPORT_STEPS", "PULSAR_KINDS", "EMISSION_NAMES", "PULSAR_N_SIGMA",
            "PULSAR_NOISE_DRAWS", "PULSAR_MAX_STRETCH", "PULSAR_NOISE_MODES",
-           "PULSAR_SAMPLERS", "PULSAR_HARMONICS", "TABLE_SUFFIXES", "LATEX_TABULAR_SUFFIX",
+           "PULSAR_SAMPLERS", "PULSAR_HARMONICS", "TABLE_SUFFIXES", "DEFAULT_SEED",
+           "LATEX_TABULAR_SUFFIX",
            "builtin_detector_names"]
 
 #: The noise model used when none is given (cwlimits.noise.models).
@@ -20,6 +21,9 @@ DEFAULT_NOISE_MODEL = "second-gen-fit"
 OBJECTIVES = ("depth", "beat-age")
 MEASURES = ("width", "integral")
 CASES = ("nominal", "optimistic", "pessimistic")
+#: The seed of every random draw of a command run without ``--seed`` (limits, targeted,
+#: posterior, validate): a run repeats its numbers; the seed is recorded in the output.
+DEFAULT_SEED = 0
 #: File suffixes a table can be written to (cwlimits.tables.write_table): CSV with units in
 #: the header, ECSV, and LaTeX (an AASTeX ``deluxetable``; a name ending in
 #: ``LATEX_TABULAR_SUFFIX`` gives a plain ``table``/``tabular`` instead).

@@ -4,7 +4,7 @@ import sys
 import warnings
 from pathlib import Path
 
-from cwlimits._defaults import DEFAULT_NOISE_MODEL, PLOT_SUFFIXES
+from cwlimits._defaults import DEFAULT_NOISE_MODEL, DEFAULT_SEED, PLOT_SUFFIXES
 from cwlimits.cli.commands._common import (
     add_parser,
     add_target_args,
@@ -96,8 +96,10 @@ def register(subparsers, common):
                        help="emcee steps per walker (default 6000)")
     stats.add_argument("--walkers", type=int, default=64, metavar="N",
                        help="emcee walkers (default 64)")
-    stats.add_argument("--seed", type=seed_arg, default=None,
-                       help="seed of the Monte-Carlo and emcee (recorded in the output)")
+    stats.add_argument("--seed", type=seed_arg, default=_defaults.DEFAULT_SEED,
+                       help="seed of the Monte-Carlo and emcee (default "
+                            f"{_defaults.DEFAULT_SEED}: a rerun gives the same numbers; "
+                            "recorded in the output)")
     add_signal_model_args(parser)
     out = parser.add_argument_group("output")
     out.add_argument("--out", metavar="FILE", help="per-band table (.csv, .ecsv or .tex); its "
@@ -223,8 +225,8 @@ def run(args):
     for w in caught:
         print(f"warning: {w.message}", file=sys.stderr)
     table.meta["assumptions"]["seed"] = (
-        f"{args.seed}" if args.seed is not None else
-        "none given: fresh entropy (recorded in the run store of the output folder)")
+        f"{args.seed} (the default seed; --seed N for another)"
+        if args.seed == DEFAULT_SEED else f"{args.seed}")
     summarise(args, table, title)
     if out is not None:
         write_table(table, out, title=title, assumptions=table.meta["assumptions"])

@@ -1,6 +1,7 @@
 """``cwlimits posterior``: Bayesian upper limit of a known pulsar from down-converted data."""
 
 from cwlimits._defaults import (
+    DEFAULT_SEED,
     MOMENT_OF_INERTIA_TEXT,
     PLOT_SUFFIXES,
     PULSAR_HARMONICS,
@@ -17,6 +18,7 @@ from cwlimits.cli.commands._common import (
     format_rows,
     resolve_target,
     sci,
+    seed_arg,
 )
 from cwlimits.errors import InputError
 
@@ -77,7 +79,8 @@ def register(subparsers, common):
     parser.add_argument("--moment-of-inertia", type=quantity_arg("kg m2",
                         "moment of inertia"), default=MOMENT_OF_INERTIA_TEXT,
                         metavar="I", help="default 1e38 kg m2")
-    parser.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
+    parser.add_argument("--seed", type=seed_arg, default=DEFAULT_SEED,
+                     help=f"random seed (default {DEFAULT_SEED}; recorded in the output)")
     parser.add_argument("--out", metavar="FILE", help="limit table (.csv, .ecsv or .tex)")
     parser.add_argument("--plot", metavar="FILE", help="posterior of h0 (.png/.svg/.pdf)")
     parser.add_argument("--corner", metavar="FILE", help="corner figure (.png/.svg/.pdf)")

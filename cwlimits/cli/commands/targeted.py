@@ -2,6 +2,7 @@
 
 from cwlimits._defaults import (
     DEFAULT_NOISE_MODEL,
+    DEFAULT_SEED,
     DEFAULT_START,
     EMISSION_NAMES,
     PULSAR_KINDS,
@@ -16,6 +17,7 @@ from cwlimits.cli.commands._common import (
     format_rows,
     resolve_target,
     sci,
+    seed_arg,
 )
 from cwlimits.cli.commands._setup_args import add_setup_args, build_setup
 from cwlimits.errors import InputError
@@ -90,7 +92,8 @@ def register(subparsers, common):
                           f"{PULSAR_NOISE_DRAWS})")
     grp.add_argument("--start", default=DEFAULT_START,
                      help=f"start of the data, UTC (default {DEFAULT_START})")
-    grp.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
+    grp.add_argument("--seed", type=seed_arg, default=DEFAULT_SEED,
+                     help=f"random seed (default {DEFAULT_SEED}; recorded in the output)")
     parser.add_argument("--out", metavar="FILE", help="table (.csv, .ecsv or .tex)")
     parser.set_defaults(run=run)
 
