@@ -756,3 +756,24 @@ def test_retired_model_names_name_their_replacement(old, new):
     with pytest.raises(InputError, match=f"was renamed: use '{new}'"):
         get_noise(old)
 
+
+
+@pytest.mark.parametrize("fmax, n_bands, last", [("1000Hz", 5, (820.0, 1000.0)),
+                                                 ("1020Hz", 5, (820.0, 1020.0))])
+def test_band_grid_keeps_a_partial_last_band_and_says_so(tmp_path, capsys, fmax, n_bands,
+                                                         last):
+    # item 13 of issue 18: 20-1000 Hz in 200 Hz steps is 4 whole bands and 180 Hz left
+    # over (arithmetic): the remainder is a fifth, narrower band to FMAX, and a note says
+    # so; a whole number of steps gets no note.
+    from cwlimits.cli import main
+    from cwlimits.tables import read_table
+
+    out = tmp_path / "bands.csv"
+    assert main(["noise", "--band", "20Hz", fmax, "--step", "200Hz", "--out", str(out)]) == 0
+    table = read_table(out)
+    f_lo = table.quantity("f_lo", u.Hz).value
+    f_hi = table.quantity("f_hi", u.Hz).value
+    assert len(f_lo) == n_bands and (f_lo[-1], f_hi[-1]) == last
+    partial = fmax == "1000Hz"
+    assert ("narrower than the step" in capsys.readouterr().out) is partial
+    assert ("assumption.last_band" in table.meta) is partial
