@@ -104,6 +104,8 @@ def _input(args):
 
 
 def run(args):
+    import astropy.units as u
+    import numpy as np
     from astropy.table import QTable
 
     from cwlimits.tables import write_table
@@ -115,18 +117,26 @@ def run(args):
     d, inertia = args.distance, args.moment_of_inertia
     table = QTable()
     table["f_gw"], table["h0"] = f, h0
-    table["eps"] = ellipticity(h0, f, d, inertia)
-    table["q22"] = mass_quadrupole(table["eps"], inertia)
-    table["alpha_rmode"] = rmode_amplitude(h0, f, d)
+    # an empty h0 (a band without a limit, a gap) stays empty in every converted column
+    empty = ~np.isfinite(h0.value)
+    h0_finite = np.where(empty, 0.0, h0.value) << h0.unit
+
+    def blank(values):
+        return np.where(empty, np.nan, values.value) << values.unit
+
+    table["eps"] = blank(ellipticity(h0_finite, f, d, inertia))
+    table["q22"] = blank(mass_quadrupole(np.where(empty, 0.0, table["eps"].value) << u.one,
+                                         inertia))
+    table["alpha_rmode"] = blank(rmode_amplitude(h0_finite, f, d))
     if args.distance_range:
         d_lo, d_hi = args.distance_range
         if d_lo > d_hi:
             raise InputError("--distance-range: DMIN is larger than DMAX",
                              value=f"{d_lo} {d_hi}")
-        table["eps_min"] = ellipticity(h0, f, d_lo, inertia)
-        table["eps_max"] = ellipticity(h0, f, d_hi, inertia)
-        table["alpha_rmode_min"] = rmode_amplitude(h0, f, d_lo)
-        table["alpha_rmode_max"] = rmode_amplitude(h0, f, d_hi)
+        table["eps_min"] = blank(ellipticity(h0_finite, f, d_lo, inertia))
+        table["eps_max"] = blank(ellipticity(h0_finite, f, d_hi, inertia))
+        table["alpha_rmode_min"] = blank(rmode_amplitude(h0_finite, f, d_lo))
+        table["alpha_rmode_max"] = blank(rmode_amplitude(h0_finite, f, d_hi))
     star = FIDUCIAL_RMODE_STAR
     info = {"source": (f"{args.table}" + (f" ({args.source_meta['title']})"
                                           if args.source_meta.get("title") else ""))
