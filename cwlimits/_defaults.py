@@ -6,7 +6,8 @@ scipy (issue 16: start-up in well under a second).  The library modules that own
 concept import their value from here and attach units there: one definition each.
 """
 
-__all__ = ["DEFAULT_NOISE_MODEL", "OBJECTIVES", "MEASURES", "CASES", "PLOT_SUFFIXES",
+__all__ = ["DEFAULT_NOISE_MODEL", "NOISE_KINDS", "OBJECTIVES", "MEASURES", "CASES",
+           "PLOT_SUFFIXES",
            "DEFAULT_CHUNK_SIZE", "DEFAULT_START", "DEFAULT_CAMPAIGN_CHUNK", "STORE_NAME",
            "DEFAULT_UNIT_COSTS_S", "DEFAULT_MOMENT_OF_INERTIA_KG_M2", "MOMENT_OF_INERTIA_TEXT",
            "REPORT_STEPS", "PULSAR_KINDS", "EMISSION_NAMES", "PULSAR_N_SIGMA",
@@ -17,6 +18,8 @@ __all__ = ["DEFAULT_NOISE_MODEL", "OBJECTIVES", "MEASURES", "CASES", "PLOT_SUFFI
 
 #: The noise model used when none is given (cwlimits.noise.models).
 DEFAULT_NOISE_MODEL = "second-gen-fit"
+#: What the values of a noise file are: amplitude or power spectral density.
+NOISE_KINDS = ("asd", "psd")
 #: Planning objectives, beat-age measures and distance/age cases (cwlimits.planning).
 OBJECTIVES = ("depth", "beat-age")
 MEASURES = ("width", "integral")

@@ -178,12 +178,13 @@ def _decode(path, error):
         raise error(f"not UTF-8 text (byte {exc.start})", file=path, row=line) from None
 
 
-def read_table(path, *, error=TableError):
+def read_table(path, *, error=TableError, comments=("#",)):
     """Read a CSV (units in the header) or ECSV file into a :class:`RawTable`.
 
     The format follows the extension: ``.ecsv`` is read by astropy; anything else is read
     as comma-separated text whose lines starting with ``#`` are comments
-    (``# key: value`` comments become metadata).
+    (``# key: value`` comments become metadata); ``comments`` may add other comment
+    marks (a noise file also takes ``%``).
 
     Raises
     ------
@@ -194,7 +195,7 @@ def read_table(path, *, error=TableError):
     text = _decode(path, error)
     if str(path).lower().endswith(".ecsv"):
         return _read_ecsv(path, text, error)
-    return _read_csv(path, text, error)
+    return _read_csv(path, text, error, comments)
 
 
 class _Lines:
@@ -205,7 +206,8 @@ class _Lines:
     ``start`` is the 1-based file line where the record being read began.
     """
 
-    def __init__(self, text):
+    def __init__(self, text, comments=("#",)):
+        self.comments = tuple(comments)
         # newline="" keeps "\r\n" inside quoted cells as it is, as the csv module asks
         self._lines = io.StringIO(text, newline="")
         self.number, self.start, self.at_record_start = 0, None, True
@@ -219,10 +221,11 @@ class _Lines:
             self.number += 1
             if self.at_record_start:
                 stripped = line.strip()
-                if stripped.startswith("#"):
-                    key, sep, value = stripped.lstrip("#").partition(":")
-                    if sep and key.strip() and " " not in key.strip():
-                        self.meta[key.strip()] = value.strip()
+                if stripped.startswith(self.comments):
+                    if stripped.startswith("#"):
+                        key, sep, value = stripped.lstrip("#").partition(":")
+                        if sep and key.strip() and " " not in key.strip():
+                            self.meta[key.strip()] = value.strip()
                     continue
                 if not stripped:
                     continue
@@ -231,9 +234,9 @@ class _Lines:
         raise StopIteration
 
 
-def _csv_records(path, text, error):
+def _csv_records(path, text, error, comments=("#",)):
     """``([(line, cells), ...], meta)`` of a CSV text (the csv module's quoting rules)."""
-    lines = _Lines(text)
+    lines = _Lines(text, comments)
     reader = csv.reader(lines, strict=True)
     records = []
     while True:
@@ -250,8 +253,8 @@ def _csv_records(path, text, error):
     return records, lines.meta
 
 
-def _read_csv(path, text, error):
-    records, meta = _csv_records(path, text, error)
+def _read_csv(path, text, error, comments=("#",)):
+    records, meta = _csv_records(path, text, error, comments)
     if not records:
         raise error("empty file: no header and no rows", file=path)
     data_lines = [(number, None) for number, _ in records]

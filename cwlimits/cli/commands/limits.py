@@ -2,10 +2,10 @@
 
 import sys
 import warnings
-from pathlib import Path
 
-from cwlimits._defaults import DEFAULT_NOISE_MODEL, DEFAULT_SEED, PLOT_SUFFIXES
+from cwlimits._defaults import DEFAULT_SEED, PLOT_SUFFIXES
 from cwlimits.cli.commands._common import (
+    add_noise_args,
     add_parser,
     add_target_args,
     check_output_path,
@@ -13,6 +13,7 @@ from cwlimits.cli.commands._common import (
     format_assumptions,
     format_rows,
     quantity_arg,
+    resolve_noise_args,
     resolve_target,
     sci,
     seed_arg,
@@ -58,9 +59,7 @@ def register(subparsers, common):
                              "n_templates")
     add_target_args(parser)
     add_setup_args(parser)
-    parser.add_argument("--noise", default=DEFAULT_NOISE_MODEL, metavar="MODEL_OR_FILE",
-                        help=f"noise model name or file (default {DEFAULT_NOISE_MODEL}); "
-                             "a psd column in RESULTS replaces its band floor")
+    add_noise_args(parser)
     stats = parser.add_argument_group("limits")
     stats.add_argument("--method", choices=("bayes", "frequentist"), default="bayes",
                        help="Bayesian credible limit (default) or frequentist "
@@ -157,6 +156,7 @@ def run(args):
 
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
+    resolve_noise_args(args)
     if not (0.0 < args.confidence < 1.0):
         raise InputError("--confidence must lie strictly between 0 and 1",
                          value=args.confidence)
@@ -199,9 +199,7 @@ def run(args):
                   **model_options)
     config = {"command": "limits", "results": file_hash(args.results),
               "catalogue": file_hash(args.catalogue), "target": target.name,
-              "setup": setup.assumptions(), "noise": (file_hash(args.noise)
-                                                      if Path(args.noise).is_file()
-                                                      else args.noise),
+              "setup": setup.assumptions(), "noise": args.noise_id,
               "method": args.method, "confidence": args.confidence, "seed": args.seed,
               "options": {k: (str(v) if v is not None else None)
                           for k, v in kwargs.items()}, **execution_config(args)}

@@ -1,14 +1,16 @@
 """``cwlimits plan``: the best segment setup (and band) of one target for a budget."""
 
 
-from cwlimits._defaults import CASES, DEFAULT_NOISE_MODEL, MEASURES, OBJECTIVES, PLOT_SUFFIXES
+from cwlimits._defaults import CASES, MEASURES, OBJECTIVES, PLOT_SUFFIXES
 from cwlimits.cli.commands._common import (
+    add_noise_args,
     add_parser,
     add_target_args,
     check_output_path,
     echo,
     format_assumptions,
     quantity_arg,
+    resolve_noise_args,
     resolve_target,
     sci,
 )
@@ -23,8 +25,7 @@ def add_plan_args(parser):
     """Options shared by ``plan`` and ``rank``: span, noise, band and the fixed setup parts."""
     parser.add_argument("--span", type=quantity_arg("d", "span"), required=True,
                         metavar="T", help="maximum data span N_seg T_seg (e.g. '1 yr')")
-    parser.add_argument("--noise", default=DEFAULT_NOISE_MODEL, metavar="MODEL_OR_FILE",
-                        help=f"noise model name or noise file (default {DEFAULT_NOISE_MODEL})")
+    add_noise_args(parser)
     parser.add_argument("--band", nargs=2, type=quantity_arg("Hz", "frequency"),
                         metavar=("FMIN", "FMAX"),
                         help="fixed band (depth) or allowed range (beat-age); default "
@@ -120,6 +121,7 @@ def run(args):
     table_path = check_output_path(args.table, option="--table")
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     trade = check_output_path(args.trade_off, PLOT_SUFFIXES, "--trade-off")
+    resolve_noise_args(args)
     budget = as_budget(args.budget)
     target = resolve_target(args)
     options = plan_options(args)

@@ -2,7 +2,6 @@
 
 import re
 from contextlib import ExitStack
-from pathlib import Path
 
 from cwlimits._defaults import CASES
 from cwlimits.cli.commands._common import (
@@ -12,6 +11,7 @@ from cwlimits.cli.commands._common import (
     echo,
     format_assumptions,
     format_rows,
+    resolve_noise_args,
     sci,
 )
 from cwlimits.cli.commands._execution import (
@@ -66,14 +66,6 @@ def register(subparsers, common):
     parser.set_defaults(run=run)
 
 
-def _noise_identity(noise):
-    """The noise option for the run configuration: a file by its content, else its name."""
-    from cwlimits.runtime.store import file_hash
-
-    path = Path(str(noise))
-    return file_hash(path) if path.is_file() else str(noise)
-
-
 def _slug(name):
     return re.sub(r"[^A-Za-z0-9]+", "_", name).strip("_") or "target"
 
@@ -89,6 +81,7 @@ def run(args):
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     plot_plans = check_output_path(args.plot_plans, PLOT_SUFFIXES, "--plot-plans")
+    resolve_noise_args(args)
     plans_dir = check_output_dir(args.plans_dir, "--plans-dir")
     total = as_budget(args.budget, "--budget")
     per = as_budget(args.per_target_budget, "--per-target-budget") \
@@ -106,7 +99,7 @@ def run(args):
     config = {"command": "rank", "catalogue": file_hash(args.catalogue),
               "budget": str(total), "per_target_budget": str(per), "steps": args.steps,
               "measure": args.measure or "integral", "case": args.case,
-              "span": str(args.span), "noise": _noise_identity(args.noise),
+              "span": str(args.span), "noise": args.noise_id,
               **{k: str(v) for k, v in options.items()}}
     with ExitStack() as stack:
         # With --out, finished targets are committed to the store of that folder, so a

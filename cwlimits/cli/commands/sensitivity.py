@@ -1,8 +1,9 @@
 """``cwlimits sensitivity``: expected h0 sensitivity and depth per frequency band."""
 
 
-from cwlimits._defaults import DEFAULT_NOISE_MODEL, PLOT_SUFFIXES
+from cwlimits._defaults import PLOT_SUFFIXES
 from cwlimits.cli.commands._common import (
+    add_noise_args,
     add_parser,
     add_target_args,
     check_output_path,
@@ -11,6 +12,7 @@ from cwlimits.cli.commands._common import (
     format_rows,
     number_arg,
     quantity_arg,
+    resolve_noise_args,
     resolve_target,
     sci,
 )
@@ -39,9 +41,7 @@ def register(subparsers, common):
             "--noise my_asd.csv --sky isotropic --mismatch mean"])
     add_target_args(parser)
     add_setup_args(parser)
-    parser.add_argument("--noise", default=DEFAULT_NOISE_MODEL, metavar="MODEL_OR_FILE",
-                        help=f"noise model name or noise file (default {DEFAULT_NOISE_MODEL};"
-                             " see 'cwlimits noise --list')")
+    add_noise_args(parser)
     parser.add_argument("--band", nargs=2, type=quantity_arg("Hz", "frequency"),
                         metavar=("FMIN", "FMAX"), help="band to evaluate (default: the "
                                                        "setup's)")
@@ -75,6 +75,7 @@ def run(args):
 
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
+    resolve_noise_args(args)
     target = resolve_target(args)
     setup = build_setup(args, known_sites=True)
     if args.band is not None:

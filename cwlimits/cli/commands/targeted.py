@@ -1,7 +1,6 @@
 """``cwlimits targeted``: expected limit and cost of a search for a known pulsar."""
 
 from cwlimits._defaults import (
-    DEFAULT_NOISE_MODEL,
     DEFAULT_SEED,
     DEFAULT_START,
     EMISSION_NAMES,
@@ -10,11 +9,13 @@ from cwlimits._defaults import (
     PULSAR_NOISE_DRAWS,
 )
 from cwlimits.cli.commands._common import (
+    add_noise_args,
     add_parser,
     check_output_path,
     echo,
     format_assumptions,
     format_rows,
+    resolve_noise_args,
     resolve_target,
     sci,
     seed_arg,
@@ -63,8 +64,7 @@ def register(subparsers, common):
                         help="with --all: limits against f_gw with the spin-down limits and "
                              "the expected curve of the span (.png/.svg/.pdf)")
     add_setup_args(parser)
-    parser.add_argument("--noise", default=DEFAULT_NOISE_MODEL, metavar="MODEL_OR_FILE",
-                        help=f"noise model name or noise file (default {DEFAULT_NOISE_MODEL})")
+    add_noise_args(parser)
     grp = parser.add_argument_group("known pulsar")
     grp.add_argument("--kind", choices=PULSAR_KINDS, default="auto",
                      help="search kind (default auto: targeted inside one template)")
@@ -179,6 +179,7 @@ def run(args):
 
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
+    resolve_noise_args(args)
     if not args.all and (args.data or plot is not None):
         raise InputError("--data and --plot go with --all")
     if args.all:

@@ -1,15 +1,14 @@
 """``cwlimits validate``: the sensitivity model against a simulated injection campaign."""
 
 import math
-from pathlib import Path
 
 from cwlimits._defaults import (
     DEFAULT_CAMPAIGN_CHUNK,
-    DEFAULT_NOISE_MODEL,
     DEFAULT_START,
     PLOT_SUFFIXES,
 )
 from cwlimits.cli.commands._common import (
+    add_noise_args,
     add_parser,
     add_target_args,
     check_output_path,
@@ -17,6 +16,7 @@ from cwlimits.cli.commands._common import (
     format_assumptions,
     format_rows,
     quantity_arg,
+    resolve_noise_args,
     resolve_target,
     sci,
     seed_arg,
@@ -91,9 +91,7 @@ def register(subparsers, common):
                           "with >= 64 samples per segment and one per 30 min)")
     sim.add_argument("--templates", type=int, default=32, metavar="N",
                      help="frequency templates searched, Fourier bins 1/T_seg (default 32)")
-    sim.add_argument("--noise", default=DEFAULT_NOISE_MODEL, metavar="MODEL_OR_FILE",
-                     help=f"noise model name or noise file, evaluated at --frequency (default "
-                          f"{DEFAULT_NOISE_MODEL})")
+    add_noise_args(sim, per_detector=False)
     sim.add_argument("--start", default=DEFAULT_START,
                      help=f"start of the data, UTC (default {DEFAULT_START})")
     sim.add_argument("--seed", type=seed_arg, metavar="N",
@@ -191,7 +189,6 @@ def run(args):
     import astropy.units as u
     import numpy as np
 
-    from cwlimits.noise import NOISE_MODELS, get_noise
     from cwlimits.runtime.store import file_hash, open_store
     from cwlimits.simulation.campaigns import (
         _gps_seconds,
@@ -203,21 +200,21 @@ def run(args):
 
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
+    resolve_noise_args(args, per_detector=False)
     _check_numbers(args)
     target = resolve_target(args)
     setup = _setup(args)
     n_det, n_seg, t_seg = setup.n_detectors, setup.n_seg, setup.t_seg
     m, band = simulation_layout(t_seg, n_det, n_seg, args.templates, args.band_width)
     f_hz = _frequency(args, setup, band.to_value(u.Hz))
-    source = get_noise(args.noise)
+    source = args.noise
     psd = source.psd(f_hz * u.Hz).to(u.Hz**-1)
     start_s = _gps_seconds(args.start)
     h0_values = None if args.h0 is None else np.asarray(args.h0, dtype=float)
 
     coord = target.coord
     # a noise file enters the configuration by its content (a model name wins over a file)
-    is_file = args.noise.strip().lower() not in NOISE_MODELS and Path(args.noise).is_file()
-    noise_id = file_hash(args.noise) if is_file else args.noise.strip().lower()
+    noise_id = args.noise_id
     config = {"command": "validate", "catalogue": file_hash(args.catalogue),
               "target": target.name, "ra_deg": float(coord.icrs.ra.deg),
               "dec_deg": float(coord.icrs.dec.deg), "setup": file_hash(args.setup),
