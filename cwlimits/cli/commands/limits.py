@@ -3,7 +3,7 @@
 import sys
 import warnings
 
-from cwlimits._defaults import DEFAULT_SEED, PLOT_SUFFIXES
+from cwlimits._defaults import DEFAULT_SEED, PLOT_SUFFIXES, default_for
 from cwlimits.cli.commands._common import (
     add_noise_args,
     add_parser,
@@ -64,8 +64,9 @@ def register(subparsers, common):
     stats.add_argument("--method", choices=("bayes", "frequentist"), default="bayes",
                        help="Bayesian credible limit (default) or frequentist "
                             "loudest-event limit")
-    stats.add_argument("--confidence", type=float, default=0.95,
-                       help="credible level / confidence (default 0.95)")
+    stats.add_argument("--confidence", type=float, default=default_for("limits", "confidence"),
+        help=f"confidence of the limit / detection probability (default "
+             f"{default_for('limits', 'confidence')})")
     stats.add_argument("--sampler", choices=("fast", "emcee"), default="fast",
                        help="fast grid posterior (default) or, in addition, emcee for "
                             "--bands")

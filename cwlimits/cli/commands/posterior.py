@@ -8,6 +8,7 @@ from cwlimits._defaults import (
     PULSAR_MAX_STRETCH,
     PULSAR_NOISE_MODES,
     PULSAR_SAMPLERS,
+    default_for,
 )
 from cwlimits.cli.commands._common import (
     add_parser,
@@ -66,8 +67,9 @@ def register(subparsers, common):
     parser.add_argument("--orientation", choices=("catalogue", "uniform"),
                         default="catalogue", help="the catalogue's cosi/psi priors where "
                                                   "given (default) or uniform")
-    parser.add_argument("--confidence", type=float, default=0.95,
-                        help="of the upper limit (default 0.95)")
+    parser.add_argument("--confidence", type=float, default=default_for("posterior", "confidence"),
+        help=f"confidence of the limit / detection probability (default "
+             f"{default_for('posterior', 'confidence')})")
     parser.add_argument("--sampler", choices=PULSAR_SAMPLERS, default="grid",
                         help="vectorised grid (default) or emcee")
     parser.add_argument("--walkers", type=int, default=32, help="emcee walkers (default 32)")

@@ -3,7 +3,7 @@
 import re
 from contextlib import ExitStack
 
-from cwlimits._defaults import CASES
+from cwlimits._defaults import CASES, default_for
 from cwlimits.cli.commands._common import (
     add_parser,
     check_output_dir,
@@ -51,9 +51,10 @@ def register(subparsers, common):
                              "number of targets)")
     parser.add_argument("--steps", type=int, default=12, metavar="K",
                         help="budget grid of the allocation: K steps of total/K (default 12)")
-    parser.add_argument("--case", choices=CASES, default="pessimistic",
-                        help="distance/age case of the figure of merit (default pessimistic)")
-    add_plan_args(parser)
+    parser.add_argument("--case", choices=CASES, default=default_for("rank", "case"),
+                        help="distance/age case of the figure of merit (default "
+                             f"{default_for('rank', 'case')})")
+    add_plan_args(parser, "rank")
     add_executor_args(parser, chunk_size=None)
     out = parser.add_argument_group("output")
     out.add_argument("--out", metavar="FILE", help="ranking table (.csv, .ecsv or .tex)")
@@ -98,7 +99,7 @@ def run(args):
     options = plan_options(args)
     config = {"command": "rank", "catalogue": file_hash(args.catalogue),
               "budget": str(total), "per_target_budget": str(per), "steps": args.steps,
-              "measure": args.measure or "integral", "case": args.case,
+              "measure": args.measure, "case": args.case,
               "span": str(args.span), "noise": args.noise_id,
               **{k: str(v) for k, v in options.items()}}
     with ExitStack() as stack:
@@ -109,7 +110,7 @@ def run(args):
         executor = stack.enter_context(executor_from_args(args))
         ranking = rank_targets(catalogue, args.noise, total, args.span,
                                per_target_budget=per, budget_steps=args.steps,
-                               measure=args.measure or "integral", case=args.case,
+                               measure=args.measure, case=args.case,
                                executor=executor, progress=progress_from_args(args),
                                store=store, key=key, **options)
     table = ranking.table

@@ -1,7 +1,7 @@
 """``cwlimits sensitivity``: expected h0 sensitivity and depth per frequency band."""
 
 
-from cwlimits._defaults import PLOT_SUFFIXES
+from cwlimits._defaults import PLOT_SUFFIXES, default_for
 from cwlimits.cli.commands._common import (
     add_noise_args,
     add_parser,
@@ -46,8 +46,10 @@ def register(subparsers, common):
                         metavar=("FMIN", "FMAX"), help="band to evaluate (default: the "
                                                        "setup's)")
     stats = parser.add_argument_group("statistics")
-    stats.add_argument("--confidence", type=float, default=0.95,
-                       help="detection probability (default 0.95)")
+    stats.add_argument("--confidence", type=float,
+                       default=default_for("sensitivity", "confidence"),
+        help=f"confidence of the limit / detection probability (default "
+             f"{default_for('sensitivity', 'confidence')})")
     stats.add_argument("--false-alarm", type=float, default=0.01,
                        help="false-alarm probability (default 0.01)")
     stats.add_argument("--false-alarm-scope", choices=("band", "search"), default="band",

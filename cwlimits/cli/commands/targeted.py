@@ -7,6 +7,7 @@ from cwlimits._defaults import (
     PULSAR_KINDS,
     PULSAR_N_SIGMA,
     PULSAR_NOISE_DRAWS,
+    default_for,
 )
 from cwlimits.cli.commands._common import (
     add_noise_args,
@@ -74,8 +75,9 @@ def register(subparsers, common):
     grp.add_argument("--orientation", choices=("catalogue", "uniform"),
                      default="catalogue", help="use the catalogue's cosi/psi priors where "
                                                "given (default) or uniform priors")
-    grp.add_argument("--confidence", type=float, default=0.95,
-                     help="confidence of the limit / detection probability (default 0.95)")
+    grp.add_argument("--confidence", type=float, default=default_for("targeted", "confidence"),
+        help=f"confidence of the limit / detection probability (default "
+             f"{default_for('targeted', 'confidence')})")
     grp.add_argument("--h0-prior", choices=("uniform", "log-uniform"), default="uniform",
                      help="prior of the Bayesian limit (default uniform)")
     grp.add_argument("--h0-min", type=float, default=None,

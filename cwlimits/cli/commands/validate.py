@@ -6,6 +6,7 @@ from cwlimits._defaults import (
     DEFAULT_CAMPAIGN_CHUNK,
     DEFAULT_START,
     PLOT_SUFFIXES,
+    default_for,
 )
 from cwlimits.cli.commands._common import (
     add_noise_args,
@@ -97,8 +98,9 @@ def register(subparsers, common):
     sim.add_argument("--seed", type=seed_arg, metavar="N",
                      help="random seed (default: fresh; recorded in the output)")
     st = parser.add_argument_group("statistics")
-    st.add_argument("--confidence", type=float, default=0.9,
-                    help="detection probability at which h0 is reported (default 0.9)")
+    st.add_argument("--confidence", type=float, default=default_for("validate", "confidence"),
+                    help="detection probability at which h0 is reported (default "
+                         f"{default_for('validate', 'confidence')}; docs/defaults.md)")
     st.add_argument("--false-alarm", type=float, default=0.01,
                     help="false-alarm probability over the searched templates (default "
                          "0.01)")
