@@ -20,6 +20,7 @@ import os
 import secrets
 from pathlib import Path
 
+from cwlimits._defaults import TABLE_SUFFIXES
 from cwlimits.errors import InputError
 
 __all__ = ["atomic_write", "check_output_file", "check_output_folder", "make_folder",
@@ -136,7 +137,7 @@ def _can_create_in(folder):
     return True
 
 
-def check_output_file(path, suffixes=(".csv", ".ecsv"), option="--out"):
+def check_output_file(path, suffixes=TABLE_SUFFIXES, option="--out"):
     """Validate an output file path before any work is done; return it as a Path.
 
     Raises

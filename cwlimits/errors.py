@@ -8,6 +8,8 @@ would have been accepted.  The command line prints them as ``error: ...`` and ex
 
 __all__ = [
     "CwlimitsError",
+    "CoverageWarning",
+    "StatisticWarning",
     "InputError",
     "CatalogueError",
     "TableError",
@@ -99,3 +101,11 @@ class CwlimitsWarning(UserWarning):
     Raw numpy and astropy warnings never reach the user: the meaningful ones are turned
     into a ``CwlimitsWarning`` that says what it means for the result.
     """
+
+
+class CoverageWarning(CwlimitsWarning):
+    """Bands of a search without a result (a gap in the results file, or missing edges)."""
+
+
+class StatisticWarning(CwlimitsWarning):
+    """A loudest statistic outside what noise alone gives for the templates searched."""

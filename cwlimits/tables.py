@@ -1,4 +1,4 @@
-"""Reading and writing the tables cwlimits uses: CSV with units in the header, and ECSV.
+r"""Reading and writing the tables cwlimits uses: CSV, ECSV and LaTeX.
 
 Every table cwlimits writes carries units and the assumptions behind its numbers:
 
@@ -8,6 +8,12 @@ Every table cwlimits writes carries units and the assumptions behind its numbers
   or carriage return in a text cell) are written with a leading ``'``.
 * **ECSV** (astropy's self-describing format): units in the column metadata, the
   assumptions in the table metadata under ``assumptions``.
+* **LaTeX** (``.tex``, through astropy's ``ascii.aastex`` and ``ascii.latex`` writers): an
+  AASTeX ``deluxetable``, or a plain ``table``/``tabular`` for a name ending in
+  ``.tabular.tex``; the units as a second header row, the title as the caption, the
+  assumptions as the table note (``\tablecomments`` in AASTeX), empty cells as
+  ``\nodata`` (AASTeX) or ``---``.  ``%`` comment lines at the top carry the same
+  metadata as a CSV file, so that cwlimits recognises a table it wrote.
 
 A table is written by the one atomic writer of cwlimits (:func:`cwlimits._files.atomic_write`):
 to a temporary file beside its destination, renamed when complete, with the umask's mode.
@@ -27,11 +33,12 @@ import astropy.units as u
 import numpy as np
 from astropy.table import MaskedColumn, Table
 
+from cwlimits._defaults import LATEX_TABULAR_SUFFIX, TABLE_SUFFIXES
 from cwlimits._files import atomic_write
 from cwlimits._units import parse_unit
 from cwlimits.errors import InputError, TableError
 
-__all__ = ["RawTable", "read_table", "write_table", "neutralise_cell"]
+__all__ = ["RawTable", "read_table", "write_table", "neutralise_cell", "latex_escape"]
 
 _HEADER = re.compile(r"^\s*(?P<name>[^\[\]]*?)\s*(?:\[(?P<unit>[^\[\]]*)\])?\s*$")
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
@@ -171,12 +178,13 @@ def _decode(path, error):
         raise error(f"not UTF-8 text (byte {exc.start})", file=path, row=line) from None
 
 
-def read_table(path, *, error=TableError):
+def read_table(path, *, error=TableError, comments=("#",)):
     """Read a CSV (units in the header) or ECSV file into a :class:`RawTable`.
 
     The format follows the extension: ``.ecsv`` is read by astropy; anything else is read
     as comma-separated text whose lines starting with ``#`` are comments
-    (``# key: value`` comments become metadata).
+    (``# key: value`` comments become metadata); ``comments`` may add other comment
+    marks (a noise file also takes ``%``).
 
     Raises
     ------
@@ -187,7 +195,7 @@ def read_table(path, *, error=TableError):
     text = _decode(path, error)
     if str(path).lower().endswith(".ecsv"):
         return _read_ecsv(path, text, error)
-    return _read_csv(path, text, error)
+    return _read_csv(path, text, error, comments)
 
 
 class _Lines:
@@ -198,7 +206,8 @@ class _Lines:
     ``start`` is the 1-based file line where the record being read began.
     """
 
-    def __init__(self, text):
+    def __init__(self, text, comments=("#",)):
+        self.comments = tuple(comments)
         # newline="" keeps "\r\n" inside quoted cells as it is, as the csv module asks
         self._lines = io.StringIO(text, newline="")
         self.number, self.start, self.at_record_start = 0, None, True
@@ -212,10 +221,11 @@ class _Lines:
             self.number += 1
             if self.at_record_start:
                 stripped = line.strip()
-                if stripped.startswith("#"):
-                    key, sep, value = stripped.lstrip("#").partition(":")
-                    if sep and key.strip() and " " not in key.strip():
-                        self.meta[key.strip()] = value.strip()
+                if stripped.startswith(self.comments):
+                    if stripped.startswith("#"):
+                        key, sep, value = stripped.lstrip("#").partition(":")
+                        if sep and key.strip() and " " not in key.strip():
+                            self.meta[key.strip()] = value.strip()
                     continue
                 if not stripped:
                     continue
@@ -224,9 +234,9 @@ class _Lines:
         raise StopIteration
 
 
-def _csv_records(path, text, error):
+def _csv_records(path, text, error, comments=("#",)):
     """``([(line, cells), ...], meta)`` of a CSV text (the csv module's quoting rules)."""
-    lines = _Lines(text)
+    lines = _Lines(text, comments)
     reader = csv.reader(lines, strict=True)
     records = []
     while True:
@@ -243,8 +253,8 @@ def _csv_records(path, text, error):
     return records, lines.meta
 
 
-def _read_csv(path, text, error):
-    records, meta = _csv_records(path, text, error)
+def _read_csv(path, text, error, comments=("#",)):
+    records, meta = _csv_records(path, text, error, comments)
     if not records:
         raise error("empty file: no header and no rows", file=path)
     data_lines = [(number, None) for number, _ in records]
@@ -318,30 +328,102 @@ def _header_cell(name, unit):
     return f"{name} [{unit.to_string() or '1'}]"
 
 
+_LATEX_SPECIAL = {"\\": r"\textbackslash{}", "&": r"\&", "%": r"\%", "$": r"\$",
+                  "#": r"\#", "_": r"\_", "{": r"\{", "}": r"\}",
+                  "~": r"\textasciitilde{}", "^": r"\textasciicircum{}"}
+
+
+def latex_escape(text):
+    r"""Return ``text`` with LaTeX's special characters escaped (``a_b`` -> ``a\_b``)."""
+    return "".join(_LATEX_SPECIAL.get(ch, ch) for ch in str(text))
+
+
+def _latex_number(value, digits=4):
+    r"""A float for LaTeX: ``1.23`` or ``$1.234\times10^{-25}$``; None for NaN."""
+    value = float(value)
+    if math.isnan(value):
+        return None
+    if math.isinf(value):
+        return r"$\infty$" if value > 0 else r"$-\infty$"
+    if value == 0 or 1e-3 <= abs(value) < 1e5:
+        return f"{value:.{digits}g}"
+    mantissa, exponent = f"{value:.{digits - 1}e}".split("e")
+    return f"${mantissa}\\times10^{{{int(exponent)}}}$"
+
+
+def _latex_unit(unit):
+    if unit is None or unit == u.dimensionless_unscaled:
+        return ""
+    return unit.to_string("latex_inline")
+
+
+def _one_line(text):
+    return " ".join(str(text).split())
+
+
+def _write_latex(table, handle, meta, assumptions, tabular):
+    """Write ``table`` as LaTeX through astropy's aastex or latex writer."""
+    blank = "---" if tabular else r"\nodata"
+    out = Table()
+    units = {}
+    for name in table.colnames:
+        column = table[name]
+        label = latex_escape(name)
+        units[label] = _latex_unit(column.unit)
+        if column.dtype.kind == "f":
+            cells = [_latex_number(v) for v in np.asarray(column, dtype=float)]
+        elif column.dtype.kind == "b":
+            cells = ["yes" if v else "no" for v in np.asarray(column)]
+        elif column.dtype.kind in "iu":
+            cells = [str(int(v)) for v in np.asarray(column)]
+        else:
+            cells = [None if (v is None or np.ma.is_masked(v) or str(v) == "")
+                     else latex_escape(v) for v in column]
+        out[label] = [blank if c is None else c for c in cells]
+    note = "; ".join(f"{latex_escape(k)}: {latex_escape(v)}" for k, v in assumptions.items())
+    latexdict = {"units": units, "col_align": "l" + "r" * (len(out.colnames) - 1)}
+    if meta.get("title"):
+        latexdict["caption"] = latex_escape(meta["title"])
+    if note:
+        latexdict["tablefoot"] = (r"\par\smallskip{\footnotesize Assumptions: " + note + "}"
+                                  if tabular else r"\tablecomments{Assumptions: " + note + "}")
+    for key, value in meta.items():
+        if value != "":
+            handle.write(f"% {key}: {_one_line(value)}\n")
+    for key, value in assumptions.items():
+        handle.write(f"% assumption.{key}: {_one_line(value)}\n")
+    buffer = io.StringIO()
+    out.write(buffer, format="ascii.latex" if tabular else "ascii.aastex",
+              latexdict=latexdict)
+    handle.write(buffer.getvalue())
+
+
 def write_table(table, path, *, assumptions=None, title=None):
-    """Write an astropy Table as CSV or ECSV (by extension), with units and assumptions.
+    """Write an astropy Table as CSV, ECSV or LaTeX (by extension), with units and assumptions.
 
     Parameters
     ----------
     table : astropy.table.Table or QTable
         Columns with units where they have them.
     path : str or Path
-        Destination; ``.csv`` or ``.ecsv``.
+        Destination; ``.csv``, ``.ecsv`` or ``.tex`` (an AASTeX ``deluxetable``; a name
+        ending in ``.tabular.tex`` gives a plain ``tabular``).
     assumptions : dict of str -> str, optional
-        Written as ``# assumption.<key>: value`` lines (CSV) or under
-        ``meta['assumptions']`` (ECSV).
+        Written as ``# assumption.<key>: value`` lines (CSV), under
+        ``meta['assumptions']`` (ECSV), or as the table note (LaTeX).
     title : str, optional
         A one-line description written first.
 
     Raises
     ------
     InputError
-        For an extension other than .csv or .ecsv (nothing is written).
+        For an extension other than .csv, .ecsv or .tex (nothing is written).
     """
     path = Path(path)
     suffix = path.suffix.lower()
-    if suffix not in (".csv", ".ecsv"):
-        raise InputError("output table must end in .csv or .ecsv", file=str(path))
+    if suffix not in TABLE_SUFFIXES:
+        raise InputError(f"output table must end in {', '.join(TABLE_SUFFIXES)}",
+                         file=str(path))
     from cwlimits import __version__
 
     table = Table(table, copy=True)
@@ -349,7 +431,12 @@ def write_table(table, path, *, assumptions=None, title=None):
     meta.update({k: v for k, v in table.meta.items() if k != "assumptions"})
     assumptions = dict(assumptions or table.meta.get("assumptions", {}))
 
-    if suffix == ".ecsv":
+    if suffix == ".tex":
+        tabular = path.name.lower().endswith(LATEX_TABULAR_SUFFIX)
+
+        def write(handle):
+            _write_latex(table, handle, meta, assumptions, tabular)
+    elif suffix == ".ecsv":
         table.meta = dict(meta, assumptions=assumptions)
         for name in table.colnames:
             column = table[name]

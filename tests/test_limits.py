@@ -23,6 +23,13 @@ from cwlimits.searchspace.searchsetup import SearchSetup
 from cwlimits.sensitivity.model import DEFAULT_START, signal_model, strain_sensitivity
 from cwlimits.targets.conversions import ellipticity, rmode_amplitude
 
+# The method checks here feed the limits statistics drawn for one template, or chosen at
+# will, and results covering part of the setup's band: not the output of a search over the
+# setup's templates.  The warnings about such inputs (a loudest statistic below what noise
+# gives for the templates searched, bands without a result) are checked in test_results.py.
+pytestmark = [pytest.mark.filterwarnings("ignore::cwlimits.errors.StatisticWarning"),
+              pytest.mark.filterwarnings("ignore::cwlimits.errors.CoverageWarning")]
+
 ROOT = pathlib.Path(__file__).resolve().parent.parent
 CATALOGUE = ROOT / "target_lists" / "demo.csv"
 BAD_RESULTS = sorted((ROOT / "tests" / "data" / "bad" / "results").iterdir())
@@ -580,3 +587,99 @@ def test_fast_limits_match_the_reference_paths(target):
     # tabulated loudest-event limit against the per-band solve (cubic spline in s)
     assert np.allclose(freq["h0_limit"], freq_direct["h0_limit"], rtol=1e-5)
     assert np.allclose(freq["eps_limit"], freq_direct["eps_limit"], rtol=1e-5)
+
+
+def test_cli_without_seed_repeats_its_numbers_and_records_the_seed(files):
+    # item 14 of issue 18: a fixed default seed, so two runs without --seed agree bit for
+    # bit, also on the Monte-Carlo path (--draws), and the seed is in the assumptions.
+    tmp, setup, results = files
+    outs = [tmp / f"run{k}" / "ul.csv" for k in (1, 2)]
+    for out in outs:
+        assert _cli(results, setup, "--out", str(out), "--draws", "200", "-q") == 0
+    first, second = (cwlimits.tables.read_table(p) for p in outs)
+    assert first.columns["eps_limit"] == second.columns["eps_limit"]
+    assert "0 (the default seed" in first.meta["assumption.seed"]
+    other = tmp / "run3" / "ul.csv"
+    assert _cli(results, setup, "--out", str(other), "--draws", "200", "--seed", "5",
+                "-q") == 0
+    assert cwlimits.tables.read_table(other).columns["eps_limit"] != first.columns[
+        "eps_limit"]
+
+
+def test_cli_limits_chain_into_convert(files):
+    # item 11 of issue 18: 'convert --table' reads the table 'limits' wrote (f_mid,
+    # h0_limit) and gives eps = c^4 d h0 / (4 pi^2 G I f^2) (Jaranowski, Krolak & Schutz
+    # 1998, eq. 22), here recomputed from astropy constants on the limits table's numbers.
+    from astropy import constants as const
+    tmp, setup, results = files
+    limits_out = tmp / "ul.ecsv"
+    assert _cli(results, setup, "--out", str(limits_out), "-q") == 0
+    for suffix in (".csv", ".tex"):
+        out = tmp / f"eps{suffix}"
+        assert main(["-q", "convert", "--table", str(limits_out), "--distance", "2 kpc",
+                     "--out", str(out)]) == 0
+    raw = cwlimits.tables.read_table(tmp / "eps.csv")
+    source = cwlimits.tables.read_table(limits_out)
+    h0 = source.quantity("h0_limit", u.one, required=False)
+    f = source.quantity("f_mid", u.Hz)
+    expected = (const.c**4 * 2 * u.kpc * h0 / (4 * np.pi**2 * const.G * 1e38 * u.kg
+                                               * u.m**2 * f**2)).to_value(u.one)
+    got = raw.quantity("eps", u.one, required=False)
+    assert np.isfinite(got.value).any()
+    np.testing.assert_allclose(got.value, expected, rtol=1e-9)
+    # the limits table's assumptions travel along (confidence, noise, ...)
+    assert any(k.startswith("assumption.source.") for k in raw.meta)
+    assert "\\begin{deluxetable}" in (tmp / "eps.tex").read_text()
+
+
+def test_cli_gap_in_results_warns_and_breaks_the_table_and_the_curves(files, capsys):
+    # item 7 of issue 18: bands 102-104 Hz missing and nothing above 105 Hz of the setup's
+    # 100-110 Hz: a warning with the ranges, the coverage (3 of 10 Hz with a result,
+    # arithmetic) in the assumptions, an empty row in the gap, and a break in the figure.
+    import matplotlib
+
+    matplotlib.use("Agg")
+    from cwlimits.plotting.limits import plot_limits
+
+    tmp, setup, _ = files
+    results = tmp / "gap.csv"
+    rows = [f"{f},0.5,{v}" for f, v in [(100, 90), (100.5, 91), (101, 92), (101.5, 93),
+                                          (104, 94), (104.5, 95)]]
+    results.write_text("f_lo [Hz],width [Hz],loudest_2F\n" + "\n".join(rows) + "\n")
+    out = tmp / "ul.csv"
+    assert _cli(results, setup, "--out", str(out)) == 0
+    err = capsys.readouterr().err
+    assert "warning:" in err and "102-104 Hz" in err and "105-110 Hz" in err
+    table = cwlimits.tables.read_table(out)
+    f_lo = table.quantity("f_lo", u.Hz).value
+    h0 = table.quantity("h0_limit", u.one, required=False).value
+    gap = int(np.flatnonzero(f_lo == 102)[0])
+    assert np.isnan(h0[gap]) and np.isfinite(np.delete(h0, gap)).all()
+    assert table.text("has_result")[gap] == "false"
+    assert "30 % of 100-110 Hz has a result" in table.meta["assumption.coverage"]
+    api = upper_limits(str(results), cwlimits.load_setup(setup),
+                       cwlimits.load_targets(CATALOGUE).target("Fict Quill"))
+    line = plot_limits(api).axes[0].get_lines()[-1]
+    y = np.asarray(line.get_ydata(), float)
+    assert np.isnan(y).sum() == 1  # matplotlib breaks a line at NaN (its documentation)
+
+
+def test_cli_per_segment_means_labelled_as_totals_warn(files, capsys):
+    # item 8 of issue 18: totals typical of noise for this setup's template count (the
+    # median loudest of M chi-squared(32) draws, scipy.stats.chi2), then the same divided
+    # by N_seg = 8 but still labelled as totals.
+    tmp, setup, _ = files
+    f_lo = 100 + 0.5 * np.arange(10)
+    sm = signal_model(cwlimits.load_setup(setup), "second-gen-fit",
+                      cwlimits.load_targets(CATALOGUE).target("Fict Quill"),
+                      (f_lo << u.Hz, (f_lo + 0.5) << u.Hz))
+    m = float(np.min(sm.n_templates))
+    total = stats.chi2.isf(-np.expm1(np.log(0.5) / m), 32)
+    for name, value, warns in (("totals.csv", total, False), ("means.csv", total / 8, True)):
+        path = tmp / name
+        path.write_text("f_lo [Hz],width [Hz],loudest_2F\n" + "".join(
+            f"{100 + 0.5 * k},0.5,{value:.4f}\n" for k in range(10)))
+        assert _cli(path, setup, "-q") == 0
+        err = capsys.readouterr().err
+        assert ("far below what noise alone gives" in err) is warns, err
+    assert "means.csv" in err and "row(s) 2, 3, 4" in err and "loudest_2F_per_segment" in err

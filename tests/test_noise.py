@@ -203,8 +203,11 @@ def test_asd_header_variants_and_kind_rules(tmp_path):
         assert noise.psd(100 * scale * u.Hz).to_value(PSD) == pytest.approx(1e-46, rel=1e-12)
     # a header without unit and name: the kind argument decides
     path = write(tmp_path / "b.csv", "f [Hz], noise\n" + body)
-    assert read_noise_file(path, kind="psd").psd(100 * u.Hz).to_value(PSD) == pytest.approx(
-        1e-23, rel=1e-13)  # exp(log(S)) round trip at a node
+    assert read_noise_file(path, kind="asd").psd(100 * u.Hz).to_value(PSD) == pytest.approx(
+        1e-46, rel=1e-12)  # exp(log(S)) round trip at a node
+    # the same numbers called a PSD are ASD-sized: refused, naming the file, row and column
+    with pytest.raises(TableError, match=r"b\.csv, row 2, column 'noise'.*looks like a ASD"):
+        read_noise_file(path, kind="psd")
     with pytest.raises(TableError, match="cannot tell ASD from PSD"):
         read_noise_file(path)
     # header and argument disagree
@@ -756,3 +759,81 @@ def test_retired_model_names_name_their_replacement(old, new):
     with pytest.raises(InputError, match=f"was renamed: use '{new}'"):
         get_noise(old)
 
+
+
+@pytest.mark.parametrize("fmax, n_bands, last", [("1000Hz", 5, (820.0, 1000.0)),
+                                                 ("1020Hz", 5, (820.0, 1020.0))])
+def test_band_grid_keeps_a_partial_last_band_and_says_so(tmp_path, capsys, fmax, n_bands,
+                                                         last):
+    # item 13 of issue 18: 20-1000 Hz in 200 Hz steps is 4 whole bands and 180 Hz left
+    # over (arithmetic): the remainder is a fifth, narrower band to FMAX, and a note says
+    # so; a whole number of steps gets no note.
+    from cwlimits.cli import main
+    from cwlimits.tables import read_table
+
+    out = tmp_path / "bands.csv"
+    assert main(["noise", "--band", "20Hz", fmax, "--step", "200Hz", "--out", str(out)]) == 0
+    table = read_table(out)
+    f_lo = table.quantity("f_lo", u.Hz).value
+    f_hi = table.quantity("f_hi", u.Hz).value
+    assert len(f_lo) == n_bands and (f_lo[-1], f_hi[-1]) == last
+    partial = fmax == "1000Hz"
+    assert ("narrower than the step" in capsys.readouterr().out) is partial
+    assert ("assumption.last_band" in table.meta) is partial
+
+
+# ---- issue 18, item 12: noise files on every command ------------------------------------
+def test_percent_comments_and_kind_in_the_column_name(tmp_path):
+    path = write(tmp_path / "h1.txt", "% exported curve\n% f, asd\nf [Hz],h1_asd\n"
+                 "10,1e-22\n% a note between rows\n100,1e-23\n1000,2e-23\n")
+    noise = read_noise_file(path)
+    assert noise.kind == "asd"
+    assert noise.psd(100 * u.Hz).to_value(PSD) == pytest.approx(1e-46, rel=1e-12)
+    plain = write(tmp_path / "p.txt", "% no header\n10 1e-44\n100 1e-46\n1000 4e-46\n")
+    assert read_noise_file(plain, "psd").psd(1000 * u.Hz).to_value(PSD) == pytest.approx(4e-46)
+
+
+def test_psd_given_as_asd_is_refused_with_its_place(tmp_path):
+    # PSD-sized numbers (1e-46) in an ASD column: no strain ASD is that small (common
+    # practice: ground-based detectors have ASD ~1e-24..1e-20 Hz^-1/2 in band)
+    path = write(tmp_path / "x.csv", "f [Hz],asd [Hz^-1/2]\n10,1e-44\n100,1e-46\n")
+    with pytest.raises(TableError, match=r"x\.csv, row 2, column 'asd'.*looks like a PSD"):
+        read_noise_file(path)
+
+
+def _noise_cli(tmp_path, *noise):
+    from pathlib import Path
+
+    catalogue = Path(__file__).resolve().parent.parent / "target_lists" / "demo.csv"
+    out = tmp_path / "sens.csv"
+    code = main(["sensitivity", "--catalogue", str(catalogue), "--target", "Fict Quill",
+                 "--t-seg", "10day", "--n-seg", "4", "--f-min", "100Hz", "--f-max", "102Hz",
+                 "--band-width", "1Hz", "--detectors", "H1,L1", *noise, "--out", str(out),
+                 "-q"])
+    return code, out
+
+
+def test_per_detector_noise_and_noise_kind_on_the_command_line(tmp_path, capsys):
+    from cwlimits.tables import read_table
+
+    body = "".join(f"{f},{a}\n" for f, a in ((50, 2e-23), (100, 1e-23), (200, 1e-23)))
+    h1 = write(tmp_path / "h1.txt", "% H1 curve\n" + body.replace(",", " "))
+    l1 = write(tmp_path / "l1.csv", "f [Hz],asd [Hz^-1/2]\n" + body.replace("e-23", "e-22"))
+    code, out = _noise_cli(tmp_path, "--noise", f"H1={h1}", "--noise", f"L1={l1}",
+                           "--noise-kind", "asd")
+    assert code == 0, capsys.readouterr().err
+    both = read_table(out).quantity("psd", 1 / u.Hz).value
+    code, out = _noise_cli(tmp_path, "--noise", str(l1))
+    assert code == 0
+    l1_only = read_table(out).quantity("psd", 1 / u.Hz).value
+    # the network S_eff is the harmonic mean of the detectors' PSDs (equal weights here,
+    # common practice): 2 / (1/1e-46 + 1/1e-44) against 1e-44 for L1 alone
+    assert np.allclose(both, 2 / (1 / 1e-46 + 1 / 1e-44), rtol=0.05)
+    assert np.allclose(l1_only, 1e-44, rtol=0.05)
+    # a headerless file without --noise-kind, a mix-up and a wrong pairing: exit 2
+    for args, message in ((("--noise", str(h1)), "no header"),
+                          (("--noise", str(h1), "--noise-kind", "psd"), "looks like a ASD"),
+                          (("--noise", f"H1={l1}", "--noise", str(l1)), "not both")):
+        code, out = _noise_cli(tmp_path, *args)
+        err = capsys.readouterr().err
+        assert code == 2 and message in err and err.startswith("error:")

@@ -17,13 +17,42 @@ class FakeTerminal(io.StringIO):
         return True
 
 
-def test_nothing_is_written_when_the_stream_is_not_a_terminal():
+def test_a_short_stage_writes_nothing_when_the_stream_is_not_a_terminal():
     stream = io.StringIO()
     assert not is_terminal(stream)
     with progress(100, "bands", file=stream) as update:
         update(50)
         update(50)
     assert stream.getvalue() == ""
+
+
+class FakeClock:
+    """Seconds that advance by ``step`` at each reading."""
+
+    def __init__(self, step):
+        self.now, self.step = 0.0, step
+
+    def __call__(self):
+        self.now += self.step
+        return self.now
+
+
+def test_a_long_stage_writes_plain_lines_to_a_log():
+    # item 15 of issue 18: a log file (not a terminal) gets a line at most every interval
+    # and a last line; each reading of the fake clock advances 6 s, the interval is 10 s.
+    stream = io.StringIO()
+    with progress(60, "ranking", unit="target", file=stream, interval=10.0,
+                  clock=FakeClock(6.0)) as update:
+        for _ in range(6):
+            update(10)
+    lines = stream.getvalue().splitlines()
+    assert "\r" not in stream.getvalue()  # no bar redraws in a log
+    # readings at 6 s (start), then 12, 18, ..., 42 s: lines at 18 s (20/60, 12 s in; 40
+    # left at 20 per 12 s is 24 s) and 30 s; at 42 s all is done: only the final line.
+    assert lines[0] == "ranking: 20/60 target (33.3 %), 12 s elapsed, about 24 s left"
+    assert lines[1].startswith("ranking: 40/60 target (66.7 %), 24 s elapsed")
+    assert lines[-1].startswith("ranking: done, 60/60 target in ")
+    assert len(lines) == 3
 
 
 def test_a_bar_is_drawn_on_a_terminal_and_counts_the_items():

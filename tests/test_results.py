@@ -60,3 +60,78 @@ def test_retired_column_names_its_replacement(write_file, old, new):
     with pytest.raises(TableError, match=f"'{old}' was renamed: call it '{new}'") as info:
         load_results(path)
     assert info.value.column == old and info.value.file == str(path)
+
+
+# ---- issue 18, item 7: bands without a result -------------------------------------------
+def test_gap_between_bands_warns_with_ranges_rows_and_coverage(write_file):
+    from cwlimits.errors import CoverageWarning
+
+    path = write_file("gap.csv", "f_lo [Hz],width [Hz],loudest_2F\n100,1,80\n101,1,80\n"
+                      "104,1,80\n105,1,80\n")
+    with pytest.warns(CoverageWarning, match=r"gap\.csv.*102-104 Hz.*rows 3-4.*66\.67 %"):
+        res = load_results(path)
+    # 4 bands of 1 Hz in 100-106 Hz: 4/6 has a result (arithmetic)
+    assert res.coverage() == pytest.approx(4 / 6)
+    assert res.gaps().to_value(u.Hz).tolist() == [[102.0, 104.0]]
+    # against the searched band 99-110 Hz: the missing edges count too (4/11)
+    band = (99 * u.Hz, 110 * u.Hz)
+    assert res.gaps(band).to_value(u.Hz).tolist() == [[99, 100], [102, 104], [106, 110]]
+    assert res.coverage(band) == pytest.approx(4 / 11)
+
+
+def test_contiguous_bands_have_no_gap(write_file):
+    import warnings
+
+    path = write_file("ok.csv", "f_lo [Hz],width [Hz],loudest_2F\n100,0.1,80\n100.1,0.1,80\n"
+                      "100.2,0.1,80\n")
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        res = load_results(path)
+    assert res.gaps().shape == (0, 2) and res.coverage() == pytest.approx(1.0)
+
+
+# ---- issue 18, item 8: a loudest statistic below what noise gives -----------------------
+@pytest.mark.parametrize("m, n_seg", [(1, 4), (50, 8), (400, 2)])
+def test_noise_loudest_range_matches_a_monte_carlo_of_the_maximum(m, n_seg):
+    # the maximum of M chi-squared(4N) draws (scipy.stats.chi2, reference library), 5000
+    # repetitions, seed 7: its 0.1 and 0.9 quantiles against the formula; the standard
+    # error of an empirical quantile is sqrt(q(1-q)/n)/pdf < 0.5 % of the value here, so
+    # 2 % is more than 4 sigma.
+    from scipy import stats
+
+    from cwlimits.limits.results import noise_loudest_range
+
+    rng = np.random.default_rng(7)
+    draws = stats.chi2.rvs(4 * n_seg, size=(5000, m), random_state=rng).max(axis=1)
+    low, high = noise_loudest_range(m, n_seg, probability=0.1)
+    assert low == pytest.approx(np.quantile(draws, 0.1), rel=0.02)
+    assert high == pytest.approx(np.quantile(draws, 0.9), rel=0.02)
+    # broadcasting over bands
+    lows, highs = noise_loudest_range([m, 10 * m], n_seg, probability=0.1)
+    assert lows.shape == (2,) and lows[1] > lows[0] and highs[1] > highs[0]
+
+
+def test_per_segment_means_labelled_as_totals_warn_with_file_rows_and_range(write_file):
+    from scipy import stats
+
+    from cwlimits.errors import StatisticWarning
+    from cwlimits.limits.results import check_loudest, noise_loudest_range
+
+    n_seg, m = 10, 1e9
+    # the median loudest total of 1e9 templates in noise: chi2.isf(1 - 0.5^(1/M), 40)
+    total = stats.chi2.isf(-np.expm1(np.log(0.5) / m), 4 * n_seg)
+    rows = "".join(f"{100 + k},1,{total / n_seg:.4f}\n" for k in range(3))
+    bad = write_file("bad.csv", "f_lo [Hz],width [Hz],loudest_2F\n" + rows)
+    res = load_results(bad)
+    low, high = noise_loudest_range(m * 1e-2, n_seg)
+    with pytest.warns(StatisticWarning, match=r"bad\.csv.*loudest_2F.*row\(s\) 2, 3, 4.*"
+                      rf"{low:.4g} - {high:.4g}.*loudest_2F_per_segment"):
+        flagged = check_loudest(res, n_seg, m)
+    assert flagged.all()
+    # the same numbers under their right name pass without a warning
+    good = write_file("good.csv", "f_lo [Hz],width [Hz],loudest_2F_per_segment\n" + rows)
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        assert not check_loudest(load_results(good), n_seg, m).any()

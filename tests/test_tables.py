@@ -49,7 +49,7 @@ def test_neutralise_keeps_numbers():
 
 
 def test_bad_extension_writes_nothing(tmp_path):
-    with pytest.raises(InputError, match=r"\.csv or \.ecsv"):
+    with pytest.raises(InputError, match=r"\.csv, \.ecsv, \.tex"):
         write_table(_table(), tmp_path / "t.xlsx")
     assert list(tmp_path.iterdir()) == []
 
@@ -78,3 +78,56 @@ def test_reader_errors(write_file):
         raw.quantity("f", u.m)
     with pytest.raises(TableError, match="not a readable ECSV"):
         read_table(write_file("d.ecsv", "# %ECSV 1.0\n# ---\n# garbage: [\nx\n1\n"))
+
+
+@pytest.mark.parametrize("name, fmt", [("t.tex", "ascii.aastex"),
+                                       ("t.tabular.tex", "ascii.latex")])
+def test_latex_tables_read_back_by_astropy_with_units_and_note(tmp_path, name, fmt):
+    # astropy's own LaTeX readers (reference library) read the table back: same columns,
+    # the same numbers, the units row and the assumptions as the table note.
+    t = QTable()
+    t["f_gw"] = [100.0, 200.0] * u.Hz
+    t["h0_limit"] = [1.5e-25, np.nan] * u.one
+    t["target"] = ["Fict A_1", "b&c"]
+    path = write_table(t, tmp_path / name, assumptions={"distance": "1 kpc (50% error)"},
+                       title="95% upper limits")
+    text = path.read_text()
+    if fmt == "ascii.latex":
+        back = Table.read(text, format=fmt)
+        assert back.colnames == ["f\\_gw", "h0\\_limit", "target"]
+        # the first row under the names is the units row, then the data
+        assert back["f\\_gw"][0] == "$\\mathrm{Hz}$"
+        assert [float(v) for v in back["f\\_gw"][1:]] == [100.0, 200.0]
+        assert back["target"][1] == "Fict A\\_1" and back["target"][2] == "b\\&c"
+    else:
+        # astropy's aastex reader does not take a units row in \tablehead: check the
+        # deluxetable layout of the AASTeX guide (common practice) by hand instead.
+        head = text.split("\\tablehead{", 1)[1].split("\n", 1)[0]
+        names, units = head.split("\\\\")
+        assert names.count("\\colhead") == units.count("\\colhead") == 3
+        body = text.split("\\startdata\n", 1)[1].split("\\enddata", 1)[0]
+        rows = [r.split(" & ") for r in body.strip().split("\\\\\n")]
+        assert [r[0].strip() for r in rows] == ["100", "200"]
+        assert rows[1][2].strip() == "b\\&c"
+    assert "$1.500\\times10^{-25}$" in text
+    assert "$\\mathrm{Hz}$" in text  # the units row
+    assert "distance: 1 kpc (50\\% error)" in text  # the note, LaTeX-escaped
+    if fmt == "ascii.aastex":
+        assert "\\begin{deluxetable}" in text and "\\tablecomments{Assumptions:" in text
+        assert "\\nodata" in text  # AASTeX's empty cell (AASTeX guide, common practice)
+    else:
+        assert "\\begin{tabular}" in text and "deluxetable" not in text and "---" in text
+    # a second run may replace it (the ownership mark), a .txt is refused
+    write_table(t, path)
+    with pytest.raises(InputError, match=r"\.tex"):
+        write_table(t, tmp_path / "t.txt")
+
+
+def test_latex_table_from_the_command_line(tmp_path, demo_catalogue_path):
+    from cwlimits.cli import main
+
+    out = tmp_path / "indirect.tex"
+    assert main(["indirect", str(demo_catalogue_path), "--out", str(out), "-q"]) == 0
+    text = out.read_text()
+    assert "\\begin{deluxetable}" in text and "\\tablecomments{Assumptions:" in text
+    assert "moment" in text.lower()  # the moment-of-inertia assumption is in the note

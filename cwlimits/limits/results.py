@@ -20,17 +20,39 @@ non-finite statistic, a negative width, a negative statistic, bands that overlap
 floor that is not positive are errors naming the file, row, column and value; nothing is
 skipped.  A column name of an earlier version of cwlimits (``loudest_2F_sum``,
 ``loudest_2F_mean``) is an error naming the column that replaced it.
+
+Bands need not be contiguous: a gap between two bands (a band that was not searched or
+whose result is lost) is allowed, reported by a :class:`~cwlimits.errors.CoverageWarning`
+naming the file, the rows around it and the frequency ranges, and kept as a gap:
+:meth:`SearchResults.gaps` gives the ranges without a result and
+:meth:`SearchResults.coverage` the fraction of a frequency range that has one (the upper
+limits put an empty row, a break in every curve, in each gap; see
+:func:`cwlimits.limits.upper.upper_limits`).
 """
 
+import warnings
 from dataclasses import dataclass, field
 
 import astropy.units as u
 import numpy as np
 
-from cwlimits.errors import TableError
+from cwlimits.errors import CoverageWarning, StatisticWarning, TableError
 from cwlimits.tables import read_table
 
-__all__ = ["SearchResults", "load_results", "STATISTIC_COLUMNS", "RETIRED_RESULT_COLUMNS"]
+__all__ = ["SearchResults", "load_results", "STATISTIC_COLUMNS", "RETIRED_RESULT_COLUMNS",
+           "format_ranges", "noise_loudest_range", "check_loudest"]
+
+#: Probability of each end of the noise-only range of the loudest statistic that
+#: :func:`check_loudest` uses: a value below its lower end happens by chance once in a
+#: million bands.
+NOISE_RANGE_PROBABILITY = 1e-6
+#: Templates of a lattice are correlated: :func:`check_loudest` takes the number of
+#: independent ones as this fraction of the count (a deliberately low guess, so that only
+#: values no plausible count explains are flagged).
+INDEPENDENT_FRACTION = 1e-2
+
+#: Relative tolerance on band edges: two bands closer than this (of the band width) touch.
+_EDGE_RTOL = 1e-9
 
 #: Accepted names of the loudest-statistic column, and the convention each declares.
 STATISTIC_COLUMNS = {"loudest_2F": "total", "loudest_2F_per_segment": "per_segment"}
@@ -84,6 +106,37 @@ class SearchResults:
     def f_mid(self):
         """Band centres."""
         return self.f_lo + self.width / 2
+
+    def gaps(self, band=None):
+        """Frequency ranges without a result, as an ``(n, 2)`` Quantity in Hz.
+
+        Parameters
+        ----------
+        band : (Quantity, Quantity), optional
+            The range the search was meant to cover (a setup's ``band``): the parts of it
+            below the first band and above the last one count as gaps too.  Without it,
+            only the gaps between bands count.
+        """
+        lo = self.f_lo.to_value(u.Hz)
+        hi = self.f_hi.to_value(u.Hz)
+        tol = _EDGE_RTOL * np.max(self.width.to_value(u.Hz))
+        inner = np.flatnonzero(lo[1:] - hi[:-1] > tol)
+        ranges = [(hi[k], lo[k + 1]) for k in inner]
+        if band is not None:
+            f_min, f_max = (b.to_value(u.Hz) for b in band)
+            if lo[0] - f_min > tol:
+                ranges.insert(0, (f_min, min(lo[0], f_max)))
+            if f_max - hi[-1] > tol:
+                ranges.append((max(hi[-1], f_min), f_max))
+        return np.array(ranges, dtype=float).reshape(-1, 2) << u.Hz
+
+    def coverage(self, band=None):
+        """Fraction of ``band`` (default: first to last band edge) that has a result."""
+        lo, hi = self.f_lo.to_value(u.Hz), self.f_hi.to_value(u.Hz)
+        f_min, f_max = ((lo[0], hi[-1]) if band is None
+                        else tuple(b.to_value(u.Hz) for b in band))
+        inside = np.clip(hi, f_min, f_max) - np.clip(lo, f_min, f_max)
+        return float(np.sum(inside) / (f_max - f_min))
 
     def loudest_total(self, n_seg):
         """The loudest statistic as the total over ``n_seg`` segments."""
@@ -150,9 +203,102 @@ def load_results(path):
         raise TableError(f"band overlaps the band at row {lines[k]} (which ends at "
                          f"{lo[k] + wd[k]:.10g} Hz)", file=raw.path, row=int(lines[k + 1]),
                          column=position, value=raw.text(position)[order[k + 1]])
-    return SearchResults(
+    results = SearchResults(
         f_lo=lo << u.Hz, width=wd << u.Hz, loudest=loudest[order],
         convention=STATISTIC_COLUMNS[stat_column],
         psd=None if psd is None else psd[order],
         n_templates=None if n_templates is None else n_templates[order],
         source=raw.path, rows=lines)
+    gaps = results.gaps()
+    if len(gaps):
+        hi = results.f_hi.to_value(u.Hz)
+        rows = [f"{lines[k]}-{lines[k + 1]}"
+                for k in np.searchsorted(hi, gaps[:, 0].to_value(u.Hz) * (1 - 1e-12))]
+        warnings.warn(CoverageWarning(
+            f"{raw.path}: no result in {len(gaps)} frequency range(s) between bands: "
+            f"{format_ranges(gaps)} (between rows {', '.join(rows[:5])}"
+            f"{', ...' if len(rows) > 5 else ''}); {100 * results.coverage():.4g} % of "
+            f"{lo[0]:.6g}-{hi[-1]:.6g} Hz has a result, and the limits have a break "
+            "(an empty row) in each gap"), stacklevel=2)
+    return results
+
+
+def format_ranges(ranges, most=5):
+    """``'103-104 Hz, 108-110 Hz'``: the first ``most`` of an ``(n, 2)`` Quantity in Hz."""
+    values = np.asarray(u.Quantity(ranges).to_value(u.Hz)).reshape(-1, 2)
+    text = ", ".join(f"{a:.6g}-{b:.6g} Hz" for a, b in values[:most])
+    return text + (f" and {len(values) - most} more" if len(values) > most else "")
+
+
+def noise_loudest_range(n_templates, n_seg, probability=NOISE_RANGE_PROBABILITY):
+    """The range of the loudest total 2F of ``n_templates`` independent noise-only templates.
+
+    In Gaussian noise the StackSlide total 2F of one template is chi-squared with 4 N_seg
+    degrees of freedom (2F of one segment is chi-squared with 4, Jaranowski, Krolak &
+    Schutz 1998, gr-qc/9804014, Sect. III, from memory; a sum of N independent ones has
+    4 N, common practice).  The loudest of M independent ones has the distribution
+    function ``P(max < x) = F(x)^M``, so its ``q`` quantile is
+    ``chi2.isf(1 - q^(1/M), 4 N)``, evaluated as ``-expm1(log(q) / M)`` to keep the
+    precision at large M.
+
+    Parameters
+    ----------
+    n_templates : array_like
+        Number of independent templates per band (>= 1).
+    n_seg : int
+        Segments of the semi-coherent sum.
+    probability : float
+        Probability of each tail outside the range.
+
+    Returns
+    -------
+    (ndarray, ndarray)
+        The ``probability`` and ``1 - probability`` quantiles of the loudest total 2F.
+    """
+    from scipy import stats
+
+    m = np.maximum(np.asarray(n_templates, dtype=float), 1.0)
+    dof = 4 * int(n_seg)
+    low = stats.chi2.isf(-np.expm1(np.log(probability) / m), dof)
+    high = stats.chi2.isf(-np.expm1(np.log1p(-probability) / m), dof)
+    return low, high
+
+
+def check_loudest(results, n_seg, n_templates):
+    """Warn when a band's loudest statistic lies far below what noise alone gives.
+
+    A loudest total 2F below the ``NOISE_RANGE_PROBABILITY`` quantile of the loudest of
+    ``INDEPENDENT_FRACTION * n_templates`` noise-only templates (:func:`noise_loudest_range`)
+    cannot come from the search described: typically per-segment means written in a
+    column of totals, which makes the limits several times too strong.  The
+    :class:`~cwlimits.errors.StatisticWarning` names the file, the rows and the range.
+
+    Returns
+    -------
+    ndarray of bool
+        The bands flagged.
+    """
+    total = np.asarray(results.loudest_total(n_seg), dtype=float)
+    m = np.broadcast_to(np.asarray(n_templates, dtype=float), total.shape)
+    low, high = noise_loudest_range(np.maximum(INDEPENDENT_FRACTION * m, 1.0), n_seg)
+    flagged = total < low
+    if flagged.any():
+        k = np.flatnonzero(flagged)
+        rows = [str(r) for r in np.asarray(results.rows)[k]] if len(results.rows) else [
+            f"band {i}" for i in k]
+        column = ("loudest_2F_per_segment" if results.convention == "per_segment"
+                  else "loudest_2F")
+        first = k[0]
+        shown = total[first] / (n_seg if results.convention == "per_segment" else 1)
+        scale = n_seg if results.convention == "per_segment" else 1
+        warnings.warn(StatisticWarning(
+            f"{results.source or 'results'}: {len(k)} band(s) have a loudest statistic far "
+            f"below what noise alone gives for the templates searched (column '{column}', "
+            f"row(s) {', '.join(rows[:8])}{', ...' if len(rows) > 8 else ''}): e.g. "
+            f"{shown:.4g} where the loudest of {m[first]:.3g} templates in Gaussian noise "
+            f"lies in {low[first] / scale:.4g} - {high[first] / scale:.4g} (chi-squared "
+            f"with {4 * n_seg} degrees of freedom, {INDEPENDENT_FRACTION:g} of the templates "
+            f"independent, probability {NOISE_RANGE_PROBABILITY:g} each side). Per-segment "
+            "means in a column of totals? Then call the column 'loudest_2F_per_segment': "
+            "as they are, these limits are too strong"), stacklevel=2)
+    return flagged

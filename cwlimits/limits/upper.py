@@ -44,8 +44,14 @@ from scipy import integrate, interpolate, stats
 from scipy.optimize import elementwise
 
 from cwlimits._units import fraction
-from cwlimits.errors import ComputationError, CwlimitsWarning, InputError
-from cwlimits.limits.results import STATISTIC_COLUMNS, SearchResults, load_results
+from cwlimits.errors import ComputationError, CoverageWarning, CwlimitsWarning, InputError
+from cwlimits.limits.results import (
+    STATISTIC_COLUMNS,
+    SearchResults,
+    check_loudest,
+    format_ranges,
+    load_results,
+)
 from cwlimits.noise import DEFAULT_NOISE_MODEL
 from cwlimits.sensitivity.model import DEFAULT_START, add_indirect_columns, signal_model
 from cwlimits.statistics.detection import (
@@ -947,11 +953,71 @@ def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=No
         f"{type(rng).__name__} (128 bits drawn from it)")
     if empty_note:
         table.meta["assumptions"]["empty_limits"] = empty_note
+    check_loudest(results, sm.n_seg, np.asarray(table["n_templates"], dtype=float))
+    table = _mark_gaps(table, results, setup)
     table.meta["method"] = method
     table.meta["confidence"] = confidence
     table.meta["n_seg"] = sm.n_seg
     table.meta["t_data"] = str(sm.t_data.to(u.day))
     return table
+
+
+def _mark_gaps(table, results, setup):
+    """Put an empty row (NaN) in each gap between bands; note and warn about the coverage.
+
+    The coverage counts every part of the setup's band without a result: the gaps between
+    the bands of ``results`` (reported when the file was read,
+    :func:`cwlimits.limits.results.load_results`) and the parts below the first and above
+    the last band (reported here).  Every curve drawn from the table breaks at the empty
+    row of a gap (``has_result`` False there).
+    """
+    band = getattr(setup, "band", None)
+    gaps = results.gaps(band)
+    inner = results.gaps()
+    coverage = results.coverage(band)
+    lo_all = (band[0] if band is not None else results.f_lo[0]).to_value(u.Hz)
+    hi_all = (band[1] if band is not None else results.f_hi[-1]).to_value(u.Hz)
+    info = table.meta["assumptions"]
+    info["coverage"] = (f"{100 * coverage:.4g} % of {lo_all:.6g}-{hi_all:.6g} Hz has a "
+                        "result" + (f"; no result (an empty row) in {format_ranges(gaps)}"
+                                    if len(gaps) else ""))
+    table.meta["coverage"] = coverage
+    edges = len(gaps) - len(inner)
+    if edges:
+        outer = [g for g in gaps.to_value(u.Hz).tolist()
+                 if not any(np.allclose(g, i) for i in inner.to_value(u.Hz).tolist())]
+        warnings.warn(CoverageWarning(
+            f"{results.source or 'results'}: no result in "
+            f"{format_ranges(np.array(outer) << u.Hz)} of the searched band "
+            f"{lo_all:.6g}-{hi_all:.6g} Hz (the results end early or start late); "
+            f"{100 * coverage:.4g} % of the band has a result"), stacklevel=3)
+    table["has_result"] = np.ones(len(table), dtype=bool)
+    # rows only for the gaps between bands: a missing edge draws no line across anything
+    if not len(inner):
+        return table
+    gaps = inner
+    g_lo, g_hi = gaps[:, 0].to_value(u.Hz), gaps[:, 1].to_value(u.Hz)
+    order = np.argsort(np.concatenate([table["f_lo"].to_value(u.Hz), g_lo]), kind="stable")
+    constant = ("h0_age", "h0_spindown")
+    out = QTable(meta=table.meta)
+    for name in table.colnames:
+        column = table[name]
+        unit = getattr(column, "unit", None)
+        data = np.asarray(getattr(column, "value", column))
+        if name in ("f_lo", "f_hi", "f_mid"):
+            fill = {"f_lo": g_lo, "f_hi": g_hi, "f_mid": 0.5 * (g_lo + g_hi)}[name]
+        elif name.startswith(constant) and data.size:
+            fill = np.full(len(gaps), data[0])
+        elif data.dtype.kind == "b":
+            fill = np.zeros(len(gaps), dtype=bool)
+        elif data.dtype.kind in "iuf":
+            data = data.astype(float)
+            fill = np.full(len(gaps), np.nan)
+        else:
+            fill = np.full(len(gaps), "", dtype=data.dtype)
+        merged = np.concatenate([data, fill])[order]
+        out[name] = merged << unit if unit is not None and data.dtype.kind == "f" else merged
+    return out
 
 
 def _seed_of(rng):

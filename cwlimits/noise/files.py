@@ -12,6 +12,7 @@ from pathlib import Path
 import astropy.units as u
 import numpy as np
 
+from cwlimits._defaults import NOISE_KINDS
 from cwlimits._units import to_value
 from cwlimits.errors import InputError, TableError
 from cwlimits.noise._base import ASD_UNIT, PSD_UNIT, NoiseSource
@@ -19,7 +20,14 @@ from cwlimits.tables import read_table
 
 __all__ = ["TabulatedNoise", "read_noise_file"]
 
-_KINDS = ("asd", "psd")
+_KINDS = NOISE_KINDS
+#: Lines starting with these are comments in a noise file.
+_COMMENTS = ("#", "%")
+#: The values a strain-noise curve can take, per kind: wide bounds around those of ground-
+#: based detectors (ASD ~1e-24 to 1e-20 Hz^-1/2 in their sensitive band, rising to ~1e-18
+#: at the edges; common practice).  A PSD read as an ASD gives ~1e-47, an ASD read as a PSD
+#: ~1e-23: both far outside, so the mix-up is caught.
+PLAUSIBLE_RANGE = {"asd": (1e-30, 1e-15), "psd": (1e-60, 1e-30)}
 
 
 class TabulatedNoise(NoiseSource):
@@ -119,6 +127,26 @@ def _validate_nodes(f_hz, psd, locate):
              "be strictly increasing", i, "frequency", float(f_hz[i]))
 
 
+def _check_plausible(values, kind, locate):
+    """Raise a located error for a value no strain-noise ASD (or PSD) takes."""
+    low, high = PLAUSIBLE_RANGE[kind]
+    bad = np.flatnonzero((values < low) | (values > high))
+    if not bad.size:
+        return
+    i = int(bad[0])
+    other = "psd" if kind == "asd" else "asd"
+    unit = "Hz^-1/2" if kind == "asd" else "1/Hz"
+    lo_o, hi_o = PLAUSIBLE_RANGE[other]
+    hint = (f"; it looks like a {other.upper()} ({lo_o:g} to {hi_o:g}): give the column the "
+            f"unit of a {other.upper()} ('{other} [{'1/Hz' if other == 'psd' else 'Hz^-1/2'}]')"
+            f" or --noise-kind {other}" if lo_o <= values[i] <= hi_o else "")
+    where = dict(locate(i, "value"))
+    error = where.pop("error", InputError)
+    where.pop("where", None)
+    raise error(f"{kind.upper()} value outside any strain noise curve ({low:g} to {high:g} "
+                f"{unit}){hint}", value=float(values[i]), **where)
+
+
 def _read_text(path):
     try:
         return Path(path).read_text(encoding="utf-8-sig")
@@ -147,7 +175,7 @@ def _is_numeric_line(line):
 def _data_lines(text):
     """(line number, text) of the lines that are neither blank nor ``#`` comments."""
     return [(n, line) for n, line in enumerate(text.splitlines(), start=1)
-            if line.strip() and not line.lstrip().startswith("#")]
+            if line.strip() and not line.lstrip().startswith(_COMMENTS)]
 
 
 def _read_plain(path, lines, n_columns):
@@ -180,10 +208,11 @@ def _kind_from_header(raw, name, kind, path):
         else:
             raise TableError(f"unit '{unit}' is neither an ASD (Hz^-1/2) nor a PSD (1/Hz)",
                              file=path, column=name, value=str(unit))
-    elif name.strip().lower() in _KINDS:
-        found = name.strip().lower()
     else:
-        found = None
+        # a column named asd or psd, or a name holding one of them (h1_asd, psd_l1)
+        words = set(re.split(r"[^a-z0-9]+", name.strip().lower()))
+        named = [k for k in _KINDS if k in words]
+        found = named[0] if len(named) == 1 else None
     if found and kind and found != kind:
         raise TableError(f"the header declares a {found.upper()} but kind='{kind}' was "
                          "given", file=path, column=name)
@@ -202,12 +231,14 @@ def read_noise_file(path, kind=None, *, name=None):
     path : str or Path
         A CSV file with a header (``f [Hz], asd [Hz^-1/2]`` or ``f [Hz], psd [1/Hz]``),
         an ECSV file, or a headerless text file of two numbers a line (comma, semicolon
-        or whitespace separated) in Hz and in Hz^-1/2 (ASD) or 1/Hz (PSD).  ``#`` lines
-        are comments.
+        or whitespace separated) in Hz and in Hz^-1/2 (ASD) or 1/Hz (PSD).  Lines
+        starting with ``#`` or ``%`` are comments.
     kind : {'asd', 'psd'}, optional
         What the second column is.  Needed for a headerless file; for a file with a
-        header the unit (or the column name ``asd``/``psd``) decides, and a ``kind`` that
-        contradicts it is an error.
+        header the unit (or a column name holding ``asd`` or ``psd``, such as ``h1_asd``)
+        decides, and a ``kind`` that contradicts it is an error.  Every value must lie in
+        :data:`PLAUSIBLE_RANGE` of its kind, which catches a PSD given as an ASD and the
+        reverse.
     name : str, optional
         Short name; by default the file name.
 
@@ -247,7 +278,7 @@ def read_noise_file(path, kind=None, *, name=None):
             return {"error": TableError, "file": path, "row": int(rows[i]),
                     "column": columns[0] if column == "frequency" else columns[1]}
     else:
-        raw = read_table(path)
+        raw = read_table(path, comments=_COMMENTS)
         names = list(raw.columns)
         if len(names) != 2:
             raise TableError(f"a noise file has two columns (frequency, then ASD or PSD); "
@@ -263,6 +294,7 @@ def read_noise_file(path, kind=None, *, name=None):
                     "column": names[0] if column == "frequency" else names[1]}
     # checked here, as written in the file, so that errors carry file, row and column
     _validate_nodes(f_hz, values, locate)
+    _check_plausible(values, kind, locate)
     unit = ASD_UNIT if kind == "asd" else PSD_UNIT
     return TabulatedNoise(f_hz << u.Hz, values << unit, name=name or Path(path).name,
                           source=path)

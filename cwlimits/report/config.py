@@ -15,6 +15,7 @@ from pathlib import Path
 
 import astropy.units as u
 
+from cwlimits._defaults import default_for
 from cwlimits._sizes import allow_large, check_size
 from cwlimits._toml import load_toml
 from cwlimits._units import parse_quantity
@@ -48,18 +49,22 @@ CONFIG_KEYS = {
                      "a fixed setup file for every target instead of planning"),
     "search.f_min": ("quantity", "Hz", 50 * u.Hz, "lower edge of the searched band"),
     "search.f_max": ("quantity", "Hz", 500 * u.Hz, "upper edge of the searched band"),
-    "search.band_width": ("quantity", "Hz", 5 * u.Hz, "width of the reporting bands"),
+    "search.band_width": ("quantity", "Hz", u.Quantity(default_for("report", "band_width")),
+                          "width of the reporting bands"),
     "planning.budget": ("quantity", "h", 1e6 * u.h,
                         "total computing budget (core-hours; any time unit)"),
-    "planning.objective": ("choice", ("beat-age", "depth"), "beat-age",
+    "planning.objective": ("choice", ("beat-age", "depth"), default_for("report", "objective"),
                            "what the plans maximise"),
     "planning.max_targets": ("int", None, 3, "at most this many targets get a plan"),
     "planning.budget_steps": ("int", None, 12,
                               "grid steps of the budget split (exact dynamic programme)"),
-    "planning.case": ("choice", ("pessimistic", "nominal", "optimistic"), "pessimistic",
+    "planning.case": ("choice", ("pessimistic", "nominal", "optimistic"),
+                      default_for("report", "case"),
                       "distance and age the ranking and the plans assume"),
-    "statistics.false_alarm": ("float", None, 0.01, "false-alarm probability per band"),
-    "statistics.confidence": ("float", None, 0.95, "confidence of limits and sensitivity"),
+    "statistics.false_alarm": ("float", None, default_for("report", "false_alarm"),
+                               "false-alarm probability per band"),
+    "statistics.confidence": ("float", None, default_for("report", "confidence"),
+                              "confidence of limits and sensitivity"),
     "limits.method": ("choice", ("bayes", "frequentist"), "bayes", "upper-limit method"),
     "limits.prior": ("choice", ("uniform", "log-uniform"), "uniform", "prior on h0"),
     "limits.distance_prior": ("choice", ("uniform", "log-normal"), "uniform",

@@ -3,10 +3,12 @@
 import argparse
 import sys
 
+from cwlimits._defaults import DEFAULT_NOISE_MODEL, NOISE_KINDS, TABLE_SUFFIXES
 from cwlimits.errors import InputError
 
 __all__ = ["add_parser", "quantity_arg", "seed_arg", "number_arg", "refuse_overflow",
-           "check_output_path", "check_output_dir", "echo"]
+           "check_output_path", "check_output_dir", "echo", "add_noise_args",
+           "resolve_noise_args"]
 
 
 def add_parser(subparsers, common, name, *, help, description, examples):
@@ -87,7 +89,7 @@ def refuse_overflow(table, hint):
                              f"'{name}', row {row + 1} is infinite): {hint}")
 
 
-def check_output_path(path, suffixes=(".csv", ".ecsv"), option="--out"):
+def check_output_path(path, suffixes=TABLE_SUFFIXES, option="--out"):
     """Validate an output file path before any work is done; return it as a Path.
 
     The one preflight of every output option (:func:`cwlimits._files.check_output_file`):
@@ -111,6 +113,74 @@ def echo(args, text=""):
     """Print to stdout unless ``--quiet``."""
     if not getattr(args, "quiet", False):
         print(text, file=sys.stdout)
+
+
+def add_noise_args(parser, *, per_detector=True):
+    """Add ``--noise [SITE=]MODEL_OR_FILE`` (repeatable) and ``--noise-kind {asd,psd}``."""
+    site = ("; repeat it as SITE=FILE for one curve per detector, e.g. --noise H1=h1.txt "
+            "--noise L1=l1.txt") if per_detector else ""
+    parser.add_argument(
+        "--noise", action="append", default=None, metavar="[SITE=]MODEL_OR_FILE",
+        help=f"noise model name or noise file (default {DEFAULT_NOISE_MODEL}){site}; a "
+             "file has a frequency column and an ASD or PSD column ('%%' and '#' lines are "
+             "comments)")
+    parser.add_argument(
+        "--noise-kind", choices=NOISE_KINDS, default=None,
+        help="whether a noise file's values are an ASD or a PSD, for a file whose header "
+             "does not say (a unit such as 'asd [Hz^-1/2]' or a column named asd/psd)")
+
+
+def resolve_noise_args(args, *, per_detector=True):
+    """Turn ``--noise``/``--noise-kind`` into noise sources, before any work.
+
+    Sets ``args.noise`` to a noise source, or a ``{site: source}`` mapping for
+    ``SITE=FILE`` values, and ``args.noise_id`` to what identifies it in a run's
+    configuration (a model's name, a file's content hash).  Every file is read and checked
+    here, so a bad one stops the command with a located error (exit 2) and no output.
+    """
+    import re
+    from pathlib import Path
+
+    from cwlimits.noise import NOISE_MODELS, get_noise
+    from cwlimits.runtime.store import file_hash
+
+    specs = args.noise if isinstance(args.noise, list) else [args.noise or DEFAULT_NOISE_MODEL]
+    kind = getattr(args, "noise_kind", None)
+
+    def identity(text):
+        # as get_noise: a model name wins over a file of the same name
+        name = text.strip().lower()
+        return name if name in NOISE_MODELS or not Path(text).is_file() else file_hash(text)
+
+    by_site = {}
+    plain = []
+    for spec in specs:
+        text = str(spec).strip()
+        match = re.fullmatch(r"([A-Za-z][A-Za-z0-9_-]{0,15})=(.+)", text)
+        if match and not Path(text).exists():
+            site, value = match.group(1), match.group(2).strip()
+            if site in by_site:
+                raise InputError(f"--noise: detector {site} is given twice", value=text)
+            by_site[site] = value
+        else:
+            plain.append(text)
+    if by_site and plain:
+        raise InputError("--noise: give one noise for all detectors or SITE=FILE for each "
+                         "detector, not both", value=" ".join(specs))
+    if len(plain) > 1:
+        raise InputError("--noise given more than once: use SITE=FILE for one curve per "
+                         "detector (e.g. --noise H1=h1.txt --noise L1=l1.txt)",
+                         value=" ".join(plain))
+    if by_site:
+        if not per_detector:
+            raise InputError("--noise SITE=FILE: this command takes one noise curve for "
+                             "all detectors", value=" ".join(specs))
+        args.noise = {site: get_noise(value, kind) for site, value in by_site.items()}
+        args.noise_id = {site: identity(value) for site, value in by_site.items()}
+    else:
+        args.noise = get_noise(plain[0], kind)
+        args.noise_id = identity(plain[0])
+    return args.noise
 
 
 def add_target_args(parser, required=True):

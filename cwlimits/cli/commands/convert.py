@@ -35,7 +35,13 @@ def register(subparsers, common):
     source = parser.add_mutually_exclusive_group(required=True)
     source.add_argument("--h0", type=float, help="one strain amplitude")
     source.add_argument("--table", metavar="FILE",
-                        help="CSV/ECSV with columns 'f' (or 'f_gw') and 'h0'")
+                        help="CSV/ECSV with a frequency column (f_gw, f, f_mid, or f_lo and "
+                             "f_hi) and an h0 column (h0, h0_limit, h95, or --h0-column); "
+                             "the tables of 'limits', 'sensitivity' and 'plan --table' "
+                             "are read as they are")
+    parser.add_argument("--h0-column", metavar="NAME",
+                        help="with --table: the column holding h0 (default: the first of "
+                             + ", ".join(H0_COLUMNS) + ")")
     parser.add_argument("--f-gw", type=quantity_arg("Hz", "frequency"), nargs="+",
                         metavar="F", help="gravitational-wave frequency (with --h0)")
     parser.add_argument("--distance", type=quantity_arg("kpc", "distance"), required=True)
@@ -44,8 +50,14 @@ def register(subparsers, common):
     parser.add_argument("--moment-of-inertia", type=quantity_arg("kg m2",
                         "moment of inertia"), default=_defaults.MOMENT_OF_INERTIA_TEXT,
                         metavar="Q", help="default 1e38 kg m2")
-    parser.add_argument("--out", metavar="FILE", help="write the table (.csv or .ecsv)")
+    parser.add_argument("--out", metavar="FILE", help="write the table (.csv, .ecsv or .tex)")
     parser.set_defaults(run=run)
+
+
+#: Frequency and h0 columns --table looks for, in order (its own tables: limits writes
+#: f_mid and h0_limit, sensitivity and plan --table f_mid and h0, targeted f_gw and h95).
+F_COLUMNS = ("f_gw", "f", "f_mid")
+H0_COLUMNS = ("h0", "h0_limit", "h95")
 
 
 def _input(args):
@@ -62,17 +74,38 @@ def _input(args):
         f = u.Quantity(args.f_gw)
         return f, np.full(f.shape, args.h0) << u.one
     raw = read_table(args.table)
-    column = "f_gw" if raw.has("f_gw") else "f"
-    raw.require(column, "h0")
-    f = raw.quantity(column, u.Hz, positive=True)
-    h0 = raw.quantity("h0", u.one)
+    column = next((c for c in F_COLUMNS if raw.has(c)), None)
+    if column is None and raw.has("f_lo") and raw.has("f_hi"):
+        f = 0.5 * (raw.quantity("f_lo", u.Hz, positive=True)
+                   + raw.quantity("f_hi", u.Hz, positive=True))
+    else:
+        if column is None:
+            have = ", ".join(raw.columns)
+            raise InputError(f"no frequency column: expected one of {', '.join(F_COLUMNS)} "
+                             f"or f_lo and f_hi (columns found: {have})", file=raw.path)
+        f = raw.quantity(column, u.Hz, positive=True)
+    name = args.h0_column or next((c for c in H0_COLUMNS if raw.has(c)), None)
+    if name is None:
+        raise InputError(f"no h0 column: expected one of {', '.join(H0_COLUMNS)} or "
+                         f"--h0-column NAME (columns found: {', '.join(raw.columns)})",
+                         file=raw.path)
+    raw.require(name)
+    # an empty cell (a band without a limit) stays empty: NaN through the conversions
+    h0 = raw.quantity(name, u.one, required=False)
     for i, value in enumerate(h0.value):
         if value < 0:
-            raw.fail("h0 must be non-negative", i, "h0", raw.text("h0")[i])
+            raw.fail("h0 must be non-negative", i, name, raw.text(name)[i])
+    # the source table's assumptions (CSV comment lines or ECSV metadata) travel along
+    meta = {k: v for k, v in raw.meta.items() if k.startswith("assumption.") or k == "title"}
+    if isinstance(raw.meta.get("assumptions"), dict):
+        meta.update({f"assumption.{k}": v for k, v in raw.meta["assumptions"].items()})
+    args.source_meta = meta
     return f, h0
 
 
 def run(args):
+    import astropy.units as u
+    import numpy as np
     from astropy.table import QTable
 
     from cwlimits.tables import write_table
@@ -84,27 +117,40 @@ def run(args):
     d, inertia = args.distance, args.moment_of_inertia
     table = QTable()
     table["f_gw"], table["h0"] = f, h0
-    table["eps"] = ellipticity(h0, f, d, inertia)
-    table["q22"] = mass_quadrupole(table["eps"], inertia)
-    table["alpha_rmode"] = rmode_amplitude(h0, f, d)
+    # an empty h0 (a band without a limit, a gap) stays empty in every converted column
+    empty = ~np.isfinite(h0.value)
+    h0_finite = np.where(empty, 0.0, h0.value) << h0.unit
+
+    def blank(values):
+        return np.where(empty, np.nan, values.value) << values.unit
+
+    table["eps"] = blank(ellipticity(h0_finite, f, d, inertia))
+    table["q22"] = blank(mass_quadrupole(np.where(empty, 0.0, table["eps"].value) << u.one,
+                                         inertia))
+    table["alpha_rmode"] = blank(rmode_amplitude(h0_finite, f, d))
     if args.distance_range:
         d_lo, d_hi = args.distance_range
         if d_lo > d_hi:
             raise InputError("--distance-range: DMIN is larger than DMAX",
                              value=f"{d_lo} {d_hi}")
-        table["eps_min"] = ellipticity(h0, f, d_lo, inertia)
-        table["eps_max"] = ellipticity(h0, f, d_hi, inertia)
-        table["alpha_rmode_min"] = rmode_amplitude(h0, f, d_lo)
-        table["alpha_rmode_max"] = rmode_amplitude(h0, f, d_hi)
+        table["eps_min"] = blank(ellipticity(h0_finite, f, d_lo, inertia))
+        table["eps_max"] = blank(ellipticity(h0_finite, f, d_hi, inertia))
+        table["alpha_rmode_min"] = blank(rmode_amplitude(h0_finite, f, d_lo))
+        table["alpha_rmode_max"] = blank(rmode_amplitude(h0_finite, f, d_hi))
     star = FIDUCIAL_RMODE_STAR
-    info = {
+    info = {"source": (f"{args.table}" + (f" ({args.source_meta['title']})"
+                                          if args.source_meta.get("title") else ""))
+            if args.table else "given on the command line",
+            **{f"source.{k.removeprefix('assumption.')}": v
+               for k, v in getattr(args, "source_meta", {}).items() if k != "title"}}
+    info.update({
         "distance": f"{d:g}" + (f" (range {args.distance_range[0]:g} to "
                                 f"{args.distance_range[1]:g})" if args.distance_range else ""),
         "moment_of_inertia": f"{inertia:g}",
         "ellipticity": "mass quadrupole radiating at f_gw = 2 f_rot",
         "rmode_star": f"M = {star['mass']:g}, R = {star['radius']:g}, "
                       f"J~ = {star['j_tilde']:g} (fiducial star of Owen 2010)",
-    }
+    })
     columns = [c for c in table.colnames]
     echo(args, format_rows([f"{c} [{table[c].unit}]" if str(table[c].unit) else c
                             for c in columns],

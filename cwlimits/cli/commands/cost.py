@@ -61,7 +61,7 @@ def register(subparsers, common):
     add_setup_args(parser)
     out = parser.add_argument_group("output")
     out.add_argument("--out", metavar="FILE",
-                     help="write the per-band (or scan) table (.csv or .ecsv)")
+                     help="write the per-band (or scan) table (.csv, .ecsv or .tex)")
     out.add_argument("--scan", choices=("t-seg", "segments"),
                      help="total cost against the segment length or the number of segments")
     out.add_argument("--scan-range", nargs=2, metavar=("FROM", "TO"),

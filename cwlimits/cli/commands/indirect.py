@@ -49,7 +49,7 @@ def register(subparsers, common):
                              "with this seed")
     parser.add_argument("--samples", type=int, default=10000,
                         help="Monte-Carlo draws per target with --seed (default 10000)")
-    parser.add_argument("--out", metavar="FILE", help="write the table (.csv or .ecsv)")
+    parser.add_argument("--out", metavar="FILE", help="write the table (.csv, .ecsv or .tex)")
     parser.set_defaults(run=run)
 
 

@@ -2,10 +2,10 @@
 
 import sys
 import warnings
-from pathlib import Path
 
-from cwlimits._defaults import DEFAULT_NOISE_MODEL, PLOT_SUFFIXES
+from cwlimits._defaults import DEFAULT_SEED, PLOT_SUFFIXES, default_for
 from cwlimits.cli.commands._common import (
+    add_noise_args,
     add_parser,
     add_target_args,
     check_output_path,
@@ -13,6 +13,7 @@ from cwlimits.cli.commands._common import (
     format_assumptions,
     format_rows,
     quantity_arg,
+    resolve_noise_args,
     resolve_target,
     sci,
     seed_arg,
@@ -58,15 +59,14 @@ def register(subparsers, common):
                              "n_templates")
     add_target_args(parser)
     add_setup_args(parser)
-    parser.add_argument("--noise", default=DEFAULT_NOISE_MODEL, metavar="MODEL_OR_FILE",
-                        help=f"noise model name or file (default {DEFAULT_NOISE_MODEL}); "
-                             "a psd column in RESULTS replaces its band floor")
+    add_noise_args(parser)
     stats = parser.add_argument_group("limits")
     stats.add_argument("--method", choices=("bayes", "frequentist"), default="bayes",
                        help="Bayesian credible limit (default) or frequentist "
                             "loudest-event limit")
-    stats.add_argument("--confidence", type=float, default=0.95,
-                       help="credible level / confidence (default 0.95)")
+    stats.add_argument("--confidence", type=float, default=default_for("limits", "confidence"),
+        help=f"confidence of the limit / detection probability (default "
+             f"{default_for('limits', 'confidence')})")
     stats.add_argument("--sampler", choices=("fast", "emcee"), default="fast",
                        help="fast grid posterior (default) or, in addition, emcee for "
                             "--bands")
@@ -96,11 +96,13 @@ def register(subparsers, common):
                        help="emcee steps per walker (default 6000)")
     stats.add_argument("--walkers", type=int, default=64, metavar="N",
                        help="emcee walkers (default 64)")
-    stats.add_argument("--seed", type=seed_arg, default=None,
-                       help="seed of the Monte-Carlo and emcee (recorded in the output)")
+    stats.add_argument("--seed", type=seed_arg, default=_defaults.DEFAULT_SEED,
+                       help="seed of the Monte-Carlo and emcee (default "
+                            f"{_defaults.DEFAULT_SEED}: a rerun gives the same numbers; "
+                            "recorded in the output)")
     add_signal_model_args(parser)
     out = parser.add_argument_group("output")
-    out.add_argument("--out", metavar="FILE", help="per-band table (.csv or .ecsv); its "
+    out.add_argument("--out", metavar="FILE", help="per-band table (.csv, .ecsv or .tex); its "
                                                    "folder holds the resumable run store")
     out.add_argument("--plot", metavar="FILE",
                      help="h0 limits with the age-based band; FILE_eps and FILE_alpha for "
@@ -155,6 +157,7 @@ def run(args):
 
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
+    resolve_noise_args(args)
     from cwlimits._units import fraction
 
     fraction(args.confidence, "--confidence")
@@ -197,9 +200,7 @@ def run(args):
                   **model_options)
     config = {"command": "limits", "results": file_hash(args.results),
               "catalogue": file_hash(args.catalogue), "target": target.name,
-              "setup": setup.assumptions(), "noise": (file_hash(args.noise)
-                                                      if Path(args.noise).is_file()
-                                                      else args.noise),
+              "setup": setup.assumptions(), "noise": args.noise_id,
               "method": args.method, "confidence": args.confidence, "seed": args.seed,
               "options": {k: (str(v) if v is not None else None)
                           for k, v in kwargs.items()}, **execution_config(args)}
@@ -223,8 +224,8 @@ def run(args):
     for w in caught:
         print(f"warning: {w.message}", file=sys.stderr)
     table.meta["assumptions"]["seed"] = (
-        f"{args.seed}" if args.seed is not None else
-        "none given: fresh entropy (recorded in the run store of the output folder)")
+        f"{args.seed} (the default seed; --seed N for another)"
+        if args.seed == DEFAULT_SEED else f"{args.seed}")
     summarise(args, table, title)
     if out is not None:
         write_table(table, out, title=title, assumptions=table.meta["assumptions"])

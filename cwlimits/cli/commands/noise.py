@@ -44,7 +44,7 @@ def register(subparsers, common):
     parser.add_argument("--step", type=quantity_arg("Hz", "step"),
                         help="band width (default: the range / 50)")
     parser.add_argument("--out", metavar="FILE",
-                        help="write the band table (.csv or .ecsv, with units and "
+                        help="write the band table (.csv, .ecsv or .tex, with units and "
                              "assumptions) instead of printing it")
     parser.add_argument("--plot", metavar="FILE", help="draw the ASD (.png, .svg or .pdf)")
     series = parser.add_argument_group("estimate from a strain time series")
@@ -100,7 +100,14 @@ def _band_grid(args, source):
         raise InputError("--step is wider than the --band range",
                          value=f"{step_hz:g} Hz > {hi_hz - lo_hz:g} Hz")
     edges = lo_hz + step_hz * np.arange(n + 1)
-    return edges[:-1] * u.Hz, edges[1:] * u.Hz
+    # A range that is not a whole number of steps keeps its remainder as a last, narrower
+    # band up to FMAX (as the bands of a search setup do), and says so.
+    partial = None
+    if hi_hz - edges[-1] > 1e-9 * step_hz * max(1, n):
+        partial = (float(edges[-1]), hi_hz)
+        edges = np.append(edges, hi_hz)
+    edges = np.round(edges, 9)  # 1 nHz: 0.01 Hz steps print as 50.02, not 50.019999...
+    return edges[:-1] * u.Hz, edges[1:] * u.Hz, partial
 
 
 def _source_from_args(args):
@@ -145,7 +152,7 @@ def run(args):
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, (".png", ".svg", ".pdf"), "--plot")
     source, assumptions = _source_from_args(args)
-    f_lo, f_hi = _band_grid(args, source)
+    f_lo, f_hi, partial = _band_grid(args, source)
     psd = band_psd(source, f_lo, f_hi)
     table = QTable({"f_lo": f_lo, "f_hi": f_hi, "psd": psd, "asd": np.sqrt(psd)})
     # every number is computed before anything is written: no partial output on error
@@ -160,6 +167,12 @@ def run(args):
     if hasattr(source, "periodograms"):
         assumptions["psd_floor"] = ("median of every periodogram value in the band "
                                     "divided by b(N), N = segments x bins")
+    if partial is not None:
+        note = (f"the last band {partial[0]:.9g} - {partial[1]:.9g} Hz is narrower than the "
+                f"step ({partial[1] - partial[0]:.6g} Hz): the range is not a whole number "
+                "of steps")
+        assumptions["last_band"] = note
+        echo(args, f"note: {note}")
     if hasattr(source, "t_data"):
         assumptions["t_data"] = f"{source.t_data.to_value(u.s):.6g} s"
     if out is not None:

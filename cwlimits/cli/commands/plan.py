@@ -1,14 +1,16 @@
 """``cwlimits plan``: the best segment setup (and band) of one target for a budget."""
 
 
-from cwlimits._defaults import CASES, DEFAULT_NOISE_MODEL, MEASURES, OBJECTIVES, PLOT_SUFFIXES
+from cwlimits._defaults import CASES, MEASURES, OBJECTIVES, PLOT_SUFFIXES, default_for
 from cwlimits.cli.commands._common import (
+    add_noise_args,
     add_parser,
     add_target_args,
     check_output_path,
     echo,
     format_assumptions,
     quantity_arg,
+    resolve_noise_args,
     resolve_target,
     sci,
 )
@@ -19,34 +21,42 @@ __all__ = ["ORDER", "register", "run", "add_plan_args", "plan_options"]
 ORDER = 70
 
 
-def add_plan_args(parser):
-    """Options shared by ``plan`` and ``rank``: span, noise, band and the fixed setup parts."""
+def add_plan_args(parser, command):
+    """Options shared by ``plan`` and ``rank``: span, noise, band and the fixed setup parts.
+
+    Their defaults come from the one table of :mod:`cwlimits._defaults` (``command`` picks
+    the row where the two differ; docs/defaults.md gives the reasons).
+    """
+    measure = default_for(command, "measure")
     parser.add_argument("--span", type=quantity_arg("d", "span"), required=True,
                         metavar="T", help="maximum data span N_seg T_seg (e.g. '1 yr')")
-    parser.add_argument("--noise", default=DEFAULT_NOISE_MODEL, metavar="MODEL_OR_FILE",
-                        help=f"noise model name or noise file (default {DEFAULT_NOISE_MODEL})")
+    add_noise_args(parser)
     parser.add_argument("--band", nargs=2, type=quantity_arg("Hz", "frequency"),
                         metavar=("FMIN", "FMAX"),
                         help="fixed band (depth) or allowed range (beat-age); default "
                              "50 Hz to 1000 Hz")
-    parser.add_argument("--measure", choices=MEASURES, default=None,
-                        help="beat-age measure: width of the band below the limit, or "
-                             "integral of ln(h_age/h0) (plan: width; rank: integral)")
+    parser.add_argument("--measure", choices=MEASURES, default=measure,
+                        help="beat-age figure of merit: width of the band below the limit "
+                             "(Hz), or integral of ln(h_age/h0) over it (Hz) (default "
+                             f"{measure}; docs/defaults.md)")
     grp = parser.add_argument_group("fixed parts of the setup")
     grp.add_argument("--detectors", default="H1,L1", metavar="LIST",
                      help="comma-separated site codes (default H1,L1)")
     grp.add_argument("--band-width", type=quantity_arg("Hz", "band width"),
-                     default="1 Hz", metavar="DF", help="reporting band width (1Hz)")
+                     default=default_for(command, "band_width"), metavar="DF",
+                     help=f"reporting band width (default {default_for(command, 'band_width')})")
     grp.add_argument("--lattice", choices=("covering", "cubic"), default="covering",
                      help="template lattice: covering (A_n*, default) or cubic (Z^n)")
     grp.add_argument("--t-seg-min", type=quantity_arg("d", "t_seg_min"),
                      default="1 day", metavar="T", help="shortest segment (default 1day)")
     grp.add_argument("--n-seg-max", type=int, default=1000, metavar="N",
                      help="most segments (default 1000)")
-    grp.add_argument("--confidence", type=float, default=0.95,
-                     help="detection probability (default 0.95)")
-    grp.add_argument("--false-alarm", type=float, default=0.01,
-                     help="false-alarm probability per band (default 0.01)")
+    grp.add_argument("--confidence", type=float, default=default_for(command, "confidence"),
+                     help="detection probability (default "
+                          f"{default_for(command, 'confidence')})")
+    grp.add_argument("--false-alarm", type=float, default=default_for(command, "false_alarm"),
+                     help="false-alarm probability per band (default "
+                          f"{default_for(command, 'false_alarm')})")
 
 
 def plan_options(args):
@@ -93,15 +103,17 @@ def register(subparsers, common):
     add_target_args(parser)
     parser.add_argument("--budget", required=True, metavar="TIME",
                         help="computing budget: core-hours ('1e5 h') or CPU-years ('30 yr')")
-    parser.add_argument("--objective", choices=OBJECTIVES, default="depth",
-                        help="what to optimise (default depth)")
-    parser.add_argument("--case", choices=CASES, default="nominal",
-                        help="distance and age used (default nominal)")
-    add_plan_args(parser)
+    parser.add_argument("--objective", choices=OBJECTIVES,
+                        default=default_for("plan", "objective"),
+                        help=f"what to optimise (default {default_for('plan', 'objective')})")
+    parser.add_argument("--case", choices=CASES, default=default_for("plan", "case"),
+                        help="distance and age used (default "
+                             f"{default_for('plan', 'case')}; docs/defaults.md)")
+    add_plan_args(parser, "plan")
     out = parser.add_argument_group("output")
     out.add_argument("--out", metavar="PLAN.toml", help="write the plan (setup file)")
     out.add_argument("--table", metavar="FILE",
-                     help="per-band expected sensitivity of the plan (.csv or .ecsv)")
+                     help="per-band expected sensitivity of the plan (.csv, .ecsv or .tex)")
     out.add_argument("--plot", metavar="FILE",
                      help="planned h0(f) against the age-based limit (.png, .svg, .pdf)")
     out.add_argument("--trade-off", metavar="FILE",
@@ -120,10 +132,11 @@ def run(args):
     table_path = check_output_path(args.table, option="--table")
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     trade = check_output_path(args.trade_off, PLOT_SUFFIXES, "--trade-off")
+    resolve_noise_args(args)
     budget = as_budget(args.budget)
     target = resolve_target(args)
     options = plan_options(args)
-    measure = args.measure or "width"
+    measure = args.measure
     plan = plan_search(target, args.noise, budget, args.span, args.objective,
                        measure=measure, case=args.case, **options)
     trade_plans = []

@@ -1,12 +1,14 @@
 """``cwlimits posterior``: Bayesian upper limit of a known pulsar from down-converted data."""
 
 from cwlimits._defaults import (
+    DEFAULT_SEED,
     MOMENT_OF_INERTIA_TEXT,
     PLOT_SUFFIXES,
     PULSAR_HARMONICS,
     PULSAR_MAX_STRETCH,
     PULSAR_NOISE_MODES,
     PULSAR_SAMPLERS,
+    default_for,
 )
 from cwlimits.cli.commands._common import (
     add_parser,
@@ -17,6 +19,7 @@ from cwlimits.cli.commands._common import (
     format_rows,
     resolve_target,
     sci,
+    seed_arg,
 )
 from cwlimits.errors import InputError
 
@@ -64,8 +67,9 @@ def register(subparsers, common):
     parser.add_argument("--orientation", choices=("catalogue", "uniform"),
                         default="catalogue", help="the catalogue's cosi/psi priors where "
                                                   "given (default) or uniform")
-    parser.add_argument("--confidence", type=float, default=0.95,
-                        help="of the upper limit (default 0.95)")
+    parser.add_argument("--confidence", type=float, default=default_for("posterior", "confidence"),
+        help=f"confidence of the limit / detection probability (default "
+             f"{default_for('posterior', 'confidence')})")
     parser.add_argument("--sampler", choices=PULSAR_SAMPLERS, default="grid",
                         help="vectorised grid (default) or emcee")
     parser.add_argument("--walkers", type=int, default=32, help="emcee walkers (default 32)")
@@ -77,8 +81,9 @@ def register(subparsers, common):
     parser.add_argument("--moment-of-inertia", type=quantity_arg("kg m2",
                         "moment of inertia"), default=MOMENT_OF_INERTIA_TEXT,
                         metavar="I", help="default 1e38 kg m2")
-    parser.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
-    parser.add_argument("--out", metavar="FILE", help="limit table (.csv or .ecsv)")
+    parser.add_argument("--seed", type=seed_arg, default=DEFAULT_SEED,
+                     help=f"random seed (default {DEFAULT_SEED}; recorded in the output)")
+    parser.add_argument("--out", metavar="FILE", help="limit table (.csv, .ecsv or .tex)")
     parser.add_argument("--plot", metavar="FILE", help="posterior of h0 (.png/.svg/.pdf)")
     parser.add_argument("--corner", metavar="FILE", help="corner figure (.png/.svg/.pdf)")
     parser.set_defaults(run=run)

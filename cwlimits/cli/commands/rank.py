@@ -2,9 +2,8 @@
 
 import re
 from contextlib import ExitStack
-from pathlib import Path
 
-from cwlimits._defaults import CASES
+from cwlimits._defaults import CASES, default_for
 from cwlimits.cli.commands._common import (
     add_parser,
     check_output_dir,
@@ -12,6 +11,7 @@ from cwlimits.cli.commands._common import (
     echo,
     format_assumptions,
     format_rows,
+    resolve_noise_args,
     sci,
 )
 from cwlimits.cli.commands._execution import (
@@ -51,12 +51,13 @@ def register(subparsers, common):
                              "number of targets)")
     parser.add_argument("--steps", type=int, default=12, metavar="K",
                         help="budget grid of the allocation: K steps of total/K (default 12)")
-    parser.add_argument("--case", choices=CASES, default="pessimistic",
-                        help="distance/age case of the figure of merit (default pessimistic)")
-    add_plan_args(parser)
+    parser.add_argument("--case", choices=CASES, default=default_for("rank", "case"),
+                        help="distance/age case of the figure of merit (default "
+                             f"{default_for('rank', 'case')})")
+    add_plan_args(parser, "rank")
     add_executor_args(parser, chunk_size=None)
     out = parser.add_argument_group("output")
-    out.add_argument("--out", metavar="FILE", help="ranking table (.csv or .ecsv)")
+    out.add_argument("--out", metavar="FILE", help="ranking table (.csv, .ecsv or .tex)")
     out.add_argument("--plot", metavar="FILE",
                      help="figure of merit against budget per target (.png, .svg, .pdf)")
     out.add_argument("--plot-plans", metavar="FILE",
@@ -64,14 +65,6 @@ def register(subparsers, common):
     out.add_argument("--plans-dir", metavar="DIR",
                      help="write the plan (setup file) of every funded target here")
     parser.set_defaults(run=run)
-
-
-def _noise_identity(noise):
-    """The noise option for the run configuration: a file by its content, else its name."""
-    from cwlimits.runtime.store import file_hash
-
-    path = Path(str(noise))
-    return file_hash(path) if path.is_file() else str(noise)
 
 
 def _slug(name):
@@ -89,6 +82,7 @@ def run(args):
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
     plot_plans = check_output_path(args.plot_plans, PLOT_SUFFIXES, "--plot-plans")
+    resolve_noise_args(args)
     plans_dir = check_output_dir(args.plans_dir, "--plans-dir")
     total = as_budget(args.budget, "--budget")
     per = as_budget(args.per_target_budget, "--per-target-budget") \
@@ -105,8 +99,8 @@ def run(args):
     options = plan_options(args)
     config = {"command": "rank", "catalogue": file_hash(args.catalogue),
               "budget": str(total), "per_target_budget": str(per), "steps": args.steps,
-              "measure": args.measure or "integral", "case": args.case,
-              "span": str(args.span), "noise": _noise_identity(args.noise),
+              "measure": args.measure, "case": args.case,
+              "span": str(args.span), "noise": args.noise_id,
               **{k: str(v) for k, v in options.items()}}
     with ExitStack() as stack:
         # With --out, finished targets are committed to the store of that folder, so a
@@ -116,7 +110,7 @@ def run(args):
         executor = stack.enter_context(executor_from_args(args))
         ranking = rank_targets(catalogue, args.noise, total, args.span,
                                per_target_budget=per, budget_steps=args.steps,
-                               measure=args.measure or "integral", case=args.case,
+                               measure=args.measure, case=args.case,
                                executor=executor, progress=progress_from_args(args),
                                store=store, key=key, **options)
     table = ranking.table

@@ -72,7 +72,7 @@ def register(subparsers, common):
     parser.add_argument("--order", type=int, default=48,
                         help="quadrature nodes per dimension for the R^2 quantiles "
                              "(default 48)")
-    parser.add_argument("--out", metavar="FILE", help="write a table (.csv or .ecsv)")
+    parser.add_argument("--out", metavar="FILE", help="write a table (.csv, .ecsv or .tex)")
     parser.add_argument("--plot", metavar="FILE",
                         help="plot a(t), b(t) over one sidereal day (.png, .pdf, .svg)")
     parser.set_defaults(run=run)

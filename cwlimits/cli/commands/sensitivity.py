@@ -1,8 +1,9 @@
 """``cwlimits sensitivity``: expected h0 sensitivity and depth per frequency band."""
 
 
-from cwlimits._defaults import DEFAULT_NOISE_MODEL, PLOT_SUFFIXES
+from cwlimits._defaults import PLOT_SUFFIXES, default_for
 from cwlimits.cli.commands._common import (
+    add_noise_args,
     add_parser,
     add_target_args,
     check_output_path,
@@ -11,6 +12,7 @@ from cwlimits.cli.commands._common import (
     format_rows,
     number_arg,
     quantity_arg,
+    resolve_noise_args,
     resolve_target,
     sci,
 )
@@ -39,15 +41,15 @@ def register(subparsers, common):
             "--noise my_asd.csv --sky isotropic --mismatch mean"])
     add_target_args(parser)
     add_setup_args(parser)
-    parser.add_argument("--noise", default=DEFAULT_NOISE_MODEL, metavar="MODEL_OR_FILE",
-                        help=f"noise model name or noise file (default {DEFAULT_NOISE_MODEL};"
-                             " see 'cwlimits noise --list')")
+    add_noise_args(parser)
     parser.add_argument("--band", nargs=2, type=quantity_arg("Hz", "frequency"),
                         metavar=("FMIN", "FMAX"), help="band to evaluate (default: the "
                                                        "setup's)")
     stats = parser.add_argument_group("statistics")
-    stats.add_argument("--confidence", type=float, default=0.95,
-                       help="detection probability (default 0.95)")
+    stats.add_argument("--confidence", type=float,
+                       default=default_for("sensitivity", "confidence"),
+        help=f"confidence of the limit / detection probability (default "
+             f"{default_for('sensitivity', 'confidence')})")
     stats.add_argument("--false-alarm", type=float, default=0.01,
                        help="false-alarm probability (default 0.01)")
     stats.add_argument("--false-alarm-scope", choices=("band", "search"), default="band",
@@ -63,7 +65,7 @@ def register(subparsers, common):
                             "the template count)")
     add_signal_model_args(parser)
     out = parser.add_argument_group("output")
-    out.add_argument("--out", metavar="FILE", help="per-band table (.csv or .ecsv)")
+    out.add_argument("--out", metavar="FILE", help="per-band table (.csv, .ecsv or .tex)")
     out.add_argument("--plot", metavar="FILE", help="h0(f) against the age-based limit "
                                                    "(.png, .svg, .pdf)")
     parser.set_defaults(run=run)
@@ -75,6 +77,7 @@ def run(args):
 
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
+    resolve_noise_args(args)
     target = resolve_target(args)
     setup = build_setup(args, known_sites=True)
     if args.band is not None:

@@ -1,21 +1,25 @@
 """``cwlimits targeted``: expected limit and cost of a search for a known pulsar."""
 
 from cwlimits._defaults import (
-    DEFAULT_NOISE_MODEL,
+    DEFAULT_SEED,
     DEFAULT_START,
     EMISSION_NAMES,
     PULSAR_KINDS,
     PULSAR_N_SIGMA,
     PULSAR_NOISE_DRAWS,
+    default_for,
 )
 from cwlimits.cli.commands._common import (
+    add_noise_args,
     add_parser,
     check_output_path,
     echo,
     format_assumptions,
     format_rows,
+    resolve_noise_args,
     resolve_target,
     sci,
+    seed_arg,
 )
 from cwlimits.cli.commands._setup_args import add_setup_args, build_setup
 from cwlimits.errors import InputError
@@ -61,8 +65,7 @@ def register(subparsers, common):
                         help="with --all: limits against f_gw with the spin-down limits and "
                              "the expected curve of the span (.png/.svg/.pdf)")
     add_setup_args(parser)
-    parser.add_argument("--noise", default=DEFAULT_NOISE_MODEL, metavar="MODEL_OR_FILE",
-                        help=f"noise model name or noise file (default {DEFAULT_NOISE_MODEL})")
+    add_noise_args(parser)
     grp = parser.add_argument_group("known pulsar")
     grp.add_argument("--kind", choices=PULSAR_KINDS, default="auto",
                      help="search kind (default auto: targeted inside one template)")
@@ -72,8 +75,9 @@ def register(subparsers, common):
     grp.add_argument("--orientation", choices=("catalogue", "uniform"),
                      default="catalogue", help="use the catalogue's cosi/psi priors where "
                                                "given (default) or uniform priors")
-    grp.add_argument("--confidence", type=float, default=0.95,
-                     help="confidence of the limit / detection probability (default 0.95)")
+    grp.add_argument("--confidence", type=float, default=default_for("targeted", "confidence"),
+        help=f"confidence of the limit / detection probability (default "
+             f"{default_for('targeted', 'confidence')})")
     grp.add_argument("--h0-prior", choices=("uniform", "log-uniform"), default="uniform",
                      help="prior of the Bayesian limit (default uniform)")
     grp.add_argument("--h0-min", type=float, default=None,
@@ -90,8 +94,9 @@ def register(subparsers, common):
                           f"{PULSAR_NOISE_DRAWS})")
     grp.add_argument("--start", default=DEFAULT_START,
                      help=f"start of the data, UTC (default {DEFAULT_START})")
-    grp.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
-    parser.add_argument("--out", metavar="FILE", help="table (.csv or .ecsv)")
+    grp.add_argument("--seed", type=seed_arg, default=DEFAULT_SEED,
+                     help=f"random seed (default {DEFAULT_SEED}; recorded in the output)")
+    parser.add_argument("--out", metavar="FILE", help="table (.csv, .ecsv or .tex)")
     parser.set_defaults(run=run)
 
 
@@ -176,6 +181,7 @@ def run(args):
 
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
+    resolve_noise_args(args)
     if not args.all and (args.data or plot is not None):
         raise InputError("--data and --plot go with --all")
     if args.all:

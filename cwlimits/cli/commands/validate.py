@@ -1,15 +1,15 @@
 """``cwlimits validate``: the sensitivity model against a simulated injection campaign."""
 
 import math
-from pathlib import Path
 
 from cwlimits._defaults import (
     DEFAULT_CAMPAIGN_CHUNK,
-    DEFAULT_NOISE_MODEL,
     DEFAULT_START,
     PLOT_SUFFIXES,
+    default_for,
 )
 from cwlimits.cli.commands._common import (
+    add_noise_args,
     add_parser,
     add_target_args,
     check_output_path,
@@ -17,6 +17,7 @@ from cwlimits.cli.commands._common import (
     format_assumptions,
     format_rows,
     quantity_arg,
+    resolve_noise_args,
     resolve_target,
     sci,
     seed_arg,
@@ -91,16 +92,15 @@ def register(subparsers, common):
                           "with >= 64 samples per segment and one per 30 min)")
     sim.add_argument("--templates", type=int, default=32, metavar="N",
                      help="frequency templates searched, Fourier bins 1/T_seg (default 32)")
-    sim.add_argument("--noise", default=DEFAULT_NOISE_MODEL, metavar="MODEL_OR_FILE",
-                     help=f"noise model name or noise file, evaluated at --frequency (default "
-                          f"{DEFAULT_NOISE_MODEL})")
+    add_noise_args(sim, per_detector=False)
     sim.add_argument("--start", default=DEFAULT_START,
                      help=f"start of the data, UTC (default {DEFAULT_START})")
     sim.add_argument("--seed", type=seed_arg, metavar="N",
                      help="random seed (default: fresh; recorded in the output)")
     st = parser.add_argument_group("statistics")
-    st.add_argument("--confidence", type=float, default=0.9,
-                    help="detection probability at which h0 is reported (default 0.9)")
+    st.add_argument("--confidence", type=float, default=default_for("validate", "confidence"),
+                    help="detection probability at which h0 is reported (default "
+                         f"{default_for('validate', 'confidence')}; docs/defaults.md)")
     st.add_argument("--false-alarm", type=float, default=0.01,
                     help="false-alarm probability over the searched templates (default "
                          "0.01)")
@@ -108,7 +108,7 @@ def register(subparsers, common):
                     help="coverage of the binomial intervals (default 0.95)")
     out = parser.add_argument_group("output")
     out.add_argument("--out", metavar="FILE",
-                     help="table per h0 (.csv or .ecsv); finished chunks are kept in "
+                     help="table per h0 (.csv, .ecsv or .tex); finished chunks are kept in "
                           "cwlimits-store.sqlite beside it, so a rerun resumes")
     out.add_argument("--plot", metavar="FILE",
                      help="efficiency against h0 with the model curve (.png, .svg, .pdf)")
@@ -193,7 +193,6 @@ def run(args):
     import numpy as np
 
     from cwlimits._time import gps_seconds
-    from cwlimits.noise import NOISE_MODELS, get_noise
     from cwlimits.runtime.store import file_hash, open_store
     from cwlimits.simulation.campaigns import (
         injection_campaign,
@@ -204,21 +203,21 @@ def run(args):
 
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
+    resolve_noise_args(args, per_detector=False)
     _check_numbers(args)
     target = resolve_target(args)
     setup = _setup(args)
     n_det, n_seg, t_seg = setup.n_detectors, setup.n_seg, setup.t_seg
     m, band = simulation_layout(t_seg, n_det, n_seg, args.templates, args.band_width)
     f_hz = _frequency(args, setup, band.to_value(u.Hz))
-    source = get_noise(args.noise)
+    source = args.noise
     psd = source.psd(f_hz * u.Hz).to(u.Hz**-1)
     start_s = gps_seconds(args.start)
     h0_values = None if args.h0 is None else np.asarray(args.h0, dtype=float)
 
     coord = target.coord
     # a noise file enters the configuration by its content (a model name wins over a file)
-    is_file = args.noise.strip().lower() not in NOISE_MODELS and Path(args.noise).is_file()
-    noise_id = file_hash(args.noise) if is_file else args.noise.strip().lower()
+    noise_id = args.noise_id
     config = {"command": "validate", "catalogue": file_hash(args.catalogue),
               "target": target.name, "ra_deg": float(coord.icrs.ra.deg),
               "dec_deg": float(coord.icrs.dec.deg), "setup": file_hash(args.setup),
