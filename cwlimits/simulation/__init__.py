@@ -24,6 +24,7 @@ from .fstat import (
     noise_levels,
     stackslide_fstat,
 )
+from .mockcampaign import MockCampaignResult, mock_campaign, mock_layout
 from .mocksearch import (
     BarycentricData,
     MockSearchResult,
@@ -80,4 +81,7 @@ __all__ = [
     "mock_search",
     "resampled_direct_fstat",
     "demodulated_fstat",
+    "MockCampaignResult",
+    "mock_campaign",
+    "mock_layout",
 ]
