@@ -307,6 +307,10 @@ def mock_campaign(setup, coord, *, f_box_width=0.004 * u.Hz, fdot_box=None, duty
     h0_meas = float(np.exp(_crossing(log_h0, eff, confidence)))
     h0_lo = float(np.exp(_crossing(log_h0, ci[:, 1], confidence)))
     h0_hi = float(np.exp(_crossing(log_h0, ci[:, 0], confidence)))
+    # perfect-match rho^2 of the injections per h0^2 against the model's mean R^2 T / S
+    rho2_unit = out["rho2"][inj] / np.repeat(h0, n_injections) ** 2
+    rho2_model = float(np.sum(rule[0] * rule[1]) * t_data.to_value(u.s)
+                       / s_ref.to_value(PSD_UNIT))
     n_fa = int(np.sum(noise_max > threshold))
     fa_ci = stats.binomtest(n_fa, int(n_noise)).proportion_ci(confidence_level=interval,
                                                              method="exact")
@@ -355,6 +359,7 @@ def mock_campaign(setup, coord, *, f_box_width=0.004 * u.Hz, fdot_box=None, duty
         "mismatch_mean_measured": float(np.mean(mu_meas)),
         "mismatch_mean_model": float(np.mean(mu_model)),
         "mismatch_ks_p": float(stats.ks_2samp(mu_meas, mu_model).pvalue),
+        "rho2_ratio": float(np.mean(rho2_unit) / rho2_model),
     }
     table.meta["assumptions"] = assumptions
     table.meta["title"] = "Mock-search campaign: measured vs predicted detection efficiency"
