@@ -48,7 +48,7 @@ def main(argv=None):
     data = sy.inject(data, sig, doppler=True)
     setup = SearchSetup(t_seg=t_seg * u.s, n_seg=n_seg, band=(149.9 * u.Hz, 150.1 * u.Hz),
                         lattice="covering", mismatch_coherent=0.3, mismatch_semicoherent=0.3)
-    box = (150.0005 * u.Hz, 150.002 * u.Hz), (-1e-10 * FDOT, 0 * FDOT)
+    box = (149.99 * u.Hz, 150.01 * u.Hz), (-4e-10 * FDOT, 0 * FDOT)
 
     def search():
         return ms.mock_search(data, SKY, setup, *box, keep_segments=True)
