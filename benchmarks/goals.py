@@ -51,6 +51,10 @@ GOALS = [
          "rank_demo_serial_s", "<=", 3.0, "s"),
     Goal("16.6", "cwlimits demo, wall clock on 2 cores", "demo", "demo_wall_s", "<=", 15.0,
          "s"),
+    Goal("19.5", "mock search vs exact direct F-statistic, same templates", "mocksearch",
+         "speedup_exact", ">=", 100.0, "x"),
+    Goal("19.5", "mock search vs direct sums, relative agreement", "mocksearch",
+         "fft_vs_direct", "<=", 1e-10),
 ]
 
 _OPS = {"<=": lambda a, b: a <= b, "<": lambda a, b: a < b, ">=": lambda a, b: a >= b}

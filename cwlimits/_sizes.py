@@ -46,6 +46,12 @@ SIZE_LIMITS = {
                 "indirect --samples x targets, calibrate --samples, limits --draws"),
     "emcee": (100_000_000, 40, "emcee samples",
               "limits --walkers x --steps per band"),
+    "mock_samples": (200_000_000, 48, "resampling or direct-sum terms",
+                     "validate --setup: detectors x segments x samples x interpolator taps "
+                     "(or x templates for a direct F-statistic)"),
+    "mock_templates": (5_000_000, 400, "mock-search templates",
+                       "validate --setup: the searched box over the lattice spacings, "
+                       "2F per segment and template"),
     "scan_steps": (10_000, 2_000, "scan steps", "cost --scan-steps"),
     "quadrature": (1_000_000, 200, "quadrature nodes", "response --order squared"),
 }

@@ -2,7 +2,8 @@
 
 :mod:`.synthetic` simulates strain; :mod:`.fstat` computes the F-statistic and the StackSlide
 sum on it; :mod:`.campaigns` runs injection campaigns and compares measured with predicted
-h0.
+h0; :mod:`.mocksearch` is the directed mock search of a setup (barycentric resampling,
+lattice template banks, StackSlide).
 """
 
 from .campaigns import (
@@ -22,6 +23,17 @@ from .fstat import (
     measure_unit_costs,
     noise_levels,
     stackslide_fstat,
+)
+from .mockcampaign import MockCampaignResult, mock_campaign, mock_layout
+from .mocksearch import (
+    BarycentricData,
+    MockSearchResult,
+    TemplateBank,
+    demodulated_fstat,
+    lattice_rows,
+    mock_search,
+    resample_to_barycentre,
+    resampled_direct_fstat,
 )
 from .synthetic import (
     BandData,
@@ -61,4 +73,15 @@ __all__ = [
     "heterodyne",
     "gap_mask",
     "barycentric_delay",
+    "BarycentricData",
+    "TemplateBank",
+    "MockSearchResult",
+    "resample_to_barycentre",
+    "lattice_rows",
+    "mock_search",
+    "resampled_direct_fstat",
+    "demodulated_fstat",
+    "MockCampaignResult",
+    "mock_campaign",
+    "mock_layout",
 ]

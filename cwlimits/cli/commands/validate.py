@@ -46,6 +46,9 @@ _EXAMPLES = [
     "--frequency 150Hz --noise my_asd.csv --h0 2e-26 4e-26 8e-26",
     "cwlimits validate --catalogue cat.csv --target A --setup search.toml --n-seg 1 "
     "--t-seg 2day --templates 64 --band-width 2mHz --false-alarm 0.001",
+    "cwlimits validate --catalogue target_lists/demo.csv --target 'Fict Ember' "
+    "--setup plan.toml --mock-search --injections 60 --duty 0.8 --out mock.ecsv "
+    "--plot mock.png --mismatch-plot mismatch.png --seed 3 --workers 2",
 ]
 
 
@@ -106,6 +109,23 @@ def register(subparsers, common):
                          "0.01)")
     st.add_argument("--interval", type=float, default=0.95,
                     help="coverage of the binomial intervals (default 0.95)")
+    mock = parser.add_argument_group(
+        "mock search (--mock-search: the directed search of the plan itself, with Doppler, "
+        "spin-down, off-grid signals, gaps and the plan's lattice banks)")
+    mock.add_argument("--mock-search", action="store_true",
+                      help="run the mock-search campaign on the setup (a plan of "
+                           "'cwlimits plan') instead of the amplitude-only campaign")
+    mock.add_argument("--duty", type=float, default=None, metavar="D",
+                      help="duty factor of the simulated data, random gaps (default: the "
+                           "setup's duty_factor)")
+    mock.add_argument("--noise-runs", type=int, default=100, metavar="N",
+                      help="noise-only searches for the false-alarm check (default 100)")
+    mock.add_argument("--mismatch-runs", type=int, default=100, metavar="N",
+                      help="noise-free injections for the mismatch check (default 100)")
+    mock.add_argument("--box-width", type=quantity_arg("Hz", "box width"), default=None,
+                      metavar="W", help="searched frequency box (default 4 mHz)")
+    mock.add_argument("--mismatch-plot", metavar="FILE",
+                      help="histogram of the loudest-template mismatch against the model")
     out = parser.add_argument_group("output")
     out.add_argument("--out", metavar="FILE",
                      help="table per h0 (.csv, .ecsv or .tex); finished chunks are kept in "
@@ -189,6 +209,8 @@ def _frequency(args, setup, band_hz):
 
 def run(args):
     """Run ``cwlimits validate``."""
+    if args.mock_search:
+        return _run_mock(args)
     import astropy.units as u
     import numpy as np
 
@@ -338,3 +360,120 @@ def _summarise(args, result, target, setup, f_hz, psd, seed_text):
         echo(args, "false-alarm check: no searched template lies beyond the injections' "
                    "sidereal sidebands (4 per sidereal day); give more --templates to "
                    "check the false-alarm rate")
+
+
+def _run_mock(args):
+    """``cwlimits validate --mock-search``: the mock-search campaign of a plan."""
+    import astropy.units as u
+    import numpy as np
+
+    from cwlimits._sizes import check_size
+    from cwlimits.runtime.store import file_hash, open_store
+    from cwlimits.simulation.mockcampaign import mock_campaign
+    from cwlimits.tables import write_table
+
+    out = check_output_path(args.out)
+    plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
+    mplot = check_output_path(args.mismatch_plot, PLOT_SUFFIXES, "--mismatch-plot")
+    _check_numbers(args)
+    for name, value in (("--noise-runs", args.noise_runs),
+                        ("--mismatch-runs", args.mismatch_runs)):
+        if value < 1:
+            raise InputError(f"{name} must be at least 1", value=value)
+    target = resolve_target(args)
+    setup = _setup(args)
+    duty = setup.duty_factor if args.duty is None else args.duty
+    if not 0 < duty <= 1:
+        raise InputError("--duty must lie in (0, 1]", value=duty)
+    low, high = args.h0_span
+    factors = (np.asarray(args.h0, float) if args.h0 is not None
+               else np.geomspace(low, high, args.h0_steps))
+    n_items = args.noise_runs + args.mismatch_runs + factors.size * args.injections
+    check_size("injections", n_items, f"--injections {args.injections} and the check runs")
+    box = 0.004 * u.Hz if args.box_width is None else args.box_width
+    band = 0.0625 * u.Hz if args.band_width is None else args.band_width
+    coord = target.coord
+    config = {"command": "validate --mock-search", "catalogue": file_hash(args.catalogue),
+              "target": target.name, "ra_deg": float(coord.icrs.ra.deg),
+              "dec_deg": float(coord.icrs.dec.deg), "setup": file_hash(args.setup),
+              "t_seg_s": float(setup.t_seg.to_value(u.s)), "n_seg": setup.n_seg,
+              "detectors": list(setup.detectors), "duty": duty,
+              "box_hz": float(box.to_value(u.Hz)), "band_hz": float(band.to_value(u.Hz)),
+              "h0_factors": factors.tolist(), "injections": args.injections,
+              "noise_runs": args.noise_runs, "mismatch_runs": args.mismatch_runs,
+              "false_alarm": args.false_alarm, "confidence": args.confidence,
+              "seed": args.seed, **execution_config(args)}
+    folder = next((p.parent for p in (out, plot, mplot) if p is not None), None)
+    store = open_store(folder) if folder is not None else None
+    seed = np.random.SeedSequence(args.seed) if args.seed is not None else \
+        np.random.SeedSequence()
+    try:
+        key = None
+        if store is not None:
+            run_id = store.begin_run(config)
+            key = (run_id, target.name)
+            seed = store.begin_part(run_id, target.name, n_items=n_items,
+                                    chunk_size=args.chunk_size, seed=seed,
+                                    seed_given=args.seed is not None)
+        with executor_from_args(args) as executor:
+            result = mock_campaign(
+                setup, coord, f_box_width=box, duty=duty, confidence=args.confidence,
+                false_alarm=args.false_alarm, h0_factors=tuple(factors),
+                n_injections=args.injections, n_noise=args.noise_runs,
+                n_mismatch=args.mismatch_runs, bandwidth=band, interval=args.interval,
+                rng=seed, executor=executor, store=store, key=key,
+                progress=progress_from_args(args), chunk_size=args.chunk_size)
+    finally:
+        if store is not None:
+            store.close()
+    seed_text = str(args.seed) if args.seed is not None else f"{seed.entropy} (drawn)"
+    assumptions = dict(result.assumptions)
+    assumptions.update({
+        "target": f"{target.name} of {args.catalogue} (RA {coord.icrs.ra.deg:.6f} deg, "
+                  f"Dec {coord.icrs.dec.deg:.6f} deg)",
+        "setup": f"{args.setup}: {setup.n_seg} x {setup.t_seg} segments",
+        "seed": seed_text,
+    })
+    s = result.summary
+    echo(args, f"mock-search campaign for {target.name}: {s['setup']}; "
+               f"{s['n_templates']} templates, threshold 2F_sum > {s['threshold']:.4g} "
+               f"(false alarm {args.false_alarm:g}); seed {seed_text}")
+    iv = f"{100 * args.interval:g} % interval"
+    rows = [[sci(r["h0"].value), f"{int(r['n_detected'])}/{int(r['n_injections'])}",
+             f"{r['efficiency'].value:.3f}",
+             f"{r['ci_low'].value:.3f}-{r['ci_high'].value:.3f}",
+             f"{r['predicted'].value:.3f}", f"{r['corrected'].value:.3f}"]
+            for r in result.table]
+    echo(args, format_rows(["h0 [strain]", "detected", "efficiency", iv, "model",
+                            "corrected"], rows))
+    pct = f"{100 * args.confidence:g}"
+    echo(args, f"h0 at {pct} % detection: measured {sci(s['h0_measured'])}, model "
+               f"{sci(s['h0_predicted'])} (measured/model {s['ratio']:.3f}), corrected "
+               f"model {sci(s['h0_corrected'])} (measured/corrected "
+               f"{s['ratio_corrected']:.3f})")
+    echo(args, f"loudest-template mismatch: mean {s['mismatch_mean_measured']:.3f} "
+               f"measured, {s['mismatch_mean_model']:.3f} model (KS p = "
+               f"{s['mismatch_ks_p']:.3g})")
+    fa_lo, fa_hi = s["false_alarm_interval"]
+    echo(args, f"false alarms: {s['false_alarms']}/{s['noise_runs']} noise-only searches "
+               f"above the threshold ({iv} {fa_lo:.3g}-{fa_hi:.3g}; nominal "
+               f"{args.false_alarm:g})")
+    echo(args)
+    echo(args, format_assumptions(assumptions))
+    table = result.table
+    table.meta.update({k: (list(v) if isinstance(v, tuple) else v) for k, v in s.items()})
+    if out is not None:
+        write_table(table, out, title=f"mock-search campaign for {target.name}",
+                    assumptions=assumptions)
+        echo(args, f"wrote {out}")
+    from_plots = [(plot, "plot_mock_efficiency"), (mplot, "plot_mismatch_histogram")]
+    for path, name in from_plots:
+        if path is None:
+            continue
+        from cwlimits.plotting import validation as figs
+        from cwlimits.plotting.figures import save_figure
+
+        save_figure(getattr(figs, name)(result, title=f"{target.name}: {s['setup']}"), path,
+                    formats=(path.suffix.lstrip("."),))
+        echo(args, f"wrote {path}")
+    return 0
