@@ -16,8 +16,11 @@ for samples that average the band over dt (the normalisation of
 :func:`cwlimits.pulsars.data.from_band_data`).
 """
 
+import warnings
+
 import astropy.units as u
 import numpy as np
+from erfa import ErfaWarning
 
 from cwlimits.pulsars.data import DownConvertedData, add_noise
 from cwlimits.searchspace.searchsetup import SearchSetup
@@ -99,7 +102,10 @@ def known_pulsar_section(rep, catalogue, noise, *, span, detectors, duty_factor,
     setup = known_pulsar_setup(span, detectors, duty_factor, f_max)
     data = dict(data or {})
     if simulate:
-        start_gps = float(Time(start).gps)
+        with warnings.catch_warnings():
+            # a start after the last leap-second table is fine here (ERFA "dubious year")
+            warnings.simplefilter("ignore", ErfaWarning)
+            start_gps = float(Time(start).gps)
         # a measured limit from the targeted posterior is only meaningful for a pulsar
         # whose phase is known: no simulated data for one with timing uncertainties
         for t in pulsars:
