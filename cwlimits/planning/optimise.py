@@ -1324,7 +1324,8 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
     span : Quantity ['time'] or str
         Maximum data span of each search.
     per_target_budget : Quantity ['time'] or str, optional
-        Budget of the ranking figure of merit (default ``total_budget / n_targets``).
+        Budget of the ranking figure of merit (default: what the known pulsars' plans
+        leave of ``total_budget``, divided by the number of unknown-spin targets).
     budget_steps : int
         ``K``: the allocation grid is ``k total_budget / K``, ``k = 0..K``.
     measure : {'width', 'integral'}
