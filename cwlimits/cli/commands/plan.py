@@ -139,15 +139,16 @@ def run(args):
     options = plan_options(args)
     measure = args.measure or "width"
     known = target.has_spin and not args.age_based
-    if known and trade is not None:
-        raise InputError(f"--trade-off is for age-based plans; '{target.name}' is a known "
-                         "pulsar (add --age-based to plan an age-based search)")
+    if known and (trade is not None or plot is not None):
+        raise InputError(f"--trade-off and --plot are for age-based plans; '{target.name}' "
+                         "is a known pulsar (add --age-based to plan an age-based search, "
+                         "or see 'cwlimits targeted --all --plot')")
     plan = plan_search(target, args.noise, budget, args.span, args.objective,
                        measure=measure, case=args.case,
                        known_pulsar="off" if args.age_based else "auto", kind=args.kind,
                        **options)
     if known:
-        return _known(args, plan, out, table_path, plot)
+        return _known(args, plan, out, table_path)
     trade_plans = []
     if trade is not None:
         for factor in (1 / 30, 1 / 10, 1 / 3, 1.0):
@@ -206,7 +207,7 @@ def _summarise(args, plan):
     echo(args, format_assumptions(plan.assumptions))
 
 
-def _known(args, plan, out, table_path, plot):
+def _known(args, plan, out, table_path):
     """Print and write the targeted or narrow-band plan of a known pulsar."""
     import astropy.units as u
 
@@ -235,7 +236,4 @@ def _known(args, plan, out, table_path, plot):
                     title=f"planned {plan.kind} search for {plan.target}",
                     assumptions=plan.assumptions)
         echo(args, f"wrote {table_path}")
-    if plot is not None:
-        raise InputError("--plot draws h0(f) of an age-based plan; for a known pulsar use "
-                         "'cwlimits targeted --all --plot'")
     return 0
