@@ -178,3 +178,32 @@ def test_demo_report_has_the_known_pulsar_section(demo_report):
     # spin-down fraction = (h95 / h_sd)^2 (the fraction of the spin-down luminosity)
     assert np.allclose(table.quantity("spindown_fraction", u.one).value, ratios ** 2)
     assert any("I = 1e+38" in v for v in table.meta["assumptions"].values())
+
+
+def test_limits_of_a_known_pulsar_compare_the_band_of_its_frequency_with_h_sd(tmp_path,
+                                                                               capsys):
+    from cwlimits.searchspace.searchsetup import SearchSetup
+
+    setup = tmp_path / "s.toml"
+    SearchSetup(t_seg=10 * u.day, n_seg=8, band=(28.05 * u.Hz, 29.05 * u.Hz),
+                band_width=0.1 * u.Hz).to_toml(setup)
+    rng = np.random.default_rng(4)
+    results = tmp_path / "res.csv"
+    lines = ["f_lo [Hz],width [Hz],loudest_2F"]
+    lines += [f"{28.05 + 0.1 * i:.2f},0.1,{rng.chisquare(32) + 5:.4f}" for i in range(10)]
+    results.write_text("\n".join(lines) + "\n")
+    out = tmp_path / "ul.ecsv"
+    args = ["limits", str(results), "--setup", str(setup), "--catalogue", str(DEMO),
+            "--seed", "1", "--out", str(out)]
+    assert main([*args, "--target", "Fict Pulsar Brand"]) == 0
+    text = capsys.readouterr().out
+    line = next(x for x in text.splitlines() if x.startswith("known pulsar"))
+    assert "f_gw = 2 f_rot = 28.4 Hz in band 28.35-28.45 Hz" in line
+    table = cwlimits.read_table(out)
+    i = int(np.flatnonzero(np.isclose(table.quantity("f_lo", u.Hz).value, 28.35))[0])
+    h_sd = _h_sd(14.2 * u.Hz, 1.9e-10 * u.Hz / u.s, 2.1 * u.kpc)
+    h = table.quantity("h0_limit", u.one).value[i]
+    assert f"h0/h_sd = {h / h_sd:.3g}" in line
+    # a pulsar whose f_gw lies outside the searched bands is said to be so
+    assert main([*args[:-2], "--target", "Fict Pulsar Whirl"]) == 0
+    assert "outside the searched bands" in capsys.readouterr().out
