@@ -30,6 +30,10 @@ napoleon_google_docstring = False
 napoleon_numpy_docstring = True
 napoleon_use_rtype = False
 napoleon_use_ivar = True  # "Attributes" as fields: no second description of a member
+# Shapes in type lines, e.g. "ndarray (n_det, n_seg, M)", become cross-references; where
+# several classes have an attribute of that name (n_seg) the reference is ambiguous,
+# which is harmless for a shape: those warnings are not errors.
+suppress_warnings = ["ref.python"]
 
 html_theme = "alabaster"
 html_title = "cwlimits"

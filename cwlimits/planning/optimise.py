@@ -70,6 +70,7 @@ from cwlimits import _defaults
 from cwlimits._units import fraction, to_value
 from cwlimits.errors import ComputationError, InputError
 from cwlimits.noise import DEFAULT_NOISE_MODEL, band_psd
+from cwlimits.planning.known import KnownPulsarPlan, is_known_pulsar, plan_known_pulsar
 from cwlimits.response.antenna import (
     get_detectors,
     orientation_factor,
@@ -95,6 +96,7 @@ from cwlimits.statistics.detection import (
 from cwlimits.targets.indirect import age_limit
 
 __all__ = ["OBJECTIVES", "MEASURES", "CASES", "DEFAULT_BAND", "SearchPlan", "Ranking",
+           "KnownPulsarPlan",
            "PowerLawModel", "as_budget", "optimise_setup", "plan_search", "allocate_budget",
            "rank_targets"]
 
@@ -975,8 +977,14 @@ def plan_search(target, noise=DEFAULT_NOISE_MODEL, budget="1e5 h", span="1 yr",
                 braking_index=(2.0, 7.0), cost_coherent=DEFAULT_UNIT_COSTS["coherent"],
                 cost_semicoherent=DEFAULT_UNIT_COSTS["semicoherent"], duty_factor=1.0,
                 t_seg_min=1 * u.day, n_seg_max=1000, confidence=0.95, false_alarm=0.01,
-                start=DEFAULT_START, refine=True, exact=True):
+                start=DEFAULT_START, refine=True, exact=True, known_pulsar="auto",
+                kind="auto"):
     """Plan a directed search of one target at a fixed budget and maximum data span.
+
+    A target with a known spin (``f_rot``, ``fdot_rot``) gets a targeted or narrow-band
+    plan (:func:`cwlimits.planning.known.plan_known_pulsar`: one coherent segment over the
+    span at f_gw = 2 f_rot) unless ``known_pulsar='off'``; ``objective``, ``band``,
+    ``measure``, ``t_seg_min``, ``n_seg_max`` and ``braking_index`` then play no part.
 
     Parameters
     ----------
@@ -1011,10 +1019,16 @@ def plan_search(target, noise=DEFAULT_NOISE_MODEL, budget="1e5 h", span="1 yr",
         Refine the grid optimum with scipy (default True).
     exact : bool
         Evaluate the plan with :func:`cwlimits.strain_sensitivity` (default True, ~1 s).
+    known_pulsar : {'auto', 'off'}
+        ``'auto'``: a known pulsar gets a targeted or narrow-band plan; ``'off'``: plan an
+        age-based semi-coherent search (the row needs an age).
+    kind : {'auto', 'targeted', 'narrow-band'}
+        Search kind of a known pulsar (``'auto'``: targeted when the timing box lies
+        inside one template).
 
     Returns
     -------
-    SearchPlan
+    SearchPlan or KnownPulsarPlan
 
     Raises
     ------
@@ -1030,6 +1044,15 @@ def plan_search(target, noise=DEFAULT_NOISE_MODEL, budget="1e5 h", span="1 yr",
     Wette et al. 2008, arXiv:0802.3332 (age-based limit and parameter space).
     """
     budget = as_budget(budget)
+    if known_pulsar not in ("auto", "off"):
+        raise InputError("known_pulsar must be 'auto' or 'off'", value=known_pulsar)
+    if known_pulsar == "auto" and is_known_pulsar(target):
+        return plan_known_pulsar(target, noise, budget, span, kind=kind, case=case,
+                                 detectors=detectors, band_width=band_width, lattice=lattice,
+                                 cost_coherent=cost_coherent,
+                                 cost_semicoherent=cost_semicoherent,
+                                 duty_factor=duty_factor, confidence=confidence,
+                                 false_alarm=false_alarm, start=start)
     case_target, model, log_h_age, base = _planner(
         target, noise, span, case=case, band=band, band_width=band_width,
         detectors=detectors, lattice=lattice, braking_index=braking_index,
@@ -1187,6 +1210,14 @@ def _rank_one(chunk, rng, *, targets, noise, span, total_h, per_target_h, steps,
         except ComputationError:
             rows[which] = (0.0, None)
         if which == case:
+            ratio = np.nan
+            if rows[case][1] is not None:
+                o = rows[case][1]
+                lft, rgt = o.window
+                log_d = model.log_depth(np.array([o.t_s]), np.array([o.n]),
+                                        np.array([o.mu_c]), np.array([o.mu_f]))[0]
+                log_h0 = (model.log_sqrt_psd - log_d)[lft:rgt]
+                ratio = math.exp(float(np.min(log_h0)) - log_h_age)
             for k in range(1, steps + 1):
                 search.budget_h = total_h * k / steps
                 try:
@@ -1200,7 +1231,7 @@ def _rank_one(chunk, rng, *, targets, noise, span, total_h, per_target_h, steps,
             "merit_optimistic": np.array([rows["optimistic"][0]]),
             "merit_pessimistic": np.array([rows["pessimistic"][0]]),
             "t_seg_s": np.array([best.t_s if best else np.nan]),
-            "n_seg": np.array([best.n if best else 0])}
+            "n_seg": np.array([best.n if best else 0]), "ratio": np.array([ratio])}
 
 
 _BOUNDS = ("none", "span", "budget", "span+budget", "band", "span+band", "budget+band",
@@ -1268,8 +1299,16 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
                  cost_semicoherent=DEFAULT_UNIT_COSTS["semicoherent"], duty_factor=1.0,
                  t_seg_min=1 * u.day, n_seg_max=1000, confidence=0.95, false_alarm=0.01,
                  start=DEFAULT_START, executor=None, progress=False, plans=True,
-                 store=None, key=None):
+                 store=None, key=None, known_pulsar="auto", mismatch_coherent=0.3,
+                 noise_draws=100):
     """Rank the targets of a catalogue and split a total budget across them.
+
+    Known pulsars (rows with ``f_rot``, ``fdot_rot``; unless ``known_pulsar='off'``) get a
+    targeted or narrow-band plan (:func:`cwlimits.planning.known.plan_known_pulsar`) and
+    are ranked beside the unknown-spin targets on the common figure ``ratio_indirect``:
+    the predicted limit over the indirect limit at the best frequency (h95 / h_sd for a
+    known pulsar; min over the band of h0 / h_age of the best setup at the per-target
+    budget for an unknown-spin target).
 
     Parameters
     ----------
@@ -1280,7 +1319,8 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
     span : Quantity ['time'] or str
         Maximum data span of each search.
     per_target_budget : Quantity ['time'] or str, optional
-        Budget of the ranking figure of merit (default ``total_budget / n_targets``).
+        Budget of the ranking figure of merit (default: what the known pulsars' plans
+        leave of ``total_budget``, divided by the number of unknown-spin targets).
     budget_steps : int
         ``K``: the allocation grid is ``k total_budget / K``, ``k = 0..K``.
     measure : {'width', 'integral'}
@@ -1294,6 +1334,12 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
         Runs the targets in parallel (:func:`cwlimits.runtime.executor.map_chunks`).
     plans : bool
         Build (and evaluate exactly) the plan at each allocated budget.
+    known_pulsar : {'auto', 'off'}
+        Treat rows with a known spin as known pulsars (default) or as age-based targets.
+    mismatch_coherent : float
+        Coherent grid mismatch of the known-pulsar searches (targeted or narrow-band).
+    noise_draws : int
+        Noise-only data sets of each known pulsar's expected limit.
     store, key : optional
         A :class:`cwlimits.runtime.store.ResultStore` and the ``(run_id, part)`` key under which
         each target's figures are committed as it finishes (resumable ranking).
@@ -1309,26 +1355,50 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
         [Hz], ``merit_optimistic``, ``merit_pessimistic`` [Hz], ``h_age_optimistic``,
         ``h_age_pessimistic``, ``budget_allocated`` [h], ``merit_allocated`` [Hz],
         ``t_seg`` [day], ``n_seg``, ``mismatch_coherent``, ``mismatch_semicoherent``, ``f_min``,
-        ``f_max`` [Hz], ``cost`` [h], ``bound`` (of the allocated plan).
+        ``f_max`` [Hz], ``cost`` [h], ``bound`` (of the allocated plan); and for every
+        row ``search`` (semi-coherent, targeted, narrow-band), ``h95`` (predicted limit at
+        the best frequency), ``h_indirect`` (h_age of the case, or h_sd at the case's
+        distance), ``indirect`` (age or spin-down), ``ratio_indirect`` = h95 / h_indirect.
+        Known pulsars have NaN beat-age merits.
 
     Notes
     -----
-    Ranking: by ``merit`` (the beat-age figure of merit of the case at the per-target
-    budget), then by the optimistic merit, then by name.  Allocation: exact dynamic
+    Ranking: by ``ratio_indirect`` (smaller first; NaN last), then by ``merit`` (the
+    beat-age figure of merit of the case at the per-target budget), then by the optimistic
+    merit, then by name.  Budget: known pulsars are funded first, best ratio first, with
+    the cost of their plan (one template per detector when targeted, N_templates x N_det x
+    the coherent unit cost when narrow-band) while it fits; the rest of the total is split
+    across the unknown-spin targets by an exact dynamic
     programme over the budget grid (:func:`allocate_budget`).  The figures on the grid
     come from the fast model without the scipy refinement (so that they are exactly
     non-decreasing in the budget); the plans at the allocated budgets are refined and
     evaluated exactly.
     """
+    from cwlimits.planning.known import case_distance, fund_known, rank_known
     from cwlimits.runtime.executor import map_chunks
     from cwlimits.targets.indirect import limit_range
 
-    targets = list(catalogue)
-    if not targets:
+    everything = list(catalogue)
+    if not everything:
         raise InputError("the catalogue has no targets")
+    if known_pulsar not in ("auto", "off"):
+        raise InputError("known_pulsar must be 'auto' or 'off'", value=known_pulsar)
+    known = [t for t in everything if known_pulsar == "auto" and is_known_pulsar(t)]
+    targets = [t for t in everything if not (known_pulsar == "auto" and is_known_pulsar(t))]
     total = as_budget(total_budget, "total budget")
+    if case not in CASES:
+        raise InputError(f"case must be one of {', '.join(CASES)}", value=case)
+    known_plans = rank_known(known, noise, span, case=case, detectors=detectors,
+                             band_width=band_width, lattice=lattice,
+                             mismatch=mismatch_coherent, cost_coherent=cost_coherent,
+                             cost_semicoherent=cost_semicoherent, duty_factor=duty_factor,
+                             confidence=confidence, false_alarm=false_alarm, start=start,
+                             n_noise=noise_draws)
+    known_order = sorted(known_plans, key=lambda n: (known_plans[n].ratio_spindown, n))
+    known_funded, known_used = fund_known(known_plans, known_order, total.value)
+    rest = (total.value - known_used) << u.h
     per = as_budget(per_target_budget, "per-target budget") if per_target_budget is not None \
-        else total / len(targets)
+        else rest / max(len(targets), 1)
     steps = int(budget_steps)
     if steps < 1:
         raise InputError("budget_steps must be at least 1", value=budget_steps)
@@ -1346,23 +1416,26 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
                    t_seg_min=t_seg_min, n_seg_max=n_seg_max, confidence=confidence,
                    false_alarm=false_alarm, start=start)
     func = functools.partial(_rank_one, targets=targets, noise=noise, span=span,
-                             total_h=total.value, per_target_h=per.value, steps=steps,
+                             total_h=rest.value, per_target_h=per.value, steps=steps,
                              measure=measure, case=case, options=options)
     # One target per chunk; with a results store (``store``, ``key``) every finished
     # target is committed, so an interrupted ranking resumes with the missing ones.
-    out = map_chunks(func, len(targets), chunk_size=1, executor=executor, seed=0,
-                     progress=progress, desc="targets", store=store, key=key)
-    merits = out["grid"]
-    units, _ = allocate_budget(merits)
+    if targets:
+        out = map_chunks(func, len(targets), chunk_size=1, executor=executor, seed=0,
+                         progress=progress, desc="targets", store=store, key=key)
+        merits = out["grid"]
+        units, _ = allocate_budget(merits)
+    else:
+        out = {k: np.zeros(0) for k in ("merit_case", "merit_optimistic",
+                                         "merit_pessimistic", "ratio")}
+        merits, units = np.zeros((0, steps + 1)), np.zeros(0, int)
     names = [t.name for t in targets]
-    order = sorted(range(len(targets)), key=lambda i: (-out["merit_case"][i],
-                                                       -out["merit_optimistic"][i],
-                                                       names[i]))
+    order = list(range(len(targets)))
     funded = [i for i in range(len(targets)) if plans and units[i] > 0]
     built = {}
     if funded:
         plan_func = functools.partial(_plan_one, targets=targets, funded=funded,
-                                      budgets_h=[total.value * units[i] / steps
+                                      budgets_h=[rest.value * units[i] / steps
                                                  for i in funded],
                                       noise=noise, span=span, measure=measure, case=case,
                                       options=options)
@@ -1372,12 +1445,12 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
             if not found["ok"][j]:
                 continue
             built[targets[i].name] = _rank_plan(targets[i], found, j,
-                                                total.value * units[i] / steps, span,
+                                                rest.value * units[i] / steps, span,
                                                 measure, case, noise, options)
     rows = []
     for i in order:
         t = targets[i]
-        alloc = total.value * units[i] / steps
+        alloc = rest.value * units[i] / steps
         plan = built.get(t.name)
         opt_lim, pes_lim = limit_range((t.distance_min, t.distance_max),
                                        (t.age_min, t.age_max))
@@ -1396,7 +1469,42 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
             "f_min": s.f_min.to_value(u.Hz) if s else np.nan,
             "f_max": s.f_max.to_value(u.Hz) if s else np.nan,
             "cost": plan.cost.to_value(u.h) if plan else 0.0,
-            "bound": plan.bound if plan else "not searched"})
+            "bound": plan.bound if plan else "not searched",
+            "search": "semi-coherent", "indirect": "age",
+            "ratio_indirect": out["ratio"][i]})
+        h_case = age_limit(*_case_values(t, case)).value
+        rows[-1]["h_indirect"] = h_case
+        rows[-1]["h95"] = out["ratio"][i] * h_case
+    for name in known_order:
+        kp = known_plans[name]
+        t = next(x for x in known if x.name == name)
+        funded_now = name in known_funded
+        opt_sd, pes_sd = (kp.h0_spindown.value * (case_distance(kp_t, kp.case) /
+                                                   case_distance(kp_t, c)).to_value(u.one)
+                          for kp_t, c in ((t, "optimistic"), (t, "pessimistic")))
+        rows.append({
+            "name": name, "merit": np.nan, "merit_optimistic": np.nan,
+            "merit_pessimistic": np.nan, "h_age_optimistic": opt_sd,
+            "h_age_pessimistic": pes_sd,
+            "budget_allocated": kp.cost.to_value(u.h) if funded_now else 0.0,
+            "merit_allocated": np.nan, "merit_allocated_exact": np.nan,
+            "t_seg": kp.setup.t_seg.to_value(u.day), "n_seg": 1,
+            "mismatch_coherent": kp.setup.mismatch_coherent, "mismatch_semicoherent": np.nan,
+            "f_min": kp.setup.f_min.to_value(u.Hz), "f_max": kp.setup.f_max.to_value(u.Hz),
+            "cost": kp.cost.to_value(u.h) if funded_now else 0.0,
+            "bound": "funded" if funded_now else "not searched (budget)",
+            "search": kp.kind, "h95": kp.h95.value, "indirect": "spin-down",
+            "ratio_indirect": kp.ratio_spindown, "h_indirect": kp.h0_spindown.value})
+        if funded_now:
+            built[name] = kp
+
+    def _key(r):
+        ratio = r["ratio_indirect"]
+        merit = r["merit"] if np.isfinite(r["merit"]) else 0.0
+        opt = r["merit_optimistic"] if np.isfinite(r["merit_optimistic"]) else 0.0
+        return (ratio if np.isfinite(ratio) else math.inf, -merit, -opt, r["name"])
+
+    rows.sort(key=_key)
     table = QTable()
     table["rank"] = np.arange(1, len(rows) + 1)
     table["name"] = [r["name"] for r in rows]
@@ -1410,15 +1518,22 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
         values = np.array([r[col] for r in rows])
         table[col] = values << unit if unit is not None else values
     table["bound"] = [r["bound"] for r in rows]
+    table["search"] = [r["search"] for r in rows]
+    for col in ("h95", "h_indirect", "ratio_indirect"):
+        table[col] = np.array([r[col] for r in rows], float) << u.one
+    table["indirect"] = [r["indirect"] for r in rows]
     assumptions = {
         "figure_of_merit": f"beat-age {measure}: " + (
             "sum of df over bands with h0 < h_age" if measure == "width" else
             "sum of df max(0, ln(h_age/h0))") + f", {case} case (distance and age), best "
             "setup and sub-band at the budget; Hz",
-        "ranking": f"by merit at the per-target budget {per:.6g}, then by the optimistic "
-                   "merit, then by name",
-        "allocation": f"total {total:.6g} split on a grid of {steps} steps of "
-                      f"{total / steps:.6g} by an exact dynamic programme maximising the "
+        "ranking": "by ratio_indirect = predicted limit / indirect limit at the best "
+                   "frequency (h95/h_sd for a known pulsar, min h0/h_age of the best setup "
+                   f"at the per-target budget {per:.6g} for an unknown-spin target), then "
+                   "by merit, then by the optimistic merit, then by name",
+        "allocation": f"total {total:.6g} (less the known pulsars' costs: {rest:.6g}) "
+                      f"split on a grid of {steps} steps of {rest / steps:.6g} by an exact "
+                      "dynamic programme maximising the "
                       "summed merit (merit_allocated, fast model without refinement); "
                       "merit_allocated_exact from strain_sensitivity of the refined plan",
         "span": f"maximum data span {u.Quantity(span):.6g} per search",
@@ -1429,7 +1544,17 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
         "meaning": "planned expected sensitivities under the stated assumptions, not "
                    "measured limits",
     }
+    if known:
+        assumptions["known_pulsars"] = (
+            f"{len(known)} rows with a known spin: fully coherent search over the span at "
+            "f_gw = 2 f_rot, targeted when the timing box lies inside one template else "
+            f"narrow-band (coherent mismatch {mismatch_coherent:g}); h95 = median "
+            f"{confidence:.0%} Bayesian limit on {noise_draws} noise-only data sets "
+            "(Dupuis & Woan 2005) or the narrow-band sensitivity; h_sd at the case's "
+            "distance, I = 1e38 kg m^2; funded first (best ratio first), costs "
+            f"{known_used:.4g} core-hours of the total; h_age_optimistic/pessimistic hold "
+            "h_sd at d_min/d_max for these rows")
     table.meta["assumptions"] = assumptions
-    budgets = (total.value * np.arange(steps + 1) / steps) << u.h
+    budgets = (rest.value * np.arange(steps + 1) / steps) << u.h
     return Ranking(table=table, budgets=budgets, merits=merits, names=names, plans=built,
                    assumptions=assumptions)

@@ -40,7 +40,7 @@ def plot_pulsar_posterior(posterior, h0_spindown=None, title=None):
         ax.axvline(h0_spindown, color=colour, ls=style, lw=1, label="spin-down limit")
     ax.set_xlabel(f"{_LABELS.get(name, name)} (dimensionless)" if name == "h0"
                   else f"{name} (dimensionless)")
-    ax.set_ylabel("posterior density")
+    ax.set_ylabel(f"posterior density [per unit {name}]")
     ax.set_xlim(left=0)
     ax.legend(fontsize=6, loc="best")
     if title:
@@ -124,7 +124,7 @@ def plot_known_pulsars(table, curve_f=None, curve_h=None, title=None):
         ax.plot([fi, fi], [lo, hi], color="0.7", lw=0.5)
     ax.set_xscale("log")
     ax.set_yscale("log")
-    ax.set_xlabel(r"gravitational-wave frequency $f_{\rm gw}$ (Hz)")
+    ax.set_xlabel(r"gravitational-wave frequency $f_{\rm gw}$ [Hz]")
     ax.set_ylabel(r"strain amplitude $h_0$ (dimensionless)")
     tidy_log_axes(ax)
     # below the axes: the markers sit anywhere in the panel

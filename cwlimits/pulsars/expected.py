@@ -122,8 +122,13 @@ def _expected_bayes(sums, prior, confidence, h0_prior, h0_min, n_noise, rng, gri
     return median, err, limits
 
 
-def _box(target, item, n_sigma, fractional_width, emission):
-    """(f_lo, f_hi, fdot_lo, fdot_hi) in Hz, Hz/s of the narrow-band box, and its origin."""
+def search_box(target, item, n_sigma, fractional_width, emission):
+    """The narrow-band search box of one harmonic, and where it comes from.
+
+    Returns ``((f_lo, f_hi, fdot_lo, fdot_hi), origin)``, in Hz and Hz/s: the r-mode band
+    of the emission model, a fractional half-width in f_gw and fdot_gw, or ``n_sigma``
+    timing uncertainties; ``origin`` says which, in words.
+    """
     f0, fd0 = item["f_gw"].to_value(u.Hz), item["fdot_gw"].to_value(u.Hz / u.s)
     if "f_band" in item:
         f_lo, f_hi = (x.to_value(u.Hz) for x in item["f_band"])
@@ -262,7 +267,7 @@ def targeted_sensitivity(target, setup, noise=DEFAULT_NOISE_MODEL, *, kind="auto
     for item in harmonics(target, model):
         f_gw = item["f_gw"]
         sums = network_sums(setup, target, f_gw, noise, start=start)
-        box, origin = _box(target, item, n_sigma, fractional_width, model)
+        box, origin = search_box(target, item, n_sigma, fractional_width, model)
         chosen, reason = _choose(kind, target, item, box, origin, t_span, mu_max,
                                  fractional_width)
         harmonic = "21" if item["label"] == "C21" else "22"

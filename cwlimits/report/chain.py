@@ -27,6 +27,7 @@ from cwlimits.limits.upper import band_posterior, upper_limits
 from cwlimits.noise import get_noise
 from cwlimits.planning.optimise import rank_targets
 from cwlimits.report.html import Report, check_report_folder, file_sha256
+from cwlimits.report.pulsars import known_pulsar_section
 from cwlimits.runtime.executor import named_seed
 from cwlimits.searchspace.cost import computing_cost, scan_cost
 from cwlimits.searchspace.searchsetup import load_setup
@@ -140,6 +141,11 @@ def run_report(config, *, echo=None, progress=None, simulate=False, overwrite=Fa
             _limits_section(rep, config, plans[name]["target"], plans[name]["setup"],
                             results[name], table, noise, simulated=simulate,
                             sensitivity=sensitivities[name])
+        known_pulsar_section(rep, catalogue, noise, span=config["data.span"],
+                             detectors=tuple(config["data.detectors"]),
+                             duty_factor=config["data.duty_factor"], start=config["data.start"],
+                             confidence=config["statistics.confidence"], seed=seed,
+                             simulate=simulate, echo=echo)
         rep.assumptions(_assumptions(config), heading="Assumptions of the whole analysis")
         record = {"configuration": config.resolved(), "seed": seed,
                   "inputs": {role: {"path": str(path), "sha256": file_sha256(path)}
@@ -177,7 +183,9 @@ def _plans(config, catalogue, noise, echo):
         case=config["planning.case"], budget_steps=config["planning.budget_steps"])
     plans = {}
     for name in ranking.table["name"]:
-        if name in ranking.plans and len(plans) < limit:
+        # known pulsars have their own section (cwlimits.report.pulsars)
+        if name in ranking.plans and len(plans) < limit and \
+                ranking.plans[name].objective != "known-pulsar":
             plan = ranking.plans[name]
             # The plan was made for the case's distance and age (the age also sets the
             # searched parameter space), so everything about it uses that target.

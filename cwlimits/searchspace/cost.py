@@ -51,7 +51,12 @@ from cwlimits.searchspace.metric import (
     coherent_metric_scaled,
     semicoherent_metric_scaled,
 )
-from cwlimits.searchspace.parameter_space import VOLUME_UNITS, AgeBasedSpace, ParameterSpace
+from cwlimits.searchspace.parameter_space import (
+    VOLUME_UNITS,
+    AgeBasedSpace,
+    BoxSpace,
+    ParameterSpace,
+)
 
 __all__ = ["count_templates", "computing_cost", "CostEstimate", "scan_cost",
            "plot_cost_scan", "resolve_space", "SCAN_QUANTITIES", "PLOT_SUFFIXES"]
@@ -82,6 +87,14 @@ def resolve_space(setup, target_or_space):
     if isinstance(target_or_space, (u.Quantity, str)):
         return AgeBasedSpace(u.Quantity(target_or_space), n_min, n_max)
     age = getattr(target_or_space, "age", None)
+    if getattr(target_or_space, "has_spin", False) and (
+            age is None or not np.all(np.isfinite(u.Quantity(age).value))):
+        # a known pulsar without an age: the setup's band in f, and fdot_gw = 2 fdot_rot
+        # within a fractional half-width of 1e-2 (the fdot tolerance of
+        # BoxSpace.for_target)
+        fdot = 2 * u.Quantity(target_or_space.fdot_rot, u.Hz / u.s)
+        width = 1e-2 * abs(fdot)
+        return BoxSpace((setup.f_min, setup.f_max), (fdot - width, fdot + width))
     if age is None:
         raise InputError("need a parameter space, an age, or a target with an age",
                          value=getattr(target_or_space, "name", target_or_space))

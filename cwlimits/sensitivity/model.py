@@ -477,6 +477,14 @@ def _depths(sm, threshold_sum, confidence):
 
 def add_indirect_columns(table, target, h0_column="h0"):
     """Columns comparing ``h0_column`` with the target's age-based limit."""
+    age = getattr(target, "age", None)
+    if age is None or not np.isfinite(u.Quantity(age).value):
+        # a known pulsar without an age: no age-based limit (NaN columns, beats nothing)
+        n = len(table)
+        for col in ("h0_age", "h0_age_optimistic", "h0_age_pessimistic", "age_ratio"):
+            table[col] = np.full(n, np.nan) << u.one
+        table["beats_age"] = np.zeros(n, bool)
+        return
     nominal = age_limit(target.distance, target.age)
     optimistic, pessimistic = limit_range((target.distance_min, target.distance_max),
                                           (target.age_min, target.age_max))

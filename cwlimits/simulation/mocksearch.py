@@ -458,8 +458,9 @@ def resampled_direct_fstat(bd, df_hz, fdot):
     Returns
     -------
     ndarray (n_seg, n)
-        2F_k = 4 (B |Fa|^2 + A |Fb|^2 - 2 C Re Fa Fb*) / D with
-        Fa = sum_j w z' a exp(-2 pi i (df t_j + fdot t_j^2 / 2)), t_j from the mid-time.
+        ``2F_k = 4 (B abs(Fa)^2 + A abs(Fb)^2 - 2 C Re(Fa conj(Fb))) / D`` with
+        ``Fa = sum_j w z' a exp(-2 pi i (df t_j + fdot t_j^2 / 2))``, ``t_j`` from the
+        mid-time (the F-statistic of Jaranowski, Krolak & Schutz 1998, gr-qc/9804014).
     """
     m = bd.n_samples
     tl = (np.arange(m) - (m - 1) / 2.0) * bd.dt_s

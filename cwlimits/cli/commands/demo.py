@@ -22,9 +22,10 @@ def register(subparsers, common):
     parser = add_parser(
         subparsers, common, "demo",
         help="run the whole job on the embedded fictional demo scenario",
-        description="Run the whole analysis on cwlimits' embedded demo: eight fictional "
-                    "targets (invented; they match no real object), the embedded design "
-                    "noise curve, a demo computing budget, and search results simulated "
+        description="Run the whole analysis on cwlimits' embedded demo: twelve "
+                    "fictional targets, five of them known pulsars (invented; they match no "
+                    "real object), the embedded design noise curve, a demo computing "
+                    "budget, and search results and down-converted pulsar data simulated "
                     "from the noise distribution with a fixed seed.  Writes the report "
                     "(index.html, every table as CSV and ECSV, every figure as PNG and SVG, "
                     "a run record) into the output folder.",

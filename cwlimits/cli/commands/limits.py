@@ -226,7 +226,7 @@ def run(args):
     table.meta["assumptions"]["seed"] = (
         f"{args.seed} (the default seed; --seed N for another)"
         if args.seed == DEFAULT_SEED else f"{args.seed}")
-    summarise(args, table, title)
+    summarise(args, table, title, target)
     if out is not None:
         write_table(table, out, title=title, assumptions=table.meta["assumptions"])
         echo(args, f"wrote {out}")
@@ -285,7 +285,7 @@ def _posterior(args, results, setup, target, plot, model_options, options):
     return 0
 
 
-def summarise(args, table, title):
+def summarise(args, table, title, target=None):
     """Print a short table (at most ~15 bands), the best limit and the indirect fraction."""
     import numpy as np
 
@@ -308,9 +308,13 @@ def summarise(args, table, title):
                    f"{sci(table['alpha_limit'][best].value)} there")
     width = (table["f_hi"] - table["f_lo"]).value
     below = float(np.sum(width[np.asarray(table["beats_age"], bool)]))
-    echo(args, f"below the nominal age-based limit ({sci(table['h0_age'][0].value)}) in "
-               f"{below:.6g} Hz of {width.sum():.6g} Hz ({100 * below / width.sum():.3g} %)")
-    if "beats_spindown" in table.colnames:
+    if np.isfinite(table["h0_age"][0].value):
+        echo(args, f"below the nominal age-based limit ({sci(table['h0_age'][0].value)}) "
+                   f"in {below:.6g} Hz of {width.sum():.6g} Hz "
+                   f"({100 * below / width.sum():.3g} %)")
+    if target is not None and target.has_spin:
+        _known_line(args, table, target)
+    elif "beats_spindown" in table.colnames:
         below = float(np.sum(width[np.asarray(table["beats_spindown"], bool)]))
         echo(args, f"below the spin-down limit ({sci(table['h0_spindown'][0].value)}) in "
                    f"{100 * below / width.sum():.3g} % of the band")
@@ -322,3 +326,26 @@ def summarise(args, table, title):
                        f"autocorrelation times{'' if table['emcee_converged'][i] else ' (SHORT)'}")
     echo(args)
     echo(args, format_assumptions(table.meta["assumptions"]))
+
+
+def _known_line(args, table, target):
+    """A known pulsar: the limit of the band holding f_gw = 2 f_rot against h_sd."""
+    import astropy.units as u
+    import numpy as np
+
+    f_gw = 2 * target.f_rot.to_value(u.Hz)
+    lo, hi = table["f_lo"].to_value(u.Hz), table["f_hi"].to_value(u.Hz)
+    inside = np.flatnonzero((lo <= f_gw) & (f_gw < hi))
+    h_sd = float(table["h0_spindown"][0].value)
+    if not inside.size:
+        echo(args, f"known pulsar {target.name}: f_gw = 2 f_rot = {f_gw:.8g} Hz lies outside "
+                   f"the searched bands ({lo.min():.6g} to {hi.max():.6g} Hz): these limits "
+                   "say nothing about it; h_sd = " + sci(h_sd))
+        return
+    i = int(inside[0])
+    h = float(table["h0_limit"][i].value)
+    echo(args, f"known pulsar {target.name}: f_gw = 2 f_rot = {f_gw:.8g} Hz in band "
+               f"{lo[i]:.6g}-{hi[i]:.6g} Hz: h0 < {sci(h)}, spin-down limit h_sd = "
+               f"{sci(h_sd)}, h0/h_sd = {h / h_sd:.3g}"
+               + (" (beats the spin-down limit)" if h < h_sd else "")
+               + "; the fully coherent targeted limit: 'cwlimits posterior'")

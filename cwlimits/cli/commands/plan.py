@@ -1,7 +1,14 @@
 """``cwlimits plan``: the best segment setup (and band) of one target for a budget."""
 
 
-from cwlimits._defaults import CASES, MEASURES, OBJECTIVES, PLOT_SUFFIXES, default_for
+from cwlimits._defaults import (
+    CASES,
+    MEASURES,
+    OBJECTIVES,
+    PLOT_SUFFIXES,
+    PULSAR_KINDS,
+    default_for,
+)
 from cwlimits.cli.commands._common import (
     add_noise_args,
     add_parser,
@@ -14,6 +21,7 @@ from cwlimits.cli.commands._common import (
     resolve_target,
     sci,
 )
+from cwlimits.errors import InputError
 
 __all__ = ["ORDER", "register", "run", "add_plan_args", "plan_options"]
 
@@ -109,6 +117,12 @@ def register(subparsers, common):
     parser.add_argument("--case", choices=CASES, default=default_for("plan", "case"),
                         help="distance and age used (default "
                              f"{default_for('plan', 'case')}; docs/defaults.md)")
+    kp = parser.add_argument_group("known pulsar (a row with f_rot and fdot_rot)")
+    kp.add_argument("--kind", choices=PULSAR_KINDS, default="auto",
+                    help="targeted, narrow-band, or auto (default: targeted when the timing "
+                         "uncertainty lies inside one template)")
+    kp.add_argument("--age-based", action="store_true",
+                    help="plan an age-based semi-coherent search even for a known pulsar")
     add_plan_args(parser, "plan")
     out = parser.add_argument_group("output")
     out.add_argument("--out", metavar="PLAN.toml", help="write the plan (setup file)")
@@ -137,8 +151,17 @@ def run(args):
     target = resolve_target(args)
     options = plan_options(args)
     measure = args.measure
+    known = target.has_spin and not args.age_based
+    if known and (trade is not None or plot is not None):
+        raise InputError(f"--trade-off and --plot are for age-based plans; '{target.name}' "
+                         "is a known pulsar (add --age-based to plan an age-based search, "
+                         "or see 'cwlimits targeted --all --plot')")
     plan = plan_search(target, args.noise, budget, args.span, args.objective,
-                       measure=measure, case=args.case, **options)
+                       measure=measure, case=args.case,
+                       known_pulsar="off" if args.age_based else "auto", kind=args.kind,
+                       **options)
+    if known:
+        return _known(args, plan, out, table_path)
     trade_plans = []
     if trade is not None:
         for factor in (1 / 30, 1 / 10, 1 / 3, 1.0):
@@ -195,3 +218,35 @@ def _summarise(args, plan):
     echo(args, f"  lowest h0: {sci(h0[best])} at {plan.table['f_mid'][best]:.6g}")
     echo(args)
     echo(args, format_assumptions(plan.assumptions))
+
+
+def _known(args, plan, out, table_path):
+    """Print and write the targeted or narrow-band plan of a known pulsar."""
+    import astropy.units as u
+
+    from cwlimits.tables import write_table
+
+    s = plan.setup
+    echo(args, f"plan for known pulsar {plan.target} ({plan.case} distance): {plan.kind} "
+               "search")
+    echo(args, f"  why: {plan.reason}")
+    echo(args, f"  f_gw = 2 f_rot = {plan.f_gw:.8g}, fdot_gw = {plan.fdot_gw:.4g}")
+    echo(args, f"  one coherent segment of {s.t_seg.to(u.day):.6g}; band {s.f_min:.8g} to "
+               f"{s.f_max:.8g}; {plan.n_templates:.4g} template(s)")
+    echo(args, f"  cost: {sci(plan.cost.to_value(u.h), 4)} core-hours of a budget of "
+               f"{sci(plan.budget.to_value(u.h), 4)}")
+    echo(args, f"  predicted h95 = {sci(plan.h95.value)}; spin-down limit h_sd = "
+               f"{sci(plan.h0_spindown.value)}; h95/h_sd = {plan.ratio_spindown:.3g}"
+               + (" (beats the spin-down limit)" if plan.ratio_spindown < 1 else
+                  " (does not reach the spin-down limit)"))
+    echo(args)
+    echo(args, format_assumptions(plan.assumptions))
+    if out is not None:
+        plan.write(out)
+        echo(args, f"wrote {out}")
+    if table_path is not None:
+        write_table(plan.table, table_path,
+                    title=f"planned {plan.kind} search for {plan.target}",
+                    assumptions=plan.assumptions)
+        echo(args, f"wrote {table_path}")
+    return 0

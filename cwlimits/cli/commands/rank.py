@@ -114,9 +114,12 @@ def run(args):
                                executor=executor, progress=progress_from_args(args),
                                store=store, key=key, **options)
     table = ranking.table
-    headers = ["rank", "target", "merit [Hz]", "optimistic", "pessimistic",
-               "budget [core-h]", "T_seg [day]", "N_seg", "band [Hz]", "bound"]
-    rows = [[str(r["rank"]), r["name"], f"{r['merit'].value:.4g}",
+    headers = ["rank", "target", "search", "h95/h_ind", "merit [Hz]", "optimistic",
+               "pessimistic", "budget [core-h]", "T_seg [day]", "N_seg", "band [Hz]",
+               "bound"]
+    rows = [[str(r["rank"]), r["name"], r["search"],
+             f"{r['ratio_indirect'].value:.3g} ({r['indirect']})",
+             f"{r['merit'].value:.4g}",
              f"{r['merit_optimistic'].value:.4g}", f"{r['merit_pessimistic'].value:.4g}",
              sci(r["budget_allocated"].value),
              "-" if r["n_seg"] == 0 else f"{r['t_seg'].value:.4g}", str(r["n_seg"]),
@@ -142,8 +145,9 @@ def run(args):
         save_figure(plot_merit_vs_budget(ranking, title="figure of merit against budget"),
                     plot, formats=(plot.suffix.lstrip("."),))
         echo(args, f"wrote {plot}")
-    if plot_plans is not None and ranking.plans:
-        save_figure(plot_planned_strain(list(ranking.plans.values()),
+    age_plans = [p for p in ranking.plans.values() if p.objective != "known-pulsar"]
+    if plot_plans is not None and age_plans:
+        save_figure(plot_planned_strain(age_plans,
                                         title="allocated plans"),
                     plot_plans, formats=(plot_plans.suffix.lstrip("."),))
         echo(args, f"wrote {plot_plans}")

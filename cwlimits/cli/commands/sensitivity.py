@@ -64,6 +64,10 @@ def register(subparsers, common):
                        help="effective number of independent templates per band (overrides "
                             "the template count)")
     add_signal_model_args(parser)
+    stats.add_argument("--age-based", action="store_true",
+                       help="for a known pulsar (f_rot, fdot_rot): the semi-coherent search "
+                            "of the setup over its band instead of the fully coherent "
+                            "targeted or narrow-band search at f_gw = 2 f_rot")
     out = parser.add_argument_group("output")
     out.add_argument("--out", metavar="FILE", help="per-band table (.csv, .ecsv or .tex)")
     out.add_argument("--plot", metavar="FILE", help="h0(f) against the age-based limit "
@@ -80,6 +84,8 @@ def run(args):
     resolve_noise_args(args)
     target = resolve_target(args)
     setup = build_setup(args, known_sites=True)
+    if target.has_spin and not args.age_based:
+        return _known(args, target, setup, out, plot)
     if args.band is not None:
         setup = setup.replace(band=tuple(args.band))
     table = strain_sensitivity(
@@ -98,6 +104,37 @@ def run(args):
         save_figure(plot_sensitivity(table, title=target.name), plot,
                     formats=(plot.suffix.lstrip("."),))
         echo(args, f"wrote {plot}")
+    return 0
+
+
+def _known(args, target, setup, out, plot):
+    """A known pulsar: the fully coherent search over the setup's span at f_gw = 2 f_rot."""
+    import astropy.units as u
+
+    from cwlimits.cli.commands.targeted import print_known
+    from cwlimits.errors import InputError
+    from cwlimits.pulsars.expected import targeted_sensitivity
+    from cwlimits.tables import write_table
+
+    if plot is not None:
+        raise InputError("--plot draws h0(f) of a semi-coherent search; for a known pulsar "
+                         "use 'cwlimits targeted --all --plot' (or add --age-based)")
+    f_gw = 2 * target.f_rot.to_value(u.Hz)
+    width = setup.band_width.to_value(u.Hz)
+    coherent = setup.replace(t_seg=setup.total_span.to(u.day), n_seg=1, mid_times=None,
+                             span=None, band=(max(f_gw - width / 2, f_gw / 2) * u.Hz,
+                                              (f_gw + width / 2) * u.Hz))
+    echo(args, f"{target.name} is a known pulsar (f_rot = {target.f_rot:.8g}): the whole "
+               f"span {coherent.total_span.to(u.day):.6g} is searched as one coherent "
+               f"segment at f_gw = {f_gw:.8g} Hz (add --age-based for the semi-coherent "
+               "search of the setup)")
+    table = targeted_sensitivity(target, coherent, args.noise, confidence=args.confidence,
+                                 false_alarm=args.false_alarm, start=args.start, rng=0)
+    info = print_known(args, target, table, "single", 0)
+    if out is not None:
+        write_table(table, out, title=f"expected sensitivity for {target.name}",
+                    assumptions=info)
+        echo(args, f"wrote {out}")
     return 0
 
 

@@ -24,7 +24,7 @@ from cwlimits.cli.commands._common import (
 from cwlimits.cli.commands._setup_args import add_setup_args, build_setup
 from cwlimits.errors import InputError
 
-__all__ = ["ORDER", "register", "run"]
+__all__ = ["ORDER", "register", "run", "print_known"]
 
 ORDER = 52
 
@@ -173,7 +173,6 @@ def _run_all(args, out, plot):
 
 
 def run(args):
-    import astropy.units as u
 
     from cwlimits._defaults import PLOT_SUFFIXES
     from cwlimits.pulsars.expected import targeted_sensitivity
@@ -201,20 +200,28 @@ def run(args):
         orientation=args.orientation, start=args.start, n_sigma=args.n_sigma,
         fractional_width=args.fractional_width, false_alarm=args.false_alarm,
         n_noise=args.noise_draws, rng=args.seed)
-    info = dict(table.meta["assumptions"], seed=str(args.seed))
-    headers = ["harmonic", "f_gw [Hz]", "kind", "h95", "K", "templates", "cost [h]",
-               "h_sd", "h95/h_sd"]
-    rows = [[r["harmonic"], f"{r['f_gw'].to_value(u.Hz):.6g}", r["kind"], sci(r["h95"]),
-             f"{r['factor_k']:.3g}", f"{r['n_templates']:.3g}", sci(r["cost"].value),
-             sci(r["h0_spindown"]), sci(r["ratio_spindown"])] for r in table]
-    echo(args, f"known pulsar {target.name}: {args.emission} emission")
-    echo(args, format_rows(headers, rows))
-    for r in table:
-        echo(args, f"  {r['harmonic']}: {r['kind']} because {r['reason']}")
-    echo(args)
-    echo(args, format_assumptions(info))
+    info = print_known(args, target, table, args.emission, args.seed)
     if out is not None:
         write_table(table, out, title=f"expected sensitivity of a search for {target.name}",
                     assumptions=info)
         echo(args, f"wrote {out}")
     return 0
+
+
+def print_known(args, target, table, emission, seed):
+    """Print a targeted_sensitivity table, the choice of kind and the assumptions."""
+    import astropy.units as u
+
+    info = dict(table.meta["assumptions"], seed=str(seed))
+    headers = ["harmonic", "f_gw [Hz]", "kind", "h95", "K", "templates", "cost [h]",
+               "h_sd", "h95/h_sd"]
+    rows = [[r["harmonic"], f"{r['f_gw'].to_value(u.Hz):.6g}", r["kind"], sci(r["h95"]),
+             f"{r['factor_k']:.3g}", f"{r['n_templates']:.3g}", sci(r["cost"].value),
+             sci(r["h0_spindown"]), sci(r["ratio_spindown"])] for r in table]
+    echo(args, f"known pulsar {target.name}: {emission} emission")
+    echo(args, format_rows(headers, rows))
+    for r in table:
+        echo(args, f"  {r['harmonic']}: {r['kind']} because {r['reason']}")
+    echo(args)
+    echo(args, format_assumptions(info))
+    return info
