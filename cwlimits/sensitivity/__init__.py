@@ -6,15 +6,19 @@ and detection probability (:func:`strain_sensitivity`, :func:`sensitivity_depth`
 """
 
 from .model import (
+    AGE_COMPARISON,
     DEFAULT_START,
     SignalModel,
+    add_age_comparison,
     sensitivity_depth,
     signal_model,
     strain_sensitivity,
 )
 
 __all__ = [
+    "AGE_COMPARISON",
     "DEFAULT_START",
+    "add_age_comparison",
     "SignalModel",
     "signal_model",
     "strain_sensitivity",
