@@ -22,7 +22,7 @@ from cwlimits._files import FIGURE_MARK, atomic_write
 
 __all__ = ["COLUMN_WIDTH_IN", "PAGE_WIDTH_IN", "PALETTE", "PLOT_SUFFIXES", "HOUSE_STYLE",
            "house_style", "figure_metadata", "new_figure", "save_figure",
-           "save_journal_figure",
+           "save_journal_figure", "close_figure",
            "save_plot", "tidy_log_axes",
            "plot_indirect_limits",
            "plot_strain_curves", "plot_sensitivity"]
@@ -101,7 +101,7 @@ def new_figure(height_ratio=0.75, width=COLUMN_WIDTH_IN):
 MIN_LOG_LABELS = 4
 #: Mantissas of the labelled ticks, tried from sparse to dense until an axis has
 #: :data:`MIN_LOG_LABELS` labels inside its limits.
-_LOG_SUBS = ((1.0,), (1.0, 2.0, 5.0), (1.0, 2.0, 3.0, 5.0), (1.0, 2.0, 3.0, 4.0, 5.0, 7.0),
+_LOG_SUBS = ((1.0,), (1.0, 2.0, 5.0), (1.0, 2.0, 3.0, 4.0, 5.0),
              tuple(float(k) for k in range(1, 10)))
 
 
@@ -204,6 +204,11 @@ def save_journal_figure(fig, path):
     fig.set_size_inches(PAGE_WIDTH_IN, height * PAGE_WIDTH_IN / width)
     written += save_figure(fig, path.with_name(f"{path.name}_page"), formats=("pdf",))
     return written
+
+
+def close_figure(fig):
+    """Release ``fig`` from pyplot's list of open figures (if it is there)."""
+    _pyplot().close(fig)
 
 
 def save_plot(fig, path):

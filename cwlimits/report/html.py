@@ -424,7 +424,7 @@ class Report:
         ``page=True`` also ``name_page.pdf``, redrawn at the width of a journal page
         (:func:`cwlimits.plotting.figures.save_journal_figure`).
         """
-        from cwlimits.plotting.figures import save_figure, save_journal_figure
+        from cwlimits.plotting.figures import close_figure, save_figure, save_journal_figure
 
         if page:
             written = save_journal_figure(fig, self._stage / name)
@@ -438,9 +438,7 @@ class Report:
             f"<figure{wide}><img src='{name}.png' alt='{html.escape(caption or name)}'>"
             f"<figcaption>{html.escape(caption)} (<a href='{name}.pdf'>PDF</a>, "
             f"<a href='{name}.svg'>SVG</a>{extra})</figcaption></figure>")
-        import matplotlib.pyplot as plt
-
-        plt.close(fig)
+        close_figure(fig)
 
     # --- output --------------------------------------------------------------------------
     def write(self, record):
