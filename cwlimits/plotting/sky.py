@@ -67,7 +67,7 @@ def plot_sky_map(coord, values, names=None, *, frame="galactic",
     -------
     matplotlib.figure.Figure
     """
-    from matplotlib import colors
+    from matplotlib import colors, ticker
 
     plt = _pyplot()
     x, y = sky_positions(coord, frame)
@@ -106,4 +106,7 @@ def plot_sky_map(coord, values, names=None, *, frame="galactic",
                                pad=0.02)
             bar.set_label(label, fontsize=7)
             bar.ax.tick_params(labelsize=6)
+            if log:  # labels at the decades and 2, 5 times them only: no overlap
+                bar.ax.xaxis.set_major_locator(ticker.LogLocator(subs=(1.0, 2.0, 5.0)))
+                bar.ax.xaxis.set_minor_formatter(ticker.NullFormatter())
     return fig
