@@ -170,3 +170,16 @@ def test_demo_report_has_sky_map_and_pdf_figures(demo_report):
     pages = list(demo_report.glob("*_page.pdf"))
     assert pages and all(_media_box_width_in(p) == pytest.approx(PAGE_WIDTH_IN, 1e-3)
                          for p in pages)
+
+
+def test_cli_indirect_draws_the_sky_map(tmp_path, demo_catalogue_path):
+    from cwlimits.cli.app import main
+
+    out = tmp_path / "sky.pdf"
+    assert main(["-q", "indirect", str(demo_catalogue_path), "--sky-map", str(out),
+                 "--frame", "icrs"]) == 0
+    assert out.read_bytes()[:5] == b"%PDF-"  # ISO 32000-1, 7.5.2
+    # a bad suffix is refused before any work: exit 2, nothing written
+    bad = tmp_path / "sky.txt"
+    assert main(["-q", "indirect", str(demo_catalogue_path), "--sky-map", str(bad)]) == 2
+    assert not bad.exists()
