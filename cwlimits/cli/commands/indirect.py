@@ -62,13 +62,11 @@ def register(subparsers, common):
 def run(args):
     import astropy.units as u
 
+    from cwlimits._defaults import PLOT_SUFFIXES
     from cwlimits._sizes import check_size
     from cwlimits.tables import write_table
     from cwlimits.targets.catalogue import load_targets
     from cwlimits.targets.indirect import DEFAULT_EPS_FREQUENCIES, indirect_limits
-
-
-    from cwlimits._defaults import PLOT_SUFFIXES
 
     out = check_output_path(args.out)
     sky = check_output_path(args.sky_map, PLOT_SUFFIXES, "--sky-map")
