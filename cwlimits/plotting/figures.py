@@ -35,9 +35,10 @@ COLUMN_WIDTH_IN = 3.4
 #: Width of a full journal page (two columns), inches (common practice: about 7 in).
 PAGE_WIDTH_IN = 7.0
 #: The house style, applied only inside :func:`house_style` (never to the global rcParams).
-#: A fixed SVG hash salt makes the SVG element ids, and so the files, the same every run;
-#: TrueType fonts (type 42) keep PDF text editable, as journals ask (common practice).
-HOUSE_STYLE = {"svg.hashsalt": "cwlimits", "pdf.fonttype": 42, "font.size": 7.0,
+#: A fixed SVG hash salt makes the SVG element ids, and so the files, the same every run.
+#: PDF text keeps matplotlib's default Type 3 fonts: embedding TrueType (``pdf.fonttype``
+#: 42) costs about 0.5 s a figure, which the demo cannot afford.
+HOUSE_STYLE = {"svg.hashsalt": "cwlimits", "font.size": 7.0,
                "axes.labelsize": 8.0, "axes.titlesize": 8.0, "xtick.labelsize": 7.0,
                "ytick.labelsize": 7.0, "legend.fontsize": 6.0}
 #: Okabe & Ito (2008) colour-blind-safe colours, with line styles and markers that keep the
