@@ -28,6 +28,15 @@ ROOT = Path(__file__).resolve().parent.parent
 POINTS_PER_INCH = 72.0
 
 
+@pytest.fixture(autouse=True)
+def _close_figures():
+    """Close the figures each test draws (pyplot keeps them open otherwise)."""
+    yield
+    import matplotlib.pyplot as plt
+
+    plt.close("all")
+
+
 def _media_box_width_in(path):
     box = re.search(rb"/MediaBox \[\s*0 0 ([\d.]+) ([\d.]+)\s*\]", path.read_bytes())
     return float(box.group(1)) / POINTS_PER_INCH
