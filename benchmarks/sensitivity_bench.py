@@ -147,7 +147,7 @@ def _wrap_for_memory(table, shapes):
     # sensitivity imports these names into its own namespace: wrap them there.
     for name in ("strain_sensitivity", "signal_model", "count_templates", "band_psd",
                  "time_averages", "orientation_factor_rule", "estimate_sensitivity",
-                 "_mismatch_rule", "add_indirect_columns"):
+                 "_mismatch_rule", "add_age_comparison"):
         wrap(sensitivity, name, f"sensitivity.{name}")
     wrap(sensitivity.SignalModel, "signal_rule", "SignalModel.signal_rule")
     for name in ("critical_depth", "false_alarm_threshold", "_solve", "solve_log_amplitude",

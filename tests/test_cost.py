@@ -14,7 +14,8 @@ from references_cost import (
 
 from cwlimits.cli.app import main
 from cwlimits.errors import InputError
-from cwlimits.searchspace.cost import computing_cost, count_templates, plot_cost_scan, scan_cost
+from cwlimits.plotting.cost import plot_cost_scan
+from cwlimits.searchspace.cost import computing_cost, count_templates, scan_cost
 from cwlimits.searchspace.parameter_space import AgeBasedSpace, BoxSpace
 from cwlimits.searchspace.searchsetup import SearchSetup
 from cwlimits.tables import read_table

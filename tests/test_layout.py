@@ -89,3 +89,21 @@ def test_every_stage_has_a_public_face(stage):
     names = {t.id for n in tree.body if isinstance(n, ast.Assign) for t in n.targets
              if isinstance(t, ast.Name)}
     assert "__all__" in names
+
+
+def test_only_plotting_imports_matplotlib_and_nobody_picks_a_backend():
+    # STYLE.md section 1 and issue 15: plotting/ is the one matplotlib user; the library
+    # never switches a notebook's backend or changes the global style
+    found = []
+    for path, parts in _modules():
+        tree = ast.parse(path.read_text(encoding="utf-8"))
+        for node in ast.walk(tree):
+            names = ([a.name for a in node.names] if isinstance(node, ast.Import) else
+                     [node.module or ""] if isinstance(node, ast.ImportFrom) else [])
+            if any(n.split(".")[0] == "matplotlib" for n in names) and _stage(parts) != "plotting":
+                found.append(f"{path.relative_to(PACKAGE)}:{node.lineno} imports matplotlib")
+            if (isinstance(node, ast.Call) and isinstance(node.func, ast.Attribute)
+                    and node.func.attr == "use" and isinstance(node.func.value, ast.Name)
+                    and node.func.value.id == "matplotlib"):
+                found.append(f"{path.relative_to(PACKAGE)}:{node.lineno} matplotlib.use")
+    assert not found, "\n".join(found)

@@ -154,6 +154,9 @@ def main(argv=None):
         return 2
     logging.basicConfig(level=logging.INFO if args.verbose else logging.WARNING,
                         format="%(levelname)s %(name)s: %(message)s")
+    # The command line writes figures to files only: it picks the non-interactive backend
+    # (the library never does), unless the user chose one.  Set before matplotlib loads.
+    os.environ.setdefault("MPLBACKEND", "Agg")
     try:
         with allow_large(bool(getattr(args, "allow_large", False))), _user_warnings():
             return int(args.run(args) or 0)

@@ -53,7 +53,12 @@ from cwlimits.limits.results import (
     load_results,
 )
 from cwlimits.noise import DEFAULT_NOISE_MODEL
-from cwlimits.sensitivity.model import DEFAULT_START, add_indirect_columns, signal_model
+from cwlimits.sensitivity.model import (
+    AGE_COMPARISON,
+    DEFAULT_START,
+    add_age_comparison,
+    signal_model,
+)
 from cwlimits.statistics.detection import (
     QuadratureRule,
     combine_rules,
@@ -928,7 +933,7 @@ def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=No
     table["h0_limit"] = out["h0"] << u.one
     table["eps_limit"] = out["eps"] << u.one
     table["alpha_limit"] = out["alpha"] << u.one
-    add_indirect_columns(table, target, "h0_limit")
+    add_age_comparison(table, target, "h0_limit")
     if target.has_spin and target.fdot_rot is not None:
         h_sd = spindown_limit(target.f_rot, target.fdot_rot, target.distance, i_fixed
                               * u.kg * u.m**2).value
@@ -945,6 +950,7 @@ def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=No
     table.meta["assumptions"] = _assumptions(sm, results, method, confidence, prior, hmin,
                                              hmax, distance_prior, i_fixed, i_range,
                                              sampler, n_astro, target)
+    table.meta["assumptions"]["age_comparison"] = AGE_COMPARISON
     table.meta["assumptions"]["seed"] = (
         "none given (fresh entropy)" if rng is None else
         f"{rng}" if isinstance(rng, (int, np.integer)) else

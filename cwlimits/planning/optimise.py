@@ -131,6 +131,11 @@ _R2_SPAN_S = 365.25 * 86400  # span of the antenna-pattern averages of the fast 
 # Inputs
 # ---------------------------------------------------------------------------------------
 
+def _describe(noise):
+    """Plain text naming a noise model or source (never its Python repr)."""
+    return noise.describe() if hasattr(noise, "describe") else str(noise)
+
+
 def as_budget(value, name="budget"):
     """A computing budget as a Quantity in core-hours.
 
@@ -1540,7 +1545,7 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
         "indirect": "age-based limit, Wette et al. 2008 (n = 5, I = 1e38 kg m^2); "
                     "optimistic (d_min, age_min), pessimistic (d_max, age_max)",
         "statistics": f"confidence {confidence:g}, false alarm {false_alarm:g} per band; "
-                      f"noise {noise}",
+                      f"noise {_describe(noise)}",
         "meaning": "planned expected sensitivities under the stated assumptions, not "
                    "measured limits",
     }

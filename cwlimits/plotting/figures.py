@@ -1,12 +1,18 @@
 """Figures for papers and reports (the only module besides the report that uses matplotlib).
 
-Every figure is sized for a journal column (3.4 in wide), has labelled axes with units, log
-axes where the field uses them, and a legend.  Colours come from the Okabe & Ito (2008)
+Every figure is sized for a journal column (3.4 in wide; :func:`save_journal_figure` also
+redraws it at the 7 in of a page), has labelled axes with units, log axes where the field
+uses them, and a legend.  Colours come from the Okabe & Ito (2008)
 colour-blind-safe palette, and every series also differs by marker or line style, so the
 figures stay readable in greyscale.  Functions return the :class:`matplotlib.figure.Figure`;
 saving is the caller's business (see :func:`save_figure`).
+
+No function here chooses a matplotlib backend or changes the global ``rcParams``: the
+house style is applied inside :func:`house_style`, a context manager around figure
+creation and saving, and only the command line picks the backend.
 """
 
+import contextlib
 from pathlib import Path
 
 import numpy as np
@@ -14,8 +20,9 @@ import numpy as np
 from cwlimits import _defaults
 from cwlimits._files import FIGURE_MARK, atomic_write
 
-__all__ = ["COLUMN_WIDTH_IN", "PALETTE", "PLOT_SUFFIXES", "figure_metadata", "new_figure",
-           "save_figure",
+__all__ = ["COLUMN_WIDTH_IN", "PAGE_WIDTH_IN", "PALETTE", "PLOT_SUFFIXES", "HOUSE_STYLE",
+           "house_style", "figure_metadata", "new_figure", "save_figure",
+           "save_journal_figure", "close_figure",
            "save_plot", "tidy_log_axes",
            "plot_indirect_limits",
            "plot_strain_curves", "plot_sensitivity"]
@@ -25,6 +32,15 @@ PLOT_SUFFIXES = _defaults.PLOT_SUFFIXES
 
 #: Width of one journal column, inches (common practice: 3.3-3.5 in).
 COLUMN_WIDTH_IN = 3.4
+#: Width of a full journal page (two columns), inches (common practice: about 7 in).
+PAGE_WIDTH_IN = 7.0
+#: The house style, applied only inside :func:`house_style` (never to the global rcParams).
+#: A fixed SVG hash salt makes the SVG element ids, and so the files, the same every run.
+#: PDF text keeps matplotlib's default Type 3 fonts: embedding TrueType (``pdf.fonttype``
+#: 42) costs about 0.5 s a figure, which the demo cannot afford.
+HOUSE_STYLE = {"svg.hashsalt": "cwlimits", "font.size": 7.0,
+               "axes.labelsize": 8.0, "axes.titlesize": 8.0, "xtick.labelsize": 7.0,
+               "ytick.labelsize": 7.0, "legend.fontsize": 6.0}
 #: Okabe & Ito (2008) colour-blind-safe colours, with line styles and markers that keep the
 #: series apart in greyscale.
 PALETTE = (("#0072B2", "-", "o"), ("#D55E00", "--", "s"), ("#009E73", "-.", "^"),
@@ -32,44 +48,94 @@ PALETTE = (("#0072B2", "-", "o"), ("#D55E00", "--", "s"), ("#009E73", "-.", "^")
            ("#56B4E9", (0, (3, 1, 1, 1, 1, 1)), "P"), ("#000000", "-", "x"))
 
 
-def _pyplot():
+@contextlib.contextmanager
+def house_style():
+    """Apply :data:`HOUSE_STYLE` to the figures made and saved inside the block.
+
+    The global ``rcParams`` are restored on leaving (``matplotlib.rc_context``).
+    """
     import matplotlib
 
-    matplotlib.use("Agg", force=False)
-    import matplotlib.pyplot as plt
+    with matplotlib.rc_context(HOUSE_STYLE):
+        yield
 
-    # A fixed salt makes the SVG element ids, and so the files, the same run after run.
-    matplotlib.rcParams["svg.hashsalt"] = "cwlimits"
+
+def _pyplot():
+    """``matplotlib.pyplot`` (imported lazily; the backend is the caller's choice)."""
+    import matplotlib.pyplot as plt
 
     return plt
 
 
+def _width_in(width):
+    if width == "column":
+        return COLUMN_WIDTH_IN
+    if width == "page":
+        return PAGE_WIDTH_IN
+    return float(width)
+
+
 def new_figure(height_ratio=0.75, width=COLUMN_WIDTH_IN):
-    """A column-width figure and its axes, with the house style."""
+    """A figure and its axes with the house style.
+
+    Parameters
+    ----------
+    height_ratio : float
+        Height over width.
+    width : float or {'column', 'page'}
+        Width in inches, or a journal column (:data:`COLUMN_WIDTH_IN`) or page
+        (:data:`PAGE_WIDTH_IN`).
+    """
     plt = _pyplot()
-    fig, ax = plt.subplots(figsize=(width, width * height_ratio), dpi=150,
-                           layout="constrained")
+    width = _width_in(width)
+    with house_style():
+        fig, ax = plt.subplots(figsize=(width, width * height_ratio), dpi=150,
+                               layout="constrained")
     ax.tick_params(labelsize=7)
     ax.xaxis.label.set_size(8)
     ax.yaxis.label.set_size(8)
     return fig, ax
 
 
-def tidy_log_axes(ax):
-    """Readable log-axis ticks at column width: 1, 2, 5 per decade over short ranges.
+#: Fewest labelled ticks a log axis gets (common practice: at least three or four labels
+#: so a reader can interpolate).
+MIN_LOG_LABELS = 4
+#: Mantissas of the labelled ticks, tried from sparse to dense until an axis has
+#: :data:`MIN_LOG_LABELS` labels inside its limits.
+_LOG_SUBS = ((1.0,), (1.0, 2.0, 5.0), (1.0, 2.0, 3.0, 4.0, 5.0),
+             tuple(float(k) for k in range(1, 10)))
 
-    Matplotlib's default labels every minor tick of an axis spanning about a decade,
-    which overlaps at small font sizes; here short axes get major ticks at 1, 2 and 5
-    times powers of ten and no minor labels.
+
+def _plain_number(value, _pos=None):
+    """A tick label as a plain number ('50', '200', '0.5')."""
+    return f"{value:g}"
+
+
+def tidy_log_axes(ax):
+    """Readable log-axis ticks at column width.
+
+    Each log axis gets major ticks at the sparsest set of mantissas (1; 1, 2, 5;
+    1, 2, 3, 5; ...) that puts at least :data:`MIN_LOG_LABELS` labels inside its limits
+    (a 50-450 Hz axis is labelled at 50, 100, 200, 300 and 400 Hz), no minor labels, and
+    plain numbers where the values are between 0.01 and 1e5 (frequencies, segment
+    lengths) instead of powers of ten.
     """
     from matplotlib import ticker
 
     for axis, lim in ((ax.xaxis, ax.get_xlim()), (ax.yaxis, ax.get_ylim())):
         if axis.get_scale() != "log" or min(lim) <= 0:
             continue
-        decades = np.log10(max(lim) / min(lim))
-        if decades < 3:
-            axis.set_major_locator(ticker.LogLocator(subs=(1.0, 2.0, 5.0)))
+        lo, hi = min(lim), max(lim)
+        for subs in _LOG_SUBS:
+            ticks = [m * 10.0**e for e in range(int(np.floor(np.log10(lo))),
+                                                int(np.ceil(np.log10(hi))) + 1)
+                     for m in subs]
+            if sum(lo * (1 - 1e-9) <= t <= hi * (1 + 1e-9) for t in ticks) >= MIN_LOG_LABELS:
+                break
+        axis.set_major_locator(ticker.LogLocator(subs=subs, numticks=60))
+        if lo >= 1e-2 and hi <= 1e5:
+            axis.set_major_formatter(ticker.FuncFormatter(_plain_number))
+        else:
             axis.set_major_formatter(ticker.LogFormatterSciNotation(labelOnlyBase=False))
         axis.set_minor_formatter(ticker.NullFormatter())
     ax.tick_params(which="both", labelsize=6)
@@ -102,18 +168,48 @@ def save_figure(fig, path, formats=("png", "svg")):
     written = []
     engine = fig.get_layout_engine()
     try:
-        for k, fmt in enumerate(formats):
-            if k == 1 and engine is not None:
-                fig.set_layout_engine("none")  # keep the positions the first save found
-            target = path.with_suffix(f".{fmt}")
-            metadata = figure_metadata(fmt)
-            atomic_write(target, lambda handle, fmt=fmt, metadata=metadata: fig.savefig(
-                handle, format=fmt, metadata=metadata), binary=True)
-            written.append(target)
+        with house_style():
+            _save_all(fig, path, formats, engine, written)
     finally:
         if engine is not None and fig.get_layout_engine() is not engine:
             fig.set_layout_engine(engine)
     return written
+
+
+def _save_all(fig, path, formats, engine, written):
+    for k, fmt in enumerate(formats):
+        if k == 1 and engine is not None:
+            fig.set_layout_engine("none")  # keep the positions the first save found
+        target = path.with_suffix(f".{fmt}")
+        metadata = figure_metadata(fmt)
+        atomic_write(target, lambda handle, fmt=fmt, metadata=metadata: fig.savefig(
+            handle, format=fmt, metadata=metadata), binary=True)
+        written.append(target)
+
+
+def save_journal_figure(fig, path):
+    """Save ``fig`` at its own (column) width and redrawn at a journal page's width.
+
+    Files: ``path.png``, ``path.svg`` and ``path.pdf`` (vector) at the figure's width,
+    then ``<stem>_page.pdf`` at :data:`PAGE_WIDTH_IN` with the
+    same height ratio and font sizes (the layout is solved again for the new size).  The
+    figure keeps the page size afterwards.
+
+    Returns
+    -------
+    list of Path
+    """
+    path = Path(path)
+    written = save_figure(fig, path, formats=("png", "svg", "pdf"))
+    width, height = fig.get_size_inches()
+    fig.set_size_inches(PAGE_WIDTH_IN, height * PAGE_WIDTH_IN / width)
+    written += save_figure(fig, path.with_name(f"{path.name}_page"), formats=("pdf",))
+    return written
+
+
+def close_figure(fig):
+    """Release ``fig`` from pyplot's list of open figures (if it is there)."""
+    _pyplot().close(fig)
 
 
 def save_plot(fig, path):

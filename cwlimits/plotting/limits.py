@@ -1,14 +1,19 @@
 """Figures of upper limits: h0, ellipticity and r-mode amplitude per band; one posterior.
 
-matplotlib is imported lazily through :mod:`cwlimits.plotting.figures` (Agg backend); every panel
-has
-labelled axes with units, log axes for amplitudes and frequencies, and series that differ
-by colour (Okabe & Ito palette) and by line style or marker.
+matplotlib is imported lazily through :mod:`cwlimits.plotting.figures` (the backend is
+the caller's choice); every panel has labelled axes with units, log axes for amplitudes
+and frequencies, and series that differ by colour (Okabe & Ito palette) and by line style
+or marker.
 """
 
 import numpy as np
 
-from cwlimits.plotting.figures import PALETTE, new_figure, plot_sensitivity, plot_strain_curves
+from cwlimits.plotting.figures import (
+    PALETTE,
+    new_figure,
+    plot_sensitivity,
+    plot_strain_curves,
+)
 
 __all__ = ["plot_limits", "plot_astrophysical_limits", "plot_posterior", "plot_corner"]
 
@@ -42,19 +47,40 @@ def plot_limits(table, title=None):
     return fig
 
 
-def plot_astrophysical_limits(table, title=None):
+def _confidence_label(table, text):
+    conf = table.meta.get("confidence")
+    return text + (f" ({100 * conf:g} % confidence)" if conf is not None else "")
+
+
+def plot_astrophysical_limits(table, title=None, eps_indirect=None, alpha_indirect=None):
     """Ellipticity and r-mode amplitude limits against frequency: two figures.
+
+    Parameters
+    ----------
+    table : astropy.table.QTable
+        From :func:`cwlimits.limits.upper.upper_limits` (its ``meta['confidence']``
+        labels the curves).
+    title : str, optional
+    eps_indirect, alpha_indirect : Quantity, optional
+        The indirect (e.g. age-based) limit on the ellipticity and on the r-mode amplitude
+        in each band (same length as ``table``), drawn as a dashed curve: the search beats
+        it where the limit lies below.
 
     Returns
     -------
     (Figure, Figure)
         eps(f) and alpha(f), log axes.
     """
-    fig_eps = plot_strain_curves(table["f_mid"], [("ellipticity limit", table["eps_limit"])],
-                                 title=title, ylabel=r"ellipticity $\epsilon$ (dimensionless)")
-    fig_alpha = plot_strain_curves(table["f_mid"],
-                                   [("r-mode amplitude limit", table["alpha_limit"])],
-                                   title=title,
+    eps_curves = [(_confidence_label(table, "ellipticity upper limit"), table["eps_limit"])]
+    if eps_indirect is not None:
+        eps_curves.append(("age-based limit (nominal)", eps_indirect))
+    alpha_curves = [(_confidence_label(table, "r-mode amplitude upper limit"),
+                     table["alpha_limit"])]
+    if alpha_indirect is not None:
+        alpha_curves.append(("age-based r-mode limit (nominal)", alpha_indirect))
+    fig_eps = plot_strain_curves(table["f_mid"], eps_curves, title=title,
+                                 ylabel=r"ellipticity $\epsilon$ (dimensionless)")
+    fig_alpha = plot_strain_curves(table["f_mid"], alpha_curves, title=title,
                                    ylabel=r"r-mode amplitude $\alpha$ (dimensionless)")
     return fig_eps, fig_alpha
 
@@ -87,8 +113,8 @@ def plot_posterior(h0, density, limit=None, title=None, emcee_samples=None):
     ax.xaxis.get_offset_text().set_fontsize(6)
     ax.yaxis.get_offset_text().set_fontsize(6)
     ax.set_xlabel(r"$h_0$ (dimensionless strain)")
-    ax.set_ylabel(r"posterior density $p(h_0 \mid 2\mathcal{F}^*)$ "
-                  r"[per unit $h_0$, dimensionless]")
+    # Short enough not to be clipped at column width (the unit is 1 / h0, h0 dimensionless).
+    ax.set_ylabel(r"posterior $p(h_0 \mid 2\mathcal{F}^*)$ [$1/h_0$]")
     ax.legend(fontsize=6, loc="best")
     if title:
         ax.set_title(title, fontsize=8)

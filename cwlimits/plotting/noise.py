@@ -55,12 +55,11 @@ def plot_asd(sources, path, f_min=None, f_max=None, *, n_points=1000, title=None
     if not 0 < lo < hi:
         raise InputError("plot range needs 0 < f_min < f_max", value=f"{lo:g}-{hi:g} Hz")
 
-    import matplotlib
+    from cwlimits.plotting.figures import _pyplot, house_style
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    fig, ax = plt.subplots(figsize=(7, 4.5))
+    plt = _pyplot()
+    with house_style():
+        fig, ax = plt.subplots(figsize=(7, 4.5))
     for k, source in enumerate(sources):
         a = max(lo, source._f_min_hz)
         b = min(hi, source._f_max_hz)

@@ -122,6 +122,11 @@ def _expected_bayes(sums, prior, confidence, h0_prior, h0_min, n_noise, rng, gri
     return median, err, limits
 
 
+def _describe(noise):
+    """A noise source in words (its describe()), never a Python repr."""
+    return noise.describe() if hasattr(noise, "describe") else str(noise)
+
+
 def search_box(target, item, n_sigma, fractional_width, emission):
     """The narrow-band search box of one harmonic, and where it comes from.
 
@@ -339,9 +344,9 @@ def _assumptions(target, setup, model, prior, confidence, h0_prior, h0_min, n_no
         "emission": model.describe(),
         "observation": f"{','.join(setup.detectors)}, span {setup.total_span:.6g} from "
                        f"{start}, duty factor {setup.duty_factor:g}, one coherent segment",
-        "noise": "Gaussian and stationary; " + (str(noise) if not isinstance(noise, dict)
-                                                else ", ".join(f"{k}: {v}" for k, v in
-                                                               noise.items())),
+        "noise": "Gaussian and stationary; " + (_describe(noise) if not isinstance(noise, dict)
+                                                else ", ".join(f"{k}: {_describe(v)}" for k, v
+                                                               in noise.items())),
         "orientation_prior": prior.describe(),
         "targeted": f"median over {n_noise} noise-only data sets of the {confidence:.0%} "
                     f"posterior quantile of h0 ({h0_prior} prior"

@@ -31,13 +31,27 @@ from cwlimits.report.pulsars import known_pulsar_section
 from cwlimits.runtime.executor import named_seed
 from cwlimits.searchspace.cost import computing_cost, scan_cost
 from cwlimits.searchspace.searchsetup import load_setup
-from cwlimits.sensitivity.model import signal_model, strain_sensitivity
+from cwlimits.sensitivity.model import (
+    AGE_COMPARISON,
+    add_age_comparison,
+    signal_model,
+    strain_sensitivity,
+)
 from cwlimits.targets.catalogue import load_targets
 from cwlimits.targets.indirect import indirect_limits
 
 _log = logging.getLogger("cwlimits.report")
 
-__all__ = ["run_report", "simulate_results", "CAUTION", "STEPS"]
+__all__ = ["run_report", "simulate_results", "summary_table", "budget_account", "CAUTION",
+           "STEPS", "MERIT_TEXT"]
+
+#: What the ranking's figure of merit is (cwlimits.planning.optimise, measure 'integral').
+MERIT_TEXT = ("The figure of merit of a target is the integral over frequency of "
+              "max(0, ln(h_age / h0(f))) df, in Hz: h0(f) is the predicted sensitivity of "
+              "its best search setup and sub-band at the budget, h_age its age-based limit "
+              "in the ranking's distance and age case.  It grows with the width of the "
+              "band where the search beats the limit and with how far below the limit it "
+              "goes there (a band 1 Hz wide where h0 is h_age / e adds 1 Hz).")
 
 CAUTION = ("Every number in this report is an upper limit or a predicted sensitivity under "
            "the stated assumptions (moment of inertia, distance and age priors, braking-"
@@ -100,6 +114,10 @@ def run_report(config, *, echo=None, progress=None, simulate=False, overwrite=Fa
                                confidence=config["statistics.confidence"],
                                false_alarm=config["statistics.false_alarm"],
                                start=config["data.start"])
+        # The plan was made for its case's distance and age; the tables compare with the
+        # catalogue's nominal limit (and its range), as 'sensitivity' and 'limits' do.
+        sensitivities[name] = sensitivities[name].copy()
+        add_age_comparison(sensitivities[name], catalogue.target(name))
         echo(f"predicted sensitivity of {name}: {len(sensitivities[name])} bands")
     progress()
 
@@ -122,6 +140,7 @@ def run_report(config, *, echo=None, progress=None, simulate=False, overwrite=Fa
             distance_prior=config["limits.distance_prior"],
             moment_of_inertia=config["indirect.moment_of_inertia"],
             start=config["data.start"])
+        add_age_comparison(limits[name], catalogue.target(name), "h0_limit")
         echo(f"upper limits of {name}: {len(limits[name])} bands "
              f"({config['limits.method']})")
     progress()
@@ -133,20 +152,31 @@ def run_report(config, *, echo=None, progress=None, simulate=False, overwrite=Fa
                         "The search results in this report are SIMULATED from the noise "
                         "distribution with a fixed seed; they are not the output of a "
                         "real search.", caution=True)
-        _indirect_section(rep, indirect)
+        summary = summary_table(indirect, ranking, plans, sensitivities, limits,
+                                max_targets=config["planning.max_targets"])
+        notes = []
+        if ranking is not None:
+            notes.append(_budget_text(budget_account(ranking, plans)))
+        rep.summary("summary", summary, "One row per target: its indirect limit, the plan "
+                    "chosen for it and its cost, the best predicted and measured limits, "
+                    "and where the search beats the nominal age-based limit.", notes=notes)
+        _indirect_section(rep, indirect, catalogue)
         if ranking is not None:
             _ranking_section(rep, ranking, plans)
         _plan_sections(rep, plans, sensitivities)
         for name, table in limits.items():
             _limits_section(rep, config, plans[name]["target"], plans[name]["setup"],
                             results[name], table, noise, simulated=simulate,
-                            sensitivity=sensitivities[name])
+                            sensitivity=sensitivities[name],
+                            indirect=indirect[list(indirect["name"]).index(name)],
+                            nominal=catalogue.target(name))
         known_pulsar_section(rep, catalogue, noise, span=config["data.span"],
                              detectors=tuple(config["data.detectors"]),
                              duty_factor=config["data.duty_factor"], start=config["data.start"],
                              confidence=config["statistics.confidence"], seed=seed,
                              simulate=simulate, echo=echo)
-        rep.assumptions(_assumptions(config), heading="Assumptions of the whole analysis")
+        rep.assumptions(_assumptions(config, noise),
+                        heading="Assumptions of the whole analysis")
         record = {"configuration": config.resolved(), "seed": seed,
                   "inputs": {role: {"path": str(path), "sha256": file_sha256(path)}
                              for role, path in config.input_files().items()}}
@@ -198,8 +228,9 @@ def _plans(config, catalogue, noise, echo):
     return ranking, plans
 
 
-def _indirect_section(rep, table):
+def _indirect_section(rep, table, catalogue):
     from cwlimits.plotting.figures import plot_indirect_limits
+    from cwlimits.plotting.sky import plot_sky_map
 
     rep.section("Indirect limits",
                 "Age-based limits on h0 for every target at its nominal distance and "
@@ -210,6 +241,10 @@ def _indirect_section(rep, table):
     rep.figure("indirect_limits", plot_indirect_limits(table),
                caption="Indirect limits on h0 per target; bars span the catalogue ranges "
                        "of distance and age")
+    rep.figure("sky_map", plot_sky_map(catalogue.coord, table["h0_age"], catalogue.names,
+                                       frame="galactic"),
+               caption="The targets on the sky (Galactic coordinates, Mollweide "
+                       "projection), coloured by the nominal age-based limit on h0")
 
 
 def _slug(name):
@@ -220,13 +255,15 @@ def _slug(name):
 def _ranking_section(rep, ranking, plans):
     from cwlimits.plotting.planning import plot_merit_vs_budget, plot_planned_strain
 
-    rep.section("Ranking and budget split",
-                "Each target's figure of merit is the part of the band where its best "
-                "search at the budget beats its age-based limit (pessimistic distance and "
-                "age); the total budget is split across the targets by an exact dynamic "
-                "programme over a grid of budgets.")
-    rep.table("ranking", ranking.table, caption="Ranking of the targets",
-              assumptions=ranking.assumptions)
+    account = budget_account(ranking, plans)
+    rep.section("Ranking and budget split", MERIT_TEXT,
+                "The total budget is split across the targets by an exact dynamic "
+                "programme over a grid of budgets that maximises the summed figure of "
+                "merit (Notes of cwlimits.planning.optimise.rank_targets).",
+                _budget_text(account))
+    info = dict(ranking.assumptions)
+    info["budget"] = _budget_text(account)
+    rep.table("ranking", ranking.table, caption="Ranking of the targets", assumptions=info)
     rep.figure("merit_vs_budget", plot_merit_vs_budget(ranking),
                caption="Figure of merit of each target against its budget")
     evaluated = [p["plan"] for p in plans.values()
@@ -287,8 +324,24 @@ def _plot_predicted_and_measured(sensitivity, limits, name):
     return fig
 
 
+def _indirect_curves(table, indirect, target, moment_of_inertia):
+    """The nominal age-based limits on the ellipticity and r-mode amplitude per band.
+
+    eps from the age-based h0 (n = 5) and alpha from the r-mode age-based h0 (n = 7) at
+    the catalogue distance, through the same conversions as the limits
+    (:func:`cwlimits.targets.conversions.ellipticity`, ``rmode_amplitude``).
+    """
+    from cwlimits.targets.conversions import ellipticity, rmode_amplitude
+
+    f = table["f_mid"]
+    eps = ellipticity(indirect["h0_age"] * np.ones(len(f)), f, target.distance,
+                      moment_of_inertia)
+    alpha = rmode_amplitude(indirect["h0_age_rmode"] * np.ones(len(f)), f, target.distance)
+    return eps, alpha
+
+
 def _limits_section(rep, config, target, setup, results, table, noise, simulated,
-                    sensitivity):
+                    sensitivity, indirect, nominal):
     from cwlimits.plotting.limits import plot_astrophysical_limits, plot_limits, plot_posterior
 
     slug = _slug(target.name)
@@ -314,11 +367,17 @@ def _limits_section(rep, config, target, setup, results, table, noise, simulated
     rep.figure(f"predicted_and_measured_{slug}",
                _plot_predicted_and_measured(sensitivity, table, target.name),
                caption=f"Measured upper limits and predicted sensitivity of {target.name} "
-                       "against its age-based limit band")
-    for k, fig in enumerate(plot_astrophysical_limits(table, title=target.name)):
+                       "against its age-based limit band", page=True)
+    eps_age, alpha_age = _indirect_curves(table, indirect, nominal,
+                                          config["indirect.moment_of_inertia"])
+    conf = f"{100 * config['statistics.confidence']:g} %"
+    for k, fig in enumerate(plot_astrophysical_limits(table, title=target.name,
+                                                      eps_indirect=eps_age,
+                                                      alpha_indirect=alpha_age)):
         what = ("ellipticity", "r-mode amplitude")[k] if k < 2 else f"panel {k}"
         rep.figure(f"{('eps', 'alpha')[k] if k < 2 else k}_limits_{slug}", fig,
-                   caption=f"Upper limits on the {what} of {target.name}")
+                   caption=f"Upper limits ({conf} confidence) on the {what} of "
+                           f"{target.name} against its nominal age-based limit")
     limits_h0 = table["h0_limit"].value
     if np.all(np.isnan(limits_h0)):  # every band empty (no frequentist limit): no posterior
         return
@@ -361,7 +420,11 @@ def _plot_cost_scan(scan, setup, name):
     return fig
 
 
-def _assumptions(config):
+def _describe(noise):
+    return noise.describe() if hasattr(noise, "describe") else str(noise)
+
+
+def _assumptions(config, noise):
     inertia = config["indirect.moment_of_inertia"]
     return {
         "moment_of_inertia": f"{inertia.to_value(u.kg * u.m**2):.4g} kg m^2",
@@ -370,11 +433,178 @@ def _assumptions(config):
         "braking_index": f"{config['indirect.braking_index']:g} for the age-based limit; "
                          "the searched spin-down range follows the setup's braking-index "
                          "range",
-        "noise": f"Gaussian and stationary; {config['noise.model']}",
+        "noise": f"Gaussian and stationary; {_describe(noise)}",
+        "age_comparison": AGE_COMPARISON,
         "statistics": f"false alarm {config['statistics.false_alarm']:g} per band, "
                       f"confidence {config['statistics.confidence']:g}",
         "meaning": "upper limits and predictions, not detection claims",
     }
+
+
+def _ranges(f_lo, f_hi, mask):
+    """Contiguous frequency ranges where ``mask`` holds, as text ('100-180 Hz, ...')."""
+    out, k, n = [], 0, len(mask)
+    while k < n:
+        if not mask[k]:
+            k += 1
+            continue
+        j = k
+        while j + 1 < n and mask[j + 1] and np.isclose(f_hi[j], f_lo[j + 1]):
+            j += 1
+        out.append(f"{f_lo[k]:.4g}-{f_hi[j]:.4g} Hz")
+        k = j + 1
+    return ", ".join(out) or "nowhere"
+
+
+def _beats(table, h0_column):
+    f_lo = np.asarray(table["f_lo"].to_value(u.Hz))
+    f_hi = np.asarray(table["f_hi"].to_value(u.Hz))
+    beats = np.asarray(table["beats_age"], bool)
+    width = float(np.sum((f_hi - f_lo)[beats]))
+    h = np.asarray(table[h0_column].value, float)
+    best = int(np.nanargmin(h)) if np.any(np.isfinite(h)) else None
+    return width, _ranges(f_lo, f_hi, beats), best
+
+
+def budget_account(ranking, plans):
+    """Where the total budget of a ranking went, in core-hours.
+
+    Parameters
+    ----------
+    ranking : Ranking
+        From :func:`cwlimits.planning.optimise.rank_targets`.
+    plans : dict
+        The targets that got a plan in the report (name -> plan).
+
+    Returns
+    -------
+    dict of str -> Quantity or list
+        ``total``, ``planned`` (allocated to targets planned in the report), ``spent``
+        (cost of their plans), ``funded_not_planned`` (allocated to targets left out by
+        ``planning.max_targets``) with ``funded_not_planned_names``, and ``unallocated``.
+    """
+    table = ranking.table
+    budgets = np.asarray(table["budget_allocated"].to_value(u.h))
+    total = float(ranking.budgets[-1].to_value(u.h))
+    names = list(table["name"])
+    planned = [k for k, n in enumerate(names) if n in plans]
+    left = [k for k, n in enumerate(names) if n not in plans and budgets[k] > 0]
+    spent = sum(float(plans[names[k]]["plan"].cost.to_value(u.h)) for k in planned
+                if plans[names[k]]["plan"] is not None)
+    return {"total": total << u.h, "planned": float(budgets[planned].sum()) << u.h,
+            "spent": spent << u.h,
+            "funded_not_planned": float(budgets[left].sum()) << u.h,
+            "funded_not_planned_names": [names[k] for k in left],
+            # round-off of the split (a few 1e-8 core-hours) is no budget left over
+            "unallocated": (0.0 if abs(total - float(budgets.sum())) <= 1e-9 * total
+                            else total - float(budgets.sum())) << u.h}
+
+
+def _budget_text(account):
+    text = (f"Budget: {account['total'].value:.4g} core-hours in total; "
+            f"{account['planned'].value:.4g} allocated to the targets planned in this report "
+            f"(their plans cost {account['spent'].value:.4g})")
+    if account["funded_not_planned_names"]:
+        text += (f"; {account['funded_not_planned'].value:.4g} allocated by the split to "
+                 f"{', '.join(account['funded_not_planned_names'])}, which get no plan "
+                 "here because the report plans at most planning.max_targets targets "
+                 "(raise it to plan them)")
+    text += (f"; {account['unallocated'].value:.4g} not allocated (no target's figure of "
+             "merit grows with it on the budget grid).")
+    return text
+
+
+def summary_table(indirect, ranking, plans, sensitivities, limits, max_targets=None):
+    """The summary of a report: one row per target of the catalogue.
+
+    Parameters
+    ----------
+    indirect : QTable
+        From :func:`cwlimits.targets.indirect.indirect_limits`.
+    ranking : Ranking or None
+    plans, sensitivities, limits : dict
+        Per planned target: the plan, its :func:`strain_sensitivity` table and its
+        :func:`upper_limits` table (limits only where results exist).
+    max_targets : int, optional
+        The report's limit on planned targets (named in the reason of a funded target
+        left without a plan).
+
+    Returns
+    -------
+    QTable
+        ``name``, ``h0_age`` (nominal), ``h0_age_pessimistic``, ``plan`` (text),
+        ``cost`` [h], ``h0_predicted_best`` and its ``f_predicted_best`` [Hz],
+        ``h0_measured_best`` and ``f_measured_best`` [Hz], ``beats_age_width`` [Hz] and
+        ``beats_age_where`` (of the measured limits where there are any, else of the
+        prediction) and ``beats_age_basis``.
+    """
+    from astropy.table import QTable
+
+    allocated = {}
+    if ranking is not None:
+        allocated = dict(zip(ranking.table["name"],
+                             ranking.table["budget_allocated"].to_value(u.h), strict=True))
+    order = list(ranking.table["name"]) if ranking is not None else list(indirect["name"])
+    by_name = {name: k for k, name in enumerate(indirect["name"])}
+    rows = []
+    for name in order:
+        k = by_name[name]
+        row = {"name": name, "h0_age": float(indirect["h0_age"][k].value),
+               "h0_age_pessimistic": float(indirect["h0_age_pessimistic"][k].value),
+               "plan": "", "cost": np.nan, "h0_predicted_best": np.nan,
+               "f_predicted_best": np.nan, "h0_measured_best": np.nan,
+               "f_measured_best": np.nan, "beats_age_width": np.nan,
+               "beats_age_where": "", "beats_age_basis": ""}
+        if name not in plans:
+            if allocated.get(name, 0.0) > 0:
+                row["plan"] = f"funded, not planned (planning.max_targets = {max_targets})"
+            elif ranking is not None:
+                row["plan"] = "not searched (no budget in the split)"
+            else:
+                row["plan"] = f"not searched (planning.max_targets = {max_targets})"
+            rows.append(row)
+            continue
+        plan = plans[name]
+        setup = plan["setup"]
+        row["plan"] = (f"{setup.n_seg} x {setup.t_seg.to_value(u.day):.3g} d, "
+                       f"{setup.f_min.to_value(u.Hz):.4g}-{setup.f_max.to_value(u.Hz):.4g} Hz")
+        row["cost"] = (float(plan["plan"].cost.to_value(u.h)) if plan["plan"] is not None
+                       else float(computing_cost(setup, plan["target"]).total.to_value(u.h)))
+        sens = sensitivities[name]
+        width, where, best = _beats(sens, "h0")
+        if best is not None:
+            row["h0_predicted_best"] = float(sens["h0"][best].value)
+            row["f_predicted_best"] = float(sens["f_mid"][best].to_value(u.Hz))
+        row.update(beats_age_width=width, beats_age_where=where,
+                   beats_age_basis="predicted")
+        if name in limits:
+            lim = limits[name]
+            width, where, best = _beats(lim, "h0_limit")
+            if best is not None:
+                row["h0_measured_best"] = float(lim["h0_limit"][best].value)
+                row["f_measured_best"] = float(lim["f_mid"][best].to_value(u.Hz))
+            row.update(beats_age_width=width, beats_age_where=where,
+                       beats_age_basis="measured")
+        rows.append(row)
+    table = QTable()
+    units = {"h0_age": u.one, "h0_age_pessimistic": u.one, "cost": u.h,
+             "h0_predicted_best": u.one, "f_predicted_best": u.Hz, "h0_measured_best": u.one,
+             "f_measured_best": u.Hz, "beats_age_width": u.Hz}
+    for col in rows[0]:
+        values = [r[col] for r in rows]
+        table[col] = (np.array(values, float) << units[col]) if col in units else values
+    table.meta["assumptions"] = {
+        "h0_age": "nominal age-based limit (catalogue distance and age; Wette et al. 2008, "
+                  "n = 5, I = 1e38 kg m^2); h0_age_pessimistic at (d_max, age_max)",
+        "beats_age": "beats_age_width and beats_age_where: where h0 (measured upper limit "
+                     "if the target has results, else the predicted sensitivity) is below "
+                     "the nominal h0_age",
+        "cost": "computing cost of the planned search (cwlimits.computing_cost), "
+                "core-hours",
+        "meaning": "upper limits and predictions under the stated assumptions, not "
+                   "detection claims",
+    }
+    return table
 
 
 def simulate_results(model, rng=None):

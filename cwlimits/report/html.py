@@ -12,7 +12,7 @@ report is added into an existing folder and only the files of the old manifest a
 deleted.  Staging folders (``.<name>.cwlimits-stage-<run id>``, marked by a file naming
 their process) that a killed run left behind are removed by the next successful run, and
 nothing else.  Everything in it is
-local: ``index.html`` links only to files written beside it (each figure as PNG and SVG,
+local: ``index.html`` links only to files written beside it (each figure as PNG, SVG and PDF,
 each table as CSV and ECSV) and to nothing on the network.  All text from the user (target
 names, notes) is HTML-escaped.
 """
@@ -50,14 +50,23 @@ _FIXED_FILES = ("index.html", "run_record.json", MANIFEST_NAME)
 _PACKAGES = ("cwlimits", "numpy", "scipy", "astropy", "pandas", "emcee", "matplotlib", "tqdm")
 
 _CSS = """
-body { font-family: system-ui, sans-serif; max-width: 60em; margin: 2em auto; padding: 0 1em;
+body { font-family: system-ui, sans-serif; max-width: 72em; margin: 2em auto; padding: 0 1em;
        color: #111; line-height: 1.45; }
 h1 { font-size: 1.6em; } h2 { font-size: 1.25em; border-bottom: 1px solid #ccc; }
 table { border-collapse: collapse; font-size: 0.85em; margin: 0.5em 0; }
+#summary { background: #eaf2fb; border: 2px solid #0072B2; padding: 0.4em 0.8em;
+           margin: 0.5em 0 1em; }
+#summary table { font-size: 0.8em; background: #fff; }
+#summary td, #summary th { white-space: normal; padding: 0.1em 0.35em; line-height: 1.15; }
+nav.toc { font-size: 0.9em; columns: 2; } nav.toc ol { margin: 0.2em 0; }
+details { margin: 0.3em 0 0.8em; } details > summary { cursor: pointer; color: #0057a0; }
 th, td { border: 1px solid #bbb; padding: 0.2em 0.5em; text-align: right;
          white-space: nowrap; }
 th:first-child, td:first-child { text-align: left; }
-figure { margin: 1em 0; } figure img { max-width: 100%; }
+figure { margin: 0.6em 0.4em; display: inline-block; vertical-align: top;
+         width: calc(50% - 1em); }
+figure.wide { display: block; width: 100%; }
+figure img { width: 100%; height: auto; } figcaption { font-size: 0.85em; }
 .caution { background: #fff6e0; border-left: 4px solid #E69F00; padding: 0.5em 1em; }
 .assumptions { font-size: 0.9em; } .files { font-size: 0.85em; color: #444; }
 """
@@ -243,6 +252,16 @@ def _clean_stale(out_dir):
     return removed
 
 
+def _anchor(text, taken):
+    """A unique HTML id for a heading."""
+    base = "".join(c if c.isalnum() else "-" for c in text.lower()).strip("-") or "part"
+    name, k = base, 2
+    while name in taken:
+        name, k = f"{base}-{k}", k + 1
+    taken.add(name)
+    return name
+
+
 def _cell(value):
     if hasattr(value, "unit"):
         value = value.value
@@ -291,12 +310,17 @@ class Report:
         atomic_write(self._stage / _STAGE_MARK,
                      lambda handle: handle.write(json.dumps(marker, indent=2) + "\n"))
         self._parts = []
+        self._summary = []
+        self._toc = []
+        self._anchors = {"summary", "contents", "run-record"}
         self.files = []
 
     # --- content -------------------------------------------------------------------------
     def section(self, heading, *paragraphs, caution=False):
-        """A heading and paragraphs of plain text (escaped)."""
-        self._parts.append(f"<h2>{html.escape(heading)}</h2>")
+        """A heading (listed in the table of contents) and paragraphs of plain text (escaped)."""
+        anchor = _anchor(heading, self._anchors)
+        self._toc.append((anchor, heading))
+        self._parts.append(f"<h2 id='{anchor}'>{html.escape(heading)}</h2>")
         cls = ' class="caution"' if caution else ""
         for text in paragraphs:
             self._parts.append(f"<p{cls}>{html.escape(text)}</p>")
@@ -308,29 +332,76 @@ class Report:
         self._parts.append(f'<div class="assumptions"><h3>{html.escape(heading)}</h3>'
                            f"<ul>{rows}</ul></div>")
 
-    def table(self, name, table, caption="", assumptions=None, max_rows=60):
-        """Write ``table`` as ``name.csv`` and ``name.ecsv`` and show it in the page."""
-        info = dict(assumptions or table.meta.get("assumptions", {}))
+    #: Tables longer than this many rows, or wider than this many columns, are collapsed.
+    COLLAPSE_ROWS = 12
+    COLLAPSE_COLUMNS = 10
+
+    def _write_table_files(self, name, table, caption, info):
         for suffix in (".csv", ".ecsv"):
             write_table(table, self._stage / f"{name}{suffix}", assumptions=info,
                         title=caption)
             self.files.append(f"{name}{suffix}")
+        return (f"<p class='files'>Files: <a href='{name}.csv'>{name}.csv</a>, "
+                f"<a href='{name}.ecsv'>{name}.ecsv</a></p>")
+
+    @staticmethod
+    def _html_table(table, max_rows, wrap=False):
+        def name(c):  # a long column name may break after its underscores
+            return html.escape(c).replace("_", "_<wbr>") if wrap else html.escape(c)
+
         head = "".join(
-            f"<th>{html.escape(c)}"
+            f"<th>{name(c)}"
             + (f" [{html.escape(str(table[c].unit))}]" if getattr(table[c], "unit", None)
                is not None and str(table[c].unit) else "") + "</th>"
             for c in table.colnames)
         body = "".join("<tr>" + "".join(f"<td>{_cell(row[c])}</td>" for c in table.colnames)
                        + "</tr>" for row in table[:max_rows])
+        return (f"<div style='overflow-x:auto'><table><thead><tr>{head}</tr></thead>"
+                f"<tbody>{body}</tbody></table></div>")
+
+    def table(self, name, table, caption="", assumptions=None, max_rows=60, collapse=None):
+        """Write ``table`` as ``name.csv`` and ``name.ecsv`` and show it in the page.
+
+        A table of more than :attr:`COLLAPSE_ROWS` rows or :attr:`COLLAPSE_COLUMNS` columns
+        (or any with ``collapse=True``) is shown folded in an HTML ``details`` element,
+        its download links and assumptions beside it.
+        """
+        info = dict(assumptions or table.meta.get("assumptions", {}))
+        links = self._write_table_files(name, table, caption, info)
+        if collapse is None:
+            collapse = (len(table) > self.COLLAPSE_ROWS
+                        or len(table.colnames) > self.COLLAPSE_COLUMNS)
         more = (f"<p class='files'>First {max_rows} of {len(table)} rows shown.</p>"
                 if len(table) > max_rows else "")
-        self._parts.append(
-            f"<h3>{html.escape(caption or name)}</h3><div style='overflow-x:auto'>"
-            f"<table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table></div>{more}"
-            f"<p class='files'>Files: <a href='{name}.csv'>{name}.csv</a>, "
-            f"<a href='{name}.ecsv'>{name}.ecsv</a></p>")
+        title = html.escape(caption or name)
+        grid = self._html_table(table, max_rows) + more
+        if collapse:
+            self._parts.append(
+                f"<h3>{title}</h3><details class='long-table'><summary>Show the table "
+                f"({len(table)} rows, {len(table.colnames)} columns)</summary>{grid}"
+                f"</details>{links}")
+        else:
+            self._parts.append(f"<h3>{title}</h3>{grid}{links}")
         if info:
             self.assumptions(info, heading=f"Assumptions of {caption or name}")
+
+    def summary(self, name, table, caption, notes=(), assumptions=None):
+        """The summary table, shown first in the page (before the table of contents).
+
+        Written as ``name.csv`` and ``name.ecsv`` like every table; ``notes`` are short
+        paragraphs under it and ``assumptions`` (default ``table.meta['assumptions']``)
+        its assumption lines.
+        """
+        info = dict(assumptions or table.meta.get("assumptions", {}))
+        links = self._write_table_files(name, table, caption, info)
+        rows = "".join(f"<li><b>{html.escape(str(k))}</b>: {html.escape(str(v))}</li>"
+                       for k, v in info.items())
+        self._summary.append(
+            f"<section id='summary'><h2>Summary</h2><p>{html.escape(caption)}</p>"
+            + self._html_table(table, len(table), wrap=True)
+            + "".join(f"<p>{html.escape(text)}</p>" for text in notes)
+            + links + (f"<div class='assumptions'><ul>{rows}</ul></div>" if rows else "")
+            + "</section>")
 
     def file(self, name, write, caption=""):
         """Write a file beside the page with ``write(path)`` and link it.
@@ -345,19 +416,29 @@ class Report:
         self._parts.append(f"<p class='files'>{html.escape(caption or 'File')}: "
                            f"<a href='{html.escape(name)}'>{html.escape(name)}</a></p>")
 
-    def figure(self, name, fig, caption=""):
-        """Save ``fig`` as ``name.png`` and ``name.svg`` and show it in the page."""
-        from cwlimits.plotting.figures import save_figure
+    def figure(self, name, fig, caption="", page=False):
+        """Save ``fig`` and show it in the page.
 
-        save_figure(fig, self._stage / name)
-        self.files += [f"{name}.png", f"{name}.svg"]
+        Files: ``name.png``, ``name.svg`` and ``name.pdf`` (vector) at the figure's own
+        width (a journal column for most figures of :mod:`cwlimits.plotting`); with
+        ``page=True`` also ``name_page.pdf``, redrawn at the width of a journal page
+        (:func:`cwlimits.plotting.figures.save_journal_figure`).
+        """
+        from cwlimits.plotting.figures import close_figure, save_figure, save_journal_figure
+
+        if page:
+            written = save_journal_figure(fig, self._stage / name)
+        else:
+            written = save_figure(fig, self._stage / name, formats=("png", "svg", "pdf"))
+        self.files += [path.name for path in written]
+        extra = f"; page width: <a href='{name}_page.pdf'>PDF</a>" if page else ""
+        # A figure wider than a column (a map) gets the page's width, others half of it.
+        wide = " class='wide'" if fig.get_size_inches()[0] > 5 else ""
         self._parts.append(
-            f"<figure><img src='{name}.png' alt='{html.escape(caption or name)}'>"
-            f"<figcaption>{html.escape(caption)} (<a href='{name}.svg'>SVG</a>)"
-            "</figcaption></figure>")
-        import matplotlib.pyplot as plt
-
-        plt.close(fig)
+            f"<figure{wide}><img src='{name}.png' alt='{html.escape(caption or name)}'>"
+            f"<figcaption>{html.escape(caption)} (<a href='{name}.pdf'>PDF</a>, "
+            f"<a href='{name}.svg'>SVG</a>{extra})</figcaption></figure>")
+        close_figure(fig)
 
     # --- output --------------------------------------------------------------------------
     def write(self, record):
@@ -383,9 +464,11 @@ class Report:
                    json.dumps(record, indent=2, sort_keys=True, default=str) + "\n")
         page = ("<!DOCTYPE html>\n<html lang='en'><head><meta charset='utf-8'>"
                 f"<title>{html.escape(self.title)}</title><style>{_CSS}</style></head><body>"
-                f"<h1>{html.escape(self.title)}</h1>" + "\n".join(self._parts)
-                + "<h2>Run record</h2><p class='files'>Everything needed to rerun this "
-                  "report exactly is in <a href='run_record.json'>run_record.json</a>.</p>"
+                f"<h1>{html.escape(self.title)}</h1>" + "\n".join(self._summary)
+                + self._contents() + "\n".join(self._parts)
+                + "<h2 id='run-record'>Run record</h2><p class='files'>Everything needed "
+                  "to rerun this report exactly is in <a href='run_record.json'>"
+                  "run_record.json</a>.</p>"
                   "</body></html>\n")
         self._text("index.html", page)
         names = sorted(set(self.files) | {"index.html", "run_record.json"})
@@ -398,6 +481,14 @@ class Report:
         self._replace(names)
         _clean_stale(self.out_dir)
         return self.out_dir
+
+    def _contents(self):
+        """The table of contents: the summary, every section, the run record."""
+        entries = ([("summary", "Summary")] if self._summary else []) + self._toc \
+            + [("run-record", "Run record")]
+        items = "".join(f"<li><a href='#{anchor}'>{html.escape(text)}</a></li>"
+                        for anchor, text in entries)
+        return f"<nav class='toc' id='contents'><h2>Contents</h2><ol>{items}</ol></nav>"
 
     def _text(self, name, text):
         atomic_write(self._stage / name, lambda handle: handle.write(text))

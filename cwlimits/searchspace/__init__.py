@@ -7,12 +7,10 @@ per band.
 """
 
 from .cost import (
-    PLOT_SUFFIXES,
     SCAN_QUANTITIES,
     CostEstimate,
     computing_cost,
     count_templates,
-    plot_cost_scan,
     resolve_space,
     scan_cost,
 )
@@ -54,10 +52,8 @@ __all__ = [
     "computing_cost",
     "CostEstimate",
     "scan_cost",
-    "plot_cost_scan",
     "resolve_space",
     "SCAN_QUANTITIES",
-    "PLOT_SUFFIXES",
     "Lattice",
     "LATTICE_NAMES",
     "get_lattice",

@@ -44,7 +44,6 @@ from astropy.table import QTable
 
 from cwlimits._units import to_value
 from cwlimits.errors import InputError
-from cwlimits.plotting.figures import PLOT_SUFFIXES
 from cwlimits.searchspace.lattices import get_lattice
 from cwlimits.searchspace.metric import (
     _segments,
@@ -59,9 +58,7 @@ from cwlimits.searchspace.parameter_space import (
 )
 
 __all__ = ["count_templates", "computing_cost", "CostEstimate", "scan_cost",
-           "plot_cost_scan", "resolve_space", "SCAN_QUANTITIES", "PLOT_SUFFIXES"]
-
-#: File types :func:`plot_cost_scan` writes.
+           "resolve_space", "SCAN_QUANTITIES"]
 
 #: What :func:`scan_cost` can scan.
 SCAN_QUANTITIES = ("t_seg", "n_seg")
@@ -381,64 +378,3 @@ def scan_cost(setup, target_or_space, quantity, values, bands=None):
         if quantity == "t_seg" and setup.span is not None else ""))
     table.meta["assumptions"] = assumptions
     return table
-
-
-def plot_cost_scan(scan, quantity, path, *, title=None):
-    """Plot the total cost of a :func:`scan_cost` table against the scanned quantity.
-
-    Log axes; the coherent and semi-coherent parts and the total are drawn with different
-    line styles and markers (readable in greyscale).
-
-    Parameters
-    ----------
-    scan : astropy.table.QTable
-        The output of :func:`scan_cost`.
-    quantity : {'t_seg', 'n_seg'}
-        The scanned column.
-    path : str or Path
-        ``.png``, ``.pdf`` or ``.svg``; written atomically.
-    title : str, optional
-        Plot title.
-
-    Returns
-    -------
-    Path
-    """
-    from pathlib import Path
-
-    from cwlimits.plotting.figures import save_plot
-
-    path = Path(path)
-    if path.suffix.lower() not in PLOT_SUFFIXES:
-        raise InputError(f"plot file must end in {', '.join(PLOT_SUFFIXES)}", file=str(path))
-    if quantity not in SCAN_QUANTITIES:
-        raise InputError(f"can plot only {' or '.join(SCAN_QUANTITIES)}", value=quantity)
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-    import matplotlib.ticker
-
-    x = np.asarray(scan[quantity].to_value(u.day) if quantity == "t_seg" else scan[quantity],
-                   float)
-    fig, ax = plt.subplots(figsize=(6.5, 4.5))
-    for column, label, style, marker in (("cost", "total", "-", "o"),
-                                         ("cost_coh", "coherent stage", "--", "s"),
-                                         ("cost_semi", "semi-coherent stage", ":", "^")):
-        y = scan[column].to_value(u.h)
-        ok = y > 0
-        ax.loglog(x[ok], y[ok], linestyle=style, marker=marker, color="k" if column ==
-                  "cost" else None, label=label)
-    ax.set_xlabel("coherent segment length T_seg [day]" if quantity == "t_seg"
-                  else "number of segments N_seg")
-    ax.set_ylabel("computing cost [core-hours]")
-    # label the scanned values themselves (plain numbers; a scan rarely spans two decades)
-    if len(x) <= 12:
-        ax.set_xticks(x, [f"{v:.3g}" for v in x])
-        ax.xaxis.set_minor_formatter(matplotlib.ticker.NullFormatter())
-    ax.grid(True, which="both", alpha=0.3)
-    ax.legend()
-    if title:
-        ax.set_title(title)
-    fig.tight_layout()
-    return save_plot(fig, path)

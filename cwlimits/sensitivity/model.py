@@ -55,7 +55,9 @@ from cwlimits.statistics.detection import (
 from cwlimits.targets.indirect import age_limit, limit_range
 
 __all__ = [
+    "AGE_COMPARISON",
     "DEFAULT_START",
+    "add_age_comparison",
     "SignalModel",
     "signal_model",
     "strain_sensitivity",
@@ -422,12 +424,9 @@ def strain_sensitivity(setup, noise, bands=None, target=None, *, confidence=0.95
                        " segments)",
         "meaning": "expected sensitivity of the search, not a measured limit",
     })
-    if target is not None:
-        add_indirect_columns(table, target)
-        info["indirect"] = ("h0_age: age-based limit (Wette et al. 2008, n = 5, "
-                            "I = 1e38 kg m^2); optimistic/pessimistic over the distance "
-                            "and age ranges")
     table.meta["assumptions"] = info
+    if target is not None:
+        add_age_comparison(table, target)
     table.meta["n_seg"] = sm.n_seg
     table.meta["t_data"] = str(sm.t_data.to(u.day))
     return table
@@ -475,8 +474,31 @@ def _depths(sm, threshold_sum, confidence):
     return depth
 
 
-def add_indirect_columns(table, target, h0_column="h0"):
-    """Columns comparing ``h0_column`` with the target's age-based limit."""
+#: What the age-based comparison columns mean (one text for every table that has them).
+AGE_COMPARISON = ("h0_age: nominal age-based limit (catalogue distance and age; Wette et al. "
+                  "2008, n = 5, I = 1e38 kg m^2); h0_age_optimistic: (d_min, age_min); "
+                  "h0_age_pessimistic: (d_max, age_max); age_ratio = h0_age / h0 and "
+                  "beats_age (h0 < h0_age) use the nominal h0_age")
+
+
+def add_age_comparison(table, target, h0_column="h0"):
+    """Add the columns comparing ``h0_column`` with ``target``'s age-based limit.
+
+    Columns: ``h0_age`` (nominal: the target's distance and age), ``h0_age_optimistic``
+    (nearest, youngest), ``h0_age_pessimistic`` (farthest, oldest), ``age_ratio`` =
+    ``h0_age / h0`` and ``beats_age`` (``h0 < h0_age``); the ratio and the flag use the
+    nominal limit.  Existing columns of these names are replaced, so a table made for one
+    distance/age case can be compared with the catalogue's values.  The meaning is recorded
+    in ``table.meta['assumptions']['age_comparison']`` (:data:`AGE_COMPARISON`).
+
+    Parameters
+    ----------
+    table : astropy.table.QTable
+        With the column ``h0_column`` (dimensionless strain); changed in place.
+    target : Target
+        Its ``distance``, ``age`` and their ranges set the three limits.
+    h0_column : str
+    """
     age = getattr(target, "age", None)
     if age is None or not np.isfinite(u.Quantity(age).value):
         # a known pulsar without an age: no age-based limit (NaN columns, beats nothing)
@@ -484,6 +506,9 @@ def add_indirect_columns(table, target, h0_column="h0"):
         for col in ("h0_age", "h0_age_optimistic", "h0_age_pessimistic", "age_ratio"):
             table[col] = np.full(n, np.nan) << u.one
         table["beats_age"] = np.zeros(n, bool)
+        info = dict(table.meta.get("assumptions", {}))
+        info["age_comparison"] = "no age: no age-based limit (columns empty)"
+        table.meta["assumptions"] = info
         return
     nominal = age_limit(target.distance, target.age)
     optimistic, pessimistic = limit_range((target.distance_min, target.distance_max),
@@ -497,6 +522,9 @@ def add_indirect_columns(table, target, h0_column="h0"):
     with np.errstate(divide="ignore", invalid="ignore"):
         table["age_ratio"] = np.where(h > 0, nominal.value / h, np.nan) << u.one
     table["beats_age"] = (h > 0) & (h < nominal.value)
+    info = dict(table.meta.get("assumptions", {}))
+    info["age_comparison"] = AGE_COMPARISON
+    table.meta["assumptions"] = info
 
 
 def sensitivity_depth(setups, noise=None, target=None, bands=None, *, confidence=0.95,

@@ -139,7 +139,8 @@ def _scan_values(args, setup):
 
 def run(args):
     """Run ``cwlimits cost``."""
-    from cwlimits.searchspace.cost import computing_cost, plot_cost_scan, scan_cost
+    from cwlimits.plotting.cost import plot_cost_scan
+    from cwlimits.searchspace.cost import computing_cost, scan_cost
     from cwlimits.tables import write_table
 
     out = check_output_path(args.out)

@@ -33,7 +33,8 @@ def register(subparsers, common):
                   "cwlimits indirect target_lists/demo.csv --braking-index 3 "
                   "--out limits.ecsv",
                   "cwlimits indirect my_targets.csv --moment-of-inertia '2e38 kg m2' "
-                  "--seed 1 --out limits.csv"])
+                  "--seed 1 --out limits.csv",
+                  "cwlimits indirect target_lists/demo.csv --sky-map sky.pdf --frame icrs"])
     parser.add_argument("catalogue", metavar="CATALOGUE", help="target catalogue (CSV/ECSV)")
     parser.add_argument("--braking-index", type=float, default=None, metavar="N",
                         help="braking index of the age-based limit (default 5)")
@@ -50,19 +51,25 @@ def register(subparsers, common):
     parser.add_argument("--samples", type=int, default=10000,
                         help="Monte-Carlo draws per target with --seed (default 10000)")
     parser.add_argument("--out", metavar="FILE", help="write the table (.csv, .ecsv or .tex)")
+    parser.add_argument("--sky-map", metavar="FILE",
+                        help="draw the targets on an all-sky map coloured by the nominal "
+                             "age-based limit (.png, .svg, .pdf)")
+    parser.add_argument("--frame", choices=("galactic", "icrs"), default="galactic",
+                        help="coordinates of the sky map (default galactic)")
     parser.set_defaults(run=run)
 
 
 def run(args):
     import astropy.units as u
 
+    from cwlimits._defaults import PLOT_SUFFIXES
     from cwlimits._sizes import check_size
     from cwlimits.tables import write_table
     from cwlimits.targets.catalogue import load_targets
     from cwlimits.targets.indirect import DEFAULT_EPS_FREQUENCIES, indirect_limits
 
-
     out = check_output_path(args.out)
+    sky = check_output_path(args.sky_map, PLOT_SUFFIXES, "--sky-map")
     catalogue = load_targets(args.catalogue)
     if args.seed is not None:
         if args.samples < 1:
@@ -86,6 +93,13 @@ def run(args):
         write_table(table, out, title=f"indirect limits for {args.catalogue}",
                     assumptions=table.meta["assumptions"])
         echo(args, f"wrote {out}")
+    if sky is not None:
+        from cwlimits.plotting.figures import save_plot
+        from cwlimits.plotting.sky import plot_sky_map
+
+        save_plot(plot_sky_map(catalogue.coord, table["h0_age"], catalogue.names,
+                               frame=args.frame), sky)
+        echo(args, f"wrote {sky}")
     return 0
 
 

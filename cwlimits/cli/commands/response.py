@@ -1,6 +1,5 @@
 """``cwlimits response``: a network's response to a CW source at a sky position."""
 
-import io
 import re
 import warnings
 
@@ -275,42 +274,7 @@ def _write(out, detectors, averages, network, single, assumptions):
 
 
 def _plot(path, detectors, coord, start):
-    import astropy.units as u
-    import matplotlib
-    import numpy as np
+    from cwlimits.plotting.response import plot_amplitude_modulation, save_plot_bytes
 
-    from cwlimits.response import antenna as resp
-
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    from cwlimits.plotting.figures import figure_metadata
-
-    hours = np.linspace(0.0, resp.SIDEREAL_DAY.to_value(u.h), 289)
-    times = start + hours * u.h
-    # Okabe-Ito colours plus line styles and markers: readable in greyscale too.
-    colours = ["#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9"]
-    markers = ["o", "s", "^", "D", "v", "P"]
-    fig, ax = plt.subplots(figsize=(7.0, 4.2))
-    for i, det in enumerate(detectors):
-        a, b = resp.amplitude_modulation(det, coord, times)
-        colour, marker = colours[i % len(colours)], markers[i % len(markers)]
-        ax.plot(hours, a.value, color=colour, linestyle="-", marker=marker, markevery=24,
-                label=f"{det.name} a(t)")
-        ax.plot(hours, b.value, color=colour, linestyle="--", marker=marker,
-                markevery=(12, 24), fillstyle="none", label=f"{det.name} b(t)")
-    ax.set_xlabel(f"time since {start.iso[:19]} UTC [h]")
-    ax.set_ylabel("amplitude modulation a(t), b(t) [dimensionless]")
-    ax.set_title("Amplitude modulation over one sidereal day (JKS 1998)")
-    ax.set_xlim(hours[0], hours[-1])
-    ax.grid(True, alpha=0.3)
-    ax.legend(fontsize="small", ncol=2)
-    fig.tight_layout()
-    buffer = io.BytesIO()
-    try:
-        fmt = path.suffix.lstrip(".").lower()
-        fig.savefig(buffer, format=fmt, metadata=figure_metadata(fmt))
-    finally:
-        plt.close(fig)
-    return buffer.getvalue()
+    fig = plot_amplitude_modulation(detectors, coord, start)
+    return save_plot_bytes(fig, path.suffix.lstrip(".").lower())
