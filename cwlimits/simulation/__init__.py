@@ -6,82 +6,17 @@ h0; :mod:`.mocksearch` is the directed mock search of a setup (barycentric resam
 lattice template banks, StackSlide).
 """
 
-from .campaigns import (
-    DEFAULT_CAMPAIGN_CHUNK,
-    MAX_SAMPLES_PER_INJECTION,
-    CampaignResult,
-    injection_campaign,
-    plot_efficiency,
-    simulation_layout,
-)
-from .fstat import (
-    AmplitudeEstimate,
-    FstatResult,
-    estimate_amplitudes,
-    expected_rho2,
-    invert_amplitudes,
-    measure_unit_costs,
-    noise_levels,
-    stackslide_fstat,
-)
-from .mockcampaign import MockCampaignResult, mock_campaign, mock_layout
-from .mocksearch import (
-    BarycentricData,
-    MockSearchResult,
-    TemplateBank,
-    demodulated_fstat,
-    lattice_rows,
-    mock_search,
-    resample_to_barycentre,
-    resampled_direct_fstat,
-)
-from .synthetic import (
-    BandData,
-    CWSignal,
-    barycentric_delay,
-    gap_mask,
-    heterodyne,
-    inject,
-    simulate_noise,
-    simulate_real_noise,
-    simulate_real_signal,
-    simulate_signal,
-)
+from cwlimits.simulation import campaigns, fstat, mockcampaign, mocksearch, synthetic
+from cwlimits.simulation.campaigns import *  # noqa: F403
+from cwlimits.simulation.fstat import *  # noqa: F403
+from cwlimits.simulation.mockcampaign import *  # noqa: F403
+from cwlimits.simulation.mocksearch import *  # noqa: F403
+from cwlimits.simulation.synthetic import *  # noqa: F403
 
 __all__ = [
-    "CampaignResult",
-    "injection_campaign",
-    "simulation_layout",
-    "plot_efficiency",
-    "DEFAULT_CAMPAIGN_CHUNK",
-    "MAX_SAMPLES_PER_INJECTION",
-    "FstatResult",
-    "AmplitudeEstimate",
-    "noise_levels",
-    "stackslide_fstat",
-    "estimate_amplitudes",
-    "invert_amplitudes",
-    "expected_rho2",
-    "measure_unit_costs",
-    "BandData",
-    "CWSignal",
-    "simulate_noise",
-    "simulate_signal",
-    "inject",
-    "simulate_real_noise",
-    "simulate_real_signal",
-    "heterodyne",
-    "gap_mask",
-    "barycentric_delay",
-    "BarycentricData",
-    "TemplateBank",
-    "MockSearchResult",
-    "resample_to_barycentre",
-    "lattice_rows",
-    "mock_search",
-    "resampled_direct_fstat",
-    "demodulated_fstat",
-    "MockCampaignResult",
-    "mock_campaign",
-    "mock_layout",
+    *campaigns.__all__,
+    *fstat.__all__,
+    *mockcampaign.__all__,
+    *mocksearch.__all__,
+    *synthetic.__all__,
 ]
