@@ -1184,6 +1184,9 @@ class Ranking:
     plans : dict of str -> SearchPlan
         The plan at the allocated budget of each target that gets any.
     assumptions : dict
+    known_plans : dict of str -> KnownPulsarPlan
+        Every known pulsar's plan, funded or not (its expected-limit table is reused by
+        the report).
     """
 
     table: QTable
@@ -1192,6 +1195,7 @@ class Ranking:
     names: list
     plans: dict
     assumptions: dict
+    known_plans: dict = field(default_factory=dict)
 
 
 def _rank_one(chunk, rng, *, targets, noise, span, total_h, per_target_h, steps, measure,
@@ -1562,4 +1566,4 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
     table.meta["assumptions"] = assumptions
     budgets = (rest.value * np.arange(steps + 1) / steps) << u.h
     return Ranking(table=table, budgets=budgets, merits=merits, names=names, plans=built,
-                   assumptions=assumptions)
+                   assumptions=assumptions, known_plans=known_plans)
