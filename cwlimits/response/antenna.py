@@ -43,6 +43,7 @@ from astropy.utils import iers
 from scipy.interpolate import CubicSpline
 from scipy.special import roots_legendre
 
+from cwlimits._random import as_generator
 from cwlimits._time import QuietTime, as_time
 from cwlimits._toml import load_toml
 from cwlimits._units import parse_quantity, to_value
@@ -1255,7 +1256,7 @@ def orientation_factor_samples(source, coord=None, start=None, span=None, *, dut
     ----------
     Jaranowski, Krolak & Schutz 1998, gr-qc/9804014.
     """
-    rng = np.random.default_rng(rng)
+    rng = as_generator(rng)
     n = int(n)
     if n < 1:
         raise InputError("n must be a positive number of samples", value=n)
