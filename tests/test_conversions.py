@@ -89,3 +89,31 @@ def test_rmode_star_parameters_override():
 def test_bad_arguments(call, match):
     with pytest.raises(cwlimits.CwlimitsError, match=match):
         call()
+
+
+def test_conversion_table_columns_gaps_and_range():
+    # the table of 'cwlimits convert': each column is the published conversion (Abbott et al.
+    # 2010, arXiv:0909.3583, eps = 0.237 at h0 = 1e-24, f_rot = 1 Hz, d = 1 kpc; Owen 2010,
+    # arXiv:1006.1994, eq. 24, alpha = 0.028 at h0 = 1e-24, 100 Hz, 1 kpc), linear in d
+    from cwlimits.targets.conversions import conversion_table
+
+    f = [2.0, 100.0, 100.0] * u.Hz
+    t = conversion_table(f, [1e-24, 1e-24, np.nan], 1 * u.kpc,
+                         distance_range=(1 * u.kpc, 2 * u.kpc))
+    assert t.colnames == ["f_gw", "h0", "eps", "q22", "alpha_rmode", "eps_min", "eps_max",
+                          "alpha_rmode_min", "alpha_rmode_max"]
+    assert t["eps"][0].value == pytest.approx(ELLIPTICITY_COEFFICIENT.value,
+                                              rel=ELLIPTICITY_COEFFICIENT.rtol)
+    assert t["alpha_rmode"][1].value == pytest.approx(RMODE_COEFFICIENT.value,
+                                                      rel=RMODE_COEFFICIENT.rtol)
+    # Q22 = sqrt(15/(8 pi)) I eps (Owen 2005, astro-ph/0503399), I = 1e38 kg m^2
+    assert t["q22"][0].to_value(KG_M2) == pytest.approx(
+        np.sqrt(15 / (8 * np.pi)) * 1e38 * t["eps"][0].value, rel=1e-12)
+    assert t["eps_max"][0] == pytest.approx(2 * t["eps_min"][0], rel=1e-12)
+    # a band without a limit stays empty in every converted column
+    assert all(np.isnan(t[c][2].value) for c in t.colnames[2:])
+    assert "Owen 2010" in t.meta["assumptions"]["rmode_star"]
+    with pytest.raises(cwlimits.errors.InputError, match="DMIN"):
+        conversion_table(f, 1e-24, 1 * u.kpc, distance_range=(2 * u.kpc, 1 * u.kpc))
+    with pytest.raises(cwlimits.errors.InputError, match="non-negative"):
+        conversion_table(f, -1e-24, 1 * u.kpc)

@@ -837,3 +837,32 @@ def test_per_detector_noise_and_noise_kind_on_the_command_line(tmp_path, capsys)
         code, out = _noise_cli(tmp_path, *args)
         err = capsys.readouterr().err
         assert code == 2 and message in err and err.startswith("error:")
+
+
+def test_psd_table_of_white_noise():
+    # one-sided PSD of white noise of variance s^2 sampled at fs is 2 s^2 / fs (common
+    # practice; scipy.signal.welch's 'density' scaling): the median floor of the estimate
+    # sits at WHITE_PSD; the band PSD is a harmonic mean of noisy bins, so it lies below
+    # their arithmetic mean (AM-HM inequality) and below WHITE_PSD by about the bins'
+    # relative variance (~1/32 here: 32 segments), well within 15 %
+    from cwlimits.noise import psd_table
+
+    x = white(int(FS_HZ * 128), seed=21)
+    est = estimate_psd(x, FS_HZ * u.Hz, segment=4 * u.s, overlap=0.0, window="boxcar")
+    f_lo = np.array([50.0, 150.0, 250.0]) * u.Hz
+    table = psd_table(est, f_lo, f_lo + 50 * u.Hz)
+    assert table.colnames == ["f_lo", "f_hi", "psd", "asd", "psd_floor"]
+    np.testing.assert_allclose(table["asd"].value ** 2, table["psd"].value, rtol=1e-12)
+    np.testing.assert_allclose(table["psd"].to_value(PSD), WHITE_PSD, rtol=0.15)
+    f, nodes = est.frequency.to_value(u.Hz), est.psd_nodes.to_value(PSD)
+    for row in table:
+        inside = (f >= row["f_lo"].value) & (f < row["f_hi"].value)
+        # the harmonic mean of the node values (scipy.stats.hmean), to the interpolation
+        # between nodes (200 nodes a band: ~1 %)
+        assert row["psd"].to_value(PSD) == pytest.approx(scipy.stats.hmean(nodes[inside]),
+                                                         rel=0.02)
+        assert row["psd"].to_value(PSD) <= np.mean(nodes[inside])
+    np.testing.assert_allclose(table["psd_floor"].to_value(PSD), WHITE_PSD, rtol=0.05)
+    assert "harmonic mean" in table.meta["assumptions"]["band_psd"]
+    analytic = psd_table(noise_model("second-gen-fit"), f_lo, f_lo + 50 * u.Hz)
+    assert "psd_floor" not in analytic.colnames

@@ -424,6 +424,22 @@ def test_rank_cli_resumes_from_its_store(tmp_path, capsys):
         assert len(store.chunk_log()) == computed  # nothing computed twice
 
 
+def test_cost_depth_tradeoff_is_monotone_and_within_budget(target):
+    # Prix & Shaltev 2012, arXiv:1201.4321: the optimal depth grows with the computing cost,
+    # and no plan spends more than its budget (common practice)
+    full = P.plan_search(target, NOISE, "300 h", SPAN, exact=False, **OPTIONS)
+    plans = P.cost_depth_tradeoff(target, NOISE, "300 h", SPAN, plan=full, exact=False,
+                                  **OPTIONS)
+    assert len(plans) == len(P.TRADE_OFF_FACTORS) and plans[-1] is full
+    for plan, factor in zip(plans, P.TRADE_OFF_FACTORS, strict=True):
+        assert plan.objective == "depth"
+        assert plan.cost.to_value(u.h) <= 300 * factor * (1 + 1e-9)
+    merits = [p.merit_planned.value for p in plans]
+    assert all(b >= a * (1 - 1e-6) for a, b in itertools.pairwise(merits))
+    with pytest.raises(InputError, match=r"\(0, 1\]"):
+        P.cost_depth_tradeoff(target, NOISE, "300 h", SPAN, factors=(0.5, 2.0), **OPTIONS)
+
+
 def test_trade_off_plot(tmp_path, demo_catalogue_path_module):
     rc = main(["plan", "--catalogue", str(demo_catalogue_path_module), "--target",
                "Fict Quill", "--budget", "300 h", "--span", "40 day", "--noise", NOISE,

@@ -763,3 +763,24 @@ def test_network_abc_per_band_matches_network_averages_of_each_weighting():
     assert float(one.A) == pytest.approx(float(alone.A), rel=1e-12)
     with pytest.raises(InputError, match="one positive weight per detector"):
         av.network_abc(np.ones(3))
+
+
+def test_response_table_rows_and_orientation_mean():
+    # <R^2> over uniform cos(iota) in [-1, 1] and psi is 2 (A + B) / 5 (average of the
+    # alpha_1, alpha_2 weights of Jaranowski, Krolak & Schutz 1998, gr-qc/9804014; alpha_3
+    # averages to zero), per detector and for the network; D = A B - C^2 (JKS Sect. III)
+    av = resp.time_averages("H1,L1", POSITION, START, 10 * u.day, duty=0.8)
+    table = resp.response_table(av, order=16, quantiles=(0.1, 0.5, 0.9))
+    assert list(table["detector"]) == ["H1", "L1", "network"]
+    assert [c for c in table.colnames if c.startswith("R2_q")] == ["R2_q10", "R2_q50",
+                                                                   "R2_q90"]
+    for i in range(3):
+        source = av if i == 2 else av.for_detector(i)
+        a, b, c = (float(x) for x in (source.A, source.B, source.C))
+        assert table["R2_mean"][i].value == pytest.approx(2 * (a + b) / 5, rel=1e-6)
+        q10, q50, q90 = (table[k][i].value for k in ("R2_q10", "R2_q50", "R2_q90"))
+        assert q10 <= q50 <= q90
+    d = table["mean_a2"] * table["mean_b2"] - table["mean_ab"] ** 2
+    np.testing.assert_allclose(table["determinant"].value, d.value, rtol=1e-12)
+    assert table["t_data"][2].to_value(u.d) == pytest.approx(2 * 8.0, rel=1e-12)
+    assert np.isnan(table["latitude"][2].value)

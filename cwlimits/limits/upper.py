@@ -43,6 +43,7 @@ from astropy.table import QTable
 from scipy import integrate, interpolate, stats
 from scipy.optimize import elementwise
 
+from cwlimits._random import as_generator, seed_sequence
 from cwlimits._units import fraction
 from cwlimits.errors import ComputationError, CoverageWarning, CwlimitsWarning, InputError
 from cwlimits.limits.results import (
@@ -898,7 +899,7 @@ def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=No
     n = len(results)
     # The seed goes to map_chunks, which spawns one stream per chunk (SeedSequence), so the
     # numbers do not depend on the executor; None keeps the entropy recorded in a store.
-    seed = _seed_of(rng)
+    seed = seed_sequence(rng)
     d_nom, d_min, d_max = (target.distance.to_value(u.kpc), target.distance_min.to_value(
         u.kpc), target.distance_max.to_value(u.kpc))
     common = dict(n_seg=sm.n_seg, confidence=confidence, d_nom=d_nom, d_min=d_min,
@@ -1024,22 +1025,6 @@ def _mark_gaps(table, results, setup):
         merged = np.concatenate([data, fill])[order]
         out[name] = merged << unit if unit is not None and data.dtype.kind == "f" else merged
     return out
-
-
-def _seed_of(rng):
-    """The root seed of a run: None, an int/sequence, or a SeedSequence.
-
-    A Generator gives 128 bits drawn from it, so the run is reproducible from its state.
-    """
-    if rng is None or isinstance(rng, np.random.SeedSequence):
-        return rng
-    if isinstance(rng, np.random.Generator):
-        return np.random.SeedSequence(rng.integers(0, 2**32, size=4).tolist())
-    try:
-        return np.random.SeedSequence(rng)
-    except (TypeError, ValueError):
-        raise InputError("rng must be None, a non-negative integer, a SeedSequence or a "
-                         "numpy Generator", value=repr(rng)) from None
 
 
 def _part_seed(seed, name):
@@ -1221,7 +1206,7 @@ def sample_band(results, setup, target, band, rng=None, *, noise=DEFAULT_NOISE_M
     ChainWarning
         If the chain is shorter than 50 autocorrelation times.
     """
-    rng = np.random.default_rng(rng)
+    rng = as_generator(rng)
     results, sm, _, arrays = _prepare(results, setup, target, noise, model_options)
     check_bayes_range(results, arrays["obs"], sm.n_seg)
     if not (0 <= int(band) < len(results)):

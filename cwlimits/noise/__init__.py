@@ -9,6 +9,7 @@ a grid, and :func:`get_noise` turns a model name or a file path into a source.
 """
 
 from cwlimits.noise._base import NoiseSource, band_psd
+from cwlimits.noise.bands import psd_table
 from cwlimits.noise.combine import EffectiveNoise, combine_noise, estimate_stretches
 from cwlimits.noise.estimate import (
     EstimatedNoise,
@@ -38,6 +39,7 @@ __all__ = [
     "estimate_stretches",
     "band_floor",
     "band_psd",
+    "psd_table",
     "median_bias",
     "combine_noise",
     "plot_asd",

@@ -98,7 +98,10 @@ from cwlimits.targets.indirect import age_limit
 __all__ = ["OBJECTIVES", "MEASURES", "CASES", "DEFAULT_BAND", "SearchPlan", "Ranking",
            "KnownPulsarPlan",
            "PowerLawModel", "as_budget", "optimise_setup", "plan_search", "allocate_budget",
-           "rank_targets"]
+           "rank_targets", "TRADE_OFF_FACTORS", "cost_depth_tradeoff"]
+
+#: Budget fractions of :func:`cost_depth_tradeoff` (about half a decade apart).
+TRADE_OFF_FACTORS = (1 / 30, 1 / 10, 1 / 3, 1.0)
 
 #: Objectives of :func:`plan_search`.
 OBJECTIVES = _defaults.OBJECTIVES
@@ -1072,6 +1075,51 @@ def plan_search(target, noise=DEFAULT_NOISE_MODEL, budget="1e5 h", span="1 yr",
                    log_h_age, noise, confidence, false_alarm, start, exact)
 
 
+def cost_depth_tradeoff(target, noise=DEFAULT_NOISE_MODEL, budget="1e5 h", span="1 yr", *,
+                        factors=TRADE_OFF_FACTORS, plan=None, **options):
+    """Depth plans of one target at fractions of a budget: cost against depth.
+
+    Parameters
+    ----------
+    target, noise, budget, span
+        As in :func:`plan_search`.
+    factors : sequence of float
+        Fractions of ``budget`` to plan at (default 1/30, 1/10, 1/3 and 1), each in (0, 1].
+    plan : SearchPlan, optional
+        A depth plan already made at the full ``budget`` (with the same options): reused
+        for the factor 1 instead of planned again.
+    **options
+        Passed to :func:`plan_search` (``case``, ``band``, ``detectors``, ...); the
+        objective is always ``'depth'`` and known pulsars are planned age-based.
+
+    Returns
+    -------
+    list of SearchPlan
+        One depth plan per factor, in the order of ``factors`` (what
+        :func:`cwlimits.plotting.planning.plot_cost_depth` draws).
+
+    Raises
+    ------
+    InputError
+        A factor outside (0, 1], or the inputs :func:`plan_search` refuses.
+
+    References
+    ----------
+    Prix & Shaltev 2012, arXiv:1201.4321 (the sensitivity of an optimal StackSlide setup
+    grows as a small power of the computing cost).
+    """
+    budget = as_budget(budget)
+    factors = tuple(float(f) for f in factors)
+    if not factors or any(not (0.0 < f <= 1.0) for f in factors):
+        raise InputError("trade-off budget factors must lie in (0, 1]", value=factors)
+    options = {k: v for k, v in options.items() if k not in ("objective", "known_pulsar")}
+    reuse = plan if (plan is not None and getattr(plan, "objective", None) == "depth") else None
+    return [reuse if (f == 1.0 and reuse is not None) else
+            plan_search(target, noise, budget * f, span, "depth", known_pulsar="off",
+                        **options)
+            for f in factors]
+
+
 def _finish(case_target, setup, opt, budget, span, objective, measure, case, log_h_age,
             noise, confidence, false_alarm, start, exact):
     """Check the budget exactly, evaluate the plan and assemble the SearchPlan."""
@@ -1184,6 +1232,9 @@ class Ranking:
     plans : dict of str -> SearchPlan
         The plan at the allocated budget of each target that gets any.
     assumptions : dict
+    known_plans : dict of str -> KnownPulsarPlan
+        Every known pulsar's plan, funded or not (its expected-limit table is reused by
+        the report).
     """
 
     table: QTable
@@ -1192,6 +1243,7 @@ class Ranking:
     names: list
     plans: dict
     assumptions: dict
+    known_plans: dict = field(default_factory=dict)
 
 
 def _rank_one(chunk, rng, *, targets, noise, span, total_h, per_target_h, steps, measure,
@@ -1562,4 +1614,4 @@ def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", spa
     table.meta["assumptions"] = assumptions
     budgets = (rest.value * np.arange(steps + 1) / steps) << u.h
     return Ranking(table=table, budgets=budgets, merits=merits, names=names, plans=built,
-                   assumptions=assumptions)
+                   assumptions=assumptions, known_plans=known_plans)

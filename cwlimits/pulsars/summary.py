@@ -25,7 +25,8 @@ __all__ = ["known_pulsar_summary", "sensitivity_curve"]
 
 def known_pulsar_summary(catalogue, setup, noise=DEFAULT_NOISE_MODEL, *, data=None,
                          confidence=0.95, n_noise=200, rng=None, start=DEFAULT_START,
-                         moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA, posterior_noise="student-t"):
+                         moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA, posterior_noise="student-t",
+                         predicted=None):
     """One row per known pulsar of ``catalogue`` (rows without a known spin are skipped).
 
     Parameters
@@ -40,6 +41,9 @@ def known_pulsar_summary(catalogue, setup, noise=DEFAULT_NOISE_MODEL, *, data=No
         As in :func:`.expected.targeted_sensitivity`.
     posterior_noise : str
         Noise model of the measured limits (:func:`.posterior.pulsar_posterior`).
+    predicted : dict of str -> QTable, optional
+        Tables of :func:`.expected.targeted_sensitivity` already computed for this setup
+        and noise (e.g. by the ranking's plans), used instead of computing them again.
 
     Returns
     -------
@@ -59,9 +63,13 @@ def known_pulsar_summary(catalogue, setup, noise=DEFAULT_NOISE_MODEL, *, data=No
         raise InputError(f"data given for names that are not known pulsars of the "
                          f"catalogue: {', '.join(unknown)}")
     rows, info = [], {}
+    predicted = dict(predicted or {})
     for t in pulsars:
-        pred = targeted_sensitivity(t, setup, noise, confidence=confidence, n_noise=n_noise,
-                                    rng=rng, start=start, moment_of_inertia=moment_of_inertia)
+        pred = predicted.get(t.name)
+        if pred is None:
+            pred = targeted_sensitivity(t, setup, noise, confidence=confidence,
+                                        n_noise=n_noise, rng=rng, start=start,
+                                        moment_of_inertia=moment_of_inertia)
         info = dict(pred.meta["assumptions"])
         measured = np.nan
         if t.name in data:

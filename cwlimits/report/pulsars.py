@@ -83,10 +83,15 @@ def simulate_noise_only(target, setup, noise, start_gps, rng, *, sample=1 * u.da
 
 
 def known_pulsar_section(rep, catalogue, noise, *, span, detectors, duty_factor, start,
-                         confidence, seed, simulate, data=None, echo=print):
+                         confidence, seed, simulate, data=None, echo=print,
+                         predicted=None):
     """Add the known-pulsar section to ``rep`` (a :class:`~cwlimits.report.html.Report`).
 
-    Returns the summary table, or None when the catalogue has no known pulsar.
+    ``data`` maps pulsar names to their down-converted data (the configuration key
+    ``pulsars.data``; with ``simulate`` the others get simulated noise-only data);
+    ``predicted`` maps names to expected-limit tables already computed for the same span,
+    detectors and noise (the ranking's), which are reused.  Returns the summary table, or
+    None when the catalogue has no known pulsar.
     """
     from astropy.time import Time
 
@@ -101,6 +106,7 @@ def known_pulsar_section(rep, catalogue, noise, *, span, detectors, duty_factor,
     f_max = max(2 * t.f_rot for t in pulsars)
     setup = known_pulsar_setup(span, detectors, duty_factor, f_max)
     data = dict(data or {})
+    given = {name: getattr(d, "source", str(d)) for name, d in data.items()}
     if simulate:
         with warnings.catch_warnings():
             # a start after the last leap-second table is fine here (ERFA "dubious year")
@@ -115,7 +121,8 @@ def known_pulsar_section(rep, catalogue, noise, *, span, detectors, duty_factor,
                 t, setup, noise, start_gps, named_seed(seed, f"pulsar-data:{t.name}")))
     table = known_pulsar_summary(catalogue, setup, noise, data=data, confidence=confidence,
                                  n_noise=REPORT_NOISE_DRAWS,
-                                 rng=named_seed(seed, "known-pulsars"), start=start)
+                                 rng=named_seed(seed, "known-pulsars"), start=start,
+                                 predicted=predicted)
     echo(f"known pulsars: {len(table)} (predicted" + (" and measured" if data else "")
          + " limits)")
     info = dict(table.meta["assumptions"])
@@ -123,7 +130,11 @@ def known_pulsar_section(rep, catalogue, noise, *, span, detectors, duty_factor,
         info["data"] = ("SIMULATED noise-only down-converted data (no signal), one sample "
                         "per day in stretches of 24 days with gaps for the duty factor, "
                         "for the pulsars without timing uncertainties (targeted); the "
-                        "measured limits are those of these simulated data")
+                        "measured limits are those of these simulated data"
+                        + (" (except " + ", ".join(given) + ")" if given else ""))
+    if given:
+        info["data_files"] = "; ".join(f"{name}: measured limit from {source}"
+                                       for name, source in given.items())
     rep.section(
         "Known pulsars",
         "Stars whose spin is known from electromagnetic timing are searched fully "

@@ -43,6 +43,7 @@ from astropy.utils import iers
 from scipy.interpolate import CubicSpline
 from scipy.special import roots_legendre
 
+from cwlimits._random import as_generator
 from cwlimits._time import QuietTime, as_time
 from cwlimits._toml import load_toml
 from cwlimits._units import parse_quantity, to_value
@@ -66,7 +67,12 @@ __all__ = [
     "orientation_factor_samples",
     "orientation_factor_rule",
     "weighted_quantiles",
+    "R2_QUANTILES",
+    "response_table",
 ]
+
+#: Quantiles of R^2 in :func:`response_table` (and ``cwlimits response``).
+R2_QUANTILES = (0.05, 0.10, 0.25, 0.50, 0.75, 0.90, 0.95)
 
 #: Mean sidereal day (rotation relative to the mean equinox), 86164.0905 s (IERS
 #: Conventions; from memory).  Used only to decide whether a span is whole sidereal days.
@@ -1250,7 +1256,7 @@ def orientation_factor_samples(source, coord=None, start=None, span=None, *, dut
     ----------
     Jaranowski, Krolak & Schutz 1998, gr-qc/9804014.
     """
-    rng = np.random.default_rng(rng)
+    rng = as_generator(rng)
     n = int(n)
     if n < 1:
         raise InputError("n must be a positive number of samples", value=n)
@@ -1405,3 +1411,57 @@ def weighted_quantiles(values, weights, q):
                       list(range(q.ndim)))
     return out << unit if unit is not None else out
 
+
+
+def response_table(averages, *, order=48, quantiles=R2_QUANTILES):
+    """Per-detector and network table of the antenna averages and of R^2.
+
+    Parameters
+    ----------
+    averages : ResponseAverages
+        From :func:`time_averages` (one sky position).
+    order : int
+        Nodes per axis of the orientation quadrature rule (:func:`orientation_factor_rule`).
+    quantiles : sequence of float
+        Quantiles of R^2 to tabulate (in [0, 1]).
+
+    Returns
+    -------
+    astropy.table.QTable
+        One row per detector and a last row ``network``: ``detector``, ``latitude``,
+        ``longitude``, ``gamma``, ``zeta`` (NaN on the network row), ``weight``,
+        ``t_data``, ``mean_a2``, ``mean_b2``, ``mean_ab`` (the time averages A, B, C of
+        JKS 1998; the detector rows without sin^2(zeta), the network row the weighted sum
+        with it), ``determinant`` (D = A B - C^2), ``R2_mean`` and one ``R2_qNN`` column
+        per quantile, over uniform cos(iota) in [-1, 1] and psi.
+
+    References
+    ----------
+    Jaranowski, Krolak & Schutz 1998, gr-qc/9804014, Sect. III (A, B, C, D).
+    """
+    from astropy.table import QTable
+
+    def summary(source):
+        r2, w = orientation_factor_rule(source, order=order)
+        return (float(np.sum(r2.value * w)),
+                [float(x) for x in weighted_quantiles(r2, w, quantiles)])
+
+    detectors = averages.detectors
+    rows = [summary(averages.for_detector(i)) for i in range(len(detectors))]
+    rows.append(summary(averages))
+    nan = [np.nan]
+    table = QTable()
+    table["detector"] = [d.name for d in detectors] + ["network"]
+    for key in ("latitude", "longitude", "gamma", "zeta"):
+        table[key] = [getattr(d, key).to_value(u.deg) for d in detectors] + nan << u.deg
+    table["weight"] = list(averages.weights) + [1.0] << u.one
+    t_data = averages.t_data.to_value(u.d)
+    table["t_data"] = list(t_data) + [float(np.sum(t_data))] << u.d
+    for key, column in zip("ABC", ("mean_a2", "mean_b2", "mean_ab"), strict=True):
+        per = getattr(averages, f"{key}_det").to_value(u.one)
+        table[column] = list(per) + [float(getattr(averages, key))] << u.one
+    table["determinant"] = table["mean_a2"] * table["mean_b2"] - table["mean_ab"] ** 2
+    table["R2_mean"] = [r[0] for r in rows] << u.one
+    for j, q in enumerate(quantiles):
+        table[f"R2_q{int(round(100 * q)):02d}"] = [r[1][j] for r in rows] << u.one
+    return table

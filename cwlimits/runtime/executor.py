@@ -42,6 +42,7 @@ from collections.abc import Mapping
 import numpy as np
 
 from cwlimits import _defaults
+from cwlimits._random import seed_sequence
 from cwlimits.errors import ComputationError, CwlimitsError, InputError
 
 __all__ = ["map_chunks", "make_executor", "chunk_bounds", "chunk_seed", "named_seed",
@@ -108,18 +109,8 @@ def chunk_bounds(n_items, chunk_size):
 
 def _root_seed(seed):
     """The root :class:`numpy.random.SeedSequence` of a job and whether a seed was given."""
-    if seed is None:
-        return np.random.SeedSequence(), False
-    if isinstance(seed, np.random.SeedSequence):
-        return seed, True
-    if isinstance(seed, np.random.Generator):
-        # Draw 128 bits from the caller's generator: reproducible from its state.
-        return np.random.SeedSequence(seed.integers(0, 2**32, size=4).tolist()), True
-    try:
-        return np.random.SeedSequence(seed), True
-    except (TypeError, ValueError):
-        raise InputError("seed must be a non-negative integer, a sequence of them, a "
-                         "numpy SeedSequence or Generator, or None", value=seed) from None
+    root = seed_sequence(seed, "seed")
+    return (np.random.SeedSequence(), False) if root is None else (root, True)
 
 
 def chunk_seed(seed, index):

@@ -47,6 +47,7 @@ import numpy as np
 from scipy import special
 from scipy.stats import qmc
 
+from cwlimits._random import as_generator
 from cwlimits.errors import InputError
 
 __all__ = ["Lattice", "LATTICE_NAMES", "get_lattice", "sample_mismatch", "ball_volume",
@@ -258,7 +259,7 @@ class Lattice:
         ndarray
             Mismatches in ``[0, mu_max]``, shape ``broadcast(size, shape(max_mismatch))``.
         """
-        rng = np.random.default_rng(rng)
+        rng = as_generator(rng)
         mm = np.asarray(max_mismatch, float)
         if np.any(~(mm > 0)) or np.any(mm > 1):
             raise InputError("max_mismatch must be in (0, 1]", value=max_mismatch)

@@ -74,6 +74,15 @@ class ParameterSpace:
 
     n_dims = 3
 
+    @property
+    def frequency_range(self):
+        """(Quantity, Quantity) ['frequency']: the lowest and highest frequency of the space.
+
+        The age-based space covers every frequency (0 to infinity); a box its own range.
+        """
+        lo, hi = self._f_bounds()
+        return float(lo) << u.Hz, float(hi) << u.Hz
+
     def volume(self, f_min, f_max, n_dims=3):
         """Closed-form ``n_dims``-dimensional volume of the space within ``[f_min, f_max]``.
 

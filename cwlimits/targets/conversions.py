@@ -31,6 +31,7 @@ __all__ = [
     "mass_quadrupole",
     "rmode_amplitude",
     "strain_from_rmode_amplitude",
+    "conversion_table",
 ]
 
 _G = const.G.si.value
@@ -186,3 +187,84 @@ def strain_from_rmode_amplitude(alpha, f_gw, distance, mass=FIDUCIAL_RMODE_STAR[
     return _finite("strain", lambda: value / _alpha_per_h0(f_gw, distance, mass, radius,
                                                            j_tilde),
                    alpha=alpha, f_gw=f_gw, distance=distance) << u.one
+
+
+def conversion_table(f_gw, h0, distance, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA, *,
+                     distance_range=None):
+    """The table of ``cwlimits convert``: h0 per frequency as eps, Q22 and r-mode alpha.
+
+    Parameters
+    ----------
+    f_gw : Quantity ['frequency']
+        Gravitational-wave frequencies (one per row).
+    h0 : Quantity ['dimensionless'] or array_like
+        Strain amplitudes, broadcast against ``f_gw``; a NaN (a band without a limit)
+        stays NaN in every converted column.
+    distance : Quantity ['length']
+    moment_of_inertia : Quantity, optional
+        Default 1e38 kg m^2.
+    distance_range : (Quantity, Quantity) ['length'], optional
+        Also the columns ``eps_min``, ``eps_max``, ``alpha_rmode_min`` and
+        ``alpha_rmode_max`` at these distances (the conversions are linear in distance).
+
+    Returns
+    -------
+    astropy.table.QTable
+        Columns ``f_gw``, ``h0``, ``eps``, ``q22``, ``alpha_rmode`` (and the range
+        columns); ``meta["assumptions"]`` holds the distance, the moment of inertia and
+        the stellar models behind the numbers.
+
+    Raises
+    ------
+    InputError
+        Negative h0, non-positive frequency or distance, a range with DMIN > DMAX, or a
+        result outside the floating-point range.
+
+    Examples
+    --------
+    >>> import astropy.units as u
+    >>> t = conversion_table([2.0] * u.Hz, [1e-24], 1 * u.kpc)
+    >>> round(float(t["eps"][0]), 3)
+    0.236
+    """
+    from astropy.table import QTable
+
+    f = u.Quantity(f_gw, u.Hz)
+    h = np.broadcast_to(to_value(h0, u.one, "h0"), f.shape).astype(float)
+    if np.any(h < 0):
+        raise InputError("h0 must be non-negative", value=str(h0))
+    # an empty h0 (a band without a limit, a gap) stays empty in every converted column
+    empty = ~np.isfinite(h)
+    h_finite = np.where(empty, 0.0, h) << u.one
+
+    def blank(values):
+        return np.where(empty, np.nan, values.value) << values.unit
+
+    table = QTable()
+    table["f_gw"], table["h0"] = f, h << u.one
+    table["eps"] = blank(ellipticity(h_finite, f, distance, moment_of_inertia))
+    table["q22"] = blank(mass_quadrupole(np.where(empty, 0.0, table["eps"].value) << u.one,
+                                         moment_of_inertia))
+    table["alpha_rmode"] = blank(rmode_amplitude(h_finite, f, distance))
+    if distance_range is not None:
+        d_lo, d_hi = distance_range
+        if d_lo > d_hi:
+            raise InputError("distance range: DMIN is larger than DMAX",
+                             value=f"{d_lo} {d_hi}")
+        table["eps_min"] = blank(ellipticity(h_finite, f, d_lo, moment_of_inertia))
+        table["eps_max"] = blank(ellipticity(h_finite, f, d_hi, moment_of_inertia))
+        table["alpha_rmode_min"] = blank(rmode_amplitude(h_finite, f, d_lo))
+        table["alpha_rmode_max"] = blank(rmode_amplitude(h_finite, f, d_hi))
+    star = FIDUCIAL_RMODE_STAR
+    shown = f"{u.Quantity(distance):g}"
+    if distance_range is not None:
+        shown += (f" (range {u.Quantity(distance_range[0]):g} to "
+                  f"{u.Quantity(distance_range[1]):g})")
+    table.meta["assumptions"] = {
+        "distance": shown,
+        "moment_of_inertia": f"{u.Quantity(moment_of_inertia):g}",
+        "ellipticity": "mass quadrupole radiating at f_gw = 2 f_rot",
+        "rmode_star": f"M = {star['mass']:g}, R = {star['radius']:g}, "
+                      f"J~ = {star['j_tilde']:g} (fiducial star of Owen 2010)",
+    }
+    return table

@@ -38,6 +38,7 @@ import astropy.units as u
 import numpy as np
 from astropy.table import QTable
 
+from cwlimits._random import as_generator
 from cwlimits._units import positive_value, to_value
 from cwlimits.errors import InputError
 from cwlimits.targets.conversions import ellipticity
@@ -267,7 +268,7 @@ def sample_limits(distance_range, age_range, *, n_samples=10000, quantiles=(0.05
     Quantity ['dimensionless'], shape (len(quantiles),) + broadcast shape of the ranges
         A degenerate range (min = max) gives that single value.
     """
-    rng = np.random.default_rng(rng)
+    rng = as_generator(rng)
     n_samples = int(n_samples)
     if n_samples < 1:
         raise InputError("n_samples must be at least 1", value=n_samples)

@@ -104,53 +104,22 @@ def _input(args):
 
 
 def run(args):
-    import astropy.units as u
-    import numpy as np
-    from astropy.table import QTable
-
     from cwlimits.tables import write_table
-    from cwlimits.targets.conversions import ellipticity, mass_quadrupole, rmode_amplitude
-    from cwlimits.targets.fiducial import FIDUCIAL_RMODE_STAR
+    from cwlimits.targets.conversions import conversion_table
 
     out = check_output_path(args.out)
     f, h0 = _input(args)
-    d, inertia = args.distance, args.moment_of_inertia
-    table = QTable()
-    table["f_gw"], table["h0"] = f, h0
-    # an empty h0 (a band without a limit, a gap) stays empty in every converted column
-    empty = ~np.isfinite(h0.value)
-    h0_finite = np.where(empty, 0.0, h0.value) << h0.unit
-
-    def blank(values):
-        return np.where(empty, np.nan, values.value) << values.unit
-
-    table["eps"] = blank(ellipticity(h0_finite, f, d, inertia))
-    table["q22"] = blank(mass_quadrupole(np.where(empty, 0.0, table["eps"].value) << u.one,
-                                         inertia))
-    table["alpha_rmode"] = blank(rmode_amplitude(h0_finite, f, d))
-    if args.distance_range:
-        d_lo, d_hi = args.distance_range
-        if d_lo > d_hi:
-            raise InputError("--distance-range: DMIN is larger than DMAX",
-                             value=f"{d_lo} {d_hi}")
-        table["eps_min"] = blank(ellipticity(h0_finite, f, d_lo, inertia))
-        table["eps_max"] = blank(ellipticity(h0_finite, f, d_hi, inertia))
-        table["alpha_rmode_min"] = blank(rmode_amplitude(h0_finite, f, d_lo))
-        table["alpha_rmode_max"] = blank(rmode_amplitude(h0_finite, f, d_hi))
-    star = FIDUCIAL_RMODE_STAR
+    if args.distance_range and args.distance_range[0] > args.distance_range[1]:
+        raise InputError("--distance-range: DMIN is larger than DMAX",
+                         value=f"{args.distance_range[0]} {args.distance_range[1]}")
+    table = conversion_table(f, h0, args.distance, args.moment_of_inertia,
+                             distance_range=args.distance_range)
     info = {"source": (f"{args.table}" + (f" ({args.source_meta['title']})"
                                           if args.source_meta.get("title") else ""))
             if args.table else "given on the command line",
             **{f"source.{k.removeprefix('assumption.')}": v
                for k, v in getattr(args, "source_meta", {}).items() if k != "title"}}
-    info.update({
-        "distance": f"{d:g}" + (f" (range {args.distance_range[0]:g} to "
-                                f"{args.distance_range[1]:g})" if args.distance_range else ""),
-        "moment_of_inertia": f"{inertia:g}",
-        "ellipticity": "mass quadrupole radiating at f_gw = 2 f_rot",
-        "rmode_star": f"M = {star['mass']:g}, R = {star['radius']:g}, "
-                      f"J~ = {star['j_tilde']:g} (fiducial star of Owen 2010)",
-    })
+    info.update(table.meta["assumptions"])
     columns = [c for c in table.colnames]
     echo(args, format_rows([f"{c} [{table[c].unit}]" if str(table[c].unit) else c
                             for c in columns],

@@ -76,8 +76,6 @@ def register(subparsers, common):
 
 
 def _target_space(args):
-    import astropy.units as u
-
     from cwlimits.searchspace.parameter_space import BoxSpace
 
     if args.age is not None and (args.catalogue or args.target):
@@ -92,9 +90,8 @@ def _target_space(args):
         if args.spin_box is not None:
             box = BoxSpace.for_target(target, f_tol=args.spin_box[0],
                                       fdot_tol=args.spin_box[1])
-            f_lo, f_hi = (x << u.Hz for x in box._f_bounds())
             return box, (f"a box around the spin of target {target.name} of "
-                         f"{args.catalogue}"), (f_lo, f_hi)
+                         f"{args.catalogue}"), box.frequency_range
         return target, f"target {target.name} of {args.catalogue} (age {target.age})", None
     if args.catalogue or args.target:
         raise InputError("--catalogue and --target go together")
@@ -220,10 +217,10 @@ def _readable(cost):
     import astropy.units as u
 
 
-    hours = cost.to_value(u.h)
-    if not math.isfinite(hours):
+    years = cost.to_value(u.yr)  # astropy's yr is the Julian year of 365.25 days
+    if not math.isfinite(years):
         return "not finite"
-    return f"{hours / (24 * 365.25):.3g} core-years"
+    return f"{years:.3g} core-years"
 
 
 def _print_scan(args, table, quantity, what):

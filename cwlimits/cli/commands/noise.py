@@ -140,10 +140,8 @@ def _source_from_args(args):
 def run(args):
     """Run ``cwlimits noise``; return the exit code."""
     import astropy.units as u
-    import numpy as np
-    from astropy.table import QTable
 
-    from cwlimits.noise import band_floor, band_psd, plot_asd
+    from cwlimits.noise import plot_asd, psd_table
     from cwlimits.tables import write_table
 
     if args.list:
@@ -153,20 +151,12 @@ def run(args):
     plot = check_output_path(args.plot, (".png", ".svg", ".pdf"), "--plot")
     source, assumptions = _source_from_args(args)
     f_lo, f_hi, partial = _band_grid(args, source)
-    psd = band_psd(source, f_lo, f_hi)
-    table = QTable({"f_lo": f_lo, "f_hi": f_hi, "psd": psd, "asd": np.sqrt(psd)})
     # every number is computed before anything is written: no partial output on error
-    if hasattr(source, "periodograms"):
-        table["psd_floor"] = band_floor(source, f_lo, f_hi)
-    assumptions = {
-        "noise": source.describe(),
-        "band_psd": "harmonic mean of S_n(f) over each band [f_lo, f_hi)",
-        "noise_statistics": "Gaussian noise, stationary within each data stretch",
-        **assumptions,
-    }
-    if hasattr(source, "periodograms"):
-        assumptions["psd_floor"] = ("median of every periodogram value in the band "
-                                    "divided by b(N), N = segments x bins")
+    table = psd_table(source, f_lo, f_hi)
+    floor = table.meta["assumptions"].pop("psd_floor", None)
+    assumptions = {**table.meta["assumptions"], **assumptions}
+    if floor is not None:
+        assumptions["psd_floor"] = floor
     if partial is not None:
         note = (f"the last band {partial[0]:.9g} - {partial[1]:.9g} Hz is narrower than the "
                 f"step ({partial[1] - partial[0]:.6g} Hz): the range is not a whole number "

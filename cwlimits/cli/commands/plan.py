@@ -138,7 +138,7 @@ def register(subparsers, common):
 
 def run(args):
     """Run ``cwlimits plan``."""
-    from cwlimits.planning.optimise import as_budget, plan_search
+    from cwlimits.planning.optimise import as_budget, cost_depth_tradeoff, plan_search
     from cwlimits.tables import write_table
 
 
@@ -164,10 +164,8 @@ def run(args):
         return _known(args, plan, out, table_path)
     trade_plans = []
     if trade is not None:
-        for factor in (1 / 30, 1 / 10, 1 / 3, 1.0):
-            trade_plans.append(plan if (factor == 1.0 and args.objective == "depth") else
-                               plan_search(target, args.noise, budget * factor, args.span,
-                                           "depth", case=args.case, **options))
+        trade_plans = cost_depth_tradeoff(target, args.noise, budget, args.span, plan=plan,
+                                          case=args.case, **options)
     _summarise(args, plan)
     if out is not None:
         plan.write(out)

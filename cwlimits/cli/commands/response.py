@@ -20,7 +20,6 @@ __all__ = ["ORDER", "register", "run"]
 
 ORDER = 35
 
-_QUANTILES = (0.05, 0.10, 0.25, 0.50, 0.75, 0.90, 0.95)
 #: Column names of the antenna-pattern averages: <a^2>, <b^2>, <ab> over the data and
 #: <a^2><b^2> - <ab>^2: A, B, C and D = AB - C^2 in the notation of Jaranowski, Krolak &
 #: Schutz 1998, gr-qc/9804014 (Sect. III).
@@ -140,14 +139,10 @@ def _angle(text, option, bare_unit):
 
 def run(args):
     """Run ``cwlimits response``; return the exit code."""
-    import astropy.units as u
-    import numpy as np
-
     from cwlimits._files import atomic_write
     from cwlimits._sizes import check_size
     from cwlimits.response import antenna as resp
-
-
+    from cwlimits.tables import write_table
 
     out = check_output_path(args.out)
     plot = check_output_path(args.plot, PLOT_SUFFIXES, "--plot")
@@ -161,12 +156,8 @@ def run(args):
     weights = None if args.weights is None else _numbers(args.weights, "weights")
     averages = resp.time_averages(detectors, coord, args.start, args.span, duty=duty,
                                   weights=weights)
-    R2, w = resp.orientation_factor_rule(averages, order=args.order)
-    network = _summary(R2, w)
-    single = []
-    for i in range(len(detectors)):
-        r2, wd = resp.orientation_factor_rule(averages.for_detector(i), order=args.order)
-        single.append(_summary(r2, wd))
+    table = resp.response_table(averages, order=args.order, quantiles=resp.R2_QUANTILES)
+    quantile_columns = [c for c in table.colnames if c.startswith("R2_q")]
 
     # Formatting future UTC dates makes ERFA warn "dubious year"; see cwlimits.response.
     with resp.QuietTime():
@@ -174,45 +165,31 @@ def run(args):
         echo(args, f"sky position: {where} (ICRS {coord.to_string('hmsdms')})")
         headers = ["detector", "weight", "T_data [d]", *_AVERAGE_COLUMNS, "mean R^2"]
         rows = []
-        for i, det in enumerate(detectors):
-            a, b, c = (float(x[i]) for x in (averages.A_det, averages.B_det, averages.C_det))
-            rows.append([det.name, f"{averages.weights[i]:.4f}",
-                         f"{averages.t_data[i].to_value(u.d):.3f}", f"{a:.6f}", f"{b:.6f}",
-                         f"{c:+.6f}", f"{a * b - c * c:.6f}", f"{single[i]['mean']:.5f}"])
-        rows.append(["network", "1", f"{np.sum(averages.t_data.to_value(u.d)):.3f}",
-                     f"{float(averages.A):.6f}", f"{float(averages.B):.6f}",
-                     f"{float(averages.C):+.6f}", f"{float(averages.D):.6f}",
-                     f"{network['mean']:.5f}"])
+        for i, row in enumerate(table):
+            a, b, c, d = (float(row[k].value) for k in _AVERAGE_COLUMNS)
+            network = i == len(table) - 1
+            rows.append([row["detector"], "1" if network else f"{row['weight'].value:.4f}",
+                         f"{row['t_data'].value:.3f}", f"{a:.6f}", f"{b:.6f}", f"{c:+.6f}",
+                         f"{d:.6f}", f"{row['R2_mean'].value:.5f}"])
         echo(args, format_rows(headers, rows))
         echo(args)
         echo(args, "network R^2 over uniform cos(iota) in [-1, 1] and psi "
                    "(rho^2 = R^2 h0^2 T_data / S_n):")
-        echo(args, "  mean " + f"{network['mean']:.5f}   " + "   ".join(
-            f"q{int(round(100 * q)):02d} {v:.5f}" for q, v in zip(_QUANTILES, network['q'],
-                                                                     strict=True)))
+        network = table[-1]
+        echo(args, "  mean " + f"{network['R2_mean'].value:.5f}   " + "   ".join(
+            f"q{c.removeprefix('R2_q')} {network[c].value:.5f}" for c in quantile_columns))
         echo(args)
         echo(args, format_assumptions(assumptions))
         # The figure is drawn into memory first and written only once the table is, so
         # a failure leaves neither behind.
         figure = _plot(plot, detectors, coord, averages.start) if plot is not None else None
         if out is not None:
-            _write(out, detectors, averages, network, single, assumptions)
+            write_table(table, out, assumptions=assumptions, title=_TITLE)
             echo(args, f"wrote {out}")
         if figure is not None:
             atomic_write(plot, lambda handle: handle.write(figure), binary=True)
             echo(args, f"wrote {plot}")
     return 0
-
-
-def _summary(R2, w):
-    import numpy as np
-
-    from cwlimits.response import antenna as resp
-
-
-
-    return {"mean": float(np.sum(R2.value * w)),
-            "q": [float(x) for x in resp.weighted_quantiles(R2, w, _QUANTILES)]}
 
 
 def _assumptions(averages, where, args):
@@ -242,35 +219,7 @@ def _assumptions(averages, where, args):
     }
 
 
-def _write(out, detectors, averages, network, single, assumptions):
-    import astropy.units as u
-    import numpy as np
-    from astropy.table import QTable
-
-
-    names = [d.name for d in detectors] + ["network"]
-    nan = [np.nan]
-    table = QTable()
-    table["detector"] = names
-    table["latitude"] = [d.latitude.to_value(u.deg) for d in detectors] + nan << u.deg
-    table["longitude"] = [d.longitude.to_value(u.deg) for d in detectors] + nan << u.deg
-    table["gamma"] = [d.gamma.to_value(u.deg) for d in detectors] + nan << u.deg
-    table["zeta"] = [d.zeta.to_value(u.deg) for d in detectors] + nan << u.deg
-    table["weight"] = list(averages.weights) + [1.0] << u.one
-    table["t_data"] = list(averages.t_data.to_value(u.d)) + [
-        float(np.sum(averages.t_data.to_value(u.d)))] << u.d
-    for key, column in zip(("A", "B", "C"), _AVERAGE_COLUMNS[:3], strict=True):
-        per = getattr(averages, f"{key}_det").to_value(u.one)
-        table[column] = list(per) + [float(getattr(averages, key))] << u.one
-    table["determinant"] = table["mean_a2"] * table["mean_b2"] - table["mean_ab"] ** 2
-    rows = single + [network]
-    table["R2_mean"] = [r["mean"] for r in rows] << u.one
-    for j, q in enumerate(_QUANTILES):
-        table[f"R2_q{int(round(100 * q)):02d}"] = [r["q"][j] for r in rows] << u.one
-    resp_title = "cwlimits response: antenna-pattern averages and orientation factor R^2"
-    from cwlimits.tables import write_table
-
-    write_table(table, out, assumptions=assumptions, title=resp_title)
+_TITLE = "cwlimits response: antenna-pattern averages and orientation factor R^2"
 
 
 def _plot(path, detectors, coord, start):
