@@ -44,7 +44,7 @@ from scipy import integrate, interpolate, stats
 from scipy.optimize import elementwise
 
 from cwlimits._random import as_generator, seed_sequence
-from cwlimits._units import fraction
+from cwlimits._units import fraction, positive_value
 from cwlimits.errors import ComputationError, CoverageWarning, CwlimitsWarning, InputError
 from cwlimits.limits.results import (
     STATISTIC_COLUMNS,
@@ -700,10 +700,7 @@ def _check_confidence(confidence):
 def _quantity_or_none(q, unit, name):
     if q is None:
         return None
-    value = u.Quantity(q).to_value(unit)
-    if np.any(~np.isfinite(value)) or np.any(value <= 0):
-        raise InputError(f"{name} must be positive and finite", value=str(q))
-    return value
+    return positive_value(q, unit, name)
 
 
 def _prepare(results, setup, target, noise, model_options):
