@@ -21,9 +21,16 @@ __all__ = [
     "parse_quantity",
     "parse_unit",
     "DIMENSIONLESS",
+    "SECONDS_PER_DAY",
+    "SECONDS_PER_YEAR",
 ]
 
 DIMENSIONLESS = u.dimensionless_unscaled
+#: Seconds in a day (86400) and in astropy's year (the Julian year, 365.25 days), as plain
+#: floats for kernels in SI.  The sidereal day is
+#: :data:`cwlimits.response.antenna.SIDEREAL_DAY`.
+SECONDS_PER_DAY = float(u.day.to(u.s))
+SECONDS_PER_YEAR = float(u.yr.to(u.s))
 
 
 def to_value(quantity, unit, name, *, allow_bare=False):
@@ -153,12 +160,18 @@ def parse_unit(text, name="unit", error=UnitsMismatchError, **where):
         raise error(f"{name}: not a unit astropy understands", value=text, **where) from None
 
 
-def parse_quantity(text, unit, name, *, require_unit=False, **where):
+def parse_quantity(text, unit, name, *, require_unit=False, keep_unit=False,
+                   error=UnitsMismatchError, **where):
     """Parse ``"3.2 kpc"`` (or a bare number, taken in ``unit``) into a Quantity in ``unit``.
 
+    The one quantity parser of the package: command-line options, configuration and setup
+    files and the budget and setup arguments of the library all read text through it.
     With ``require_unit`` (values in files: configurations and setups) a bare number is an
-    error instead; on the command line it takes the unit ``--help`` shows.  ``where``
-    (file, row, column) locates the value in error messages.
+    error instead; on the command line it takes the unit ``--help`` shows.  With
+    ``keep_unit`` the Quantity keeps the unit it was written in (``"5 day"`` stays in
+    days) once its physical type is checked.  ``error`` is the :class:`InputError`
+    subclass raised (``ConfigError`` for files); ``where`` (file, row, column) locates
+    the value in error messages.
     """
     unit = u.Unit(unit)
     if isinstance(text, u.Quantity):
@@ -171,19 +184,20 @@ def parse_quantity(text, unit, name, *, require_unit=False, **where):
             try:
                 q = u.Quantity(text)
             except (ValueError, TypeError):
-                raise UnitsMismatchError(
+                raise error(
                     f"{name}: cannot read a number with a unit of {unit.physical_type} "
                     f"(for example '1.5 {unit}')",
                     value=text, **where) from None
         else:
             if require_unit and unit != DIMENSIONLESS:
-                raise UnitsMismatchError(
-                    f"{name}: a number without a unit; write the unit, e.g. "
+                raise error(
+                    f"{name}: has no unit (a number without a unit); write the unit, e.g. "
                     f"\"{text} {unit}\"", value=text, **where)
     try:
-        return q.to(unit)
+        converted = q.to(unit)
     except u.UnitConversionError:
-        raise UnitsMismatchError(
+        raise error(
             f"{name}: needs a unit of {unit.physical_type} (convertible to '{unit}'), "
             f"not '{q.unit}'", value=text if isinstance(text, str) else str(q),
             **where) from None
+    return q if keep_unit else converted

@@ -220,7 +220,7 @@ def test_cli_table_and_csv(tmp_path, capsys):
     cost = table.quantity("cost", u.h)
     assert np.all(cost.value > 0)
     assert any(k.startswith("assumption.") for k in table.meta)
-    assert table.units["f_min"] == u.Hz
+    assert table.units["f_lo"] == u.Hz
 
 
 def test_cli_setup_file_overrides_and_catalogue(tmp_path, capsys, demo_catalogue_path):
@@ -324,8 +324,8 @@ def test_cli_spin_box(tmp_path, capsys, demo_catalogue_path):
                "--n-seg", "30", "--band-width", "0.01Hz", "--out", str(out)])
     assert rc == 0
     table = read_table(out)
-    f_lo = table.quantity("f_min", u.Hz)
-    f_hi = table.quantity("f_max", u.Hz)
+    f_lo = table.quantity("f_lo", u.Hz)
+    f_hi = table.quantity("f_hi", u.Hz)
     f0 = 2 * 23.7                                   # 2 f_rot of the demo row
     assert f_lo[0].value == pytest.approx(f0 * (1 - 1e-3))
     assert f_hi[-1].value == pytest.approx(f0 * (1 + 1e-3))

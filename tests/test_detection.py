@@ -751,6 +751,26 @@ def test_tabulated_depth_matches_the_per_setup_solve(confidence):
     assert np.allclose(np.sqrt(1 / table[:60]), exact, rtol=2e-4)
 
 
+def test_tabulated_depth_at_tiny_false_alarms():
+    # The table's q = ln(-ln p) from chi2.sf, with chi2.logsf below p = 1e-300 (where
+    # scipy's chi2.sf stalls at subnormal values, ~1e-311 for p = 1e-400): per-template
+    # false alarms down to 1e-400 read from the table against the per-setup solve (depth
+    # within 5e-5, as above).
+    rule = _fixed_sky_rule()
+    rng = np.random.default_rng(10)
+    thr, n_seg = _setups(det._TABLE_MIN_ELEMENTS, rng)
+    n_tiny = np.round(np.exp(rng.uniform(0, np.log(1000), 64)))
+    thr_tiny = det._threshold_from_log_p(rng.uniform(-400, -290, 64) * np.log(10),
+                                         4 * n_tiny)
+    thr, n_seg = np.concatenate([thr, thr_tiny]), np.concatenate([n_seg, n_tiny])
+    assert np.any(stats.chi2.sf(thr, 4 * n_seg) < 1e-300)  # the logsf branch is taken
+    det._TABLE_CACHE.clear()
+    table = det.solve_log_amplitude(thr, n_seg, 0.95, rule)
+    assert det._TABLE_CACHE
+    each = det.solve_log_amplitude(thr, n_seg, 0.95, rule, tabulate=False)
+    assert np.max(np.abs(np.sqrt(each / table) - 1)) < 5e-5
+
+
 @pytest.mark.parametrize("n_seg", [1, 8, 100, 1000])
 def test_likelihood_rows_match_the_direct_sum(n_seg):
     # The density tabulated in sqrt(rho2) per row against sum_i w_i ncx2.pdf (the direct

@@ -784,3 +784,24 @@ def test_response_table_rows_and_orientation_mean():
     np.testing.assert_allclose(table["determinant"].value, d.value, rtol=1e-12)
     assert table["t_data"][2].to_value(u.d) == pytest.approx(2 * 8.0, rel=1e-12)
     assert np.isnan(table["latitude"][2].value)
+
+
+def test_weighted_quantiles_equal_weights_match_numpy_rules():
+    # with equal weights the weighted rules are numpy.quantile's 'hazen' and
+    # 'inverted_cdf' (Hyndman & Fan 1996 types 5 and 1); per-row weights too
+    rng = np.random.default_rng(4)
+    v = rng.normal(size=(3, 40))
+    q = np.array([0.01, 0.3, 0.5, 0.95])
+    for method in ("hazen", "inverted_cdf"):
+        ref = np.quantile(v, q, axis=-1, method=method)
+        np.testing.assert_allclose(resp.weighted_quantiles(v, np.ones(40), q, method=method),
+                                   ref, rtol=1e-12)
+        np.testing.assert_allclose(resp.weighted_quantiles(v, np.full(v.shape, 2.0), q,
+                                                           method=method), ref, rtol=1e-12)
+    # integer weights are repeated values: weight 3 on one value equals three copies of it
+    x, w = np.array([1.0, 2.0, 5.0]), np.array([1.0, 3.0, 1.0])
+    ref = np.quantile(np.repeat(x, w.astype(int)), [0.1, 0.5, 0.9], method="inverted_cdf")
+    np.testing.assert_array_equal(resp.weighted_quantiles(x, w, [0.1, 0.5, 0.9],
+                                                          method="inverted_cdf"), ref)
+    with pytest.raises(InputError, match="method"):
+        resp.weighted_quantiles(x, w, 0.5, method="linear")

@@ -44,7 +44,7 @@ from scipy import integrate, interpolate, stats
 from scipy.optimize import elementwise
 
 from cwlimits._random import as_generator, seed_sequence
-from cwlimits._units import fraction
+from cwlimits._units import fraction, positive_value
 from cwlimits.errors import ComputationError, CoverageWarning, CwlimitsWarning, InputError
 from cwlimits.limits.results import (
     STATISTIC_COLUMNS,
@@ -54,6 +54,7 @@ from cwlimits.limits.results import (
     load_results,
 )
 from cwlimits.noise import DEFAULT_NOISE_MODEL
+from cwlimits.response.antenna import weighted_quantiles
 from cwlimits.sensitivity.model import (
     AGE_COMPARISON,
     DEFAULT_START,
@@ -133,14 +134,6 @@ class ChainWarning(CwlimitsWarning):
 # ---------------------------------------------------------------------------------------
 # Posterior kernels (plain floats; normalised amplitude x = h0 sqrt(T/S))
 # ---------------------------------------------------------------------------------------
-def _weighted_low_quantile(c, w, q):
-    order = np.argsort(c, axis=-1)
-    cs = np.take_along_axis(c, order, axis=-1)
-    cw = np.cumsum(np.take_along_axis(w, order, axis=-1), axis=-1)
-    k = np.minimum(np.sum(cw < q, axis=-1), c.shape[-1] - 1)
-    return np.take_along_axis(cs, k[:, None], axis=-1)[:, 0]
-
-
 def _x_grid(obs_sum, n_seg, c, w, x_min=None):
     """Per-band grid of x covering the likelihood (rows increasing; shape (B, G)).
 
@@ -152,7 +145,8 @@ def _x_grid(obs_sum, n_seg, c, w, x_min=None):
     rho2_hi = np.maximum(obs_sum - df, 0.0) + 14.0 * np.sqrt(2.0 * df + 4.0 * obs_sum) + 50.0
     c_pos = np.where(c > 0, c, np.inf)
     c_min = np.min(c_pos, axis=-1)
-    c_q = np.maximum(_weighted_low_quantile(np.where(c > 0, c, 0), w, 0.01), c_min)
+    c_q = np.maximum(weighted_quantiles(np.where(c > 0, c, 0), w, 0.01,
+                                        method="inverted_cdf"), c_min)
     x_a = np.sqrt(rho2_hi / c_q)
     x_b = np.maximum(np.sqrt(rho2_hi / c_min), x_a * 1.001)
     t = np.linspace(0.0, 1.0, _N_BULK)
@@ -700,10 +694,7 @@ def _check_confidence(confidence):
 def _quantity_or_none(q, unit, name):
     if q is None:
         return None
-    value = u.Quantity(q).to_value(unit)
-    if np.any(~np.isfinite(value)) or np.any(value <= 0):
-        raise InputError(f"{name} must be positive and finite", value=str(q))
-    return value
+    return positive_value(q, unit, name)
 
 
 def _prepare(results, setup, target, noise, model_options):

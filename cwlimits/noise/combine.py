@@ -17,7 +17,7 @@ with duty factor d contributes T_k = d * T_obs.
 import astropy.units as u
 import numpy as np
 
-from cwlimits._units import to_value
+from cwlimits._units import SECONDS_PER_DAY, to_value
 from cwlimits.errors import InputError
 from cwlimits.noise._base import NoiseSource
 from cwlimits.noise.estimate import estimate_psd
@@ -78,7 +78,7 @@ class EffectiveNoise(NoiseSource):
 
     def describe(self):
         """One line: the rule, T_data and the components with their data times."""
-        parts = "; ".join(f"{c.name} ({t / 86400:.4g} d)"
+        parts = "; ".join(f"{c.name} ({t / SECONDS_PER_DAY:.4g} d)"
                           for c, t in zip(self.components, self._t_k_s, strict=True))
         return (f"{self.name}: data-time-weighted harmonic mean of {len(self.components)} "
                 f"noise sources, T_data = {self._t_k_s.sum():.6g} s, "

@@ -67,7 +67,13 @@ from astropy.table import QTable
 from scipy import optimize
 
 from cwlimits import _defaults
-from cwlimits._units import fraction, to_value
+from cwlimits._units import (
+    SECONDS_PER_DAY,
+    SECONDS_PER_YEAR,
+    fraction,
+    parse_quantity,
+    to_value,
+)
 from cwlimits.errors import ComputationError, InputError
 from cwlimits.noise import DEFAULT_NOISE_MODEL, band_psd
 from cwlimits.planning.known import KnownPulsarPlan, is_known_pulsar, plan_known_pulsar
@@ -127,7 +133,7 @@ _MISMATCH_SEED = 71201       # fixed: the mismatch sample is a quadrature rule
 _R2_NODES = 32               # condensation of the orientation rule (detection._condense)
 _SIGNAL_NODES = 48
 _BAD_LOG_A = 60.0            # ln a of an unreachable confidence (depth ~ 0)
-_R2_SPAN_S = 365.25 * 86400  # span of the antenna-pattern averages of the fast model
+_R2_SPAN_S = SECONDS_PER_YEAR  # span of the antenna-pattern averages of the fast model
 
 
 # ---------------------------------------------------------------------------------------
@@ -158,13 +164,11 @@ def as_budget(value, name="budget"):
         Not a time, not positive, or not finite.
     """
     try:
-        q = u.Quantity(value)
-    except (TypeError, ValueError):
-        raise InputError(f"{name}: cannot read a time such as '1e5 h' or '30 yr'",
-                         value=value) from None
-    if q.unit == u.dimensionless_unscaled or not q.unit.is_equivalent(u.h):
+        q = parse_quantity(value, u.h, name, require_unit=True, keep_unit=True,
+                           error=InputError)
+    except InputError:
         raise InputError(f"{name} must be a computing time with a unit (core-hours "
-                         "'1e5 h', CPU-years '30 yr')", value=str(value))
+                         "'1e5 h', CPU-years '30 yr')", value=str(value)) from None
     if q.ndim != 0:
         raise InputError(f"{name} must be a single value", value=str(value))
     x = q.to_value(u.h)
@@ -174,8 +178,9 @@ def as_budget(value, name="budget"):
 
 
 def _positive_time(value, name):
-    q = u.Quantity(value)
-    x = float(to_value(q, u.s, name))
+    if isinstance(value, str):
+        value = parse_quantity(value, u.s, name, require_unit=True, error=InputError)
+    x = float(to_value(value, u.s, name))
     if not (math.isfinite(x) and x > 0):
         raise InputError(f"{name} must be a positive finite time", value=str(value))
     return x
@@ -245,7 +250,7 @@ class PowerLawModel:
 
     def cost(self, t_s, n, mu_c, mu_f):
         """Cost in core-hours, shape (n_candidates, 1)."""
-        t_day = np.asarray(t_s, float) / 86400.0
+        t_day = np.asarray(t_s, float) / SECONDS_PER_DAY
         return (self.k_h * np.asarray(n, float) ** self.a * t_day ** self.b)[:, None]
 
     def log_depth(self, t_s, n, mu_c, mu_f, cost_info=None):
@@ -679,8 +684,8 @@ class _DepthSearch:
         if not np.any(np.isfinite(merit)):
             raise ComputationError(
                 f"no setup fits the budget {self.budget_h:.4g} h: even one segment of "
-                f"t_seg_min = {self.t_min / 86400:.4g} day costs more; raise the budget, "
-                "shorten t_seg_min or narrow the band")
+                f"t_seg_min = {self.t_min / SECONDS_PER_DAY:.4g} day costs more; raise the "
+                "budget, shorten t_seg_min or narrow the band")
         i = int(np.argmax(merit))
         best = (int(n[i]), float(mc[i]), float(mf[i]), float(t[i]), float(merit[i]))
         grid_merit = best[-1]
@@ -974,7 +979,7 @@ def _planner(target, noise, span, *, case, band, band_width, detectors, lattice,
 def _plan_setup(base, model, opt):
     lft, rgt = opt.window
     band = ((model.lo[lft] << u.Hz), (model.hi[rgt - 1] << u.Hz))
-    return base.replace(t_seg=(opt.t_s / 86400.0) << u.day, n_seg=int(opt.n),
+    return base.replace(t_seg=(opt.t_s / SECONDS_PER_DAY) << u.day, n_seg=int(opt.n),
                         mismatch_coherent=float(opt.mu_c), mismatch_semicoherent=float(opt.mu_f),
                         band=band)
 
@@ -1325,7 +1330,7 @@ def _rank_plan(target, found, j, budget_h, span, measure, case, noise, options):
                        options["lattice"], options["braking_index"],
                        options["cost_coherent"], options["cost_semicoherent"],
                        options["duty_factor"])
-    setup = base.replace(t_seg=(float(found["t_s"][j]) / 86400.0) << u.day,
+    setup = base.replace(t_seg=(float(found["t_s"][j]) / SECONDS_PER_DAY) << u.day,
                          n_seg=int(found["n"][j]),
                          mismatch_coherent=float(found["mu_c"][j]),
                          mismatch_semicoherent=float(found["mu_f"][j]),

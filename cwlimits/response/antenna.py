@@ -1369,43 +1369,64 @@ def orientation_factor_rule(source, coord=None, start=None, span=None, *, duty=1
     return R2 << u.one, W
 
 
-def weighted_quantiles(values, weights, q):
+def weighted_quantiles(values, weights, q, *, method="hazen"):
     """Quantiles of a weighted set of values (e.g. a quadrature rule of R^2).
+
+    The one weighted quantile of the package.
 
     Parameters
     ----------
     values : Quantity or array_like
         Shape ``(..., m)``.
     weights : array_like
-        Shape ``(m,)``, non-negative, not all zero.
+        Shape ``(m,)`` (one weight per value, shared by every row) or the shape of
+        ``values`` (weights per row); non-negative, not all zero in any row.
     q : float or array_like
         Probabilities in [0, 1].
+    method : {'hazen', 'inverted_cdf'}
+        ``'hazen'`` (default): the weighted empirical distribution interpolated linearly
+        between the mid-points of each value's weight (the weighted analogue of the
+        'hazen' rule of :func:`numpy.quantile`).  ``'inverted_cdf'``: the smallest value
+        whose cumulative weight reaches ``q`` (no interpolation; the weighted analogue of
+        numpy's 'inverted_cdf' rule).
 
     Returns
     -------
     Quantity or ndarray
         Shape ``(*q.shape, ...)``, in the unit of ``values``.
 
-    Notes
-    -----
-    The weighted empirical distribution is interpolated linearly between the mid-points
-    of each value's weight (the weighted analogue of the 'hazen' rule of
-    :func:`numpy.quantile`).
+    References
+    ----------
+    Hyndman & Fan 1996, The American Statistician 50, 361 (the sample-quantile
+    definitions; 'inverted_cdf' is their type 1, 'hazen' their type 5).
     """
     unit = getattr(values, "unit", None)
     v = np.asarray(getattr(values, "value", values), dtype=float)
     w = np.asarray(weights, dtype=float)
     q = np.asarray(q, dtype=float)
-    if np.any((q < 0) | (q > 1)) or w.shape != v.shape[-1:] or np.any(w < 0) or w.sum() <= 0:
+    if method not in ("hazen", "inverted_cdf"):
+        raise InputError("weighted_quantiles: method must be 'hazen' or 'inverted_cdf'",
+                         value=method)
+    if (np.any((q < 0) | (q > 1)) or w.shape not in (v.shape[-1:], v.shape)
+            or np.any(w < 0) or np.any(w.sum(axis=-1) <= 0)):
         raise InputError("weighted_quantiles needs q in [0, 1] and one non-negative weight "
                          "per value")
     order = np.argsort(v, axis=-1)
     vs = np.take_along_axis(v, order, axis=-1)
-    ws = w[order] / w.sum()
-    cdf = np.cumsum(ws, axis=-1) - ws / 2
-    sky = v.shape[:-1]
-    flat_v, flat_c = vs.reshape(-1, v.shape[-1]), cdf.reshape(-1, v.shape[-1])
-    out = np.array([np.interp(q, c, x) for c, x in zip(flat_c, flat_v, strict=True)])
+    if w.ndim == 1:
+        ws = w[order] / w.sum()
+    else:
+        ws = np.take_along_axis(w, order, axis=-1) / w.sum(axis=-1, keepdims=True)
+    sky, m = v.shape[:-1], v.shape[-1]
+    flat_v, flat_w = vs.reshape(-1, m), ws.reshape(-1, m)
+    if method == "hazen":
+        flat_c = np.cumsum(flat_w, axis=-1) - flat_w / 2
+        out = np.array([np.interp(q, c, x) for c, x in zip(flat_c, flat_v, strict=True)])
+    else:
+        cw = np.cumsum(flat_w, axis=-1)
+        k = np.minimum(np.sum(cw[:, None, :] < q.reshape(-1)[None, :, None], axis=-1),
+                       m - 1)
+        out = np.take_along_axis(flat_v, k, axis=-1)
     # Quantile axes first, as numpy.quantile does.
     out = np.moveaxis(out.reshape(sky + q.shape), list(range(len(sky), len(sky) + q.ndim)),
                       list(range(q.ndim)))

@@ -186,8 +186,8 @@ def count_templates(setup, target_or_space, bands=None):
     Returns
     -------
     astropy.table.QTable
-        One row per band (flattened): ``f_min``, ``f_max`` [Hz]; ``n_coh`` (per segment),
-        ``n_semi``; ``dims_coh``, ``dims_semi`` (the dimension that gave the count);
+        One row per band (flattened): ``f_lo``, ``f_hi`` [Hz] (band edges); ``n_coh``
+        (per segment), ``n_semi``; ``dims_coh``, ``dims_semi`` (the dimension that gave the count);
         ``volume_1`` [Hz], ``volume_2`` [Hz2/s], ``volume_3`` [Hz3/s3] (the band's
         parameter-space volume in f; f, fdot; f, fdot, fddot).
         ``meta['assumptions']`` describes the setup and space.
@@ -215,8 +215,8 @@ def count_templates(setup, target_or_space, bands=None):
     n_coh, d_coh = _stage(coh, thickness, setup.mismatch_coherent, volumes)
     n_semi, d_semi = _stage(semi, thickness, setup.mismatch_semicoherent, volumes)
     table = QTable()
-    table["f_min"] = lo.ravel() << u.Hz
-    table["f_max"] = hi.ravel() << u.Hz
+    table["f_lo"] = lo.ravel() << u.Hz
+    table["f_hi"] = hi.ravel() << u.Hz
     table["n_coh"] = n_coh.ravel()
     table["n_semi"] = n_semi.ravel()
     table["dims_coh"] = d_coh.ravel()

@@ -58,6 +58,7 @@ from cwlimits import _defaults
 from cwlimits._files import atomic_write
 from cwlimits._sizes import check_size
 from cwlimits._toml import load_toml
+from cwlimits._units import parse_quantity
 from cwlimits.errors import ConfigError, InputError, SizeLimitError
 from cwlimits.searchspace.lattices import _canonical as _canonical_lattice
 from cwlimits.searchspace.parameter_space import check_braking_range
@@ -120,9 +121,9 @@ def _fail(field_name, message, value=None):
 def _scalar_quantity(value, unit, name, positive=True):
     if isinstance(value, str):
         try:
-            value = u.Quantity(value)
-        except (ValueError, TypeError):
-            _fail(name, f"cannot read a quantity (for example '10 {unit}')", value)
+            value = parse_quantity(value, unit, name, require_unit=True, keep_unit=True)
+        except InputError as exc:
+            _fail(name, exc.reason.removeprefix(f"{name}: "), value)
     if not isinstance(value, u.Quantity):
         _fail(name, f"needs a unit of {u.Unit(unit).physical_type} (a Quantity)", value)
     if not value.unit.is_equivalent(unit):
@@ -544,16 +545,5 @@ def _read_quantity(key, value, unit, desc, path):
     if not isinstance(value, str):
         raise ConfigError(f"key '{key}' ({desc}): needs a string with a unit, e.g. "
                           f"\"{example}\"", file=path, value=value)
-    try:
-        q = u.Quantity(value)
-    except (ValueError, TypeError):
-        raise ConfigError(f"key '{key}' ({desc}): cannot read a number with a unit, e.g. "
-                          f"\"{example}\"", file=path, value=value) from None
-    if q.unit == u.dimensionless_unscaled:
-        raise ConfigError(f"key '{key}' ({desc}): has no unit; write e.g. \"{example}\"",
-                          file=path, value=value)
-    if not q.unit.is_equivalent(unit):
-        raise ConfigError(f"key '{key}' ({desc}): needs a unit of "
-                          f"{u.Unit(unit).physical_type}, not '{q.unit}'", file=path,
-                          value=value)
-    return q
+    return parse_quantity(value, unit, f"key '{key}' ({desc})", require_unit=True,
+                          keep_unit=True, error=ConfigError, file=path)

@@ -259,7 +259,7 @@ def signal_model(setup, noise, target=None, bands=None, *, start=DEFAULT_START,
     names = [d.name for d in detectors]
     sources = noise_per_detector(noise, names)
     counts = count_templates(setup, target if target is not None else 1e3 * u.yr, bands)
-    lo, hi = counts["f_min"], counts["f_max"]
+    lo, hi = counts["f_lo"], counts["f_hi"]
     cache = {} if _cache is None else _cache
 
     def cached(key, make):

@@ -180,7 +180,7 @@ def _band_rows(table, idx):
     import astropy.units as u
 
 
-    return [[f"{table['f_min'][i].value:.6g}", f"{table['f_max'][i].value:.6g}",
+    return [[f"{table['f_lo'][i].value:.6g}", f"{table['f_hi'][i].value:.6g}",
              sci(table["n_coh"][i]), str(int(table["dims_coh"][i])), sci(table["n_semi"][i]),
              str(int(table["dims_semi"][i])), sci(table["cost"][i].to_value(u.h))]
             for i in idx]
@@ -194,7 +194,7 @@ def _print_bands(args, estimate, setup, what):
     n = len(table)
     echo(args, f"computing cost of {setup.n_seg} x {setup.t_seg} segments, "
                f"{','.join(setup.detectors)}, {what}")
-    headers = ["f_min [Hz]", "f_max [Hz]", "N_coh/seg", "dim", "N_semi", "dim",
+    headers = ["f_lo [Hz]", "f_hi [Hz]", "N_coh/seg", "dim", "N_semi", "dim",
                "cost [core-h]"]
     if n <= 20:
         echo(args, format_rows(headers, _band_rows(table, range(n))))
