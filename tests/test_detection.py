@@ -705,6 +705,27 @@ def test_newton_matches_the_bracketing_solve(confidence):
     assert np.max(np.abs(exact - confidence)) < 1e-5
 
 
+def test_shared_survival_tables_for_repeated_thresholds():
+    # Elements repeating one (threshold, N) under different rules share one survival table:
+    # the same ln a as solving each rule on its own (to 1e-12, the same arithmetic), and
+    # within 1e-6 in depth of the direct sums of scipy.stats.ncx2.sf (Sankaran from 4N = 400).
+    rule = _fixed_sky_rule()
+    thr, n_seg = _setups(6, np.random.default_rng(12))
+    scales = np.array([0.8, 1.0, 1.25])
+    rules = det.product_signal_rule(det.QuadratureRule(
+        rule.c * scales[:, None], np.broadcast_to(rule.w, (3, rule.c.shape[1]))), 0.0)
+    rid = np.repeat(np.arange(3), 6)
+    thr_all, n_all = np.tile(thr, 3), np.tile(n_seg, 3)
+    together = det.solve_log_amplitude(thr_all, n_all, 0.95, rules, rid=rid)
+    for k in range(3):
+        alone = det.solve_log_amplitude(thr, n_seg, 0.95, det.product_signal_rule(
+            det.QuadratureRule(rules.c[k], rules.w[k]), 0.0))
+        np.testing.assert_allclose(together[rid == k], alone, rtol=1e-12)
+    direct = det.solve_log_amplitude(thr_all, n_all, 0.95, rules, rid=rid, tabulate=False,
+                                     interpolate=False)
+    assert np.max(np.abs(np.sqrt(direct / together) - 1)) < 1e-6
+
+
 def test_interpolant_slope_and_grid_top():
     # The analytic slope of the interpolated mixture against a central difference of its
     # value (relative 1e-5), and the top of the shortened grid in sqrt(rho2) against

@@ -699,19 +699,24 @@ def _root_log_a(thr, nseg, prob, rid, rule, method="auto", xatol=1e-9, interpola
                                           rule.w[row], method) - prob
     else:
         # Tabulate each element's survival function in sqrt(rho2) once.
-        table = _SurvivalTable(thr, nseg, method)
+        # Elements sharing (threshold, N) share one table (planning tables repeat each
+        # pair for every mismatch rule): the survival functions depend on nothing else.
+        pairs, table_row = np.unique(np.stack([thr, nseg], axis=1), axis=0,
+                                     return_inverse=True)
+        table_row = table_row.reshape(-1)
+        table = _SurvivalTable(pairs[:, 0], pairs[:, 1], method)
         sqrt_c = np.sqrt(rule.c)
         shared = rule.c.shape[0] == 1
 
         def f(y, thr, nseg, prob, row, elem):
             row = row.astype(np.intp)
+            rows = table_row[elem.astype(np.intp)]
             if shared:  # one rule for all: no gather
-                return table.mixture(np.exp(y), sqrt_c, rule.w, elem.astype(np.intp)) - prob
-            return table.mixture(np.exp(y), sqrt_c[row], rule.w[row],
-                                 elem.astype(np.intp)) - prob
+                return table.mixture(np.exp(y), sqrt_c, rule.w, rows) - prob
+            return table.mixture(np.exp(y), sqrt_c[row], rule.w[row], rows) - prob
 
         if newton:
-            y, done = _newton_log_a(table, sqrt_c, rule.w, prob, rid, y0)
+            y, done = _newton_log_a(table, sqrt_c, rule.w, prob, rid, y0, table_row)
             if np.all(done):
                 return y
             rest = ~done
@@ -737,7 +742,7 @@ def _chandrupatla_log_a(f, thr, nseg, prob, rid, idx, y0, xatol):
     return res.x
 
 
-def _newton_log_a(table, sqrt_c, w, prob, rid, y0):
+def _newton_log_a(table, sqrt_c, w, prob, rid, y0, table_row=None):
     """Safeguarded Newton solve of ``P_det = prob`` on the tabulated survival functions.
 
     Works in ``x = sqrt(a)``, on ``G(x) = ndtri(P(x)) - ndtri(prob)``: for one node ``P``
@@ -749,9 +754,11 @@ def _newton_log_a(table, sqrt_c, w, prob, rid, y0):
     non-positive slope, is replaced by a geometric bisection (or a doubling / halving
     while one side is open).
 
+    ``table_row``: the row of ``table`` of each element (default: element ``i``, row ``i``).
     Returns ``(ln a, converged)``; unconverged elements are for the bracketing solver.
     """
     n = len(prob)
+    table_row = np.arange(n) if table_row is None else table_row
     x = np.exp(0.5 * y0)
     lo = np.zeros(n)
     hi = np.full(n, np.inf)
@@ -764,7 +771,7 @@ def _newton_log_a(table, sqrt_c, w, prob, rid, y0):
         xa = x[active]
         rows = rid[active]
         p, dp = table.mixture(xa * xa, sqrt_c if shared else sqrt_c[rows],
-                              w if shared else w[rows], active, slope=True)
+                              w if shared else w[rows], table_row[active], slope=True)
         low = p < prob[active]
         lo[active] = np.where(low, np.maximum(lo[active], xa), lo[active])
         hi[active] = np.where(low, hi[active], np.minimum(hi[active], xa))
