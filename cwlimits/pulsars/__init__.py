@@ -24,6 +24,7 @@ from cwlimits.pulsars.emission import (
 )
 from cwlimits.pulsars.expected import targeted_sensitivity
 from cwlimits.pulsars.grid import OrientationPrior
+from cwlimits.pulsars.narrowband import NarrowBandLimit, narrow_band_limit
 from cwlimits.pulsars.posterior import (
     PulsarPosterior,
     limit_table,
@@ -36,4 +37,5 @@ __all__ = ["EmissionModel", "SINGLE_HARMONIC", "DUAL_HARMONIC", "RMODE", "get_em
            "harmonics", "targeted_sensitivity", "OrientationPrior", "DownConvertedData",
            "read_down_converted", "write_down_converted", "simulate_pulsar_signal",
            "add_noise", "pulsar_posterior", "PulsarPosterior", "limit_table",
-           "spindown_ratios", "known_pulsar_summary", "sensitivity_curve"]
+           "spindown_ratios", "known_pulsar_summary", "sensitivity_curve",
+           "narrow_band_limit", "NarrowBandLimit"]
