@@ -14,6 +14,7 @@ from cwlimits.pulsars.data import (
     simulate_pulsar_signal,
     write_down_converted,
 )
+from cwlimits.pulsars.dual import DualHarmonicPosterior, dual_harmonic_posterior, dual_limit_table
 from cwlimits.pulsars.emission import (
     DUAL_HARMONIC,
     RMODE,
@@ -38,4 +39,5 @@ __all__ = ["EmissionModel", "SINGLE_HARMONIC", "DUAL_HARMONIC", "RMODE", "get_em
            "read_down_converted", "write_down_converted", "simulate_pulsar_signal",
            "add_noise", "pulsar_posterior", "PulsarPosterior", "limit_table",
            "spindown_ratios", "known_pulsar_summary", "sensitivity_curve",
-           "narrow_band_limit", "NarrowBandLimit"]
+           "narrow_band_limit", "NarrowBandLimit", "dual_harmonic_posterior",
+           "DualHarmonicPosterior", "dual_limit_table"]
