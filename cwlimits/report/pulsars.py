@@ -27,6 +27,10 @@ from cwlimits.searchspace.searchsetup import SearchSetup
 
 __all__ = ["known_pulsar_setup", "simulate_noise_only", "known_pulsar_section"]
 
+#: Sample length of the simulated data of a narrow-band pulsar (a residual frequency nu
+#: loses sinc(pi nu dt) of its amplitude in a sample of length dt).
+NARROW_BAND_SAMPLE = 6 * u.hour
+
 #: Noise-only draws of each predicted limit in a report (Monte-Carlo error ~2 %).
 REPORT_NOISE_DRAWS = 100
 
@@ -112,13 +116,13 @@ def known_pulsar_section(rep, catalogue, noise, *, span, detectors, duty_factor,
             # a start after the last leap-second table is fine here (ERFA "dubious year")
             warnings.simplefilter("ignore", ErfaWarning)
             start_gps = float(Time(start).gps)
-        # a measured limit from the targeted posterior is only meaningful for a pulsar
-        # whose phase is known: no simulated data for one with timing uncertainties
+        # a pulsar whose timing leaves a box (narrow-band) gets shorter samples, so that
+        # a signal anywhere in the box survives the averaging of a sample
         for t in pulsars:
-            if t.f_rot_err is not None or t.fdot_rot_err is not None:
-                continue
+            narrow = t.f_rot_err is not None or t.fdot_rot_err is not None
             data.setdefault(t.name, simulate_noise_only(
-                t, setup, noise, start_gps, named_seed(seed, f"pulsar-data:{t.name}")))
+                t, setup, noise, start_gps, named_seed(seed, f"pulsar-data:{t.name}"),
+                sample=NARROW_BAND_SAMPLE if narrow else 1 * u.day))
     table = known_pulsar_summary(catalogue, setup, noise, data=data, confidence=confidence,
                                  n_noise=REPORT_NOISE_DRAWS,
                                  rng=named_seed(seed, "known-pulsars"), start=start,
@@ -128,8 +132,8 @@ def known_pulsar_section(rep, catalogue, noise, *, span, detectors, duty_factor,
     info = dict(table.meta["assumptions"])
     if simulate:
         info["data"] = ("SIMULATED noise-only down-converted data (no signal), one sample "
-                        "per day in stretches of 24 days with gaps for the duty factor, "
-                        "for the pulsars without timing uncertainties (targeted); the "
+                        "per day (every 6 hours for a pulsar with timing uncertainties) in "
+                        "stretches of 24 samples with gaps for the duty factor; the "
                         "measured limits are those of these simulated data"
                         + (" (except " + ", ".join(given) + ")" if given else ""))
     if given:
@@ -143,7 +147,10 @@ def known_pulsar_section(rep, catalogue, noise, *, span, detectors, duty_factor,
         "small box (narrow-band) otherwise.  The predicted limit is the median 95 % "
         "Bayesian upper limit on noise-only data with the orientation prior integrated "
         "(Dupuis & Woan 2005), or the narrow-band sensitivity; the measured limit is the "
-        "95 % posterior quantile of h0 from the down-converted data.  The spin-down limit "
+        "95 % posterior quantile of h0 from the down-converted data (targeted), or, for a "
+        "narrow-band search, the Bayesian 95 % limit from the loudest F-statistic of the "
+        "box with its trials factor in the likelihood (column limit_method says which "
+        "kind each limit is).  The spin-down limit "
         "h_sd assumes all the rotational energy loss goes into gravitational waves, "
         "I = 1e38 kg m^2 and the catalogue distance (Jaranowski, Krolak & Schutz 1998); "
         "h95/h_sd < 1 means the search constrains the star.  Columns: f_rot, f_gw [Hz]; "
@@ -169,9 +176,13 @@ def known_pulsar_section(rep, catalogue, noise, *, span, detectors, duty_factor,
                        f"the expected 95 % limit of a targeted search over "
                        f"{u.Quantity(span).to(u.day):.4g} (line; K = {k:.3g} times "
                        "sqrt(S_n / T_data), the median of the targeted rows)")
-    if data:
+    if any(kind == "targeted" and name in data
+           for name, kind in zip(table["name"], table["kind"], strict=True)):
         ratio = np.asarray(table["ratio_spindown"], float)
-        names = [n for n in np.asarray(table["name"]) if n in data]
+        # the posterior figure is of a targeted pulsar (the time-domain posterior)
+        kinds = dict(zip(table["name"], table["kind"], strict=True))
+        names = [n for n in np.asarray(table["name"]) if n in data
+                 and kinds[n] == "targeted"]
         best = min(names, key=lambda n: ratio[list(table["name"]).index(n)])
         target = catalogue.target(best)
         post = pulsar_posterior(data[best], target, confidence=confidence)
