@@ -76,6 +76,9 @@ CONFIG_KEYS = {
                      "[pulsars.data.\"NAME\"] of detector = \"file\" (one file of the "
                      "down-converted format per detector of data.detectors); the "
                      "known-pulsar section then shows the measured limits from them"),
+    "validation.injections": ("int", None, 0,
+                              "mock-search injections per h0 (and noise-only, noise-free "
+                              "runs) for each planned setup; 0: no validation section"),
 }
 
 
@@ -305,6 +308,9 @@ def _check(path, values, found):
             except SizeLimitError as exc:
                 raise ConfigError(f"key '{key}': {exc.reason}", file=str(path),
                                   value=written(key)) from None
+    if values["validation.injections"] < 0:
+        _fail(path, "validation.injections", "must be a whole number >= 0",
+              written("validation.injections"))
     if values["planning.max_targets"] < 1:
         _fail(path, "planning.max_targets", "must be at least 1",
               written("planning.max_targets"))
