@@ -6,7 +6,8 @@ A results table is a CSV or ECSV file with one row per frequency band:
 column                         unit   meaning
 =============================  =====  ================================================
 ``f_lo`` or ``f_mid``          Hz     lower edge, or centre, of the band (one of them)
-``width``                      Hz     band width (> 0)
+``band_width``                 Hz     band width (> 0; ``width`` of earlier versions
+                                      still works for one release)
 ``loudest_2F``                 --     loudest StackSlide statistic, the total over the
                                       segments ``2F = sum_k 2F_k``
 or ``loudest_2F_per_segment``         ... or the same divided by the number of segments
@@ -36,6 +37,7 @@ from dataclasses import dataclass, field
 import astropy.units as u
 import numpy as np
 
+from cwlimits._deprecate import renamed_keywords, warn_renamed
 from cwlimits.errors import CoverageWarning, StatisticWarning, TableError
 from cwlimits.tables import read_table
 
@@ -68,8 +70,9 @@ class SearchResults:
 
     Attributes
     ----------
-    f_lo, width : Quantity ['frequency']
-        Lower band edges and widths, sorted by frequency.
+    f_lo, band_width : Quantity ['frequency']
+        Lower band edges and widths, sorted by frequency (``width``, the name of earlier
+        versions, still works for one release as a keyword and an attribute).
     loudest : ndarray
         The loudest value of the statistic in each band, in the ``convention``.
     convention : {'total', 'per_segment'}
@@ -86,7 +89,7 @@ class SearchResults:
     """
 
     f_lo: u.Quantity
-    width: u.Quantity
+    band_width: u.Quantity
     loudest: np.ndarray
     convention: str
     psd: u.Quantity | None = None
@@ -94,18 +97,24 @@ class SearchResults:
     source: str = ""
     rows: np.ndarray = field(default_factory=lambda: np.zeros(0, int))
 
+    @property
+    def width(self):
+        """The band widths under their old name (deprecated: use ``band_width``)."""
+        warn_renamed("attribute", "width", "band_width", "SearchResults", stacklevel=3)
+        return self.band_width
+
     def __len__(self):
         return len(self.loudest)
 
     @property
     def f_hi(self):
         """Upper band edges."""
-        return self.f_lo + self.width
+        return self.f_lo + self.band_width
 
     @property
     def f_mid(self):
         """Band centres."""
-        return self.f_lo + self.width / 2
+        return self.f_lo + self.band_width / 2
 
     def gaps(self, band=None):
         """Frequency ranges without a result, as an ``(n, 2)`` Quantity in Hz.
@@ -119,7 +128,7 @@ class SearchResults:
         """
         lo = self.f_lo.to_value(u.Hz)
         hi = self.f_hi.to_value(u.Hz)
-        tol = _EDGE_RTOL * np.max(self.width.to_value(u.Hz))
+        tol = _EDGE_RTOL * np.max(self.band_width.to_value(u.Hz))
         inner = np.flatnonzero(lo[1:] - hi[:-1] > tol)
         ranges = [(hi[k], lo[k + 1]) for k in inner]
         if band is not None:
@@ -143,6 +152,10 @@ class SearchResults:
         return self.loudest * n_seg if self.convention == "per_segment" else self.loudest
 
 
+# ``SearchResults(width=...)`` of earlier versions keeps working for one release.
+SearchResults.__init__ = renamed_keywords(width="band_width")(SearchResults.__init__)
+
+
 def load_results(path):
     """Read and validate a per-band results table (see the module docstring).
 
@@ -160,8 +173,12 @@ def load_results(path):
     if raw.has("f_lo") == raw.has("f_mid"):
         raw.fail("give the band position as 'f_lo' (lower edge) or 'f_mid' (centre), "
                  "exactly one of them", column="f_lo")
-    raw.require("width")
-    width = raw.quantity("width", u.Hz, positive=True)
+    width_column = "band_width"
+    if raw.has("width") and not raw.has("band_width"):
+        warn_renamed("column", "width", "band_width", raw.path)
+        width_column = "width"
+    raw.require(width_column)
+    width = raw.quantity(width_column, u.Hz, positive=True)
     if raw.has("f_lo"):
         f_lo = raw.quantity("f_lo", u.Hz, positive=True)
     else:
@@ -204,7 +221,7 @@ def load_results(path):
                          f"{lo[k] + wd[k]:.10g} Hz)", file=raw.path, row=int(lines[k + 1]),
                          column=position, value=raw.text(position)[order[k + 1]])
     results = SearchResults(
-        f_lo=lo << u.Hz, width=wd << u.Hz, loudest=loudest[order],
+        f_lo=lo << u.Hz, band_width=wd << u.Hz, loudest=loudest[order],
         convention=STATISTIC_COLUMNS[stat_column],
         psd=None if psd is None else psd[order],
         n_templates=None if n_templates is None else n_templates[order],
