@@ -43,6 +43,7 @@ from astropy.table import QTable
 from scipy import integrate, interpolate, stats
 from scipy.optimize import elementwise
 
+from cwlimits._deprecate import renamed_keywords
 from cwlimits._random import as_generator, seed_sequence
 from cwlimits._units import fraction, positive_value
 from cwlimits.errors import ComputationError, CoverageWarning, CwlimitsWarning, InputError
@@ -797,10 +798,11 @@ def _blank_zero_limits(out, results, confidence):
     return note
 
 
+@renamed_keywords(inertia_range="moment_of_inertia_range")
 def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=None, *,
                  noise=DEFAULT_NOISE_MODEL, prior="uniform", h0_min=None, h0_max=None,
                  distance_prior="uniform", moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA,
-                 inertia_range=None, sampler="fast", sampler_bands=None, n_walkers=64,
+                 moment_of_inertia_range=None, sampler="fast", sampler_bands=None, n_walkers=64,
                  n_steps=6000, burn=500, n_astro=None, tabulate=True, executor=None,
                  store=None, key=None, chunk_size=None, progress=False, **model_options):
     """Upper limits on h0, ellipticity and r-mode amplitude per band of a finished search.
@@ -828,8 +830,8 @@ def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=No
         On [distance_min, distance_max]; log-normal with median ``distance`` and the range
         as its central 90 % interval; 'fixed' at ``distance``.
     moment_of_inertia : Quantity ['kg m2']
-        Fixed I (default 1e38 kg m^2), unless ``inertia_range`` is given.
-    inertia_range : (Quantity, Quantity), optional
+        Fixed I (default 1e38 kg m^2), unless ``moment_of_inertia_range`` is given.
+    moment_of_inertia_range : (Quantity, Quantity), optional
         I uniform in this range.
     sampler : {'fast', 'emcee'}
         'emcee' adds an emcee limit for ``sampler_bands`` (indices into the results).
@@ -874,12 +876,12 @@ def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=No
         raise InputError("h0_min must be below h0_max", value=(hmin, hmax))
     i_fixed = _quantity_or_none(moment_of_inertia, u.kg * u.m**2, "moment_of_inertia")
     i_range = None
-    if inertia_range is not None:
-        i_range = tuple(_quantity_or_none(v, u.kg * u.m**2, "inertia_range")
-                        for v in inertia_range)
+    if moment_of_inertia_range is not None:
+        i_range = tuple(_quantity_or_none(v, u.kg * u.m**2, "moment_of_inertia_range")
+                        for v in moment_of_inertia_range)
         if i_range[0] >= i_range[1]:
-            raise InputError("inertia_range must be (low, high) with low < high",
-                             value=[str(v) for v in inertia_range])
+            raise InputError("moment_of_inertia_range must be (low, high) with low < high",
+                             value=[str(v) for v in moment_of_inertia_range])
     if sampler == "emcee" and method != "bayes":
         raise InputError("the emcee sampler is for method='bayes'")
     if sampler == "emcee" and model_options.get("sky", "target") != "target":
