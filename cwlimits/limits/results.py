@@ -31,11 +31,15 @@ limits put an empty row, a break in every curve, in each gap; see
 :func:`cwlimits.limits.upper.upper_limits`).
 """
 
+from __future__ import annotations
+
 import warnings
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import astropy.units as u
 import numpy as np
+from numpy.typing import ArrayLike
 
 from cwlimits._deprecate import renamed_keywords, warn_renamed
 from cwlimits.errors import CoverageWarning, StatisticWarning, TableError
@@ -98,7 +102,7 @@ class SearchResults:
     rows: np.ndarray = field(default_factory=lambda: np.zeros(0, int))
 
     @property
-    def width(self):
+    def width(self) -> u.Quantity:
         """The band widths under their old name (deprecated: use ``band_width``)."""
         warn_renamed("attribute", "width", "band_width", "SearchResults", stacklevel=3)
         return self.band_width
@@ -107,16 +111,16 @@ class SearchResults:
         return len(self.loudest)
 
     @property
-    def f_hi(self):
+    def f_hi(self) -> u.Quantity:
         """Upper band edges."""
         return self.f_lo + self.band_width
 
     @property
-    def f_mid(self):
+    def f_mid(self) -> u.Quantity:
         """Band centres."""
         return self.f_lo + self.band_width / 2
 
-    def gaps(self, band=None):
+    def gaps(self, band: tuple[u.Quantity, u.Quantity] | None = None) -> u.Quantity:
         """Frequency ranges without a result, as an ``(n, 2)`` Quantity in Hz.
 
         Parameters
@@ -139,7 +143,7 @@ class SearchResults:
                 ranges.append((max(hi[-1], f_min), f_max))
         return np.array(ranges, dtype=float).reshape(-1, 2) << u.Hz
 
-    def coverage(self, band=None):
+    def coverage(self, band: tuple[u.Quantity, u.Quantity] | None = None) -> float:
         """Fraction of ``band`` (default: first to last band edge) that has a result."""
         lo, hi = self.f_lo.to_value(u.Hz), self.f_hi.to_value(u.Hz)
         f_min, f_max = ((lo[0], hi[-1]) if band is None
@@ -147,7 +151,7 @@ class SearchResults:
         inside = np.clip(hi, f_min, f_max) - np.clip(lo, f_min, f_max)
         return float(np.sum(inside) / (f_max - f_min))
 
-    def loudest_total(self, n_seg):
+    def loudest_total(self, n_seg: int) -> np.ndarray:
         """The loudest statistic as the total over ``n_seg`` segments."""
         return self.loudest * n_seg if self.convention == "per_segment" else self.loudest
 
@@ -156,7 +160,7 @@ class SearchResults:
 SearchResults.__init__ = renamed_keywords(width="band_width")(SearchResults.__init__)
 
 
-def load_results(path):
+def load_results(path: str | Path) -> SearchResults:
     """Read and validate a per-band results table (see the module docstring).
 
     Returns
@@ -240,14 +244,16 @@ def load_results(path):
     return results
 
 
-def format_ranges(ranges, most=5):
+def format_ranges(ranges: u.Quantity, most: int = 5) -> str:
     """``'103-104 Hz, 108-110 Hz'``: the first ``most`` of an ``(n, 2)`` Quantity in Hz."""
     values = np.asarray(u.Quantity(ranges).to_value(u.Hz)).reshape(-1, 2)
     text = ", ".join(f"{a:.6g}-{b:.6g} Hz" for a, b in values[:most])
     return text + (f" and {len(values) - most} more" if len(values) > most else "")
 
 
-def noise_loudest_range(n_templates, n_seg, probability=NOISE_RANGE_PROBABILITY):
+def noise_loudest_range(n_templates: float | ArrayLike, n_seg: int,
+                        probability: float = NOISE_RANGE_PROBABILITY
+                        ) -> tuple[np.ndarray, np.ndarray]:
     """The range of the loudest total 2F of ``n_templates`` independent noise-only templates.
 
     In Gaussian noise the StackSlide total 2F of one template is chi-squared with 4 N_seg
@@ -281,7 +287,7 @@ def noise_loudest_range(n_templates, n_seg, probability=NOISE_RANGE_PROBABILITY)
     return low, high
 
 
-def check_loudest(results, n_seg, n_templates):
+def check_loudest(results: SearchResults, n_seg: int, n_templates: float | ArrayLike) -> None:
     """Warn when a band's loudest statistic lies far below what noise alone gives.
 
     A loudest total 2F below the ``NOISE_RANGE_PROBABILITY`` quantile of the loudest of
