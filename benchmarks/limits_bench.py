@@ -48,7 +48,7 @@ def _inputs(n_bands):
     width = 100.0 / n_bands
     loudest = rng.chisquare(32, n_bands) + rng.uniform(0, 40, n_bands)
     res = SearchResults(f_lo=(100 + width * np.arange(n_bands)) << u.Hz,
-                        width=np.full(n_bands, width) << u.Hz, loudest=loudest,
+                        band_width=np.full(n_bands, width) << u.Hz, loudest=loudest,
                         convention="total")
     return res, setup, target
 

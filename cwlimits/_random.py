@@ -12,17 +12,24 @@ One rule for every stochastic function (SPEC 7, no global state): the argument `
   run is reproducible from the generator's state.
 """
 
+from __future__ import annotations
+
+from collections.abc import Sequence
+
 import numpy as np
 
 from cwlimits.errors import InputError
 
-__all__ = ["as_generator", "seed_sequence"]
+__all__ = ["as_generator", "seed_sequence", "RngLike"]
+
+#: What a ``rng`` argument accepts (for type hints).
+RngLike = int | Sequence[int] | np.random.SeedSequence | np.random.Generator | None
 
 _ACCEPTED = ("must be None, a non-negative integer (or a sequence of them), a numpy "
              "SeedSequence or a numpy Generator")
 
 
-def as_generator(rng, name="rng"):
+def as_generator(rng: RngLike, name: str = "rng") -> np.random.Generator:
     """``numpy.random.default_rng(rng)``, with an error naming ``name`` for a bad seed."""
     if isinstance(rng, np.random.Generator):
         return rng
@@ -32,7 +39,7 @@ def as_generator(rng, name="rng"):
         raise InputError(f"{name} {_ACCEPTED}", value=repr(rng)) from None
 
 
-def seed_sequence(rng, name="rng"):
+def seed_sequence(rng: RngLike, name: str = "rng") -> np.random.SeedSequence | None:
     """The root :class:`numpy.random.SeedSequence` of ``rng`` (None for None)."""
     if rng is None or isinstance(rng, np.random.SeedSequence):
         return rng

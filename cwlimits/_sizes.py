@@ -37,7 +37,7 @@ SIZE_LIMITS = {
                      "planning.budget_steps (configuration), rank --steps; one plan per "
                      "step and target, the exact split is quadratic in the steps"),
     "frequencies": (200_000, 2_000, "frequency points",
-                    "noise --band / --step; a few floats per point"),
+                    "noise --band / --band-width; a few floats per point"),
     "injections": (1_000_000, 20_000, "injections",
                    "validate --injections x --h0-steps; one simulated search each"),
     "templates": (100_000, 20_000, "templates",

@@ -9,6 +9,7 @@ would have been accepted.  The command line prints them as ``error: ...`` and ex
 __all__ = [
     "CwlimitsError",
     "CoverageWarning",
+    "CwlimitsDeprecationWarning",
     "StatisticWarning",
     "InputError",
     "CatalogueError",
@@ -100,6 +101,13 @@ class CwlimitsWarning(UserWarning):
 
     Raw numpy and astropy warnings never reach the user: the meaningful ones are turned
     into a ``CwlimitsWarning`` that says what it means for the result.
+    """
+
+
+class CwlimitsDeprecationWarning(CwlimitsWarning, DeprecationWarning):
+    """A keyword, table column or option of an earlier version, renamed to its glossary name.
+
+    The old name still works for one release (with this warning), then it is retired.
     """
 
 

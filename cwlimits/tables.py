@@ -23,11 +23,15 @@ the file line of every row, and :meth:`RawTable.quantity` turns a column into a 
 raising errors that name the file, row, column and value.
 """
 
+from __future__ import annotations
+
 import csv
 import io
 import math
 import re
+from collections.abc import Mapping
 from pathlib import Path
+from typing import NoReturn
 
 import astropy.units as u
 import numpy as np
@@ -44,7 +48,7 @@ _HEADER = re.compile(r"^\s*(?P<name>[^\[\]]*?)\s*(?:\[(?P<unit>[^\[\]]*)\])?\s*$
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
 
 
-def neutralise_cell(text):
+def neutralise_cell(text: str) -> str:
     """Return ``text`` with a leading ``'`` if a spreadsheet would evaluate it.
 
     Numbers written as text (``-1.5e-3``) are left alone: they are data, not formulas.
@@ -81,16 +85,17 @@ class RawTable:
     def __len__(self):
         return len(self.lines)
 
-    def has(self, name):
+    def has(self, name: str) -> bool:
         """Whether column ``name`` exists."""
         return name in self.columns
 
-    def fail(self, message, row_index=None, column=None, value=None):
+    def fail(self, message: str, row_index: int | None = None, column: str | None = None,
+             value: object = None) -> NoReturn:
         """Raise this table's error class, located at a 0-based row index."""
         row = None if row_index is None else self.lines[row_index]
         raise self.error(message, file=self.path, row=row, column=column, value=value)
 
-    def require(self, *names):
+    def require(self, *names: str) -> None:
         """Raise a located error naming the first missing column."""
         for name in names:
             if name not in self.columns:
@@ -98,17 +103,18 @@ class RawTable:
                 raise self.error(f"missing column '{name}' (columns found: {have})",
                                  file=self.path, column=name)
 
-    def blank(self, name):
+    def blank(self, name: str) -> np.ndarray:
         """Boolean array: where column ``name`` is empty (all True if the column is absent)."""
         if name not in self.columns:
             return np.ones(len(self), dtype=bool)
         return np.array([c is None or str(c).strip() == "" for c in self.columns[name]])
 
-    def text(self, name):
+    def text(self, name: str) -> list[str]:
         """Column ``name`` as a list of stripped strings ('' for a blank cell)."""
         return ["" if c is None else str(c).strip() for c in self.columns[name]]
 
-    def unit_of(self, name, default_unit, physical_type=None):
+    def unit_of(self, name: str, default_unit: str | u.UnitBase,
+                physical_type: str | None = None) -> u.UnitBase:
         """The column's declared unit, or ``default_unit``; checked against the type."""
         unit = self.units.get(name) or u.Unit(default_unit)
         want = u.Unit(default_unit)
@@ -118,8 +124,9 @@ class RawTable:
                 f"(use e.g. '{want}')", file=self.path, column=name, value=str(unit))
         return unit
 
-    def quantity(self, name, default_unit, *, required=True, positive=False,
-                 finite=True, physical_type=None):
+    def quantity(self, name: str, default_unit: str | u.UnitBase, *, required: bool = True,
+                 positive: bool = False, finite: bool = True,
+                 physical_type: str | None = None) -> u.Quantity:
         """Column ``name`` as a Quantity in ``default_unit``; blanks become NaN.
 
         Parameters
@@ -178,7 +185,8 @@ def _decode(path, error):
         raise error(f"not UTF-8 text (byte {exc.start})", file=path, row=line) from None
 
 
-def read_table(path, *, error=TableError, comments=("#",)):
+def read_table(path: str | Path, *, error: type[InputError] = TableError,
+               comments: tuple[str, ...] = ("#",)) -> RawTable:
     """Read a CSV (units in the header) or ECSV file into a :class:`RawTable`.
 
     The format follows the extension: ``.ecsv`` is read by astropy; anything else is read
@@ -333,7 +341,7 @@ _LATEX_SPECIAL = {"\\": r"\textbackslash{}", "&": r"\&", "%": r"\%", "$": r"\$",
                   "~": r"\textasciitilde{}", "^": r"\textasciicircum{}"}
 
 
-def latex_escape(text):
+def latex_escape(text: str) -> str:
     r"""Return ``text`` with LaTeX's special characters escaped (``a_b`` -> ``a\_b``)."""
     return "".join(_LATEX_SPECIAL.get(ch, ch) for ch in str(text))
 
@@ -398,7 +406,8 @@ def _write_latex(table, handle, meta, assumptions, tabular):
     handle.write(buffer.getvalue())
 
 
-def write_table(table, path, *, assumptions=None, title=None):
+def write_table(table: Table, path: str | Path, *, assumptions: Mapping[str, str] | None = None,
+                title: str | None = None) -> Path:
     """Write an astropy Table as CSV, ECSV or LaTeX (by extension), with units and assumptions.
 
     Parameters

@@ -69,7 +69,7 @@ def _exit_2_nothing_written(argv, tmp_path, capsys, path):
 @pytest.mark.parametrize("path", NOISE, ids=[p.name for p in NOISE])
 def test_bad_noise_file(path, tmp_path, capsys):
     out = tmp_path / "n.csv"
-    _exit_2_nothing_written(["noise", str(path), "--band", "12Hz", "18Hz", "--step", "1Hz",
+    _exit_2_nothing_written(["noise", str(path), "--band", "12Hz", "18Hz", "--band-width", "1Hz",
                              "--out", str(out)], tmp_path, capsys, path)
 
 
@@ -183,7 +183,7 @@ _bands = st.lists(st.tuples(st.floats(0.01, 10), st.floats(0, 1e4)), min_size=1,
 )
 @given(bands=_bands, start=st.floats(10, 1000))
 def test_generated_results_tables(tmp_path, bands, start):
-    lines, f = ["f_lo [Hz],width [Hz],loudest_2F"], start
+    lines, f = ["f_lo [Hz],band_width [Hz],loudest_2F"], start
     for width, stat in bands:
         lines.append(f"{f!r},{width!r},{stat!r}")
         f += width

@@ -72,7 +72,7 @@ _cell = st.one_of(
     st.text(alphabet=st.characters(codec="utf-8", exclude_categories=("Cs",)), max_size=6),
 )
 _headers = st.sampled_from([
-    CATALOGUE_HEADER, "name,ra,dec,distance,age", "f_lo [Hz],width [Hz],loudest_2F",
+    CATALOGUE_HEADER, "name,ra,dec,distance,age", "f_lo [Hz],band_width [Hz],loudest_2F",
     "f [Hz],asd [Hz^-1/2]", "f [Hz],psd [1/Hz]", "time [s],strain", "strain",
     "name,latitude,longitude,x_azimuth,y_azimuth", "f [Hz],h0", "a,\"b\nc\",d",
 ])

@@ -65,7 +65,7 @@ def test_extreme_distances_and_ages_in_the_indirect_limits(distance, age):
 def test_extreme_observed_statistics_give_finite_limits(target, loudest, method):
     setup = _coherent()
     model = cwlimits.signal_model(setup, "second-gen-fit", target)
-    results = SearchResults(f_lo=model.f_lo, width=model.f_hi - model.f_lo,
+    results = SearchResults(f_lo=model.f_lo, band_width=model.f_hi - model.f_lo,
                             loudest=np.full(len(model), loudest), convention="total",
                             source="edge", rows=np.arange(len(model)) + 2)
     if method == "bayes" and loudest == 0.0:

@@ -73,7 +73,7 @@ def test_rank_validate_noise_response_sizes(capsys, tmp_path, demo_catalogue_pat
     _fails(["rank", str(demo_catalogue_path), "--budget", "1e6h", "--span", "1yr",
             "--steps", "1000000000"], capsys, tmp_path, "--steps 1000000000",
            "budget steps")
-    _fails(["noise", "second-gen-fit", "--band", "20Hz", "2000Hz", "--step", "1e-6Hz"],
+    _fails(["noise", "second-gen-fit", "--band", "20Hz", "2000Hz", "--band-width", "1e-6Hz"],
            capsys, tmp_path, "frequency points")
     _fails(["response", "--ra", "12h", "--dec", "10d", "--detectors", "H1", "--start",
             "2030-01-01", "--order", "100000"], capsys, tmp_path, "--order 100000",
@@ -111,7 +111,7 @@ def test_allow_large_lifts_the_soft_limit_only():
 
 def test_allow_large_on_the_command_line(capsys, tmp_path):
     # 2.5e5 frequency points: above the soft limit (2e5), well below any machine's memory
-    argv = ["noise", "second-gen-fit", "--band", "20Hz", "270Hz", "--step", "0.001Hz"]
+    argv = ["noise", "second-gen-fit", "--band", "20Hz", "270Hz", "--band-width", "0.001Hz"]
     _fails(argv, capsys, tmp_path, "2.5e+05 frequency points", "--allow-large")
     assert main(["-q", "--allow-large"] + argv) == 0
 
@@ -194,7 +194,7 @@ def _limits_files(tmp_path, second):
     setup = tmp_path / "s.toml"
     setup.write_text(SETUP_TOML)
     results = tmp_path / "res.csv"
-    results.write_text(f"f_lo [Hz],width [Hz],loudest_2F\n100,0.5,40\n100.5,0.5,"
+    results.write_text(f"f_lo [Hz],band_width [Hz],loudest_2F\n100,0.5,40\n100.5,0.5,"
                        f"{second}\n")
     return setup, results
 

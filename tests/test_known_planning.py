@@ -195,7 +195,7 @@ def test_limits_of_a_known_pulsar_compare_the_band_of_its_frequency_with_h_sd(tm
                 band_width=0.1 * u.Hz).to_toml(setup)
     rng = np.random.default_rng(4)
     results = tmp_path / "res.csv"
-    lines = ["f_lo [Hz],width [Hz],loudest_2F"]
+    lines = ["f_lo [Hz],band_width [Hz],loudest_2F"]
     lines += [f"{28.05 + 0.1 * i:.2f},0.1,{rng.chisquare(32) + 5:.4f}" for i in range(10)]
     results.write_text("\n".join(lines) + "\n")
     out = tmp_path / "ul.ecsv"

@@ -58,7 +58,7 @@ def _results(loudest, f0=100.0, width=0.01, psd=None, n_templates=None):
     loudest = np.asarray(loudest, float)
     n = len(loudest)
     return SearchResults(
-        f_lo=(f0 + width * np.arange(n)) << u.Hz, width=np.full(n, width) << u.Hz,
+        f_lo=(f0 + width * np.arange(n)) << u.Hz, band_width=np.full(n, width) << u.Hz,
         loudest=loudest, convention="total",
         psd=None if psd is None else np.full(n, psd) << 1 / u.Hz,
         n_templates=n_templates)
@@ -317,7 +317,7 @@ def test_frequentist_at_the_threshold_equals_the_sensitivity(target):
     # expected-sensitivity definition (Wette 2012): the same numbers.
     setup = _setup()
     sens = strain_sensitivity(setup, "second-gen-fit", target=target, confidence=0.9)
-    res = SearchResults(f_lo=sens["f_lo"], width=sens["f_hi"] - sens["f_lo"],
+    res = SearchResults(f_lo=sens["f_lo"], band_width=sens["f_hi"] - sens["f_lo"],
                         loudest=np.asarray(sens["threshold"].value), convention="total")
     lim = upper_limits(res, setup, target, "frequentist", confidence=0.9)
     assert np.allclose(lim["h0_limit"].value, sens["h0"].value, rtol=1e-7)
@@ -387,7 +387,7 @@ def files(tmp_path):
     setup.write_text(SETUP_TOML)
     results = tmp_path / "res.csv"
     rng = np.random.default_rng(4)
-    lines = ["f_lo [Hz],width [Hz],loudest_2F"]
+    lines = ["f_lo [Hz],band_width [Hz],loudest_2F"]
     lines += [f"{100 + 0.5 * i},0.5,{rng.chisquare(32) + 5:.4f}" for i in range(10)]
     results.write_text("\n".join(lines) + "\n")
     return tmp_path, setup, results
@@ -441,7 +441,7 @@ def test_cli_band_outside_the_noise_model(files, capsys):
     # second-gen-fit is valid from 20 Hz (cwlimits.noise): a 5 Hz band is refused.
     tmp, setup, _ = files
     results = tmp / "low.csv"
-    results.write_text("f_lo [Hz],width [Hz],loudest_2F\n5,1,40\n")
+    results.write_text("f_lo [Hz],band_width [Hz],loudest_2F\n5,1,40\n")
     out = tmp / "ul.csv"
     assert _cli(results, setup, "--out", str(out)) == 2
     assert "error:" in capsys.readouterr().err
@@ -454,7 +454,7 @@ def test_cli_retired_statistic_column_names_its_replacement(files, capsys, old, 
     # a results table written for an earlier version: exit 2, the message names the new column
     tmp, setup, _ = files
     results = tmp / "old.csv"
-    results.write_text(f"f_lo [Hz],width [Hz],{old}\n100,1,40\n")
+    results.write_text(f"f_lo [Hz],band_width [Hz],{old}\n100,1,40\n")
     out = tmp / "ul.csv"
     assert _cli(results, setup, "--out", str(out)) == 2
     err = capsys.readouterr().err
@@ -504,7 +504,7 @@ def test_inertia_range_lies_between_its_ends(target, method):
     res = _results([60.0], width=0.5)
     kw = dict(rng=2, distance_prior="fixed", n_astro=20000)
     lo, hi = 1e38 * u.kg * u.m**2, 3e38 * u.kg * u.m**2
-    spread = upper_limits(res, _setup(), target, method, inertia_range=(lo, hi), **kw)
+    spread = upper_limits(res, _setup(), target, method, moment_of_inertia_range=(lo, hi), **kw)
     at_lo = upper_limits(res, _setup(), target, method, moment_of_inertia=lo, **kw)
     at_hi = upper_limits(res, _setup(), target, method, moment_of_inertia=hi, **kw)
     e = spread["eps_limit"][0].value
@@ -541,8 +541,8 @@ def test_astro_node_rule_matches_a_large_monte_carlo(target, distance_prior, ine
     # quantile (sqrt(p(1-p)/n)/f(q), common practice) plus 1e-3 for the node rule and the
     # linear CDF.
     res = _results([60.0], width=0.5)
-    kw = {} if inertia is None else dict(inertia_range=tuple(v * u.kg * u.m**2
-                                                              for v in inertia))
+    kw = {} if inertia is None else dict(moment_of_inertia_range=tuple(
+        v * u.kg * u.m**2 for v in inertia))
     t = upper_limits(res, _setup(), target, "bayes", distance_prior=distance_prior, **kw)
     h0, _, cdf = band_posterior(res, _setup(), target, 0)
     rng = np.random.default_rng(17)
@@ -645,7 +645,7 @@ def test_cli_gap_in_results_warns_and_breaks_the_table_and_the_curves(files, cap
     results = tmp / "gap.csv"
     rows = [f"{f},0.5,{v}" for f, v in [(100, 90), (100.5, 91), (101, 92), (101.5, 93),
                                           (104, 94), (104.5, 95)]]
-    results.write_text("f_lo [Hz],width [Hz],loudest_2F\n" + "\n".join(rows) + "\n")
+    results.write_text("f_lo [Hz],band_width [Hz],loudest_2F\n" + "\n".join(rows) + "\n")
     out = tmp / "ul.csv"
     assert _cli(results, setup, "--out", str(out)) == 0
     err = capsys.readouterr().err
@@ -677,7 +677,7 @@ def test_cli_per_segment_means_labelled_as_totals_warn(files, capsys):
     total = stats.chi2.isf(-np.expm1(np.log(0.5) / m), 32)
     for name, value, warns in (("totals.csv", total, False), ("means.csv", total / 8, True)):
         path = tmp / name
-        path.write_text("f_lo [Hz],width [Hz],loudest_2F\n" + "".join(
+        path.write_text("f_lo [Hz],band_width [Hz],loudest_2F\n" + "".join(
             f"{100 + 0.5 * k},0.5,{value:.4f}\n" for k in range(10)))
         assert _cli(path, setup, "-q") == 0
         err = capsys.readouterr().err

@@ -629,7 +629,7 @@ def test_cli_list_and_help(capsys):
 
 def test_cli_model_table_out_and_plot(tmp_path, capsys):
     out, png = tmp_path / "adv.csv", tmp_path / "adv.png"
-    code = main(["noise", "second-gen-fit", "--band", "20Hz", "220Hz", "--step", "10Hz",
+    code = main(["noise", "second-gen-fit", "--band", "20Hz", "220Hz", "--band-width", "10Hz",
                  "--out", str(out), "--plot", str(png)])
     assert code == 0
     raw = read_table(out)
@@ -643,7 +643,7 @@ def test_cli_model_table_out_and_plot(tmp_path, capsys):
     np.testing.assert_allclose(psd.value, ref.value, rtol=1e-14)
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     # printed table without --out
-    assert main(["noise", "--band", "100Hz", "110Hz", "--step", "5Hz"]) == 0
+    assert main(["noise", "--band", "100Hz", "110Hz", "--band-width", "5Hz"]) == 0
     assert "second-gen-fit" in capsys.readouterr().out
 
 
@@ -652,7 +652,7 @@ def test_cli_timeseries_estimate(tmp_path):
     out = tmp_path / "floor.ecsv"
     code = main(["noise", "--timeseries", str(tmp_path / "s.npy"), "--sample-rate",
                  "1024Hz", "--segment", "2s", "--average", "median", "--band", "20Hz",
-                 "420Hz", "--step", "40Hz", "--out", str(out), "-q"])
+                 "420Hz", "--band-width", "40Hz", "--out", str(out), "-q"])
     assert code == 0
     raw = read_table(out)
     floor = raw.quantity("psd_floor", PSD).value / WHITE_PSD
@@ -714,7 +714,7 @@ def test_cli_stretches_report_t_data(tmp_path, capsys):
     np.save(tmp_path / "s.npy", white(int(FS_HZ * 96), seed=42))
     out = tmp_path / "eff.csv"
     code = main(["noise", "--timeseries", str(tmp_path / "s.npy"), "--sample-rate",
-                 "1024Hz", "--stretch", "32s", "--band", "20Hz", "420Hz", "--step", "40Hz",
+                 "1024Hz", "--stretch", "32s", "--band", "20Hz", "420Hz", "--band-width", "40Hz",
                  "--out", str(out)])
     assert code == 0
     raw = read_table(out)
@@ -744,11 +744,11 @@ def test_network_of_stretch_combinations_nests():
 
 def test_cli_headerless_file_needs_kind(tmp_path, capsys):
     path = write(tmp_path / "curve.txt", "10 1e-44\n100 1e-46\n1000 1e-45\n")
-    assert main(["noise", str(path), "--band", "10Hz", "1000Hz", "--step", "90Hz"]) == 2
+    assert main(["noise", str(path), "--band", "10Hz", "1000Hz", "--band-width", "90Hz"]) == 2
     assert "pass kind='asd' or 'psd'" in capsys.readouterr().err
     out = tmp_path / "c.csv"
     assert main(["noise", str(path), "--kind", "psd", "--band", "10Hz", "1000Hz",
-                 "--step", "90Hz", "--out", str(out)]) == 0
+                 "--band-width", "90Hz", "--out", str(out)]) == 0
     raw = read_table(out)
     assert len(raw) == 11 and "tabulated PSD" in raw.meta["assumption.noise"]
 
@@ -772,7 +772,7 @@ def test_band_grid_keeps_a_partial_last_band_and_says_so(tmp_path, capsys, fmax,
     from cwlimits.tables import read_table
 
     out = tmp_path / "bands.csv"
-    assert main(["noise", "--band", "20Hz", fmax, "--step", "200Hz", "--out", str(out)]) == 0
+    assert main(["noise", "--band", "20Hz", fmax, "--band-width", "200Hz", "--out", str(out)]) == 0
     table = read_table(out)
     f_lo = table.quantity("f_lo", u.Hz).value
     f_hi = table.quantity("f_hi", u.Hz).value

@@ -284,9 +284,9 @@ COMMANDS = [
     # the commands import the library functions when they run: patched where they live)
     (["indirect", str(CATALOGUE)], "--out", "x.csv", "cwlimits.targets.indirect",
      "indirect_limits"),
-    (["noise", "second-gen-fit", "--band", "20Hz", "30Hz", "--step", "1Hz"], "--plot",
+    (["noise", "second-gen-fit", "--band", "20Hz", "30Hz", "--band-width", "1Hz"], "--plot",
      "asd.png", "cwlimits.noise", "band_psd"),
-    (["noise", "second-gen-fit", "--band", "20Hz", "30Hz", "--step", "1Hz"], "--out",
+    (["noise", "second-gen-fit", "--band", "20Hz", "30Hz", "--band-width", "1Hz"], "--out",
      "n.csv", "cwlimits.noise", "band_psd"),
     (["plan", "--catalogue", str(CATALOGUE), "--target", "Fict Quill", "--budget", "10 h",
       "--span", "30 day"], "--out", "plan.toml", "cwlimits.planning.optimise", "plan_search"),
@@ -330,7 +330,7 @@ LIMITS_BAD = [
     ["--prior", "log-uniform"],                       # no lower cut-off
     ["--h0-min", "1e-24", "--h0-max", "1e-25"],       # cut-offs the wrong way round
     ["--h0-max", "-1"],                               # negative cut-off
-    ["--inertia-range", "2e38", "1e38"],              # range the wrong way round
+    ["--moment-of-inertia-range", "2e38", "1e38"],              # range the wrong way round
     ["--method", "frequentist", "--sampler", "emcee", "--bands", "0"],
     ["--sampler", "emcee", "--bands", "0", "--sky", "isotropic"],
     ["--sampler", "emcee", "--bands", "99"],           # no such band
@@ -346,7 +346,7 @@ def limits_files(tmp_path):
     setup = tmp_path / "s.toml"
     SearchSetup(t_seg=10 * u.day, n_seg=4, band=(100 * u.Hz, 110 * u.Hz)).to_toml(setup)
     results = tmp_path / "res.csv"
-    lines = ["f_lo [Hz],width [Hz],loudest_2F"]
+    lines = ["f_lo [Hz],band_width [Hz],loudest_2F"]
     lines += [f"{100 + 0.5 * i},0.5,{30 + i}" for i in range(10)]
     results.write_text("\n".join(lines) + "\n")
     return setup, results
@@ -424,7 +424,7 @@ def test_written_files_take_their_mode_from_the_umask(project, tmp_path, umask, 
     try:
         assert main(["-q", "indirect", str(CATALOGUE), "--out",
                      str(tmp_path / "t" / "x.ecsv")]) == 0
-        assert main(["-q", "noise", "second-gen-fit", "--band", "20Hz", "30Hz", "--step",
+        assert main(["-q", "noise", "second-gen-fit", "--band", "20Hz", "30Hz", "--band-width",
                      "1Hz", "--plot", str(tmp_path / "t" / "asd.svg")]) == 0
         if umask == 0o022:  # the report (the slow part) once: figures for a web server
             assert main(["-q", "report", str(config("rep"))]) == 0

@@ -538,7 +538,7 @@ def test_works_with_the_network_unavailable(monkeypatch):
 def test_cli_prints_averages_and_quantiles(capsys, tmp_path):
     out = tmp_path / "resp.ecsv"
     code = main(["response", "--ra", "12h30m", "--dec", "-45d", "--detectors", "H1,L1",
-                 "--start", START, "--span", "1yr", "--duty", "0.7", "--order", "16",
+                 "--start", START, "--span", "1yr", "--duty-factor", "0.7", "--order", "16",
                  "--out", str(out)])
     text = capsys.readouterr().out
     assert code == 0
@@ -591,8 +591,8 @@ def test_cli_help_has_examples(capsys):
     (["--detectors", "H1,Q9"], "unknown detector"),
     (["--span", "0d"], "span"),
     (["--span", "-2d"], "span"),
-    (["--duty", "1.5"], "duty"),
-    (["--duty", "0"], "duty"),
+    (["--duty-factor", "1.5"], "duty"),
+    (["--duty-factor", "0"], "duty"),
     (["--detector-file", "MISSING.csv"], "file not found"),
     (["--ra", "nonsense"], "sky position"),
 ])

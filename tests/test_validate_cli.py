@@ -257,7 +257,7 @@ def test_validate_mock_search_writes_table_figures_and_resumes(demo_catalogue_pa
     out, plot, mplot = tmp_path / "mock.ecsv", tmp_path / "eff.png", tmp_path / "mm.png"
     argv = _validate(demo_catalogue_path, setup, "--mock-search", "--injections", "4",
                      "--noise-runs", "4", "--mismatch-runs", "4", "--h0", "0.8", "1.6",
-                     "--duty", "0.8", "--seed", "2", "--out", str(out), "--plot", str(plot),
+                     "--duty-factor", "0.8", "--seed", "2", "--out", str(out), "--plot", str(plot),
                      "--mismatch-plot", str(mplot), "--chunk-size", "4")
     argv.remove("--quiet")
     assert main(argv) == 0

@@ -21,6 +21,7 @@ import pkgutil
 import sys
 import warnings
 
+from cwlimits._deprecate import warn_renamed
 from cwlimits._sizes import allow_large
 from cwlimits.errors import CwlimitsError, CwlimitsWarning
 
@@ -129,6 +130,34 @@ RETIRED_OPTIONS = {
 }
 
 
+#: Options renamed to their glossary names (DEVELOPERS.md, "Conventions"), per command:
+#: the old name still works for one release, with a deprecation warning.
+RENAMED_OPTIONS = {
+    "limits": {"--inertia": "--moment-of-inertia",
+               "--inertia-range": "--moment-of-inertia-range"},
+    "noise": {"--step": "--band-width"},
+    "response": {"--duty": "--duty-factor"},
+    "validate": {"--duty": "--duty-factor"},
+}
+
+
+def _renamed_options(argv):
+    """``argv`` with the renamed options of its command spelled anew, and the old names."""
+    command = next((t for t in argv if not t.startswith("-")), None)
+    renames = RENAMED_OPTIONS.get(command, {})
+    out, used = [], []
+    for i, token in enumerate(argv):
+        if token == "--":
+            out += argv[i:]
+            break
+        name, eq, rest = token.partition("=")
+        if name in renames:
+            used.append((command, name, renames[name]))
+            token = renames[name] + eq + rest
+        out.append(token)
+    return out, used
+
+
 def _retired_option(argv):
     """The first option of an earlier version in ``argv``, or None."""
     for token in argv:
@@ -147,6 +176,7 @@ def main(argv=None):
     if old is not None:
         print(f"error: option {old} was renamed: use {RETIRED_OPTIONS[old]}", file=sys.stderr)
         return 2
+    argv, renamed = _renamed_options(argv)
     parser = build_parser()
     args = parser.parse_args(argv)
     if not getattr(args, "run", None):
@@ -159,6 +189,8 @@ def main(argv=None):
     os.environ.setdefault("MPLBACKEND", "Agg")
     try:
         with allow_large(bool(getattr(args, "allow_large", False))), _user_warnings():
+            for command, old_name, new_name in renamed:
+                warn_renamed("option", old_name, new_name, f"cwlimits {command}")
             return int(args.run(args) or 0)
     except CwlimitsError as exc:
         print(f"error: {exc}", file=sys.stderr)

@@ -6,7 +6,8 @@ A results table is a CSV or ECSV file with one row per frequency band:
 column                         unit   meaning
 =============================  =====  ================================================
 ``f_lo`` or ``f_mid``          Hz     lower edge, or centre, of the band (one of them)
-``width``                      Hz     band width (> 0)
+``band_width``                 Hz     band width (> 0; ``width`` of earlier versions
+                                      still works for one release)
 ``loudest_2F``                 --     loudest StackSlide statistic, the total over the
                                       segments ``2F = sum_k 2F_k``
 or ``loudest_2F_per_segment``         ... or the same divided by the number of segments
@@ -30,12 +31,17 @@ limits put an empty row, a break in every curve, in each gap; see
 :func:`cwlimits.limits.upper.upper_limits`).
 """
 
+from __future__ import annotations
+
 import warnings
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import astropy.units as u
 import numpy as np
+from numpy.typing import ArrayLike
 
+from cwlimits._deprecate import renamed_keywords, warn_renamed
 from cwlimits.errors import CoverageWarning, StatisticWarning, TableError
 from cwlimits.tables import read_table
 
@@ -68,8 +74,9 @@ class SearchResults:
 
     Attributes
     ----------
-    f_lo, width : Quantity ['frequency']
-        Lower band edges and widths, sorted by frequency.
+    f_lo, band_width : Quantity ['frequency']
+        Lower band edges and widths, sorted by frequency (``width``, the name of earlier
+        versions, still works for one release as a keyword and an attribute).
     loudest : ndarray
         The loudest value of the statistic in each band, in the ``convention``.
     convention : {'total', 'per_segment'}
@@ -86,7 +93,7 @@ class SearchResults:
     """
 
     f_lo: u.Quantity
-    width: u.Quantity
+    band_width: u.Quantity
     loudest: np.ndarray
     convention: str
     psd: u.Quantity | None = None
@@ -94,20 +101,26 @@ class SearchResults:
     source: str = ""
     rows: np.ndarray = field(default_factory=lambda: np.zeros(0, int))
 
+    @property
+    def width(self) -> u.Quantity:
+        """The band widths under their old name (deprecated: use ``band_width``)."""
+        warn_renamed("attribute", "width", "band_width", "SearchResults", stacklevel=3)
+        return self.band_width
+
     def __len__(self):
         return len(self.loudest)
 
     @property
-    def f_hi(self):
+    def f_hi(self) -> u.Quantity:
         """Upper band edges."""
-        return self.f_lo + self.width
+        return self.f_lo + self.band_width
 
     @property
-    def f_mid(self):
+    def f_mid(self) -> u.Quantity:
         """Band centres."""
-        return self.f_lo + self.width / 2
+        return self.f_lo + self.band_width / 2
 
-    def gaps(self, band=None):
+    def gaps(self, band: tuple[u.Quantity, u.Quantity] | None = None) -> u.Quantity:
         """Frequency ranges without a result, as an ``(n, 2)`` Quantity in Hz.
 
         Parameters
@@ -119,7 +132,7 @@ class SearchResults:
         """
         lo = self.f_lo.to_value(u.Hz)
         hi = self.f_hi.to_value(u.Hz)
-        tol = _EDGE_RTOL * np.max(self.width.to_value(u.Hz))
+        tol = _EDGE_RTOL * np.max(self.band_width.to_value(u.Hz))
         inner = np.flatnonzero(lo[1:] - hi[:-1] > tol)
         ranges = [(hi[k], lo[k + 1]) for k in inner]
         if band is not None:
@@ -130,7 +143,7 @@ class SearchResults:
                 ranges.append((max(hi[-1], f_min), f_max))
         return np.array(ranges, dtype=float).reshape(-1, 2) << u.Hz
 
-    def coverage(self, band=None):
+    def coverage(self, band: tuple[u.Quantity, u.Quantity] | None = None) -> float:
         """Fraction of ``band`` (default: first to last band edge) that has a result."""
         lo, hi = self.f_lo.to_value(u.Hz), self.f_hi.to_value(u.Hz)
         f_min, f_max = ((lo[0], hi[-1]) if band is None
@@ -138,12 +151,16 @@ class SearchResults:
         inside = np.clip(hi, f_min, f_max) - np.clip(lo, f_min, f_max)
         return float(np.sum(inside) / (f_max - f_min))
 
-    def loudest_total(self, n_seg):
+    def loudest_total(self, n_seg: int) -> np.ndarray:
         """The loudest statistic as the total over ``n_seg`` segments."""
         return self.loudest * n_seg if self.convention == "per_segment" else self.loudest
 
 
-def load_results(path):
+# ``SearchResults(width=...)`` of earlier versions keeps working for one release.
+SearchResults.__init__ = renamed_keywords(width="band_width")(SearchResults.__init__)
+
+
+def load_results(path: str | Path) -> SearchResults:
     """Read and validate a per-band results table (see the module docstring).
 
     Returns
@@ -160,8 +177,12 @@ def load_results(path):
     if raw.has("f_lo") == raw.has("f_mid"):
         raw.fail("give the band position as 'f_lo' (lower edge) or 'f_mid' (centre), "
                  "exactly one of them", column="f_lo")
-    raw.require("width")
-    width = raw.quantity("width", u.Hz, positive=True)
+    width_column = "band_width"
+    if raw.has("width") and not raw.has("band_width"):
+        warn_renamed("column", "width", "band_width", raw.path)
+        width_column = "width"
+    raw.require(width_column)
+    width = raw.quantity(width_column, u.Hz, positive=True)
     if raw.has("f_lo"):
         f_lo = raw.quantity("f_lo", u.Hz, positive=True)
     else:
@@ -204,7 +225,7 @@ def load_results(path):
                          f"{lo[k] + wd[k]:.10g} Hz)", file=raw.path, row=int(lines[k + 1]),
                          column=position, value=raw.text(position)[order[k + 1]])
     results = SearchResults(
-        f_lo=lo << u.Hz, width=wd << u.Hz, loudest=loudest[order],
+        f_lo=lo << u.Hz, band_width=wd << u.Hz, loudest=loudest[order],
         convention=STATISTIC_COLUMNS[stat_column],
         psd=None if psd is None else psd[order],
         n_templates=None if n_templates is None else n_templates[order],
@@ -223,14 +244,16 @@ def load_results(path):
     return results
 
 
-def format_ranges(ranges, most=5):
+def format_ranges(ranges: u.Quantity, most: int = 5) -> str:
     """``'103-104 Hz, 108-110 Hz'``: the first ``most`` of an ``(n, 2)`` Quantity in Hz."""
     values = np.asarray(u.Quantity(ranges).to_value(u.Hz)).reshape(-1, 2)
     text = ", ".join(f"{a:.6g}-{b:.6g} Hz" for a, b in values[:most])
     return text + (f" and {len(values) - most} more" if len(values) > most else "")
 
 
-def noise_loudest_range(n_templates, n_seg, probability=NOISE_RANGE_PROBABILITY):
+def noise_loudest_range(n_templates: float | ArrayLike, n_seg: int,
+                        probability: float = NOISE_RANGE_PROBABILITY
+                        ) -> tuple[np.ndarray, np.ndarray]:
     """The range of the loudest total 2F of ``n_templates`` independent noise-only templates.
 
     In Gaussian noise the StackSlide total 2F of one template is chi-squared with 4 N_seg
@@ -264,7 +287,7 @@ def noise_loudest_range(n_templates, n_seg, probability=NOISE_RANGE_PROBABILITY)
     return low, high
 
 
-def check_loudest(results, n_seg, n_templates):
+def check_loudest(results: SearchResults, n_seg: int, n_templates: float | ArrayLike) -> None:
     """Warn when a band's loudest statistic lies far below what noise alone gives.
 
     A loudest total 2F below the ``NOISE_RANGE_PROBABILITY`` quantile of the loudest of

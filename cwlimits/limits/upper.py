@@ -34,16 +34,24 @@ Methods
   repeated with that product rule and gives eps at (d_ref, I_ref) directly.
 """
 
+from __future__ import annotations
+
 import functools
 import warnings
+from collections.abc import Mapping, Sequence
+from concurrent.futures import Executor
+from pathlib import Path
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
 from astropy.table import QTable
+from numpy.typing import ArrayLike
 from scipy import integrate, interpolate, stats
 from scipy.optimize import elementwise
 
-from cwlimits._random import as_generator, seed_sequence
+from cwlimits._deprecate import renamed_keywords
+from cwlimits._random import RngLike, as_generator, seed_sequence
 from cwlimits._units import fraction, positive_value
 from cwlimits.errors import ComputationError, CoverageWarning, CwlimitsWarning, InputError
 from cwlimits.limits.results import (
@@ -70,6 +78,12 @@ from cwlimits.statistics.detection import (
 from cwlimits.targets.conversions import ellipticity, rmode_amplitude
 from cwlimits.targets.fiducial import DEFAULT_MOMENT_OF_INERTIA
 from cwlimits.targets.indirect import spindown_limit
+
+if TYPE_CHECKING:
+    from cwlimits.noise import NoiseSource
+    from cwlimits.runtime.store import ResultStore
+    from cwlimits.searchspace.searchsetup import SearchSetup
+    from cwlimits.targets.catalogue import Target
 
 __all__ = [
     "METHODS",
@@ -231,8 +245,9 @@ def _quantiles_tabulated(obs_sum, n_seg, c_row, w_row, levels):
     return np.maximum.accumulate(np.maximum(q, 0.0), axis=-1)
 
 
-def posterior_quantiles(observed, n_seg, c, w, levels=_LEVELS, prior="uniform", x_min=None,
-                        tabulate=True):
+def posterior_quantiles(observed: ArrayLike, n_seg: int, c: ArrayLike, w: ArrayLike,
+                        levels: ArrayLike = _LEVELS, prior: str = "uniform",
+                        x_min: ArrayLike | None = None, tabulate: bool = True) -> np.ndarray:
     """Quantile function of the posterior of x = h0 sqrt(T_data/S_n), per band.
 
     Parameters
@@ -735,7 +750,7 @@ def _observed_where(results, index):
                 value=float(results.loudest[index]))
 
 
-def check_bayes_range(results, obs_sum, n_seg):
+def check_bayes_range(results: SearchResults, obs_sum: ArrayLike, n_seg: int) -> None:
     """Refuse bands outside the range of the Bayesian grid, naming file and row.
 
     Parameters
@@ -797,12 +812,20 @@ def _blank_zero_limits(out, results, confidence):
     return note
 
 
-def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=None, *,
-                 noise=DEFAULT_NOISE_MODEL, prior="uniform", h0_min=None, h0_max=None,
-                 distance_prior="uniform", moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA,
-                 inertia_range=None, sampler="fast", sampler_bands=None, n_walkers=64,
-                 n_steps=6000, burn=500, n_astro=None, tabulate=True, executor=None,
-                 store=None, key=None, chunk_size=None, progress=False, **model_options):
+@renamed_keywords(inertia_range="moment_of_inertia_range")
+def upper_limits(results: SearchResults | str | Path, setup: SearchSetup | str | Path,
+                 target: Target, method: str = "bayes", confidence: float = 0.95,
+                 rng: RngLike = None, *, noise: str | NoiseSource | Mapping = DEFAULT_NOISE_MODEL,
+                 prior: str = "uniform", h0_min: float | None = None, h0_max: float | None = None,
+                 distance_prior: str = "uniform",
+                 moment_of_inertia: u.Quantity = DEFAULT_MOMENT_OF_INERTIA,
+                 moment_of_inertia_range: tuple[u.Quantity, u.Quantity] | None = None,
+                 sampler: str = "fast", sampler_bands: Sequence[int] | None = None,
+                 n_walkers: int = 64, n_steps: int = 6000, burn: int = 500,
+                 n_astro: int | None = None, tabulate: bool = True,
+                 executor: Executor | None = None, store: ResultStore | None = None,
+                 key: Mapping | None = None, chunk_size: int | None = None, progress: bool = False,
+                 **model_options) -> QTable:
     """Upper limits on h0, ellipticity and r-mode amplitude per band of a finished search.
 
     Parameters
@@ -828,8 +851,8 @@ def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=No
         On [distance_min, distance_max]; log-normal with median ``distance`` and the range
         as its central 90 % interval; 'fixed' at ``distance``.
     moment_of_inertia : Quantity ['kg m2']
-        Fixed I (default 1e38 kg m^2), unless ``inertia_range`` is given.
-    inertia_range : (Quantity, Quantity), optional
+        Fixed I (default 1e38 kg m^2), unless ``moment_of_inertia_range`` is given.
+    moment_of_inertia_range : (Quantity, Quantity), optional
         I uniform in this range.
     sampler : {'fast', 'emcee'}
         'emcee' adds an emcee limit for ``sampler_bands`` (indices into the results).
@@ -874,12 +897,12 @@ def upper_limits(results, setup, target, method="bayes", confidence=0.95, rng=No
         raise InputError("h0_min must be below h0_max", value=(hmin, hmax))
     i_fixed = _quantity_or_none(moment_of_inertia, u.kg * u.m**2, "moment_of_inertia")
     i_range = None
-    if inertia_range is not None:
-        i_range = tuple(_quantity_or_none(v, u.kg * u.m**2, "inertia_range")
-                        for v in inertia_range)
+    if moment_of_inertia_range is not None:
+        i_range = tuple(_quantity_or_none(v, u.kg * u.m**2, "moment_of_inertia_range")
+                        for v in moment_of_inertia_range)
         if i_range[0] >= i_range[1]:
-            raise InputError("inertia_range must be (low, high) with low < high",
-                             value=[str(v) for v in inertia_range])
+            raise InputError("moment_of_inertia_range must be (low, high) with low < high",
+                             value=[str(v) for v in moment_of_inertia_range])
     if sampler == "emcee" and method != "bayes":
         raise InputError("the emcee sampler is for method='bayes'")
     if sampler == "emcee" and model_options.get("sky", "target") != "target":
@@ -1126,8 +1149,12 @@ def _assumptions(sm, results, method, confidence, prior, hmin, hmax, distance_pr
     return info
 
 
-def band_posterior(results, setup, target, band, *, noise=DEFAULT_NOISE_MODEL,
-                   prior="uniform", h0_min=None, h0_max=None, **model_options):
+def band_posterior(results: SearchResults | str | Path, setup: SearchSetup | str | Path,
+                   target: Target, band: int, *,
+                   noise: str | NoiseSource | Mapping = DEFAULT_NOISE_MODEL,
+                   prior: str = "uniform", h0_min: float | None = None,
+                   h0_max: float | None = None,
+                   **model_options) -> tuple[u.Quantity, np.ndarray, np.ndarray]:
     """The posterior density of h0 in one band, on its integration grid.
 
     Parameters
@@ -1173,8 +1200,11 @@ def band_posterior(results, setup, target, band, *, noise=DEFAULT_NOISE_MODEL,
     return h0 << u.one, dens << u.one, cdf
 
 
-def sample_band(results, setup, target, band, rng=None, *, noise=DEFAULT_NOISE_MODEL,
-                h0_max=None, n_walkers=64, n_steps=6000, burn=500, **model_options):
+def sample_band(results: SearchResults | str | Path, setup: SearchSetup | str | Path,
+                target: Target, band: int, rng: RngLike = None, *,
+                noise: str | NoiseSource | Mapping = DEFAULT_NOISE_MODEL,
+                h0_max: float | None = None, n_walkers: int = 64, n_steps: int = 6000,
+                burn: int = 500, **model_options) -> dict:
     """Draw emcee samples of (h0, cos iota, psi) in one band, with convergence diagnostics.
 
     Parameters

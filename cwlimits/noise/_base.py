@@ -5,6 +5,8 @@ frequency range [f_min, f_max]: an analytic design fit, a tabulated file, an est
 a strain time series, or a data-time-weighted combination of those.
 """
 
+from __future__ import annotations
+
 import astropy.units as u
 import numpy as np
 
@@ -40,18 +42,18 @@ class NoiseSource:
         :class:`~cwlimits.errors.OutOfRangeError` unless ``clip=True``.
     """
 
-    def __init__(self, name, f_min_hz, f_max_hz):
+    def __init__(self, name: str, f_min_hz: float, f_max_hz: float) -> None:
         self.name = str(name)
         self._f_min_hz = float(f_min_hz)
         self._f_max_hz = float(f_max_hz)
 
     @property
-    def f_min(self):
+    def f_min(self) -> u.Quantity:
         """Lowest frequency where the PSD is defined (Quantity in Hz)."""
         return self._f_min_hz * u.Hz
 
     @property
-    def f_max(self):
+    def f_max(self) -> u.Quantity:
         """Highest frequency where the PSD is defined (Quantity in Hz)."""
         return self._f_max_hz * u.Hz
 
@@ -83,7 +85,7 @@ class NoiseSource:
             out[inside] = self._psd_hz(f_hz[inside])
         return out
 
-    def psd(self, f, *, clip=False):
+    def psd(self, f: u.Quantity, *, clip: bool = False) -> u.Quantity:
         """One-sided strain noise power spectral density S_n(f).
 
         Parameters
@@ -109,7 +111,7 @@ class NoiseSource:
         """
         return self._psd_checked(as_frequency_hz(f), clip) << PSD_UNIT
 
-    def asd(self, f, *, clip=False):
+    def asd(self, f: u.Quantity, *, clip: bool = False) -> u.Quantity:
         """Amplitude spectral density sqrt(S_n(f)) in Hz^-1/2; see :meth:`psd`."""
         return np.sqrt(self._psd_checked(as_frequency_hz(f), clip)) << ASD_UNIT
 
@@ -135,7 +137,8 @@ def _panels_for(noise, width_hz):
     return int(np.clip(np.ceil(2.0 * np.max(width_hz) / spacing), 4, 4096))
 
 
-def band_psd(noise, f_lo, f_hi, *, clip=False, panels=None):
+def band_psd(noise: NoiseSource, f_lo: u.Quantity, f_hi: u.Quantity, *, clip: bool = False,
+             panels: int | None = None) -> u.Quantity:
     """Effective PSD of each band: the harmonic mean of S_n(f) over [f_lo, f_hi].
 
     Parameters

@@ -1,14 +1,24 @@
 """The per-band noise table: effective PSD, ASD and (for estimates) the robust floor."""
 
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+import astropy.units as u
 import numpy as np
 
 from cwlimits.noise._base import band_psd
 from cwlimits.noise.estimate import band_floor
 
+if TYPE_CHECKING:
+    from astropy.table import QTable
+
+    from cwlimits.noise._base import NoiseSource
+
 __all__ = ["psd_table"]
 
 
-def psd_table(source, f_lo, f_hi):
+def psd_table(source: NoiseSource, f_lo: u.Quantity, f_hi: u.Quantity) -> QTable:
     """The table of ``cwlimits noise``: the noise of each band ``[f_lo, f_hi)``.
 
     Parameters

@@ -14,8 +14,13 @@ the data-time-weighted harmonic mean of the PSDs.  A detector observing for a sp
 with duty factor d contributes T_k = d * T_obs.
 """
 
+from __future__ import annotations
+
+from collections.abc import Sequence
+
 import astropy.units as u
 import numpy as np
+from numpy.typing import ArrayLike
 
 from cwlimits._units import SECONDS_PER_DAY, to_value
 from cwlimits.errors import InputError
@@ -57,12 +62,12 @@ class EffectiveNoise(NoiseSource):
         self.weights = self._t_k_s / self._t_k_s.sum()
 
     @property
-    def t_k(self):
+    def t_k(self) -> u.Quantity:
         """Data time of each component (Quantity in s)."""
         return self._t_k_s << u.s
 
     @property
-    def t_data(self):
+    def t_data(self) -> u.Quantity:
         """Total data time T_data = sum_k T_k (Quantity in s)."""
         return self._t_k_s.sum() << u.s
 
@@ -76,7 +81,7 @@ class EffectiveNoise(NoiseSource):
                 inv = inv + w / c._psd_checked(f_hz, False)
         return 1.0 / inv
 
-    def describe(self):
+    def describe(self) -> str:
         """One line: the rule, T_data and the components with their data times."""
         parts = "; ".join(f"{c.name} ({t / SECONDS_PER_DAY:.4g} d)"
                           for c, t in zip(self.components, self._t_k_s, strict=True))
@@ -94,7 +99,9 @@ def _own_data_time(source):
     return None
 
 
-def combine_noise(sources, durations=None, duty_factors=1.0, *, name="effective"):
+def combine_noise(sources: Sequence[NoiseSource], durations: u.Quantity | None = None,
+                  duty_factors: float | ArrayLike = 1.0, *,
+                  name: str = "effective") -> EffectiveNoise:
     """Combine noise sources into the effective noise of a semi-coherent search.
 
     Parameters
@@ -166,7 +173,8 @@ def combine_noise(sources, durations=None, duty_factors=1.0, *, name="effective"
     return EffectiveNoise(sources, t_k, name=name)
 
 
-def estimate_stretches(strain, sample_rate, stretch, *, name="stretches", **welch):
+def estimate_stretches(strain: ArrayLike, sample_rate: u.Quantity, stretch: u.Quantity, *,
+                       name: str = "stretches", **welch) -> EffectiveNoise:
     """Estimate the PSD of each stretch of a series and combine them.
 
     Parameters

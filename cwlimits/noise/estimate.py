@@ -23,11 +23,14 @@ The robust noise *floor* of a band (:func:`band_floor`) pools every periodogram 
 every segment in the band's bins (N = K * bins values) and takes their median / b(N).
 """
 
+from __future__ import annotations
+
 from pathlib import Path
 
 import astropy.units as u
 import numpy as np
 import scipy.signal
+from numpy.typing import ArrayLike
 from scipy.special import digamma
 
 from cwlimits._units import parse_quantity, to_value
@@ -47,7 +50,7 @@ __all__ = ["EstimatedNoise", "estimate_psd", "band_floor", "median_bias", "read_
 _AVERAGES = ("median", "mean")
 
 
-def median_bias(n):
+def median_bias(n: int | ArrayLike) -> float | np.ndarray:
     """Return the expected median of ``n`` independent unit-mean exponential variables.
 
     Parameters
@@ -123,7 +126,7 @@ class EstimatedNoise(TabulatedNoise):
         self.duration = (n_samples / sample_rate_hz) * u.s
         self.kind = "psd"
 
-    def describe(self):
+    def describe(self) -> str:
         """One line: the estimator, its settings and the data it used."""
         origin = f" of {self.source}" if self.source else ""
         return (f"{self.name}: Welch {self.average} estimate{origin}, "
@@ -155,8 +158,9 @@ def _positive_scalar(q, unit, name):
     return float(value)
 
 
-def estimate_psd(strain, sample_rate, *, segment=4 * u.s, overlap=0.5, average="median",
-                 window="hann", name=None, source=None):
+def estimate_psd(strain: ArrayLike, sample_rate: u.Quantity, *, segment: u.Quantity = 4 * u.s,
+                 overlap: float = 0.5, average: str = "median", window: str = "hann",
+                 name: str | None = None, source: str | None = None) -> EstimatedNoise:
     """Estimate the one-sided PSD of a strain series by Welch averaging.
 
     Parameters
@@ -246,7 +250,7 @@ def estimate_psd(strain, sample_rate, *, segment=4 * u.s, overlap=0.5, average="
                           name=name or f"welch-{average}", source=source)
 
 
-def band_floor(estimate, f_lo, f_hi):
+def band_floor(estimate: EstimatedNoise, f_lo: u.Quantity, f_hi: u.Quantity) -> u.Quantity:
     """Robust noise floor of each band: the median of every periodogram value in it.
 
     Parameters
@@ -353,7 +357,8 @@ def _comment_meta(text):
     return meta
 
 
-def read_timeseries(path, sample_rate=None):
+def read_timeseries(path: str | Path,
+                    sample_rate: u.Quantity | str | None = None) -> tuple[np.ndarray, u.Quantity]:
     """Read a strain series from a ``.npy``, CSV/ECSV or plain text file.
 
     Parameters

@@ -6,6 +6,8 @@ the tabulated range nothing is extrapolated: a request there raises
 :class:`~cwlimits.errors.OutOfRangeError` (or gives an infinite PSD with ``clip=True``).
 """
 
+from __future__ import annotations
+
 import re
 from pathlib import Path
 
@@ -53,7 +55,8 @@ class TabulatedNoise(NoiseSource):
         ``values`` is neither a PSD nor an ASD.
     """
 
-    def __init__(self, frequency, values, *, name="table", source=None):
+    def __init__(self, frequency: u.Quantity, values: u.Quantity, *, name: str = "table",
+                 source: str | None = None) -> None:
         f_hz = np.atleast_1d(to_value(frequency, u.Hz, "frequency")).astype(float)
         # the unit says what the values are: Hz^-1/2 is an ASD, 1/Hz a PSD
         if isinstance(values, u.Quantity) and values.unit.is_equivalent(ASD_UNIT):
@@ -72,12 +75,12 @@ class TabulatedNoise(NoiseSource):
         self.kind, self.source = kind, source
 
     @property
-    def frequency(self):
+    def frequency(self) -> u.Quantity:
         """The node frequencies (Quantity in Hz)."""
         return self._f_hz << u.Hz
 
     @property
-    def psd_nodes(self):
+    def psd_nodes(self) -> u.Quantity:
         """The PSD at the nodes (Quantity in 1/Hz)."""
         return self._psd_nodes << PSD_UNIT
 
@@ -85,7 +88,7 @@ class TabulatedNoise(NoiseSource):
         # log-log linear interpolation: a power law between neighbouring nodes
         return np.exp(np.interp(np.log(f_hz), self._log_f, self._log_s))
 
-    def describe(self):
+    def describe(self) -> str:
         """One line: name, origin, number of nodes, range and the interpolation rule."""
         origin = f"from {self.source}" if self.source else "from arrays"
         return (f"{self.name}: tabulated {self.kind.upper()} {origin}, {self._f_hz.size} "
@@ -223,7 +226,8 @@ def _kind_from_header(raw, name, kind, path):
     return found or kind
 
 
-def read_noise_file(path, kind=None, *, name=None):
+def read_noise_file(path: str | Path, kind: str | None = None, *,
+                    name: str | None = None) -> TabulatedNoise:
     """Read a two-column noise curve: frequency and ASD or PSD.
 
     Parameters

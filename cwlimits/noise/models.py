@@ -18,6 +18,8 @@ third-gen-fit       third-generation design                    200 Hz     1 Hz  
 Names of earlier versions of cwlimits are refused with a message naming the new one.
 """
 
+from __future__ import annotations
+
 from cwlimits import _defaults
 from cwlimits.errors import InputError
 from cwlimits.noise._base import NoiseSource
@@ -53,7 +55,7 @@ class AnalyticNoise(NoiseSource):
     def _psd_hz(self, f_hz):
         return self.s0_per_hz * self._shape(f_hz / self.f0_hz)
 
-    def describe(self):
+    def describe(self) -> str:
         """One line: name, what it is, its range and its source."""
         return (f"{self.name}: analytic {self.title} fit, valid "
                 f"{self._f_min_hz:g}-{self._f_max_hz:g} Hz ({self.reference})")
@@ -119,7 +121,7 @@ DEFAULT_NOISE_MODEL = _defaults.DEFAULT_NOISE_MODEL
 _RETIRED_NOISE_MODELS = {"advanced-fit": "second-gen-fit", "initial-fit": "first-gen-fit"}
 
 
-def noise_model(name):
+def noise_model(name: str) -> AnalyticNoise:
     """Return the analytic noise fit called ``name``.
 
     Parameters

@@ -1,5 +1,7 @@
 """Resolve what the user names (``--noise MODEL_OR_FILE``) into a noise source."""
 
+from __future__ import annotations
+
 from pathlib import Path
 
 from cwlimits.errors import InputError
@@ -10,7 +12,7 @@ from cwlimits.noise.models import _RETIRED_NOISE_MODELS, NOISE_MODELS, noise_mod
 __all__ = ["get_noise"]
 
 
-def get_noise(spec, kind=None):
+def get_noise(spec: str | Path | NoiseSource, kind: str | None = None) -> NoiseSource:
     """Return the noise source a model name or a file path names.
 
     Parameters

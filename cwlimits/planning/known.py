@@ -19,7 +19,12 @@ something about the star.  The plan's setup is one segment as long as the span, 
 band that contains f_gw (the narrow-band box, or one reporting band centred on f_gw).
 """
 
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
+from pathlib import Path
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 from astropy.table import QTable
@@ -29,15 +34,20 @@ from cwlimits.noise import DEFAULT_NOISE_MODEL
 from cwlimits.searchspace.searchsetup import DEFAULT_UNIT_COSTS, SearchSetup
 from cwlimits.sensitivity.model import DEFAULT_START
 
+if TYPE_CHECKING:
+    from cwlimits._random import RngLike
+    from cwlimits.noise import NoiseSource
+    from cwlimits.targets.catalogue import Target
+
 __all__ = ["KnownPulsarPlan", "plan_known_pulsar", "is_known_pulsar", "case_distance"]
 
 
-def is_known_pulsar(target):
+def is_known_pulsar(target: Target) -> bool:
     """Whether a target has a known spin (``f_rot`` and ``fdot_rot``)."""
     return bool(getattr(target, "has_spin", False))
 
 
-def case_distance(target, case):
+def case_distance(target: Target, case: str) -> u.Quantity:
     """Distance of a distance case (nominal, optimistic = d_min, pessimistic = d_max)."""
     if case == "optimistic":
         return target.distance_min
@@ -98,11 +108,11 @@ class KnownPulsarPlan:
     bound: str = "none"
 
     @property
-    def band(self):
+    def band(self) -> tuple[u.Quantity, u.Quantity]:
         """(f_min, f_max) of the plan's setup."""
         return self.setup.f_min, self.setup.f_max
 
-    def write(self, path):
+    def write(self, path: str | Path) -> Path:
         """Write the plan's setup file (the TOML format of :mod:`~cwlimits.searchspace`)."""
         return self.setup.to_toml(path)
 
@@ -119,13 +129,18 @@ def _coherent_setup(span, detectors, lattice, mismatch, cost_coherent, cost_semi
                        duty_factor=duty_factor)
 
 
-def plan_known_pulsar(target, noise=DEFAULT_NOISE_MODEL, budget="1e5 h", span="1 yr", *,
-                      kind="auto", case="nominal", detectors=("H1", "L1"),
-                      band_width=1 * u.Hz, lattice="covering", mismatch=0.3,
-                      cost_coherent=DEFAULT_UNIT_COSTS["coherent"],
-                      cost_semicoherent=DEFAULT_UNIT_COSTS["semicoherent"], duty_factor=1.0,
-                      confidence=0.95, false_alarm=0.01, start=DEFAULT_START, n_sigma=None,
-                      fractional_width=None, n_noise=200, rng=0, moment_of_inertia=None):
+def plan_known_pulsar(target: Target, noise: str | NoiseSource | Mapping = DEFAULT_NOISE_MODEL,
+                      budget: u.Quantity | str = "1e5 h", span: u.Quantity | str = "1 yr", *,
+                      kind: str = "auto", case: str = "nominal",
+                      detectors: Sequence[str] = ("H1", "L1"), band_width: u.Quantity = 1 * u.Hz,
+                      lattice: str = "covering", mismatch: float = 0.3,
+                      cost_coherent: u.Quantity = DEFAULT_UNIT_COSTS["coherent"],
+                      cost_semicoherent: u.Quantity = DEFAULT_UNIT_COSTS["semicoherent"],
+                      duty_factor: float = 1.0, confidence: float = 0.95,
+                      false_alarm: float = 0.01, start: str = DEFAULT_START,
+                      n_sigma: float | None = None, fractional_width: float | None = None,
+                      n_noise: int = 200, rng: RngLike = 0,
+                      moment_of_inertia: u.Quantity | None = None) -> KnownPulsarPlan:
     """Plan a targeted or narrow-band search for a known pulsar.
 
     Parameters

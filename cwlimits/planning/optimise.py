@@ -56,14 +56,21 @@ an exact dynamic programme over the grid:
 ``V_i(k) = max_{0 <= j <= k} [V_{i-1}(k - j) + F_i(j delta)]``, ``V_0 = 0``.
 """
 
+from __future__ import annotations
+
 import dataclasses
 import functools
 import math
+from collections.abc import Mapping, Sequence
+from concurrent.futures import Executor
 from dataclasses import dataclass, field
+from pathlib import Path
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
 from astropy.table import QTable
+from numpy.typing import ArrayLike
 from scipy import optimize
 from scipy.optimize import elementwise
 
@@ -101,6 +108,11 @@ from cwlimits.statistics.detection import (
     false_alarm_threshold,
 )
 from cwlimits.targets.indirect import age_limit
+
+if TYPE_CHECKING:
+    from cwlimits.noise import NoiseSource
+    from cwlimits.runtime.store import ResultStore
+    from cwlimits.targets.catalogue import Target, TargetCatalogue
 
 __all__ = ["OBJECTIVES", "MEASURES", "CASES", "DEFAULT_BAND", "SearchPlan", "Ranking",
            "KnownPulsarPlan",
@@ -147,7 +159,7 @@ def _describe(noise):
     return noise.describe() if hasattr(noise, "describe") else str(noise)
 
 
-def as_budget(value, name="budget"):
+def as_budget(value: u.Quantity | str, name: str = "budget") -> u.Quantity:
     """A computing budget as a Quantity in core-hours.
 
     Parameters
@@ -250,12 +262,13 @@ class PowerLawModel:
             raise InputError("PowerLawModel needs k > 0, a > 0, b > 0", value=(k, a, b))
         self.widths = np.ones(1)
 
-    def cost(self, t_s, n, mu_c, mu_f):
+    def cost(self, t_s: ArrayLike, n: ArrayLike, mu_c: ArrayLike, mu_f: ArrayLike) -> np.ndarray:
         """Cost in core-hours, shape (n_candidates, 1)."""
         t_day = np.asarray(t_s, float) / SECONDS_PER_DAY
         return (self.k_h * np.asarray(n, float) ** self.a * t_day ** self.b)[:, None]
 
-    def log_depth(self, t_s, n, mu_c, mu_f, cost_info=None):
+    def log_depth(self, t_s: ArrayLike, n: ArrayLike, mu_c: ArrayLike, mu_f: ArrayLike,
+                  cost_info=None) -> np.ndarray:
         """Natural log of the depth per band (arbitrary constant), (n_candidates, 1)."""
         return (0.25 * np.log(np.asarray(n, float))
                 + 0.5 * np.log(np.asarray(t_s, float)))[:, None]
@@ -687,9 +700,11 @@ def _best_windows(cost, weight, margin, budget_h):
     return value, left, right, np.where(value > 0, deeper, closest)
 
 
-def optimise_setup(model, budget, span, *, objective="depth", measure="width",
-                   log_h_age=None, t_seg_min=1 * u.day, n_seg_max=1000, refine=True,
-                   band_index=None):
+def optimise_setup(model, budget: u.Quantity | str, span: u.Quantity | str, *,
+                   objective: str = "depth", measure: str = "width",
+                   log_h_age: ArrayLike | None = None, t_seg_min: u.Quantity = 1 * u.day,
+                   n_seg_max: int = 1000, refine: bool = True,
+                   band_index: ArrayLike | None = None):
     """Optimise (T_seg, N, mismatches[, band]) of a model at a fixed budget and span.
 
     The core of :func:`plan_search`; it also takes a user-given model such as
@@ -997,11 +1012,11 @@ class SearchPlan:
     assumptions: dict = field(default_factory=dict)
 
     @property
-    def depth(self):
+    def depth(self) -> u.Quantity:
         """Geometric-mean sensitivity depth over the plan's band (exact)."""
         return _table_merit(self.table, "depth", None, None)
 
-    def write(self, path):
+    def write(self, path: str | Path) -> Path:
         """Write the plan's setup file (the TOML format of :mod:`~cwlimits.searchspace`)."""
         return self.setup.to_toml(path)
 
@@ -1068,14 +1083,18 @@ def _plan_setup(base, model, opt):
                         band=band)
 
 
-def plan_search(target, noise=DEFAULT_NOISE_MODEL, budget="1e5 h", span="1 yr",
-                objective="depth", *, band=None, measure="width", case="nominal",
-                detectors=("H1", "L1"), band_width=1 * u.Hz, lattice="covering",
-                braking_index=(2.0, 7.0), cost_coherent=DEFAULT_UNIT_COSTS["coherent"],
-                cost_semicoherent=DEFAULT_UNIT_COSTS["semicoherent"], duty_factor=1.0,
-                t_seg_min=1 * u.day, n_seg_max=1000, confidence=0.95, false_alarm=0.01,
-                start=DEFAULT_START, refine=True, exact=True, known_pulsar="auto",
-                kind="auto"):
+def plan_search(target: Target, noise: str | NoiseSource | Mapping = DEFAULT_NOISE_MODEL,
+                budget: u.Quantity | str = "1e5 h", span: u.Quantity | str = "1 yr",
+                objective: str = "depth", *, band: tuple[u.Quantity, u.Quantity] | None = None,
+                measure: str = "width", case: str = "nominal",
+                detectors: Sequence[str] = ("H1", "L1"), band_width: u.Quantity = 1 * u.Hz,
+                lattice: str = "covering", braking_index: tuple[float, float] = (2.0, 7.0),
+                cost_coherent: u.Quantity = DEFAULT_UNIT_COSTS["coherent"],
+                cost_semicoherent: u.Quantity = DEFAULT_UNIT_COSTS["semicoherent"],
+                duty_factor: float = 1.0, t_seg_min: u.Quantity = 1 * u.day, n_seg_max: int = 1000,
+                confidence: float = 0.95, false_alarm: float = 0.01, start: str = DEFAULT_START,
+                refine: bool = True, exact: bool = True, known_pulsar: str = "auto",
+                kind: str = "auto") -> SearchPlan | KnownPulsarPlan:
     """Plan a directed search of one target at a fixed budget and maximum data span.
 
     A target with a known spin (``f_rot``, ``fdot_rot``) gets a targeted or narrow-band
@@ -1164,8 +1183,10 @@ def plan_search(target, noise=DEFAULT_NOISE_MODEL, budget="1e5 h", span="1 yr",
                    log_h_age, noise, confidence, false_alarm, start, exact)
 
 
-def cost_depth_tradeoff(target, noise=DEFAULT_NOISE_MODEL, budget="1e5 h", span="1 yr", *,
-                        factors=TRADE_OFF_FACTORS, plan=None, **options):
+def cost_depth_tradeoff(target: Target, noise: str | NoiseSource | Mapping = DEFAULT_NOISE_MODEL,
+                        budget: u.Quantity | str = "1e5 h", span: u.Quantity | str = "1 yr", *,
+                        factors: Sequence[float] = TRADE_OFF_FACTORS,
+                        plan: SearchPlan | None = None, **options) -> list[SearchPlan]:
     """Depth plans of one target at fractions of a budget: cost against depth.
 
     Parameters
@@ -1258,7 +1279,7 @@ def _finish(case_target, setup, opt, budget, span, objective, measure, case, log
 # Public API: a catalogue
 # ---------------------------------------------------------------------------------------
 
-def allocate_budget(merits):
+def allocate_budget(merits: ArrayLike) -> np.ndarray:
     """Split a budget grid across targets to maximise the summed figure of merit.
 
     Parameters
@@ -1437,16 +1458,22 @@ def _n_grid(span_s, t_min_s, n_seg_max):
     return np.unique(np.rint(np.geomspace(1, n_max, _N_GRID_SIZE)).astype(int)), n_max
 
 
-def rank_targets(catalogue, noise=DEFAULT_NOISE_MODEL, total_budget="1e6 h", span="1 yr",
-                 *, per_target_budget=None, budget_steps=12, measure="integral",
-                 case="pessimistic", band=None, detectors=("H1", "L1"),
-                 band_width=1 * u.Hz, lattice="covering", braking_index=(2.0, 7.0),
-                 cost_coherent=DEFAULT_UNIT_COSTS["coherent"],
-                 cost_semicoherent=DEFAULT_UNIT_COSTS["semicoherent"], duty_factor=1.0,
-                 t_seg_min=1 * u.day, n_seg_max=1000, confidence=0.95, false_alarm=0.01,
-                 start=DEFAULT_START, executor=None, progress=False, plans=True,
-                 store=None, key=None, known_pulsar="auto", mismatch_coherent=0.3,
-                 noise_draws=100):
+def rank_targets(catalogue: TargetCatalogue,
+                 noise: str | NoiseSource | Mapping = DEFAULT_NOISE_MODEL,
+                 total_budget: u.Quantity | str = "1e6 h", span: u.Quantity | str = "1 yr", *,
+                 per_target_budget: u.Quantity | str | None = None, budget_steps: int = 12,
+                 measure: str = "integral", case: str = "pessimistic",
+                 band: tuple[u.Quantity, u.Quantity] | None = None,
+                 detectors: Sequence[str] = ("H1", "L1"), band_width: u.Quantity = 1 * u.Hz,
+                 lattice: str = "covering", braking_index: tuple[float, float] = (2.0, 7.0),
+                 cost_coherent: u.Quantity = DEFAULT_UNIT_COSTS["coherent"],
+                 cost_semicoherent: u.Quantity = DEFAULT_UNIT_COSTS["semicoherent"],
+                 duty_factor: float = 1.0, t_seg_min: u.Quantity = 1 * u.day,
+                 n_seg_max: int = 1000, confidence: float = 0.95, false_alarm: float = 0.01,
+                 start: str = DEFAULT_START, executor: Executor | None = None,
+                 progress: bool = False, plans: bool = True, store: ResultStore | None = None,
+                 key: Mapping | None = None, known_pulsar: str = "auto",
+                 mismatch_coherent: float = 0.3, noise_draws: int = 100) -> Ranking:
     """Rank the targets of a catalogue and split a total budget across them.
 
     Known pulsars (rows with ``f_rot``, ``fdot_rot``; unless ``known_pulsar='off'``) get a

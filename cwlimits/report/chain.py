@@ -371,7 +371,7 @@ def _limits_section(rep, config, target, setup, results, table, noise, simulated
     if simulated:
         from astropy.table import QTable
 
-        sim = QTable({"f_lo": results.f_lo, "width": results.width,
+        sim = QTable({"f_lo": results.f_lo, "band_width": results.band_width,
                       "loudest_2F": results.loudest, "psd": results.psd})
         rep.table(f"simulated_results_{slug}", sim,
                   caption=f"SIMULATED search results for {target.name} (noise only)",
@@ -650,7 +650,7 @@ def simulate_results(model, rng=None):
     u01 = rng.uniform(size=len(model))
     p_exceed = -np.expm1(np.log(u01) / np.asarray(model.n_templates, float))
     loudest = stats.chi2.isf(p_exceed, 4 * model.n_seg)
-    return SearchResults(f_lo=model.f_lo, width=model.f_hi - model.f_lo, loudest=loudest,
+    return SearchResults(f_lo=model.f_lo, band_width=model.f_hi - model.f_lo, loudest=loudest,
                          convention="total", psd=model.psd,
                          n_templates=np.asarray(model.n_templates, float),
                          source="simulated", rows=np.arange(len(model)) + 2)

@@ -27,12 +27,16 @@ to have no new leap seconds (same order of effect); ERFA's "dubious year" warnin
 is silenced inside this module only.
 """
 
+from __future__ import annotations
+
 import functools
 import math
 import re
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, replace
 from importlib import resources
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import erfa
@@ -40,15 +44,19 @@ import numpy as np
 from astropy.coordinates import ICRS, TETE, BaseCoordinateFrame, EarthLocation, SkyCoord
 from astropy.time import Time
 from astropy.utils import iers
+from numpy.typing import ArrayLike
 from scipy.interpolate import CubicSpline
 from scipy.special import roots_legendre
 
-from cwlimits._random import as_generator
+from cwlimits._random import RngLike, as_generator
 from cwlimits._time import QuietTime, as_time
 from cwlimits._toml import load_toml
 from cwlimits._units import parse_quantity, to_value
 from cwlimits.errors import ConfigError, InputError, TableError
 from cwlimits.tables import read_table
+
+if TYPE_CHECKING:
+    from astropy.table import QTable
 
 __all__ = [
     "Detector",
@@ -202,22 +210,22 @@ class Detector:
                    description)
 
     @property
-    def x_azimuth(self):
+    def x_azimuth(self) -> u.Quantity:
         """Azimuth of the x arm, from north through east (Quantity ['angle'])."""
         az = 90.0 - self.gamma.to_value(u.deg) + self.zeta.to_value(u.deg) / 2
         return (az % 360.0) * u.deg
 
     @property
-    def y_azimuth(self):
+    def y_azimuth(self) -> u.Quantity:
         """Azimuth of the y arm, from north through east (Quantity ['angle'])."""
         return ((self.x_azimuth - self.zeta).to_value(u.deg) % 360.0) * u.deg
 
     @property
-    def location(self):
+    def location(self) -> EarthLocation:
         """The vertex as an :class:`astropy.coordinates.EarthLocation` (WGS84)."""
         return EarthLocation.from_geodetic(self.longitude, self.latitude, self.elevation)
 
-    def arm_vectors(self):
+    def arm_vectors(self) -> tuple[np.ndarray, np.ndarray]:
         """Unit vectors along the x and y arms in an Earth-fixed frame.
 
         Returns
@@ -232,7 +240,7 @@ class Detector:
         return (np.cos(g - z / 2) * east + np.sin(g - z / 2) * north,
                 np.cos(g + z / 2) * east + np.sin(g + z / 2) * north)
 
-    def tensor(self):
+    def tensor(self) -> np.ndarray:
         """The detector tensor ``D = (u u - v v) / 2`` (3 x 3 ndarray, Earth-fixed axes)."""
         x_arm, y_arm = self.arm_vectors()
         return 0.5 * (np.outer(x_arm, x_arm) - np.outer(y_arm, y_arm))
@@ -275,7 +283,7 @@ def _builtin():
 _BUILTIN = None
 
 
-def builtin_detectors():
+def builtin_detectors() -> dict[str, Detector]:
     """The built-in sites as a dict ``{name: Detector}``.
 
     Read from the package data file ``cwlimits/data/detectors.csv``, whose comments give
@@ -290,12 +298,12 @@ def builtin_detectors():
     return dict(_BUILTIN)
 
 
-def known_detectors():
+def known_detectors() -> tuple[str, ...]:
     """Names of the built-in detectors (tuple of str)."""
     return tuple(builtin_detectors())
 
 
-def get_detector(name, extra=None):
+def get_detector(name: str | Detector, extra: Mapping[str, Detector] | None = None) -> Detector:
     """Return a detector by its short code.
 
     Parameters
@@ -331,7 +339,8 @@ def get_detector(name, extra=None):
                      "one with cwlimits.response.Detector or a detector file)", value=name)
 
 
-def get_detectors(names, extra=None):
+def get_detectors(names: str | Iterable[str | Detector],
+                  extra: Mapping[str, Detector] | None = None) -> tuple[Detector, ...]:
     """Return a tuple of detectors from names, Detectors or a comma-separated string.
 
     Raises
@@ -350,7 +359,7 @@ def get_detectors(names, extra=None):
     return out
 
 
-def load_detectors(path):
+def load_detectors(path: str | Path) -> dict[str, Detector]:
     """Read user-defined detectors from a CSV or TOML file.
 
     CSV: one row per detector with columns ``name``, ``latitude``, ``longitude`` (deg,
@@ -749,7 +758,8 @@ def _averages_one(lat, gamma, ra, dec, moments):
     return results
 
 
-def orientation_factor_kernel(A, B, C, cosi, psi):
+def orientation_factor_kernel(A: ArrayLike, B: ArrayLike, C: ArrayLike, cosi: ArrayLike,
+                              psi: ArrayLike) -> np.ndarray:
     """R^2 = A alpha1 + B alpha2 + 2 C alpha3 (sin^2 zeta already folded into A, B, C).
 
     alpha1 = A+^2 cos^2 2psi + Ax^2 sin^2 2psi, alpha2 = A+^2 sin^2 2psi + Ax^2 cos^2 2psi,
@@ -773,7 +783,8 @@ def _pattern_inputs(detector, coord, times):
     return detector, ra, dec, gast
 
 
-def amplitude_modulation(detector, coord, times):
+def amplitude_modulation(detector: Detector | str, coord: SkyCoord,
+                         times: Time | ArrayLike) -> tuple[np.ndarray, np.ndarray]:
     """The amplitude modulation functions a(t) and b(t) of a detector.
 
     Parameters
@@ -814,7 +825,8 @@ def amplitude_modulation(detector, coord, times):
     return a << u.one, b << u.one
 
 
-def antenna_patterns(detector, coord, psi, times):
+def antenna_patterns(detector: Detector | str, coord: SkyCoord, psi: u.Quantity,
+                     times: Time | ArrayLike) -> tuple[np.ndarray, np.ndarray]:
     """Antenna patterns F+(t) and Fx(t) from the closed forms a(t), b(t).
 
     Parameters
@@ -865,7 +877,8 @@ def antenna_patterns(detector, coord, psi, times):
     return fplus << u.one, fcross << u.one
 
 
-def antenna_patterns_tensor(detector, coord, psi, times):
+def antenna_patterns_tensor(detector: Detector | str, coord: SkyCoord, psi: u.Quantity,
+                            times: Time | ArrayLike) -> tuple[np.ndarray, np.ndarray]:
     """Antenna patterns from the contraction F+ = D:e+, Fx = D:ex (independent check).
 
     Same arguments, broadcasting and results as :func:`antenna_patterns`, computed from
@@ -1019,7 +1032,7 @@ class ResponseAverages:
         """D = A B - C^2 (Quantity ['dimensionless'])."""
         return self.A * self.B - self.C**2
 
-    def orientation_factor(self, cosi, psi):
+    def orientation_factor(self, cosi: ArrayLike, psi: u.Quantity) -> u.Quantity:
         """R^2 at ``cosi``, ``psi`` for these averages; see :func:`orientation_factor`."""
         return orientation_factor(self.A, self.B, self.C, cosi, psi)
 
@@ -1035,7 +1048,7 @@ class ResponseAverages:
         return tuple(sz * np.asarray(x.to_value(u.one)) for x in
                      (self.A_det, self.B_det, self.C_det))
 
-    def for_detector(self, i):
+    def for_detector(self, i: int) -> ResponseAverages:
         """These averages for detector ``i`` alone (its own R^2 rule and quantiles)."""
         a, b, c = (x[i] << u.one for x in self.detector_abc())
         return replace(self, A=a, B=b, C=c)
@@ -1076,8 +1089,10 @@ class ResponseAverages:
                      for x in per)
 
 
-def time_averages(detectors, coord, start, span, *, duty=1.0, weights=None, method="auto",
-                  samples_per_day=48):
+def time_averages(detectors: str | Iterable[str | Detector], coord: SkyCoord,
+                  start: Time | str | float, span: u.Quantity, *, duty: float | ArrayLike = 1.0,
+                  weights: ArrayLike | None = None, method: str = "auto",
+                  samples_per_day: int = 48) -> ResponseAverages:
     """A = <a^2>, B = <b^2>, C = <ab> over an observation, for one detector or a network.
 
     Parameters
@@ -1144,7 +1159,8 @@ def _averages_from(obs, ra, dec):
 
 # --------------------------------------------------------------- orientation factor
 
-def orientation_factor(A, B, C, cosi, psi):
+def orientation_factor(A: u.Quantity | ArrayLike, B: u.Quantity | ArrayLike,
+                       C: u.Quantity | ArrayLike, cosi: ArrayLike, psi: u.Quantity) -> u.Quantity:
     """The orientation factor R^2 with rho^2 = R^2 h0^2 T_data / S_n.
 
     Parameters
@@ -1211,9 +1227,12 @@ def _source_averages(source, coord, start, span, duty, weights, method):
             averages.C.to_value(u.one))
 
 
-def orientation_factor_samples(source, coord=None, start=None, span=None, *, duty=1.0,
-                               weights=None, n=4096, rng=None, sky="fixed",
-                               method="auto", return_angles=False):
+def orientation_factor_samples(source, coord: SkyCoord | None = None,
+                               start: Time | str | float | None = None,
+                               span: u.Quantity | None = None, *, duty: float | ArrayLike = 1.0,
+                               weights: ArrayLike | None = None, n: int = 4096,
+                               rng: RngLike = None, sky: str = "fixed", method: str = "auto",
+                               return_angles: bool = False):
     """Monte-Carlo samples of R^2 over uniform cos(iota) in [-1, 1] and psi in [0, pi).
 
     Parameters
@@ -1284,9 +1303,12 @@ def orientation_factor_samples(source, coord=None, start=None, span=None, *, dut
     return R2 << u.one
 
 
-def orientation_factor_rule(source, coord=None, start=None, span=None, *, duty=1.0,
-                            weights=None, order=16, method="auto", sky="fixed",
-                            sky_order=None, return_nodes=False):
+def orientation_factor_rule(source, coord: SkyCoord | None = None,
+                            start: Time | str | float | None = None,
+                            span: u.Quantity | None = None, *, duty: float | ArrayLike = 1.0,
+                            weights: ArrayLike | None = None, order: int = 16,
+                            method: str = "auto", sky: str = "fixed", sky_order: int | None = None,
+                            return_nodes: bool = False):
     """A quadrature rule for averages over cos(iota) and psi: nodes of R^2 and weights.
 
     ``sum(w * f(R2), axis=-1)`` approximates the mean of ``f(R^2)`` over uniform cosi in
@@ -1369,7 +1391,8 @@ def orientation_factor_rule(source, coord=None, start=None, span=None, *, duty=1
     return R2 << u.one, W
 
 
-def weighted_quantiles(values, weights, q, *, method="hazen"):
+def weighted_quantiles(values: u.Quantity | ArrayLike, weights: ArrayLike, q: float | ArrayLike, *,
+                       method: str = "hazen") -> u.Quantity | np.ndarray:
     """Quantiles of a weighted set of values (e.g. a quadrature rule of R^2).
 
     The one weighted quantile of the package.
@@ -1434,7 +1457,8 @@ def weighted_quantiles(values, weights, q, *, method="hazen"):
 
 
 
-def response_table(averages, *, order=48, quantiles=R2_QUANTILES):
+def response_table(averages: ResponseAverages, *, order: int = 48,
+                   quantiles: Sequence[float] = R2_QUANTILES) -> QTable:
     """Per-detector and network table of the antenna averages and of R^2.
 
     Parameters

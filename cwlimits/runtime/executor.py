@@ -30,6 +30,8 @@ must be defined at module level (a ``lambda`` or a nested function will not pick
 extra arguments with :func:`functools.partial`.
 """
 
+from __future__ import annotations
+
 import concurrent.futures
 import contextlib
 import hashlib
@@ -37,13 +39,18 @@ import logging
 import multiprocessing
 import os
 import time
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
+from typing import TYPE_CHECKING
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from cwlimits import _defaults
-from cwlimits._random import seed_sequence
+from cwlimits._random import RngLike, seed_sequence
 from cwlimits.errors import ComputationError, CwlimitsError, InputError
+
+if TYPE_CHECKING:
+    from cwlimits.runtime.store import ResultStore
 
 __all__ = ["map_chunks", "make_executor", "chunk_bounds", "chunk_seed", "named_seed",
            "SerialExecutor", "DEFAULT_CHUNK_SIZE"]
@@ -68,7 +75,7 @@ class SerialExecutor(concurrent.futures.Executor):
     def __init__(self):
         self._shut = False
 
-    def submit(self, fn, /, *args, **kwargs):
+    def submit(self, fn: Callable, /, *args, **kwargs) -> concurrent.futures.Future:
         """Run ``fn(*args, **kwargs)`` now; return a finished future."""
         if self._shut:
             raise RuntimeError("cannot schedule new futures after shutdown")
@@ -82,12 +89,12 @@ class SerialExecutor(concurrent.futures.Executor):
             future.set_result(result)
         return future
 
-    def shutdown(self, wait=True, *, cancel_futures=False):
+    def shutdown(self, wait: bool = True, *, cancel_futures: bool = False) -> None:
         """Refuse further submissions (there is nothing running to wait for)."""
         self._shut = True
 
 
-def chunk_bounds(n_items, chunk_size):
+def chunk_bounds(n_items: int, chunk_size: int) -> list[tuple[int, int]]:
     """The ``(start, stop)`` item ranges of the chunks of a problem of ``n_items``.
 
     Chunk ``i`` covers ``[i * chunk_size, min((i + 1) * chunk_size, n_items))``: the
@@ -113,7 +120,7 @@ def _root_seed(seed):
     return (np.random.SeedSequence(), False) if root is None else (root, True)
 
 
-def chunk_seed(seed, index):
+def chunk_seed(seed: RngLike, index: int) -> np.random.SeedSequence:
     """The seed sequence of chunk ``index`` of a job seeded with ``seed``.
 
     Equal to ``seed.spawn(n)[index]`` for a fresh ``seed`` (any ``n > index``), but does not
@@ -133,7 +140,7 @@ def chunk_seed(seed, index):
                                   pool_size=seed.pool_size)
 
 
-def named_seed(seed, name):
+def named_seed(seed: RngLike, name: str) -> np.random.SeedSequence | None:
     """The seed of one named part of a job (a target), independent of the parts' order.
 
     Parameters
@@ -302,8 +309,11 @@ def _completed_dask(client, tasks, window):
         raise
 
 
-def map_chunks(func, items, *, chunk_size=DEFAULT_CHUNK_SIZE, executor=None, seed=None,
-               store=None, key=None, progress=False, desc=None):
+def map_chunks(func: Callable[..., dict[str, np.ndarray]], items: int | Mapping[str, ArrayLike], *,
+               chunk_size: int = DEFAULT_CHUNK_SIZE,
+               executor: concurrent.futures.Executor | None = None, seed: RngLike = None,
+               store: ResultStore | None = None, key: Mapping | None = None,
+               progress: bool = False, desc: str | None = None) -> dict[str, np.ndarray]:
     """Compute ``func`` chunk by chunk over ``items``; return the results concatenated.
 
     Parameters
@@ -490,7 +500,8 @@ def _progress_display(progress, total, initial, desc):
         yield update
 
 
-def make_executor(workers=None, scheduler=None, *, start_method="spawn", connect_timeout=10.0):
+def make_executor(workers: int | None = None, scheduler: str | None = None, *,
+                  start_method: str = "spawn", connect_timeout: float = 10.0):
     """The executor for ``--workers N`` or ``--scheduler ADDRESS``.
 
     Parameters

@@ -22,9 +22,13 @@ Examples
 True
 """
 
+from __future__ import annotations
+
 import contextlib
 import sys
 import time
+from collections.abc import Callable
+from typing import IO
 
 from tqdm import tqdm
 from tqdm.contrib.logging import logging_redirect_tqdm
@@ -35,7 +39,7 @@ __all__ = ["progress", "is_terminal", "LINE_INTERVAL_S"]
 LINE_INTERVAL_S = 10.0
 
 
-def is_terminal(stream):
+def is_terminal(stream: IO) -> bool:
     """True if ``stream`` is an interactive terminal (``stream.isatty()``)."""
     isatty = getattr(stream, "isatty", None)
     try:
@@ -81,8 +85,9 @@ class _Lines:
 
 
 @contextlib.contextmanager
-def progress(total, desc, *, enabled=None, unit="item", initial=0, file=None,
-             interval=LINE_INTERVAL_S, clock=time.monotonic):
+def progress(total: int, desc: str, *, enabled: bool | None = None, unit: str = "item",
+             initial: int = 0, file: IO | None = None, interval: float = LINE_INTERVAL_S,
+             clock: Callable[[], float] = time.monotonic):
     """A progress display for ``total`` items; yields a callback ``update(n_done)``.
 
     Parameters

@@ -38,6 +38,8 @@ Final tables are not kept here: they are written with :func:`cwlimits.tables.wri
 (atomically, with units and assumptions) from the arrays this store gives back.
 """
 
+from __future__ import annotations
+
 import datetime
 import hashlib
 import io
@@ -118,7 +120,7 @@ def _pid_alive(pid):
     return True
 
 
-def claim_is_live(pid, host, claimed_at):
+def claim_is_live(pid: int, host: str, claimed_at: float) -> bool:
     """Whether the process that claimed a chunk may still be computing it."""
     if host == socket.gethostname():
         return pid != os.getpid() and _pid_alive(pid)
@@ -126,7 +128,7 @@ def claim_is_live(pid, host, claimed_at):
     return age.total_seconds() < CLAIM_TIMEOUT_S
 
 
-def is_store(path):
+def is_store(path: str | Path) -> bool:
     """Whether ``path`` is verifiably a cwlimits results store (never modifies it).
 
     It must be a regular file (not a link) that starts with the SQLite header and holds
@@ -203,7 +205,7 @@ def _canonical(value, where):
                       "arrays, SeedSequence, and lists/tuples/mappings of these")
 
 
-def canonical_json(config):
+def canonical_json(config: Mapping) -> str:
     """The canonical JSON text of a configuration mapping (the text :func:`config_hash` hashes).
 
     Keys are sorted, separators are compact, floats are written with Python's shortest
@@ -220,7 +222,7 @@ def canonical_json(config):
                       ensure_ascii=True, allow_nan=False)
 
 
-def config_hash(config):
+def config_hash(config: Mapping) -> str:
     """A stable SHA-256 (hex) of a resolved configuration mapping.
 
     Parameters
@@ -245,7 +247,7 @@ def config_hash(config):
     return hashlib.sha256(canonical_json(config).encode("ascii")).hexdigest()
 
 
-def file_hash(path):
+def file_hash(path: str | Path) -> str:
     """The SHA-256 (hex) of a file's bytes, to stand for an input file in a configuration.
 
     Raises
@@ -378,7 +380,7 @@ class ResultStore:
     def __exit__(self, *exc):
         self.close()
 
-    def close(self):
+    def close(self) -> None:
         """Close the database connection (committed chunks are already safe).
 
         Claims of this session on chunks it did not finish are released, so another
@@ -400,12 +402,12 @@ class ResultStore:
         return _Transaction(self._require_db())
 
     @property
-    def exists(self):
+    def exists(self) -> bool:
         """Whether the store's file has been created (it is, when the first part begins)."""
         return self._db is not None
 
     @property
-    def session_id(self):
+    def session_id(self) -> str:
         """The id of this process's session (created by the first saved chunk), or None."""
         return self._session
 
@@ -423,7 +425,7 @@ class ResultStore:
         return self._session
 
     # runs and parts
-    def begin_run(self, config):
+    def begin_run(self, config: Mapping) -> str:
         """Record a run for ``config`` (if new) and return its id.
 
         The id is :func:`config_hash` of ``{"config": config, "cwlimits_version": ...}``:
@@ -446,7 +448,7 @@ class ResultStore:
                              (run_id, canonical_json(full), _now()))
         return run_id
 
-    def run_config(self, run_id):
+    def run_config(self, run_id: str) -> dict:
         """The configuration recorded for a run, as parsed JSON."""
         if run_id in self._pending_runs:
             return json.loads(self._pending_runs[run_id])["config"]
@@ -458,7 +460,9 @@ class ResultStore:
             raise InputError(f"no run {run_id!r} in the results store", file=str(self.path))
         return json.loads(row[0])["config"]
 
-    def begin_part(self, run_id, part, *, n_items, chunk_size, seed, seed_given=True):
+    def begin_part(self, run_id: str, part: str, *, n_items: int, chunk_size: int,
+                   seed: np.random.SeedSequence,
+                   seed_given: bool = True) -> np.random.SeedSequence:
         """Record (or check) the shape of one part of a run; return its seed sequence.
 
         Parameters
@@ -517,7 +521,7 @@ class ResultStore:
         return _seed_from_record(stored_seed)
 
     # chunks
-    def finished_chunks(self, run_id, part=""):
+    def finished_chunks(self, run_id: str, part: str = "") -> set[int]:
         """The set of chunk indices of a part that are in the store."""
         if self._db is None:
             return set()
@@ -525,7 +529,8 @@ class ResultStore:
                                 (run_id, part))
         return {index for (index,) in rows}
 
-    def save_chunk(self, run_id, part, index, start, stop, arrays):
+    def save_chunk(self, run_id: str, part: str, index: int, start: int, stop: int,
+                   arrays: Mapping[str, np.ndarray]) -> None:
         """Write one finished chunk (a mapping of name -> array) in one transaction."""
         blobs = [(name, position, _to_blob(name, array))
                  for position, (name, array) in enumerate(arrays.items())]
@@ -545,7 +550,7 @@ class ResultStore:
             self._db.execute("DELETE FROM claims WHERE run_id = ? AND part = ? AND chunk = ?",
                              (run_id, part, index))
 
-    def claim_chunk(self, run_id, part, index):
+    def claim_chunk(self, run_id: str, part: str, index: int) -> str:
         """Claim chunk ``index`` of a part for this process, unless it is done or taken.
 
         Two processes running the same command on one store share the work: each claims
@@ -580,7 +585,7 @@ class ResultStore:
                               socket.gethostname(), _now()))
         return "mine"
 
-    def load_chunk(self, run_id, part, index):
+    def load_chunk(self, run_id: str, part: str, index: int) -> dict[str, np.ndarray]:
         """The arrays of one chunk, in the order they were returned, as a dict."""
         rows = [] if self._db is None else self._db.execute(
             "SELECT name, data FROM chunk_arrays WHERE run_id = ? AND part = ? AND chunk = ?"
@@ -590,7 +595,7 @@ class ResultStore:
                              "in the results store", file=str(self.path))
         return {name: _from_blob(blob) for name, blob in rows}
 
-    def chunk_log(self, run_id=None, part=None):
+    def chunk_log(self, run_id: str | None = None, part: str | None = None) -> list[dict]:
         """Every chunk save ever made, oldest first, as a list of dicts.
 
         Keys: ``run_id, part, chunk, session_id, pid, host, started_at, finished_at``.  A
@@ -607,7 +612,7 @@ class ResultStore:
         return [dict(zip(keys, row, strict=True))
                 for row in self._db.execute(query, (run_id, part))]
 
-    def live_claims(self):
+    def live_claims(self) -> list[str]:
         """``"pid@host"`` of every other live process holding a claim on a chunk here."""
         if self._db is None:
             return []
@@ -615,7 +620,7 @@ class ResultStore:
         return sorted({f"{pid}@{host}" for pid, host, at in rows
                        if claim_is_live(pid, host, at)})
 
-    def runs(self):
+    def runs(self) -> list[str]:
         """The run ids in the store, oldest first."""
         if self._db is None:
             return list(self._pending_runs)
@@ -642,6 +647,6 @@ class _Transaction:
         return False
 
 
-def open_store(folder, name=STORE_NAME):
+def open_store(folder: str | Path, name: str = STORE_NAME) -> ResultStore:
     """The :class:`ResultStore` of an output folder (``<folder>/cwlimits-store.sqlite``)."""
     return ResultStore(Path(folder) / name)

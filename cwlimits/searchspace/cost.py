@@ -36,11 +36,15 @@ Section, chapter and table numbers of the works cited here are given from memory
 formulas themselves are checked in the tests against sympy, scipy or the closed forms.
 """
 
+from __future__ import annotations
+
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
 from astropy.table import QTable
+from numpy.typing import ArrayLike
 
 from cwlimits._units import to_value
 from cwlimits.errors import InputError
@@ -57,6 +61,10 @@ from cwlimits.searchspace.parameter_space import (
     ParameterSpace,
 )
 
+if TYPE_CHECKING:
+    from cwlimits.searchspace.searchsetup import SearchSetup
+    from cwlimits.targets.catalogue import Target
+
 __all__ = ["count_templates", "computing_cost", "CostEstimate", "scan_cost",
            "resolve_space", "SCAN_QUANTITIES"]
 
@@ -64,7 +72,8 @@ __all__ = ["count_templates", "computing_cost", "CostEstimate", "scan_cost",
 SCAN_QUANTITIES = ("t_seg", "n_seg")
 
 
-def resolve_space(setup, target_or_space):
+def resolve_space(setup: SearchSetup,
+                  target_or_space: Target | ParameterSpace | u.Quantity) -> ParameterSpace:
     """The parameter space of a search: a ParameterSpace as given, or the age-based space.
 
     Parameters
@@ -169,7 +178,8 @@ def sqrt_block_determinants(g_scaled, t_seg_s, n_dims):
             for k in range(1, n_dims + 1)]
 
 
-def count_templates(setup, target_or_space, bands=None):
+def count_templates(setup: SearchSetup, target_or_space: Target | ParameterSpace | u.Quantity,
+                    bands: tuple[u.Quantity, u.Quantity] | None = None) -> QTable:
     """Coherent (per segment) and semi-coherent template counts per frequency band.
 
     Parameters
@@ -261,17 +271,18 @@ class CostEstimate:
     assumptions: dict = field(default_factory=dict)
 
     @property
-    def n_coh_total(self):
+    def n_coh_total(self) -> float:
         """Coherent templates per segment, summed over bands."""
         return float(np.sum(self.table["n_coh"]))
 
     @property
-    def n_semi_total(self):
+    def n_semi_total(self) -> float:
         """Semi-coherent templates, summed over bands."""
         return float(np.sum(self.table["n_semi"]))
 
 
-def computing_cost(setup, target_or_space, bands=None):
+def computing_cost(setup: SearchSetup, target_or_space: Target | ParameterSpace | u.Quantity,
+                   bands: tuple[u.Quantity, u.Quantity] | None = None) -> CostEstimate:
     """Computing cost of a StackSlide search per band and in total, in core-hours.
 
     Parameters
@@ -315,7 +326,9 @@ def computing_cost(setup, target_or_space, bands=None):
                         assumptions)
 
 
-def scan_cost(setup, target_or_space, quantity, values, bands=None):
+def scan_cost(setup: SearchSetup, target_or_space: Target | ParameterSpace | u.Quantity,
+              quantity: str, values: u.Quantity | ArrayLike,
+              bands: tuple[u.Quantity, u.Quantity] | None = None) -> QTable:
     """Total cost against the segment length or the number of segments.
 
     Parameters

@@ -39,15 +39,18 @@ Section, chapter and table numbers of the works cited here are given from memory
 formulas themselves are checked in the tests against sympy, scipy or the closed forms.
 """
 
+from __future__ import annotations
+
 import functools
 import math
 from dataclasses import dataclass
 
 import numpy as np
+from numpy.typing import ArrayLike
 from scipy import special
 from scipy.stats import qmc
 
-from cwlimits._random import as_generator
+from cwlimits._random import RngLike, as_generator
 from cwlimits.errors import InputError
 
 __all__ = ["Lattice", "LATTICE_NAMES", "get_lattice", "sample_mismatch", "ball_volume",
@@ -61,7 +64,7 @@ LATTICE_NAMES = {"covering": "covering", "cubic": "cubic"}
 _RETIRED_LATTICE_NAMES = {"an*": "covering", "zn": "cubic"}
 
 
-def ball_volume(n):
+def ball_volume(n: int) -> float:
     """Volume of the unit ball in ``n`` dimensions, ``pi^(n/2) / Gamma(n/2 + 1)``."""
     n = np.asarray(n, float)
     return np.pi ** (n / 2) / special.gamma(n / 2 + 1)
@@ -182,22 +185,22 @@ class Lattice:
         return np.eye(n + 1)[:n] @ _hyperplane_basis(n)
 
     @property
-    def generator(self):
+    def generator(self) -> np.ndarray:
         """Basis vectors (rows) of the lattice with covering radius 1."""
         return self._native_generator / self._native_radius
 
     @property
-    def cell_volume(self):
+    def cell_volume(self) -> float:
         """Volume of the fundamental cell at covering radius 1."""
         return abs(np.linalg.det(self.generator))
 
     @property
-    def thickness(self):
+    def thickness(self) -> float:
         """Thickness ``Theta = V_n R^n / vol`` (SPLAG Ch. 2, Sect. 1.2)."""
         return float(ball_volume(self.n_dims) / self.cell_volume)
 
     @property
-    def normalised_thickness(self):
+    def normalised_thickness(self) -> float:
         """Normalised thickness ``theta = R^n / vol = Theta / V_n`` (SPLAG Ch. 2, Sect. 1.2).
 
         The number of templates per unit metric volume at maximum mismatch ``mu`` is
@@ -206,19 +209,19 @@ class Lattice:
         return float(1.0 / self.cell_volume)
 
     @property
-    def mean_mismatch_factor(self):
+    def mean_mismatch_factor(self) -> float:
         """Mean of ``|x - p|^2 / R^2`` over the Voronoi cell (1/3 for Z^n)."""
         if self.kind == "cubic":
             return 1.0 / 3.0
         return _anstar_mean_factor(self.n_dims)
 
     @property
-    def normalised_second_moment(self):
+    def normalised_second_moment(self) -> float:
         """``G = (1/n) <|x-p|^2> / vol^(2/n)`` (SPLAG Ch. 2, Sect. 3, second moment)."""
         # <|x-p|^2> = mean_mismatch_factor * R^2 with R = 1 here
         return self.mean_mismatch_factor / (self.n_dims * self.cell_volume ** (2 / self.n_dims))
 
-    def nearest_point(self, x):
+    def nearest_point(self, x: ArrayLike) -> np.ndarray:
         """Nearest lattice point to each point ``x`` (..., n_dims), covering radius 1.
 
         Parameters
@@ -242,7 +245,8 @@ class Lattice:
         y = (x * r) @ basis.T
         return (_nearest_anstar(y) @ basis) / r
 
-    def sample_mismatch(self, max_mismatch=1.0, size=10000, rng=None):
+    def sample_mismatch(self, max_mismatch: float | ArrayLike = 1.0,
+                        size: int | tuple[int, ...] = 10000, rng: RngLike = None) -> np.ndarray:
         """Mismatches of signals uniform in the Voronoi cell: ``mu_max |x - p|^2``.
 
         Parameters
@@ -281,12 +285,13 @@ def _anstar_mean_factor(n, log2_points=16, seed=20100517):
 
 
 @functools.cache
-def get_lattice(name, n_dims):
+def get_lattice(name: str, n_dims: int) -> Lattice:
     """The :class:`Lattice` ``name`` ('covering' or 'cubic') in ``n_dims`` dimensions (cached)."""
     return Lattice(name, int(n_dims))
 
 
-def sample_mismatch(lattice, n_dims, max_mismatch, size=10000, rng=None):
+def sample_mismatch(lattice: str, n_dims: int, max_mismatch: float | ArrayLike,
+                    size: int | tuple[int, ...] = 10000, rng: RngLike = None) -> np.ndarray:
     """Draw mismatches of signals placed uniformly at random relative to a template lattice.
 
     The sensitivity model draws the mismatch of a stage from here.
@@ -322,7 +327,8 @@ def sample_mismatch(lattice, n_dims, max_mismatch, size=10000, rng=None):
     return get_lattice(_canonical(kind), int(n_dims)).sample_mismatch(max_mismatch, size, rng)
 
 
-def nearest_template(points, metric, max_mismatch, lattice="covering", origin=None):
+def nearest_template(points: ArrayLike, metric: ArrayLike, max_mismatch: float,
+                     lattice: str = "covering", origin: ArrayLike | None = None) -> np.ndarray:
     """Nearest template of a lattice bank laid out with a constant metric.
 
     The bank is the lattice in whitened coordinates ``w = L^T (lambda - origin) /

@@ -39,6 +39,8 @@ Section, chapter and table numbers of the works cited here are given from memory
 formulas themselves are checked in the tests against sympy, scipy or the closed forms.
 """
 
+from __future__ import annotations
+
 import math
 
 import astropy.units as u
@@ -172,7 +174,8 @@ def _check_t_seg(t_seg):
     return t
 
 
-def coherent_metric(t_seg, n_dims=3, ref_offset=0 * u.s):
+def coherent_metric(t_seg: u.Quantity, n_dims: int = 3,
+                    ref_offset: u.Quantity = 0 * u.s) -> np.ndarray:
     """Coherent phase metric of the spin parameters over one segment.
 
     Parameters
@@ -207,7 +210,7 @@ def coherent_metric(t_seg, n_dims=3, ref_offset=0 * u.s):
     return _coherent_metric(t, n_dims, off)
 
 
-def coherent_sqrt_det(t_seg, n_dims=3):
+def coherent_sqrt_det(t_seg: u.Quantity, n_dims: int = 3) -> u.Quantity:
     """``sqrt(det g)`` of the coherent metric, which does not depend on the reference time.
 
     Parameters
@@ -235,7 +238,8 @@ def coherent_sqrt_det(t_seg, n_dims=3):
     return c * t ** power << u.s ** power
 
 
-def numeric_coherent_metric(t_seg, n_dims=3, ref_offset=0 * u.s, derivatives=None):
+def numeric_coherent_metric(t_seg: u.Quantity, n_dims: int = 3, ref_offset: u.Quantity = 0 * u.s,
+                            derivatives=None) -> np.ndarray:
     """Coherent phase metric by numerical quadrature (scipy.integrate.quad_vec).
 
     A general construction for any phase model: the time averages of the products of the
@@ -289,7 +293,7 @@ def numeric_coherent_metric(t_seg, n_dims=3, ref_offset=0 * u.s, derivatives=Non
     return out
 
 
-def contiguous_mid_times(t_seg, n_seg):
+def contiguous_mid_times(t_seg: u.Quantity, n_seg: int) -> u.Quantity:
     """Mid-times of ``n_seg`` back-to-back segments, from the start of the span.
 
     Parameters
@@ -332,7 +336,8 @@ def _segments(t_seg, n_seg, mid_times):
     return t, rel, np.ones(rel.shape, bool)
 
 
-def semicoherent_metric(t_seg, n_seg=None, mid_times=None, n_dims=3):
+def semicoherent_metric(t_seg: u.Quantity, n_seg: int | None = None,
+                        mid_times: u.Quantity | None = None, n_dims: int = 3) -> np.ndarray:
     """Semi-coherent (StackSlide) metric: the segment metrics averaged in common coordinates.
 
     Parameters
@@ -366,7 +371,8 @@ def semicoherent_metric(t_seg, n_seg=None, mid_times=None, n_dims=3):
     return _unscale(semicoherent_metric_scaled(off, mask, n_dims), t, n_dims)
 
 
-def semicoherent_sqrt_det(t_seg, n_seg=None, mid_times=None, n_dims=3):
+def semicoherent_sqrt_det(t_seg: u.Quantity, n_seg: int | None = None,
+                          mid_times: u.Quantity | None = None, n_dims: int = 3) -> u.Quantity:
     """``sqrt(det g_semi)`` of :func:`semicoherent_metric`, in ``s^(n(n+1)/2)``.
 
     Parameters
@@ -396,7 +402,8 @@ def semicoherent_sqrt_det(t_seg, n_seg=None, mid_times=None, n_dims=3):
     return sd * np.asarray(t) ** power << u.s ** power
 
 
-def refinement_factors(n_seg=None, mid_times=None, t_seg=None, n_dims=3):
+def refinement_factors(n_seg: int | None = None, mid_times: u.Quantity | None = None,
+                       t_seg: u.Quantity | None = None, n_dims: int = 3) -> u.Quantity:
     """Refinement factors of the semi-coherent grid over the coherent one, per spin order.
 
     Parameters

@@ -30,7 +30,10 @@ Section, chapter and table numbers of the works cited here are given from memory
 formulas themselves are checked in the tests against sympy, scipy or the closed forms.
 """
 
+from __future__ import annotations
+
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -38,6 +41,9 @@ from scipy import integrate
 
 from cwlimits._units import to_value
 from cwlimits.errors import InputError
+
+if TYPE_CHECKING:
+    from cwlimits.targets.catalogue import Target
 
 __all__ = ["ParameterSpace", "AgeBasedSpace", "BoxSpace", "VOLUME_UNITS", "check_braking_range"]
 
@@ -75,7 +81,7 @@ class ParameterSpace:
     n_dims = 3
 
     @property
-    def frequency_range(self):
+    def frequency_range(self) -> tuple[u.Quantity, u.Quantity]:
         """(Quantity, Quantity) ['frequency']: the lowest and highest frequency of the space.
 
         The age-based space covers every frequency (0 to infinity); a box its own range.
@@ -83,7 +89,7 @@ class ParameterSpace:
         lo, hi = self._f_bounds()
         return float(lo) << u.Hz, float(hi) << u.Hz
 
-    def volume(self, f_min, f_max, n_dims=3):
+    def volume(self, f_min: u.Quantity, f_max: u.Quantity, n_dims: int = 3) -> u.Quantity:
         """Closed-form ``n_dims``-dimensional volume of the space within ``[f_min, f_max]``.
 
         Parameters
@@ -102,7 +108,7 @@ class ParameterSpace:
         lo, hi = _band(f_min, f_max)
         return self._volume(lo, hi, n_dims) << VOLUME_UNITS[n_dims]
 
-    def volume_numeric(self, f_min, f_max, n_dims=3):
+    def volume_numeric(self, f_min: u.Quantity, f_max: u.Quantity, n_dims: int = 3) -> u.Quantity:
         """The same volume by numerical integration of the bounds (scipy.integrate).
 
         Slow (one adaptive quadrature per band): a check of :meth:`volume`, not for grids.
@@ -132,12 +138,12 @@ class ParameterSpace:
                                  lambda f, fdot: self._fddot_bounds(f, fdot)[0],
                                  lambda f, fdot: self._fddot_bounds(f, fdot)[1], **opts)[0]
 
-    def fdot_range(self, f):
+    def fdot_range(self, f: u.Quantity) -> tuple[u.Quantity, u.Quantity]:
         """``(fdot_lo, fdot_hi)`` at frequency ``f``, in Hz/s."""
         lo, hi = self._fdot_bounds(to_value(f, u.Hz, "f"))
         return lo << u.Hz / u.s, hi << u.Hz / u.s
 
-    def fddot_range(self, f, fdot):
+    def fddot_range(self, f: u.Quantity, fdot: u.Quantity) -> tuple[u.Quantity, u.Quantity]:
         """``(fddot_lo, fddot_hi)`` at ``(f, fdot)``, in Hz/s^2."""
         lo, hi = self._fddot_bounds(to_value(f, u.Hz, "f"),
                                     to_value(fdot, u.Hz / u.s, "fdot"))
@@ -201,14 +207,14 @@ class AgeBasedSpace(ParameterSpace):
         return ((self.n_max - self.n_min) * (hi ** 3 - lo ** 3) / (9 * tau ** 3)
                 * (a ** -3 - b ** -3))
 
-    def assumptions(self):
+    def assumptions(self) -> dict[str, str]:
         """Text describing the space, for table metadata."""
         return {"parameter_space": (
             f"age-based directed search (Wette et al. 2008, arXiv:0802.3332): age "
             f"{self.age}, braking index {self.n_min:g} to {self.n_max:g}")}
 
 
-def check_braking_range(n_min, n_max):
+def check_braking_range(n_min: float, n_max: float) -> None:
     """Raise InputError unless ``1 < n_min <= n_max`` (both finite)."""
     if not (np.isfinite(n_min) and n_min > 1):
         raise InputError("braking_index_min must be > 1 (the age-based spin-down range "
@@ -260,7 +266,9 @@ class BoxSpace(ParameterSpace):
         object.__setattr__(self, "_lims", tuple(lims))
 
     @classmethod
-    def around_spin(cls, f, fdot, fddot=None, *, f_tol=1e-3, fdot_tol=1e-2, fddot_tol=0.0):
+    def around_spin(cls, f: u.Quantity, fdot: u.Quantity, fddot: u.Quantity | None = None, *,
+                    f_tol: float = 1e-3, fdot_tol: float = 1e-2,
+                    fddot_tol: float = 0.0) -> BoxSpace:
         """A narrow box around a known spin: ``x0 +- tol |x0|`` in each parameter.
 
         Parameters
@@ -296,7 +304,8 @@ class BoxSpace(ParameterSpace):
                    box(fdd0, fddot_tol, u.Hz / u.s ** 2))
 
     @classmethod
-    def for_target(cls, target, *, f_tol=1e-3, fdot_tol=1e-2, harmonic=2):
+    def for_target(cls, target: Target, *, f_tol: float = 1e-3, fdot_tol: float = 1e-2,
+                   harmonic: float = 2) -> BoxSpace:
         """A narrow box around the known spin of a target (``.f_rot``, ``.fdot_rot``).
 
         Parameters
@@ -345,7 +354,7 @@ class BoxSpace(ParameterSpace):
         widths = [1.0, d1 - d0, dd1 - dd0]
         return length * np.prod(widths[:k])
 
-    def assumptions(self):
+    def assumptions(self) -> dict[str, str]:
         """Text describing the space, for table metadata."""
         (f0, f1), (d0, d1), (dd0, dd1) = self._lims
         return {"parameter_space": (

@@ -44,10 +44,13 @@ and ``band.f_max`` are required)::
     semicoherent = "6e-9 s"       # per template, per segment (time)
 """
 
+from __future__ import annotations
+
 import dataclasses
 import json
 import math
 import re
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -306,22 +309,22 @@ class SearchSetup:
 
     # --- derived values ----------------------------------------------------------------
     @property
-    def f_min(self):
+    def f_min(self) -> u.Quantity:
         """Lower edge of the searched band."""
         return self.band[0]
 
     @property
-    def f_max(self):
+    def f_max(self) -> u.Quantity:
         """Upper edge of the searched band."""
         return self.band[1]
 
     @property
-    def n_detectors(self):
+    def n_detectors(self) -> int:
         """Number of detectors."""
         return len(self.detectors)
 
     @property
-    def segment_mid_times(self):
+    def segment_mid_times(self) -> u.Quantity:
         """Mid-times of all segments from the span start (given, spread, or contiguous)."""
         t = self.t_seg.to(u.s)
         if self.mid_times is not None:
@@ -333,20 +336,20 @@ class SearchSetup:
         return (np.arange(self.n_seg) + 0.5) * t
 
     @property
-    def contiguous(self):
+    def contiguous(self) -> bool:
         """Whether the segments are back to back (no gaps)."""
         mids = self.segment_mid_times.to_value(u.s)
         return bool(np.allclose(np.diff(mids), self.t_seg.to_value(u.s), rtol=1e-9))
 
     @property
-    def total_span(self):
+    def total_span(self) -> u.Quantity:
         """The observation span: ``span`` if given, else first to last segment edge."""
         if self.span is not None:
             return self.span
         mids = self.segment_mid_times
         return (mids[-1] - mids[0] + self.t_seg).to(self.t_seg.unit)
 
-    def bands(self):
+    def bands(self) -> tuple[u.Quantity, u.Quantity]:
         """``(f_lo, f_hi)`` of the reporting bands: ``band_width`` steps from f_min.
 
         Returns
@@ -362,11 +365,11 @@ class SearchSetup:
         f_hi = np.minimum(np.round(f_lo + width, 9), hi)
         return f_lo << u.Hz, f_hi << u.Hz
 
-    def replace(self, **changes):
+    def replace(self, **changes) -> SearchSetup:
         """A copy with some fields changed (validated again)."""
         return dataclasses.replace(self, **changes)
 
-    def assumptions(self):
+    def assumptions(self) -> dict[str, str]:
         """The setup as ``{key: text}`` for the metadata of written tables."""
         n_min, n_max = self.braking_index
         return {
@@ -384,7 +387,7 @@ class SearchSetup:
 
     # --- TOML ------------------------------------------------------------------------------
     @classmethod
-    def from_toml(cls, path, *, extra_sections=()):
+    def from_toml(cls, path: str | Path, *, extra_sections: Sequence[str] = ()) -> SearchSetup:
         """Read a setup file; see the module docstring for the format.
 
         Parameters
@@ -413,13 +416,13 @@ class SearchSetup:
             raise ConfigError(f"key '{key}': {getattr(exc, 'short', exc.reason)}",
                               file=str(path), value=exc.value) from None
 
-    def to_toml(self, path):
+    def to_toml(self, path: str | Path) -> Path:
         """Write the setup as a TOML file that :meth:`from_toml` reads back unchanged."""
         text = self.toml_text()
         atomic_write(path, lambda handle: handle.write(text))
         return Path(path)
 
-    def toml_text(self):
+    def toml_text(self) -> str:
         """The text of the setup file that :meth:`to_toml` writes."""
         n_min, n_max = self.braking_index
         data = {"t_seg": self.t_seg, "n_seg": self.n_seg, "detectors": list(self.detectors)}
@@ -448,7 +451,7 @@ class SearchSetup:
         return "\n".join(lines)
 
 
-def load_setup(path, *, extra_sections=()):
+def load_setup(path: str | Path, *, extra_sections: Sequence[str] = ()):
     """Read a TOML setup file into a :class:`SearchSetup` (see :meth:`SearchSetup.from_toml`)."""
     return SearchSetup.from_toml(path, extra_sections=extra_sections)
 

@@ -40,8 +40,11 @@ Every problem is a :class:`~cwlimits.errors.CatalogueError` naming the file, the
 line of the file as a spreadsheet shows it), the column and the value.
 """
 
+from __future__ import annotations
+
 import math
 import warnings
+from collections.abc import Iterable
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -122,17 +125,17 @@ class Target:
     psi_err: u.Quantity | None = None
 
     @property
-    def has_spin(self):
+    def has_spin(self) -> bool:
         """Whether the spin frequency and its derivative are known."""
         return self.f_rot is not None
 
     @property
-    def has_age(self):
+    def has_age(self) -> bool:
         """Whether an age is given (a known pulsar may leave it blank)."""
         return bool(np.isfinite(self.age.value))
 
     @property
-    def characteristic_age(self):
+    def characteristic_age(self) -> u.Quantity | None:
         """f_rot / (2 abs(fdot_rot)), derived from the spin (None without one).
 
         The spin-down age of a star with braking index 3 born spinning much faster
@@ -192,7 +195,7 @@ class TargetCatalogue:
                            else [None] * len(self.names))
 
     @property
-    def characteristic_age(self):
+    def characteristic_age(self) -> u.Quantity:
         """f_rot / (2 abs(fdot_rot)) per target (NaN without a known spin); derived.
 
         Braking index 3 spin-down from a much faster initial spin (Manchester & Taylor
@@ -200,7 +203,7 @@ class TargetCatalogue:
         """
         return (self.f_rot / (2 * np.abs(self.fdot_rot))).to(u.yr)
 
-    def __len__(self):
+    def __len__(self) -> int:
         return len(self.names)
 
     def __iter__(self):
@@ -213,11 +216,11 @@ class TargetCatalogue:
         return f"<TargetCatalogue of {len(self)} targets from {self.source or 'memory'}>"
 
     @property
-    def has_spin(self):
+    def has_spin(self) -> np.ndarray:
         """Boolean array: targets whose spin frequency and derivative are known."""
         return np.isfinite(self.f_rot.value)
 
-    def target(self, name):
+    def target(self, name: str) -> Target:
         """The :class:`Target` called ``name``.
 
         Raises
@@ -253,7 +256,7 @@ class TargetCatalogue:
             cosi=opt("cosi", True), cosi_err=opt("cosi_err", True), psi=opt("psi"),
             psi_err=opt("psi_err"))
 
-    def select(self, names):
+    def select(self, names: Iterable[str]) -> TargetCatalogue:
         """A catalogue of the named targets only, in the order given.
 
         Raises
@@ -275,7 +278,7 @@ class TargetCatalogue:
             timing={k: getattr(self, k)[index] for k in TIMING_UNITS},
             spin_epoch=[self.spin_epoch[i] for i in index])
 
-    def to_table(self):
+    def to_table(self) -> QTable:
         """The catalogue as an astropy QTable with units (ICRS ra/dec in degrees)."""
         icrs = self.coord.icrs
         table = QTable()
@@ -298,7 +301,7 @@ class TargetCatalogue:
             table[key] = values
         return table
 
-    def to_pandas(self):
+    def to_pandas(self) -> pd.DataFrame:
         """A pandas DataFrame view; float columns carry their unit in the name."""
         icrs = self.coord.icrs
         frame = {"name": self.names, "ra_deg": icrs.ra.deg, "dec_deg": icrs.dec.deg}
@@ -311,14 +314,14 @@ class TargetCatalogue:
         frame.update(self.extra)
         return pd.DataFrame(frame)
 
-    def write(self, path):
+    def write(self, path: str | Path) -> Path:
         """Write the catalogue as ECSV or CSV (by extension); it reads back unchanged."""
         table = self.to_table()
         return write_table(table, path, title="cwlimits target catalogue",
                            assumptions={"sky_frame": "ICRS"})
 
 
-def load_targets(path):
+def load_targets(path: str | Path) -> TargetCatalogue:
     """Read and validate a target catalogue (CSV or ECSV).
 
     Parameters

@@ -17,12 +17,20 @@ against the published normalisations.  All functions take and return Quantity an
 broadcast over their arguments (e.g. h0 per frequency band against a grid of distances).
 """
 
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
 import astropy.constants as const
 import astropy.units as u
 import numpy as np
+from numpy.typing import ArrayLike
 
 from cwlimits._units import positive_value, to_value
 from cwlimits.errors import InputError
+
+if TYPE_CHECKING:
+    from astropy.table import QTable
 from cwlimits.targets.fiducial import DEFAULT_MOMENT_OF_INERTIA, FIDUCIAL_RMODE_STAR
 
 __all__ = [
@@ -77,7 +85,8 @@ def _eps_per_h0(f_gw, distance, moment_of_inertia):
     return _C**4 * d / (4.0 * np.pi**2 * _G * inertia * f**2)
 
 
-def ellipticity(h0, f_gw, distance, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA):
+def ellipticity(h0: u.Quantity | ArrayLike, f_gw: u.Quantity, distance: u.Quantity,
+                moment_of_inertia: u.Quantity = DEFAULT_MOMENT_OF_INERTIA) -> u.Quantity:
     """Equatorial ellipticity eps that radiates strain h0 at f_gw = 2 f_rot.
 
     Parameters
@@ -111,7 +120,10 @@ def ellipticity(h0, f_gw, distance, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA)
         f_gw, distance, moment_of_inertia), h0=h0, f_gw=f_gw, distance=distance) << u.one
 
 
-def strain_from_ellipticity(eps, f_gw, distance, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA):
+def strain_from_ellipticity(eps: u.Quantity | ArrayLike, f_gw: u.Quantity,
+                            distance: u.Quantity,
+                            moment_of_inertia: u.Quantity = DEFAULT_MOMENT_OF_INERTIA
+                            ) -> u.Quantity:
     """The strain h0 = 4 pi^2 G I eps f_gw^2 / (c^4 d): the inverse of :func:`ellipticity`."""
     value = to_value(eps, u.one, "eps")
     if np.any(~np.isfinite(value)) or np.any(value < 0):
@@ -120,7 +132,8 @@ def strain_from_ellipticity(eps, f_gw, distance, moment_of_inertia=DEFAULT_MOMEN
                    eps=eps, f_gw=f_gw, distance=distance) << u.one
 
 
-def mass_quadrupole(eps, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA):
+def mass_quadrupole(eps: u.Quantity | ArrayLike,
+                    moment_of_inertia: u.Quantity = DEFAULT_MOMENT_OF_INERTIA) -> u.Quantity:
     """Mass quadrupole moment Q22 = sqrt(15 / (8 pi)) I eps (Owen 2005, eq. 2).
 
     Returns
@@ -143,9 +156,10 @@ def _alpha_per_h0(f_gw, distance, mass, radius, j_tilde):
     return _C**5 * d / (np.sqrt(8.0 * np.pi / 5.0) * _G * omega**3 * m * r**3 * j)
 
 
-def rmode_amplitude(h0, f_gw, distance, mass=FIDUCIAL_RMODE_STAR["mass"],
-                    radius=FIDUCIAL_RMODE_STAR["radius"],
-                    j_tilde=FIDUCIAL_RMODE_STAR["j_tilde"]):
+def rmode_amplitude(h0: u.Quantity | ArrayLike, f_gw: u.Quantity, distance: u.Quantity,
+                    mass: u.Quantity = FIDUCIAL_RMODE_STAR["mass"],
+                    radius: u.Quantity = FIDUCIAL_RMODE_STAR["radius"],
+                    j_tilde: float = FIDUCIAL_RMODE_STAR["j_tilde"]) -> u.Quantity:
     """Dimensionless r-mode amplitude alpha that radiates strain h0 at f_gw.
 
     Parameters
@@ -177,9 +191,11 @@ def rmode_amplitude(h0, f_gw, distance, mass=FIDUCIAL_RMODE_STAR["mass"],
         f_gw, distance, mass, radius, j_tilde), h0=h0, f_gw=f_gw, distance=distance) << u.one
 
 
-def strain_from_rmode_amplitude(alpha, f_gw, distance, mass=FIDUCIAL_RMODE_STAR["mass"],
-                                radius=FIDUCIAL_RMODE_STAR["radius"],
-                                j_tilde=FIDUCIAL_RMODE_STAR["j_tilde"]):
+def strain_from_rmode_amplitude(alpha: u.Quantity | ArrayLike, f_gw: u.Quantity,
+                                distance: u.Quantity,
+                                mass: u.Quantity = FIDUCIAL_RMODE_STAR["mass"],
+                                radius: u.Quantity = FIDUCIAL_RMODE_STAR["radius"],
+                                j_tilde: float = FIDUCIAL_RMODE_STAR["j_tilde"]) -> u.Quantity:
     """The strain h0 of an r-mode of amplitude alpha: the inverse of :func:`rmode_amplitude`."""
     value = to_value(alpha, u.one, "alpha")
     if np.any(~np.isfinite(value)) or np.any(value < 0):
@@ -189,8 +205,9 @@ def strain_from_rmode_amplitude(alpha, f_gw, distance, mass=FIDUCIAL_RMODE_STAR[
                    alpha=alpha, f_gw=f_gw, distance=distance) << u.one
 
 
-def conversion_table(f_gw, h0, distance, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA, *,
-                     distance_range=None):
+def conversion_table(f_gw: u.Quantity, h0: u.Quantity | ArrayLike, distance: u.Quantity,
+                     moment_of_inertia: u.Quantity = DEFAULT_MOMENT_OF_INERTIA, *,
+                     distance_range: tuple[u.Quantity, u.Quantity] | None = None) -> QTable:
     """The table of ``cwlimits convert``: h0 per frequency as eps, Q22 and r-mode alpha.
 
     Parameters

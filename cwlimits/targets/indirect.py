@@ -33,16 +33,25 @@ distance; for the age-based limit, spin-down since birth with a constant braking
 from an initial spin much faster than today's (f_0 >> f).
 """
 
+from __future__ import annotations
+
+from collections.abc import Sequence
+from typing import TYPE_CHECKING
+
 import astropy.constants as const
 import astropy.units as u
 import numpy as np
 from astropy.table import QTable
+from numpy.typing import ArrayLike
 
-from cwlimits._random import as_generator
+from cwlimits._random import RngLike, as_generator
 from cwlimits._units import positive_value, to_value
 from cwlimits.errors import InputError
 from cwlimits.targets.conversions import ellipticity
 from cwlimits.targets.fiducial import DEFAULT_MOMENT_OF_INERTIA
+
+if TYPE_CHECKING:
+    from cwlimits.targets.catalogue import TargetCatalogue
 
 __all__ = [
     "MASS_QUADRUPOLE",
@@ -99,8 +108,9 @@ def _inertia(moment_of_inertia):
     return positive_value(moment_of_inertia, u.kg * u.m**2, "moment_of_inertia")
 
 
-def spindown_limit(f_rot, fdot_rot, distance, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA,
-                   kind=MASS_QUADRUPOLE):
+def spindown_limit(f_rot: u.Quantity, fdot_rot: u.Quantity, distance: u.Quantity,
+                   moment_of_inertia: u.Quantity = DEFAULT_MOMENT_OF_INERTIA,
+                   kind: EmissionKind = MASS_QUADRUPOLE) -> u.Quantity:
     """Spin-down limit on h0 for a star of known spin.
 
     Parameters
@@ -145,8 +155,10 @@ def spindown_limit(f_rot, fdot_rot, distance, moment_of_inertia=DEFAULT_MOMENT_O
     return _energy_limit(fdot / f, d, _inertia(moment_of_inertia), kind.freq_ratio) << u.one
 
 
-def age_limit(distance, age, braking_index=None, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA,
-              kind=MASS_QUADRUPOLE):
+def age_limit(distance: u.Quantity, age: u.Quantity,
+              braking_index: float | ArrayLike | None = None,
+              moment_of_inertia: u.Quantity = DEFAULT_MOMENT_OF_INERTIA,
+              kind: EmissionKind = MASS_QUADRUPOLE) -> u.Quantity:
     """Age-based limit on h0 for a star of known age and unknown spin.
 
     Parameters
@@ -195,8 +207,8 @@ def age_limit(distance, age, braking_index=None, moment_of_inertia=DEFAULT_MOMEN
                          kind.freq_ratio) << u.one
 
 
-def rmode_spindown_limit(f_rot, fdot_rot, distance,
-                         moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA):
+def rmode_spindown_limit(f_rot: u.Quantity, fdot_rot: u.Quantity, distance: u.Quantity,
+                         moment_of_inertia: u.Quantity = DEFAULT_MOMENT_OF_INERTIA) -> u.Quantity:
     """Spin-down limit for r-mode emission at f_gw = 4/3 f_rot (Owen 2010, Sect. II).
 
     h0 = (1/d) sqrt(45 G I abs(fdot) / (8 c^3 f)); see :func:`spindown_limit`.
@@ -204,8 +216,8 @@ def rmode_spindown_limit(f_rot, fdot_rot, distance,
     return spindown_limit(f_rot, fdot_rot, distance, moment_of_inertia, kind=R_MODE)
 
 
-def rmode_age_limit(distance, age, braking_index=7.0,
-                    moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA):
+def rmode_age_limit(distance: u.Quantity, age: u.Quantity, braking_index: float | ArrayLike = 7.0,
+                    moment_of_inertia: u.Quantity = DEFAULT_MOMENT_OF_INERTIA) -> u.Quantity:
     """Age-based limit for r-mode emission, braking index 7 by default (Owen 2010).
 
     h0 = (1/d) sqrt(15 G I / (16 c^3 age)) for n = 7; see :func:`age_limit`.
@@ -213,8 +225,10 @@ def rmode_age_limit(distance, age, braking_index=7.0,
     return age_limit(distance, age, braking_index, moment_of_inertia, kind=R_MODE)
 
 
-def limit_range(distance_range, age_range, braking_index=None,
-                moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA, kind=MASS_QUADRUPOLE):
+def limit_range(distance_range: tuple[u.Quantity, u.Quantity],
+                age_range: tuple[u.Quantity, u.Quantity], braking_index: float | None = None,
+                moment_of_inertia: u.Quantity = DEFAULT_MOMENT_OF_INERTIA,
+                kind: EmissionKind = MASS_QUADRUPOLE) -> tuple[u.Quantity, u.Quantity]:
     """Optimistic and pessimistic age-based limits from distance and age ranges.
 
     The limit falls with distance and with age (h ∝ 1/(d sqrt(age))), so the optimistic
@@ -244,10 +258,12 @@ def _draw(low, high, size, rng, prior, name):
     raise InputError(f"{name} prior must be 'uniform' or 'log-uniform'", value=prior)
 
 
-def sample_limits(distance_range, age_range, *, n_samples=10000, quantiles=(0.05, 0.5, 0.95),
-                  distance_prior="uniform", age_prior="log-uniform", braking_index=None,
-                  moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA, kind=MASS_QUADRUPOLE,
-                  rng=None):
+def sample_limits(distance_range: tuple[u.Quantity, u.Quantity],
+                  age_range: tuple[u.Quantity, u.Quantity], *, n_samples: int = 10000,
+                  quantiles: Sequence[float] = (0.05, 0.5, 0.95), distance_prior: str = "uniform",
+                  age_prior: str = "log-uniform", braking_index: float | None = None,
+                  moment_of_inertia: u.Quantity = DEFAULT_MOMENT_OF_INERTIA,
+                  kind: EmissionKind = MASS_QUADRUPOLE, rng: RngLike = None) -> u.Quantity:
     """Monte-Carlo quantiles of the age-based limit over priors on distance and age.
 
     Parameters
@@ -282,8 +298,9 @@ def sample_limits(distance_range, age_range, *, n_samples=10000, quantiles=(0.05
     return np.quantile(h, np.asarray(quantiles, float), axis=0) << u.one
 
 
-def assumptions(moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA, braking_index=None,
-                kind=MASS_QUADRUPOLE):
+def assumptions(moment_of_inertia: u.Quantity = DEFAULT_MOMENT_OF_INERTIA,
+                braking_index: float | None = None,
+                kind: EmissionKind = MASS_QUADRUPOLE) -> dict[str, str]:
     """The assumptions behind the indirect limits, as printable key -> text pairs."""
     n = kind.braking_index if braking_index is None else braking_index
     inertia = u.Quantity(moment_of_inertia, u.kg * u.m**2)
@@ -303,9 +320,11 @@ def assumptions(moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA, braking_index=None,
 DEFAULT_EPS_FREQUENCIES = (100.0, 300.0, 1000.0) * u.Hz
 
 
-def indirect_limits(catalogue, braking_index=None, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA,
-                    eps_frequencies=DEFAULT_EPS_FREQUENCIES, rng=None, n_samples=10000,
-                    distance_prior="uniform", age_prior="log-uniform"):
+def indirect_limits(catalogue: TargetCatalogue, braking_index: float | None = None,
+                    moment_of_inertia: u.Quantity = DEFAULT_MOMENT_OF_INERTIA,
+                    eps_frequencies: u.Quantity = DEFAULT_EPS_FREQUENCIES, rng: RngLike = None,
+                    n_samples: int = 10000, distance_prior: str = "uniform",
+                    age_prior: str = "log-uniform") -> QTable:
     """The indirect limits of every target of a catalogue, as one table.
 
     Parameters

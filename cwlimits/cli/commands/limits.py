@@ -83,10 +83,10 @@ def register(subparsers, common):
                        default="uniform",
                        help="distance prior over the target's range (default uniform; "
                             "log-normal: median distance, range = central 90 %%)")
-    stats.add_argument("--inertia", type=quantity_arg("kg m2", "moment of inertia"),
+    stats.add_argument("--moment-of-inertia", type=quantity_arg("kg m2", "moment of inertia"),
                        default=_defaults.MOMENT_OF_INERTIA_TEXT, metavar="I",
                        help="moment of inertia (default 1e38 kg m^2)")
-    stats.add_argument("--inertia-range", nargs=2, metavar=("I_MIN", "I_MAX"),
+    stats.add_argument("--moment-of-inertia-range", nargs=2, metavar=("I_MIN", "I_MAX"),
                        type=quantity_arg("kg m2", "moment of inertia"),
                        help="moment of inertia uniform in this range instead")
     stats.add_argument("--draws", type=int, default=None, metavar="N",
@@ -178,9 +178,9 @@ def run(args):
     model_options = dict(sky=args.sky, mismatch=args.mismatch, start=args.start)
     options = dict(noise=args.noise, prior=args.prior, h0_min=args.h0_min,
                    h0_max=args.h0_max, distance_prior=args.distance_prior,
-                   moment_of_inertia=args.inertia,
-                   inertia_range=None if args.inertia_range is None
-                   else tuple(args.inertia_range))
+                   moment_of_inertia=args.moment_of_inertia,
+                   moment_of_inertia_range=None if args.moment_of_inertia_range is None
+                   else tuple(args.moment_of_inertia_range))
     if args.posterior is not None:
         return _posterior(args, results, setup, target, plot, model_options, options)
     bands = None

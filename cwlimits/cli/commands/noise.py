@@ -11,14 +11,15 @@ ORDER = 30
 
 _EXAMPLES = [
     "cwlimits noise --list                                  # the analytic design fits",
-    "cwlimits noise second-gen-fit --band 20Hz 2000Hz --step 10Hz",
-    "cwlimits noise third-gen-fit --band 5Hz 500Hz --step 5Hz --out gen3.csv --plot gen3.png",
-    "cwlimits noise my_asd.csv --band 30Hz 1000Hz --step 1Hz --out bands.ecsv",
+    "cwlimits noise second-gen-fit --band 20Hz 2000Hz --band-width 10Hz",
+    "cwlimits noise third-gen-fit --band 5Hz 500Hz --band-width 5Hz --out gen3.csv "
+    "--plot gen3.png",
+    "cwlimits noise my_asd.csv --band 30Hz 1000Hz --band-width 1Hz --out bands.ecsv",
     "cwlimits noise curve.txt --kind psd --plot curve.pdf     # headerless two-column file",
     "cwlimits noise --timeseries strain.npy --sample-rate 4096Hz --segment 4s "
-    "--overlap 0.5 --average median --window hann --band 20Hz 1000Hz --step 1Hz "
+    "--overlap 0.5 --average median --window hann --band 20Hz 1000Hz --band-width 1Hz "
     "--out floor.csv",
-    "cwlimits noise --timeseries strain.csv --stretch 600s --band 50Hz 500Hz --step 5Hz",
+    "cwlimits noise --timeseries strain.csv --stretch 600s --band 50Hz 500Hz --band-width 5Hz",
 ]
 
 
@@ -41,7 +42,7 @@ def register(subparsers, common):
     parser.add_argument("--band", nargs=2, metavar=("FMIN", "FMAX"),
                         type=quantity_arg("Hz", "band edge"),
                         help="frequency range of the band grid (default: the source's range)")
-    parser.add_argument("--step", type=quantity_arg("Hz", "step"),
+    parser.add_argument("--band-width", type=quantity_arg("Hz", "band width"),
                         help="band width (default: the range / 50)")
     parser.add_argument("--out", metavar="FILE",
                         help="write the band table (.csv, .ecsv or .tex, with units and "
@@ -88,16 +89,17 @@ def _band_grid(args, source):
     lo_hz, hi_hz = lo.to_value(u.Hz), hi.to_value(u.Hz)
     if not 0 < lo_hz < hi_hz:
         raise InputError("--band needs 0 < FMIN < FMAX", value=f"{lo_hz:g} Hz {hi_hz:g} Hz")
-    step_hz = args.step.to_value(u.Hz) if args.step is not None else (hi_hz - lo_hz) / 50
+    step_hz = (args.band_width.to_value(u.Hz) if args.band_width is not None
+               else (hi_hz - lo_hz) / 50)
     if not step_hz > 0:
-        raise InputError("--step must be positive", value=f"{step_hz:g} Hz")
+        raise InputError("--band-width must be positive", value=f"{step_hz:g} Hz")
     # small tolerance so that a range that is a whole number of steps keeps its last band
     count = (hi_hz - lo_hz) / step_hz * (1 + 1e-12)
-    check_size("frequencies", count, f"--band {lo_hz:g} Hz {hi_hz:g} Hz with --step "
+    check_size("frequencies", count, f"--band {lo_hz:g} Hz {hi_hz:g} Hz with --band-width "
                f"{step_hz:g} Hz")
     n = int(np.floor(count))
     if n < 1:
-        raise InputError("--step is wider than the --band range",
+        raise InputError("--band-width is wider than the --band range",
                          value=f"{step_hz:g} Hz > {hi_hz - lo_hz:g} Hz")
     edges = lo_hz + step_hz * np.arange(n + 1)
     # A range that is not a whole number of steps keeps its remainder as a last, narrower

@@ -36,7 +36,7 @@ def register(subparsers, common):
                     "(rho^2 = R^2 h0^2 T_data / S_n) over uniform cos(iota) and psi.",
         examples=[
             "cwlimits response --ra 12h30m --dec -45d --detectors H1,L1 "
-            "--start 2030-01-01T00:00:00 --span 1yr --duty 0.7",
+            "--start 2030-01-01T00:00:00 --span 1yr --duty-factor 0.7",
             "cwlimits response --catalogue targets.csv --target 'Fictional A' "
             "--detectors H1,L1,V1 --start 2030-01-01 --span 180d --out response.ecsv",
             "cwlimits response --ra 187.5 --dec -45 --detectors X1 --start 2030-01-01 "
@@ -61,7 +61,7 @@ def register(subparsers, common):
                         help="start of the observation: ISO date (UTC) or GPS seconds")
     parser.add_argument("--span", type=quantity_arg("d", "span"), default="365.25 d",
                         help="length of the observation (default 365.25 d)")
-    parser.add_argument("--duty", default="1",
+    parser.add_argument("--duty-factor", default="1",
                         help="duty factor in (0, 1], one value or one per detector "
                              "(comma-separated; default 1)")
     parser.add_argument("--weights",
@@ -152,7 +152,7 @@ def run(args):
     if args.order < 1:
         raise InputError("--order must be at least 1", value=args.order)
     check_size("quadrature", float(args.order) ** 2, f"--order {args.order}")
-    duty = _numbers(args.duty, "duty")
+    duty = _numbers(args.duty_factor, "duty-factor")
     weights = None if args.weights is None else _numbers(args.weights, "weights")
     averages = resp.time_averages(detectors, coord, args.start, args.span, duty=duty,
                                   weights=weights)
@@ -201,7 +201,7 @@ def _assumptions(averages, where, args):
         "sky_position": where,
         "start": f"{averages.start.isot} UTC",
         "span": f"{averages.span.to(u.d):.6g}",
-        "duty": args.duty,
+        "duty_factor": args.duty_factor,
         "weights": args.weights or "equal (proportional to 1/S_n)",
         "averages": f"{averages.method}; data gaps spread evenly over the span",
         "apparent_coordinates": f"TETE at the middle of the span ({averages.epoch.isot})",

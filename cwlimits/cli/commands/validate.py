@@ -47,7 +47,7 @@ _EXAMPLES = [
     "cwlimits validate --catalogue cat.csv --target A --setup search.toml --n-seg 1 "
     "--t-seg 2day --templates 64 --band-width 2mHz --false-alarm 0.001",
     "cwlimits validate --catalogue target_lists/demo.csv --target 'Fict Ember' "
-    "--setup plan.toml --mock-search --injections 60 --duty 0.8 --out mock.ecsv "
+    "--setup plan.toml --mock-search --injections 60 --duty-factor 0.8 --out mock.ecsv "
     "--plot mock.png --mismatch-plot mismatch.png --seed 3 --workers 2",
 ]
 
@@ -115,7 +115,7 @@ def register(subparsers, common):
     mock.add_argument("--mock-search", action="store_true",
                       help="run the mock-search campaign on the setup (a plan of "
                            "'cwlimits plan') instead of the amplitude-only campaign")
-    mock.add_argument("--duty", type=float, default=None, metavar="D",
+    mock.add_argument("--duty-factor", type=float, default=None, metavar="D",
                       help="duty factor of the simulated data, random gaps (default: the "
                            "setup's duty_factor)")
     mock.add_argument("--noise-runs", type=int, default=100, metavar="N",
@@ -382,9 +382,9 @@ def _run_mock(args):
             raise InputError(f"{name} must be at least 1", value=value)
     target = resolve_target(args)
     setup = _setup(args)
-    duty = setup.duty_factor if args.duty is None else args.duty
+    duty = setup.duty_factor if args.duty_factor is None else args.duty_factor
     if not 0 < duty <= 1:
-        raise InputError("--duty must lie in (0, 1]", value=duty)
+        raise InputError("--duty-factor must lie in (0, 1]", value=duty)
     low, high = args.h0_span
     factors = (np.asarray(args.h0, float) if args.h0 is not None
                else np.geomspace(low, high, args.h0_steps))

@@ -1,0 +1,33 @@
+"""Renamed keywords keep working for one release (cwlimits._deprecate; glossary)."""
+
+import warnings
+
+import pytest
+
+from cwlimits._deprecate import renamed_keywords
+from cwlimits.errors import CwlimitsDeprecationWarning, InputError
+
+
+@renamed_keywords(old_name="new_name")
+def _double(*, new_name):
+    return 2 * new_name
+
+
+def test_old_keyword_maps_to_the_new_one_with_a_warning():
+    # Python's DeprecationWarning convention (common practice): the warning points at the
+    # caller's line and names both spellings
+    with pytest.warns(CwlimitsDeprecationWarning, match="'old_name'.*'new_name'") as caught:
+        assert _double(old_name=3) == 6
+    assert caught[0].filename == __file__
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        assert _double(new_name=3) == 6  # the new name is quiet
+    with pytest.raises(InputError, match="not both"):
+        _double(old_name=1, new_name=1)
+
+
+def test_upper_limits_takes_the_old_inertia_keyword():
+    # upper_limits(inertia_range=...) of earlier versions: the same argument, renamed
+    from cwlimits.limits.upper import upper_limits
+
+    assert upper_limits.renamed_keywords == {"inertia_range": "moment_of_inertia_range"}
