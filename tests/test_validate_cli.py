@@ -276,3 +276,57 @@ def test_validate_mock_search_writes_table_figures_and_resumes(demo_catalogue_pa
     again = QTable.read(out2, format="ascii.ecsv")
     np.testing.assert_array_equal(np.asarray(again["n_detected"]),
                                   np.asarray(table["n_detected"]))
+
+
+def _search_line(text):
+    return next(line for line in text.splitlines() if line.strip().startswith("search:"))
+
+
+def test_validate_mock_search_takes_the_plans_spin_down_range(demo_catalogue_path, write_file,
+                                                              capsys):
+    setup = write_file("plan.toml", MOCK_SETUP)
+    argv = _validate(demo_catalogue_path, setup, "--mock-search", "--injections", "2",
+                     "--noise-runs", "2", "--mismatch-runs", "2", "--h0", "1.0", "--seed", "1")
+    argv.remove("--quiet")
+    assert main(argv) == 0
+    line = _search_line(capsys.readouterr().out)
+    # the age-based space of Wette et al. 2008 (arXiv:0802.3332, Sect. II):
+    # -f/((n_min-1) tau) <= fdot <= -f/((n_max-1) tau), f = 150 Hz (band centre),
+    # tau = 900 yr (Fict Ember's age, demo catalogue), braking index 2 to 7 (setup default)
+    tau = (900 * u.yr).to_value(u.s)
+    lo, hi = -150 / (1 * tau), -150 / (6 * tau)
+    assert f"[{lo:.3g}, {hi:.3g}] Hz/s" in line
+    assert "Hz/s^2" not in line  # a 4-hour fddot range is far thinner than one template
+
+
+def test_validate_mock_search_spin_down_options(demo_catalogue_path, write_file, capsys):
+    setup = write_file("plan.toml", MOCK_SETUP)
+    argv = _validate(demo_catalogue_path, setup, "--mock-search", "--injections", "2",
+                     "--noise-runs", "2", "--mismatch-runs", "2", "--h0", "1.0", "--seed", "1",
+                     "--fdot-range", "-2e-9 Hz/s", "0 Hz/s",
+                     "--fddot-range", "-1e-14 Hz/s2", "1e-14 Hz/s2")
+    argv.remove("--quiet")
+    assert main(argv) == 0
+    line = _search_line(capsys.readouterr().out)
+    assert "[-2e-09, 0] Hz/s x [-1e-14, 1e-14] Hz/s^2" in line
+
+
+@pytest.mark.parametrize("extra, words", [
+    (["--fdot-range", "0 Hz/s", "-1e-9 Hz/s"], "--fdot-range needs finite LO <= HI"),
+    (["--fddot-range", "1e-14", "0"], "--fddot-range needs finite LO <= HI"),
+    # drift 1e-6 Hz/s x 8 h = 0.029 Hz: beyond the inner half (1/64 Hz) of the default band
+    (["--fdot-range", "-1e-6 Hz/s", "0 Hz/s"], "give --band-width of at least"),
+    # a 0.5 Hz box over a fine bank of 2-day segments: above the mock_templates limit
+    (["--t-seg", "2day", "--box-width", "0.5Hz", "--band-width", "2Hz"], "mock-search templates"),
+])
+def test_validate_mock_search_refuses_bad_spin_boxes(demo_catalogue_path, write_file, tmp_path,
+                                                     capsys, extra, words):
+    setup = write_file("plan.toml", MOCK_SETUP.replace('149.9 Hz', '140 Hz').replace(
+        '150.1 Hz', '160 Hz'))
+    out = tmp_path / "out" / "mock.ecsv"
+    out.parent.mkdir()
+    argv = _validate(demo_catalogue_path, setup, "--mock-search", "--out", str(out), *extra)
+    assert main(argv) == 2
+    err = capsys.readouterr().err
+    assert err.startswith("error:") and words in err
+    assert list(out.parent.iterdir()) == []

@@ -38,6 +38,7 @@ import numpy as np
 from astropy.table import QTable
 from scipy import stats
 
+from cwlimits._sizes import check_size
 from cwlimits.errors import InputError
 from cwlimits.response.antenna import orientation_factor_rule, time_averages
 from cwlimits.runtime.executor import map_chunks
@@ -47,7 +48,7 @@ from cwlimits.simulation.mocksearch import demodulated_fstat, mock_search
 from cwlimits.simulation.synthetic import BandData, _check_coord, _jks_amplitudes, gap_mask
 from cwlimits.statistics import detection as det
 
-__all__ = ["MockCampaignResult", "mock_campaign", "mock_layout"]
+__all__ = ["MockCampaignResult", "mock_campaign", "mock_layout", "bank_size"]
 
 PSD_UNIT = u.Hz**-1
 FDOT_UNIT = u.Hz / u.s
@@ -204,6 +205,47 @@ class MockCampaignResult:
     model: dict = None
 
 
+def bank_size(setup, f_box_width, fdot_box, fddot_box=None):
+    """Estimated number of templates of the finer bank over a searched box (nothing allocated).
+
+    Parameters
+    ----------
+    setup : SearchSetup
+        Segments, lattice and the two maximum mismatches.
+    f_box_width : Quantity ['frequency']
+    fdot_box : (Quantity, Quantity) ['frequency / time']
+    fddot_box : (Quantity, Quantity) ['frequency / time2'], optional
+        A bank in (f, fdot, fddot) when given.
+
+    Returns
+    -------
+    float
+        The box width over the lattice spacing along each axis (plus the rows of margin the
+        bank adds), multiplied: the size to check before :func:`mock_campaign` allocates.
+    """
+    from cwlimits.searchspace.metric import coherent_metric, semicoherent_metric
+    from cwlimits.simulation.mocksearch import lattice_rows
+
+    n_dims = 2 if fddot_box is None else 3
+    mid = setup.segment_mid_times
+    g = (coherent_metric(setup.t_seg, n_dims) if setup.n_seg == 1 else
+         semicoherent_metric(setup.t_seg, mid_times=mid - mid[0], n_dims=n_dims))
+    mu = setup.mismatch_coherent if setup.n_seg == 1 else setup.mismatch_semicoherent
+    rows = lattice_rows(setup.lattice, g, mu)
+    widths = [float(u.Quantity(f_box_width).to_value(u.Hz))]
+    steps = [rows["f_step"]]
+    for box, unit, step in ((fdot_box, FDOT_UNIT, "fdot_step"),
+                            (fddot_box, FDDOT_UNIT, "fddot_step")):
+        if box is not None:
+            lo, hi = (float(u.Quantity(q).to_value(unit)) for q in box)
+            widths.append(abs(hi - lo))
+            steps.append(rows[step])
+    n = widths[0] / abs(steps[0]) + 2
+    for w, st in zip(widths[1:], steps[1:], strict=True):
+        n *= w / abs(st) + 3
+    return float(n)
+
+
 def mock_campaign(setup, coord, *, f_box_width=0.004 * u.Hz, fdot_box=None, duty=1.0,
                   psd=None, confidence=0.9, false_alarm=0.01, h0_factors=(0.6, 0.8, 1.0,
                                                                           1.25, 1.6),
@@ -277,6 +319,8 @@ def mock_campaign(setup, coord, *, f_box_width=0.004 * u.Hz, fdot_box=None, duty
         mu = setup.mismatch_coherent if setup.n_seg == 1 else setup.mismatch_semicoherent
         fd = 4 * lattice_rows(setup.lattice, g, mu)["fdot_step"]
         fdot_box = (-fd * u.Hz / u.s, 0 * u.Hz / u.s)
+    check_size("mock_templates", bank_size(setup, f_box_width, fdot_box, fddot_box),
+               "the searched box over the lattice spacings")
     f_mid = layout.f_ref.to_value(u.Hz)
     half = 0.5 * float(f_box_width.to_value(u.Hz))
     f_box = (f_mid - half, f_mid + half)

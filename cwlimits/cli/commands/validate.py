@@ -124,6 +124,18 @@ def register(subparsers, common):
                       help="noise-free injections for the mismatch check (default 100)")
     mock.add_argument("--box-width", type=quantity_arg("Hz", "box width"), default=None,
                       metavar="W", help="searched frequency box (default 4 mHz)")
+    mock.add_argument("--fdot-range", nargs=2, type=quantity_arg("Hz/s", "spin-down"),
+                      metavar=("LO", "HI"),
+                      help="searched spin-down range, Hz/s (quote a negative value with its "
+                           "unit: '-5e-9 Hz/s' '0 Hz/s'; default: the plan's age-based "
+                           "space at the band centre, the target's age and the setup's "
+                           "braking indices)")
+    mock.add_argument("--fddot-range", nargs=2, type=quantity_arg("Hz/s2", "second "
+                                                                   "spin-down derivative"),
+                      metavar=("LO", "HI"),
+                      help="searched second derivative, Hz/s^2 ('0 Hz/s2' '0 Hz/s2': a "
+                           "search in (f, fdot) only; default: the plan's space where its "
+                           "template count resolves fddot, else none)")
     mock.add_argument("--mismatch-plot", metavar="FILE",
                       help="histogram of the loudest-template mismatch against the model")
     out = parser.add_argument_group("output")
@@ -369,7 +381,7 @@ def _run_mock(args):
 
     from cwlimits._sizes import check_size
     from cwlimits.runtime.store import file_hash, open_store
-    from cwlimits.simulation.mockcampaign import mock_campaign
+    from cwlimits.simulation.mockcampaign import bank_size, mock_campaign
     from cwlimits.tables import write_table
 
     out = check_output_path(args.out)
@@ -392,6 +404,11 @@ def _run_mock(args):
     check_size("injections", n_items, f"--injections {args.injections} and the check runs")
     box = 0.004 * u.Hz if args.box_width is None else args.box_width
     band = 0.0625 * u.Hz if args.band_width is None else args.band_width
+    fdot_box, fddot_box = _spin_boxes(args, setup, target)
+    _check_reach(setup, box, band, fdot_box, fddot_box)
+    check_size("mock_templates", bank_size(setup, box, fdot_box, fddot_box),
+               f"--box-width {box:g}, --fdot-range {_show(fdot_box)}, --fddot-range "
+               f"{_show(fddot_box)} over the lattice spacings")
     coord = target.coord
     config = {"command": "validate --mock-search", "catalogue": file_hash(args.catalogue),
               "target": target.name, "ra_deg": float(coord.icrs.ra.deg),
@@ -399,6 +416,7 @@ def _run_mock(args):
               "t_seg_s": float(setup.t_seg.to_value(u.s)), "n_seg": setup.n_seg,
               "detectors": list(setup.detectors), "duty": duty,
               "box_hz": float(box.to_value(u.Hz)), "band_hz": float(band.to_value(u.Hz)),
+              "fdot_box": _show(fdot_box), "fddot_box": _show(fddot_box),
               "h0_factors": factors.tolist(), "injections": args.injections,
               "noise_runs": args.noise_runs, "mismatch_runs": args.mismatch_runs,
               "false_alarm": args.false_alarm, "confidence": args.confidence,
@@ -417,7 +435,8 @@ def _run_mock(args):
                                     seed_given=args.seed is not None)
         with executor_from_args(args) as executor:
             result = mock_campaign(
-                setup, coord, f_box_width=box, duty=duty, confidence=args.confidence,
+                setup, coord, f_box_width=box, fdot_box=fdot_box, fddot_box=fddot_box,
+                duty=duty, confidence=args.confidence,
                 false_alarm=args.false_alarm, h0_factors=tuple(factors),
                 n_injections=args.injections, n_noise=args.noise_runs,
                 n_mismatch=args.mismatch_runs, bandwidth=band, interval=args.interval,
@@ -477,3 +496,77 @@ def _run_mock(args):
                     formats=(path.suffix.lstrip("."),))
         echo(args, f"wrote {path}")
     return 0
+
+
+def _show(box):
+    return "none" if box is None else f"{box[0]:g} to {box[1]:g}"
+
+
+def _option_range(values, name):
+    lo, hi = values
+    if not (math.isfinite(lo.value) and math.isfinite(hi.value) and lo <= hi):
+        raise InputError(f"{name} needs finite LO <= HI", value=f"{lo} {hi}")
+    return lo, hi
+
+
+def _spin_boxes(args, setup, target):
+    """(fdot_box, fddot_box) of the mock search: the options, else the plan's space.
+
+    The plan's space is the one ``cwlimits plan`` counted templates in: the age-based space
+    of the target's age and the setup's braking indices (a box about a known pulsar's
+    spin-down), at the centre of the setup's band; fddot is searched where the template
+    count of the setup resolves it (the count's dimension is 3).
+    """
+    import astropy.units as u
+
+    from cwlimits.searchspace.cost import count_templates, resolve_space
+
+    f = 0.5 * (setup.f_min + setup.f_max)
+    space = None
+    if args.fdot_range is None or args.fddot_range is None:
+        try:
+            space = resolve_space(setup, target)
+        except InputError:
+            space = None        # no age: the campaign's own default box
+    if args.fdot_range is not None:
+        fdot = _option_range(args.fdot_range, "--fdot-range")
+    elif space is not None:
+        fdot = tuple(sorted(q.to(u.Hz / u.s) for q in space.fdot_range(f)))
+    else:
+        fdot = None
+    if args.fddot_range is not None:
+        fddot = _option_range(args.fddot_range, "--fddot-range")
+        return fdot, (None if fddot[0] == fddot[1] == 0 else fddot)
+    if space is None or fdot is None:
+        return fdot, None
+    half = 0.5 * setup.band_width
+    counts = count_templates(setup, space, bands=(f - half, f + half))
+    dims = counts["dims_semi" if setup.n_seg > 1 else "dims_coh"]
+    if int(dims.max()) < 3:
+        return fdot, None
+    ends = [fdot[0], fdot[1]] + ([0 * fdot[0]] if fdot[0] < 0 < fdot[1] else [])
+    bounds = [space.fddot_range(f, fd) for fd in ends]
+    return fdot, (min(b[0] for b in bounds).to(u.Hz / u.s**2),
+                  max(b[1] for b in bounds).to(u.Hz / u.s**2))
+
+
+def _check_reach(setup, box, band, fdot_box, fddot_box):
+    """Refuse a box whose spin-down drift leaves the inner half of the band (as the search)."""
+    import astropy.units as u
+    import numpy as np
+
+    mid = setup.segment_mid_times.to_value(u.s)
+    span = float(np.ptp(mid) + setup.t_seg.to_value(u.s))
+    reach = 0.0
+    if fdot_box is not None:
+        reach += max(abs(q.to_value(u.Hz / u.s)) for q in fdot_box) * span
+    if fddot_box is not None:
+        reach += max(abs(q.to_value(u.Hz / u.s**2)) for q in fddot_box) * span**2 / 8
+    need = 4 * (0.5 * box.to_value(u.Hz) + reach)
+    if need > band.to_value(u.Hz):
+        raise InputError(
+            f"--fdot-range {_show(fdot_box)} (--fddot-range {_show(fddot_box)}) drifts the "
+            f"signals by {reach:.3g} Hz over the {span / 86400:.4g} day span: the searched "
+            f"box ({box:g}) and its drift must lie in the inner half of the simulated band "
+            f"({band:g}); give --band-width of at least {need:.3g} Hz or a narrower "
+            "--fdot-range / --fddot-range", file=None, value=f"{band:g}")
