@@ -1,6 +1,7 @@
 """Fit the mismatch correction of cwlimits.sensitivity.mismatch_correction to mock searches.
 
 Run:  /work/venv/bin/python benchmarks/mismatch_fit.py [DATA.json] [--markdown]
+          [--figure docs/_static/mock-validation.png]
 
 DATA.json is the raw output of ``benchmarks/mock_validation.py --json`` (default: the
 campaign kept in ``benchmarks/data/mock_validation.json``).  Procedure:
@@ -80,10 +81,25 @@ def h0_at(model, mu, confidence):
                                      mu, probability=confidence, method="exact").value)
 
 
+def write_figure(fig_rows, path):
+    """Measured h0 over the predicted, before and after the correction, as a PNG."""
+    from cwlimits.plotting.figures import save_figure
+    from cwlimits.plotting.validation import plot_measured_over_predicted
+
+    labels, meas, rng, before, after, conf = zip(*fig_rows, strict=True)
+    fig = plot_measured_over_predicted(labels, meas, rng, before, after, confidence=conf[0])
+    path = pathlib.Path(path)
+    save_figure(fig, path, formats=(path.suffix.lstrip(".") or "png",))
+    print(f"wrote {path}")
+
+
 def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("data", nargs="?", default=str(DEFAULT_DATA))
     parser.add_argument("--markdown", action="store_true", help="print the docs table")
+    parser.add_argument("--figure", metavar="FILE.png",
+                        help="write the measured-over-predicted figure (before and after "
+                             "the correction) to FILE.png")
     args = parser.parse_args(argv)
     rows = json.loads(pathlib.Path(args.data).read_text())
     draws = [model_draws(r["config"]) for r in rows]
@@ -100,6 +116,7 @@ def main(argv=None):
              "(corrected) | h0 measured (95 % range) | measured / quadratic model | "
              "measured / corrected model | false alarms (nominal 1 %) |",
              "|---|---|---|---|---|---|---|---|"]
+    fig_rows = []
     for row, dr in zip(rows, draws, strict=True):
         conf = row["confidence"]
         mu_q = np.minimum(dr[0] + dr[1], 1.0)
@@ -110,6 +127,7 @@ def main(argv=None):
         lo, hi = row["h0_measured_range"]
         ks = stats.ks_2samp(row["mismatch_measured"], mu_c).pvalue
         fa_lo, fa_hi = row["false_alarm_interval"]
+        fig_rows.append((row["setup"], meas, (lo, hi), h_q, h_c, conf))
         lines.append(
             f"| {row['setup']} | {row['n_templates']} | "
             f"{np.mean(row['mismatch_measured']):.3f} / {np.mean(mu_q):.3f} / "
@@ -118,6 +136,8 @@ def main(argv=None):
             f"{meas / h_c:.3f} ({lo / h_c:.2f}-{hi / h_c:.2f}) | "
             f"{row['false_alarms']}/{row['noise_runs']} ({fa_lo:.3f}-{fa_hi:.3f}) |")
     print("\n".join(lines) if args.markdown else "\n".join(lines[2:]))
+    if args.figure:
+        write_figure(fig_rows, args.figure)
     print("\n| setup | templates (model trials) | effective independent templates | ratio |"
           "\n|---|---|---|---|")
     for row in rows:

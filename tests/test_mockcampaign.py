@@ -126,3 +126,23 @@ def test_fddot_campaign_draws_and_searches_fddot():
     s = res.summary
     assert stats.binomtest(s["false_alarms"], s["noise_runs"], s["false_alarm_nominal"],
                            alternative="greater").pvalue > BINOM_MIN_P
+
+
+def test_measured_over_predicted_figure_plots_the_ratios_with_binomial_ranges():
+    from cwlimits.plotting.validation import plot_measured_over_predicted
+
+    # two setups; ratio = measured / predicted, its range the measured range over the same
+    # prediction (the definition of docs/validation.md, "Measured against predicted")
+    meas, rng = [8e-25, 6e-25], [(7.5e-25, 8.6e-25), (5.5e-25, 6.6e-25)]
+    before, after = [1e-24, 7e-25], [8.4e-25, 6.2e-25]
+    fig = plot_measured_over_predicted(["A", "B"], meas, rng, before, after, confidence=0.9)
+    ax = fig.axes[0]
+    lines = [c for c in ax.containers if hasattr(c, "lines")]
+    assert len(lines) == 2
+    for cont, pred in zip(lines, (before, after), strict=True):
+        y = cont.lines[0].get_ydata()
+        np.testing.assert_allclose(y, np.divide(meas, pred), rtol=1e-12)
+        seg = cont.lines[2][0].get_segments()
+        np.testing.assert_allclose([s[:, 1] for s in seg],
+                                   np.divide(rng, np.asarray(pred)[:, None]), rtol=1e-12)
+    assert "90 % detection" in ax.get_ylabel() and "dimensionless" in ax.get_ylabel()

@@ -1,7 +1,7 @@
 """Figures of the mock-search validation: efficiency and mismatch against the model.
 
-The efficiency against h0 with the model curves, and the loudest-template mismatch against
-the model's distribution.
+The efficiency against h0 with the model curves, the loudest-template mismatch against
+the model's distribution, and the measured over the predicted h0 of several campaigns.
 
 Like :mod:`cwlimits.plotting.figures` (whose figure, palette and saving helpers these reuse):
 labelled axes with units, a legend, Okabe & Ito colours with a marker and a line style per
@@ -10,7 +10,7 @@ series.  matplotlib is imported lazily.
 
 import numpy as np
 
-__all__ = ["plot_mock_efficiency", "plot_mismatch_histogram"]
+__all__ = ["plot_mock_efficiency", "plot_mismatch_histogram", "plot_measured_over_predicted"]
 
 
 def plot_mock_efficiency(result, title=None):
@@ -87,4 +87,59 @@ def plot_mismatch_histogram(result, title=None):
     ax.set_ylabel("probability density (1 / mismatch)")
     ax.set_title(title or result.summary["setup"], fontsize=8)
     ax.legend(fontsize=6)
+    return fig
+
+
+def plot_measured_over_predicted(labels, measured, measured_range, before, after, *,
+                                 confidence=None, tolerance=0.1, title=None):
+    """Measured h0 at the detection probability over the predicted, per validated setup.
+
+    Parameters
+    ----------
+    labels : sequence of str
+        One description per setup (the x axis).
+    measured : array_like
+        Measured h0 at the detection probability (dimensionless strain), one per setup.
+    measured_range : array_like (n, 2)
+        Its binomial (Clopper-Pearson) range: the h0 where the interval's upper and lower
+        ends reach the detection probability.
+    before, after : array_like
+        The predicted h0 without and with the mismatch correction.
+    confidence : float, optional
+        The detection probability, for the axis label.
+    tolerance : float
+        Half-width of the accepted band about 1 (shaded).
+    title : str, optional
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Two series of ratios with their error bars, offset sideways per setup, the line 1
+        and the accepted band.
+    """
+    from cwlimits.plotting.figures import PALETTE, new_figure
+
+    meas = np.asarray(measured, float)
+    rng = np.asarray(measured_range, float).reshape(-1, 2)
+    x = np.arange(meas.size)
+    fig, ax = new_figure(height_ratio=0.62, width="page")
+    ax.axhspan(1 - tolerance, 1 + tolerance, color="0.88", lw=0,
+               label=f"accepted: within {100 * tolerance:g} %")
+    ax.axhline(1.0, color="0.3", lw=0.8)
+    for k, (pred, name, dx) in enumerate(((before, "before the correction (quadratic "
+                                                   "mismatch added)", -0.12),
+                                          (after, "after the correction", 0.12))):
+        colour, _, marker = PALETTE[k]
+        p = np.asarray(pred, float)
+        r, lo, hi = meas / p, rng[:, 0] / p, rng[:, 1] / p
+        ax.errorbar(x + dx, r, yerr=[np.clip(r - lo, 0, None), np.clip(hi - r, 0, None)],
+                    ls="none", marker=marker, ms=4, color=colour, capsize=2, lw=0.9,
+                    label=name)
+    ax.set_xticks(x)
+    ax.set_xticklabels(list(labels), rotation=20, ha="right", fontsize=6)
+    pct = "" if confidence is None else f" at {100 * confidence:g} % detection"
+    ax.set_ylabel(f"measured / predicted $h_0${pct}\n(ratio of strains, dimensionless)")
+    ax.set_xlabel("validated setup (segments N, length T, lattice, mismatches, duty factor)")
+    ax.set_title(title or "mock search against the sensitivity model", fontsize=8)
+    ax.legend(fontsize=6, loc="best")
     return fig
