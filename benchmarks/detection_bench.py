@@ -14,8 +14,10 @@ confidence.
   <= 132 nodes; a 16 x 16 rule is 3 % off at 95 % here, 32 x 32 is 5e-4 off).
   Timed for setups sharing that rule (the tabulated path, its table built
   inside the timed call) and for setups with distinct rules (each rule scaled by its own
-  factor: the per-setup solve).  The "before" figure is the direct reference path of the
-  same solver (every survival function summed on every iteration).
+  factor: the per-setup solve, Newton steps on the tabulated survival functions; also timed
+  through the bracketing solve on the same tables, with the difference printed).  The
+  "before" figure is the direct reference path of the same solver (every survival
+  function summed on every iteration).
 * Monte Carlo: per setup, R^2 from draws of cos iota and psi at the same sky position and
   the mismatch from its distribution, 2F = (Z + rho)^2 + chi2(4N - 1) with common random
   numbers across a 40-step bisection in ln h0.  Its number of draws is set so that its
@@ -106,6 +108,12 @@ def main(argv=None):
     sub = slice(0, n_distinct)
     d_distinct, t_distinct = cpu(lambda: det.critical_depth(
         thr[sub], n_seg[sub], 1 * u.s, distinct, 0.0, CONFIDENCE).value)
+    # the same setups through the bracketing solve (Chandrupatla) on the same interpolant:
+    # what the Newton steps replace
+    distinct_rows = det.product_signal_rule(distinct, 0.0)
+    a_bracket, t_bracket = cpu(lambda: det.solve_log_amplitude(
+        thr[sub], n_seg[sub], CONFIDENCE, distinct_rows, newton=False))
+    newton_error = float(np.max(np.abs(d_distinct * np.sqrt(a_bracket) - 1)))
     row = det.product_signal_rule(rule, 0.0)
     ref = slice(0, n_before)
     a_before, t_before = cpu(lambda: det.solve_log_amplitude(
@@ -134,6 +142,8 @@ def main(argv=None):
         quick=args.quick, confidence=CONFIDENCE, rule_nodes=rule.size,
         shared_setups=n_shared, shared_us_per_setup=1e6 * t_shared / n_shared,
         distinct_setups=n_distinct, distinct_us_per_setup=1e6 * t_distinct / n_distinct,
+        distinct_bracketing_us_per_setup=1e6 * t_bracket / n_distinct,
+        newton_vs_bracketing_error=newton_error,
         before_us_per_setup=1e6 * t_before / n_before,
         table_error=table_error, interpolation_error=interp_error,
         rule_error_vs_fine=rule_error, mc_accuracy=MC_ACCURACY, monte_carlo=mc_rows,
@@ -148,6 +158,9 @@ def main(argv=None):
           f"{figures['shared_us_per_setup']:.1f} us CPU per setup")
     print(f"  distinct rules, {n_distinct} setups: {figures['distinct_us_per_setup']:.0f} us "
           "per setup")
+    print(f"  distinct rules through the bracketing solve on the same tables: "
+          f"{figures['distinct_bracketing_us_per_setup']:.0f} us per setup (depth within "
+          f"{newton_error:.1e} of the Newton steps)")
     print(f"  before (direct reference path): {figures['before_us_per_setup']:.0f} us per setup")
     print(f"  accuracy of the fast side: table vs per-setup solve {table_error:.1e}, "
           f"interpolated vs direct sums {interp_error:.1e}, 32x32x64 condensed rule vs "

@@ -667,6 +667,93 @@ def test_interpolated_solve_matches_the_direct_solve(confidence):
 
 
 @pytest.mark.parametrize("confidence", [0.5, 0.95, 0.999])
+def test_newton_matches_the_bracketing_solve(confidence):
+    # Newton steps on the interpolant's analytic derivative (the fast path) against
+    # Chandrupatla's bracketing solve (scipy.optimize.elementwise.find_root, newton=False) on
+    # the same interpolant: ln a within 1e-8 (measured <= 3e-10; the bracketing tolerance is
+    # 1e-9), every element converged by Newton itself in at most 5 evaluations from the
+    # Gaussian guess (12 from starts 1.5 above or 2 below in ln a).  Then the
+    # outside check: at the Newton root the direct sum of scipy.stats.ncx2.sf (Sankaran
+    # from 4N = 400, within 3e-5) reaches the confidence.
+    rule = _fixed_sky_rule()
+    thr, n_seg = _setups(200, np.random.default_rng(7))
+    per_row = det.product_signal_rule(det.QuadratureRule(
+        rule.c * np.random.default_rng(8).uniform(0.9, 1.1, (200, 1)),
+        np.broadcast_to(rule.w, (200, rule.c.shape[1]))), 0.0)  # distinct rules
+    newton = det.solve_log_amplitude(thr, n_seg, confidence, per_row)
+    bracket = det.solve_log_amplitude(thr, n_seg, confidence, per_row, newton=False)
+    assert np.max(np.abs(np.log(newton / bracket))) < 1e-8
+    table = det._SurvivalTable(thr, n_seg)
+    order = np.argsort(per_row.c, axis=-1)
+    prob = np.full(200, confidence)
+    y0 = det._initial_log_a(thr, n_seg, prob,
+                            np.take_along_axis(per_row.c, order, axis=-1),
+                            np.cumsum(np.take_along_axis(per_row.w, order, axis=-1), axis=-1),
+                            np.sum(per_row.c * per_row.w, axis=-1))
+    saved = det._NEWTON_MAX_ITER
+    try:
+        for start, n_iter in ((y0, 5), (np.log(bracket) + 1.5, 12), (y0 - 2.0, 12)):
+            det._NEWTON_MAX_ITER = n_iter
+            y, done = det._newton_log_a(table, np.sqrt(per_row.c), per_row.w, prob,
+                                        np.arange(200), start)
+            assert np.all(done)
+            assert np.max(np.abs(y - np.log(bracket))) < 1e-8
+    finally:
+        det._NEWTON_MAX_ITER = saved
+    exact = np.sum(per_row.w * det._signal_sf(thr[:, None], 4 * n_seg[:, None],
+                                              newton[:, None] * per_row.c), axis=1)
+    assert np.max(np.abs(exact - confidence)) < 1e-5
+
+
+def test_shared_survival_tables_for_repeated_thresholds():
+    # Elements repeating one (threshold, N) under different rules share one survival table:
+    # the same ln a as solving each rule on its own (to 1e-12, the same arithmetic), and
+    # within 1e-6 in depth of the direct sums of scipy.stats.ncx2.sf (Sankaran from 4N = 400).
+    rule = _fixed_sky_rule()
+    thr, n_seg = _setups(6, np.random.default_rng(12))
+    scales = np.array([0.8, 1.0, 1.25])
+    rules = det.product_signal_rule(det.QuadratureRule(
+        rule.c * scales[:, None], np.broadcast_to(rule.w, (3, rule.c.shape[1]))), 0.0)
+    rid = np.repeat(np.arange(3), 6)
+    thr_all, n_all = np.tile(thr, 3), np.tile(n_seg, 3)
+    together = det.solve_log_amplitude(thr_all, n_all, 0.95, rules, rid=rid)
+    for k in range(3):
+        alone = det.solve_log_amplitude(thr, n_seg, 0.95, det.product_signal_rule(
+            det.QuadratureRule(rules.c[k], rules.w[k]), 0.0))
+        np.testing.assert_allclose(together[rid == k], alone, rtol=1e-12)
+    direct = det.solve_log_amplitude(thr_all, n_all, 0.95, rules, rid=rid, tabulate=False,
+                                     interpolate=False)
+    assert np.max(np.abs(np.sqrt(direct / together) - 1)) < 1e-6
+
+
+def test_interpolant_slope_and_grid_top():
+    # The analytic slope of the interpolated mixture against a central difference of its
+    # value (relative 1e-5), and the top of the shortened grid in sqrt(rho2) against
+    # scipy.stats.ncx2.cdf: below the bound 1e-16 (P(2F < threshold) at the top), the
+    # 64-point table within 2e-7 in sf of the previous 96-point grid to sqrt(thr) + 10.
+    rng = np.random.default_rng(9)
+    n_seg = np.array([1.0, 2.0, 7.0, 40.0, 99.0, 100.0, 1000.0])
+    thr = det.false_alarm_threshold(0.01, 10 ** rng.uniform(0, 15, 7), n_seg).value
+    top = det._sf_grid_top(thr, 4 * n_seg)
+    assert np.all(stats.ncx2.cdf(thr, 4 * n_seg, top**2) <= 1e-16)
+    assert np.all(top <= np.sqrt(thr) + 10.0)
+    table = det._SurvivalTable(thr, n_seg)
+    reference = det._SurvivalTable(thr, n_seg, reference=True)
+    c = rng.uniform(0, 1, (7, 50)) ** 2
+    w = np.full((7, 50), 1 / 50)
+    rows = np.arange(7)
+    for a in (0.5, 1.0, 2.0):
+        a_n = a * (np.sqrt(thr) + 2) ** 2 / 0.3
+        p, dp = table.mixture(a_n, np.sqrt(c), w, rows, slope=True)
+        h = 1e-5
+        hi = table.mixture(a_n * (1 + h) ** 2, np.sqrt(c), w, rows)
+        lo = table.mixture(a_n * (1 - h) ** 2, np.sqrt(c), w, rows)
+        fd = (hi - lo) / (2 * h * np.sqrt(a_n))
+        assert np.allclose(dp, fd, rtol=1e-5, atol=1e-12)
+        assert np.max(np.abs(p - reference.mixture(a_n, np.sqrt(c), w, rows))) < 2e-7
+
+
+@pytest.mark.parametrize("confidence", [0.5, 0.95, 0.999])
 def test_tabulated_depth_matches_the_per_setup_solve(confidence):
     # ln a read from the (ln N, ln q) table against the per-setup solve: depth within 5e-5
     # (measured <= 1.5e-5, below the 2e-4 of the rule condensation), N on both sides of
@@ -683,6 +770,26 @@ def test_tabulated_depth_matches_the_per_setup_solve(confidence):
     exact = det.critical_depth(thr[:60], n_seg[:60], 1 * u.s, det.QuadratureRule(
         rule.c[0], rule.w[0]), 0.0, confidence, method="exact").value
     assert np.allclose(np.sqrt(1 / table[:60]), exact, rtol=2e-4)
+
+
+def test_tabulated_depth_at_tiny_false_alarms():
+    # The table's q = ln(-ln p) from chi2.sf, with chi2.logsf below p = 1e-300 (where
+    # scipy's chi2.sf stalls at subnormal values, ~1e-311 for p = 1e-400): per-template
+    # false alarms down to 1e-400 read from the table against the per-setup solve (depth
+    # within 5e-5, as above).
+    rule = _fixed_sky_rule()
+    rng = np.random.default_rng(10)
+    thr, n_seg = _setups(det._TABLE_MIN_ELEMENTS, rng)
+    n_tiny = np.round(np.exp(rng.uniform(0, np.log(1000), 64)))
+    thr_tiny = det._threshold_from_log_p(rng.uniform(-400, -290, 64) * np.log(10),
+                                         4 * n_tiny)
+    thr, n_seg = np.concatenate([thr, thr_tiny]), np.concatenate([n_seg, n_tiny])
+    assert np.any(stats.chi2.sf(thr, 4 * n_seg) < 1e-300)  # the logsf branch is taken
+    det._TABLE_CACHE.clear()
+    table = det.solve_log_amplitude(thr, n_seg, 0.95, rule)
+    assert det._TABLE_CACHE
+    each = det.solve_log_amplitude(thr, n_seg, 0.95, rule, tabulate=False)
+    assert np.max(np.abs(np.sqrt(each / table) - 1)) < 5e-5
 
 
 @pytest.mark.parametrize("n_seg", [1, 8, 100, 1000])

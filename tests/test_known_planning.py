@@ -175,6 +175,12 @@ def test_demo_report_has_the_known_pulsar_section(demo_report):
     assert ratio["Fict Pulsar Brand"] < 1 < ratio["Fict Pulsar Whirl"]
     kinds = dict(zip(names, table.text("kind"), strict=True))
     assert kinds["Fict Pulsar Drift"] == "narrow-band"
+    # every known pulsar has a measured limit from the simulated data, and the table says
+    # which kind: the narrow-band one from the loudest template of its box
+    methods = dict(zip(names, table.text("limit_method"), strict=True))
+    assert set(table.text("limit_source")) == {"measured"}
+    assert "loudest 2F" in methods["Fict Pulsar Drift"]
+    assert "time-domain" in methods["Fict Pulsar Brand"]
     # spin-down fraction = (h95 / h_sd)^2 (the fraction of the spin-down luminosity)
     assert np.allclose(table.quantity("spindown_fraction", u.one).value, ratios ** 2)
     assert any("I = 1e+38" in v for v in table.meta["assumptions"].values())

@@ -85,6 +85,33 @@ def test_cost_kernel_equals_computing_cost(target):
         np.testing.assert_allclose(fast[i], exact, rtol=1e-10)
 
 
+def test_t_at_budget_root_matches_the_bisection(target):
+    # The segment length at the budget: Chandrupatla / Brent on the precomputed budget
+    # curve (the fast path) against the 60-step bisection on the full cost (the reference
+    # path) within 1e-10 relative in T; the budget curve equals the summed cost kernel
+    # (itself equal to cwlimits.searchspace.cost.computing_cost, above) to rounding; the
+    # cost at the fast T never exceeds the budget (common practice: a plan fits its budget).
+    _, model, _, _ = _model(target)
+    rng = np.random.default_rng(11)
+    n = rng.integers(1, 40, 30)
+    mc, mf = rng.uniform(0.03, 0.5, 30), rng.uniform(0.03, 0.5, 30)
+    t_s = rng.uniform(0.5, 20, 30) * 86400
+    np.testing.assert_allclose(model.budget_curve(n, mc, mf)(t_s),
+                               model.cost(t_s, n, mc, mf).sum(axis=1), rtol=1e-12)
+    span_s = SPAN.to_value(u.s)
+    for budget_h in (30.0, 300.0, 3000.0):
+        for k in (30, 3):  # the vectorised root (many candidates) and the scalar one (few)
+            args = (model, n[:k], mc[:k], mf[:k], budget_h, span_s, 86400.0)
+            fast = P._t_at_budget(*args)
+            ref = P._t_at_budget(*args, solver="bisect")
+            assert np.array_equal(np.isnan(fast), np.isnan(ref))
+            ok = np.isfinite(ref)
+            assert ok.any()
+            np.testing.assert_allclose(fast[ok], ref[ok], rtol=1e-10)
+            cost = model.cost(fast[ok], n[:k][ok], mc[:k][ok], mf[:k][ok]).sum(axis=1)
+            assert np.all(cost <= budget_h * (1 + 1e-12))
+
+
 def test_fast_depth_matches_strain_sensitivity_for_the_plan(target):
     plan = P.plan_search(target, NOISE, "300 h", SPAN, **OPTIONS)
     s = plan.setup

@@ -40,7 +40,8 @@ def _setup(days=30, detectors=("H1", "L1")):
 
 def test_emission_models_frequencies():
     # f_gw = 2 f_rot (mass quadrupole), C21 at f_rot and C22 at 2 f_rot (Jones 2010,
-    # Pitkin et al. 2015), r-mode band around 4/3 f_rot (Andersson 1998; Idrisy et al. 2015)
+    # Pitkin et al. 2015), r-mode band from the Newtonian 4/3 f_rot (Papaloizou & Pringle
+    # 1978; Andersson 1998) to 1.57 f_rot (Idrisy, Owen & Jones 2015; 1.57 from memory)
     t = _pulsar()
     (single,) = harmonics(t)
     assert single["f_gw"] == 60 * u.Hz and single["fdot_gw"] == -8e-11 * u.Hz / u.s

@@ -275,12 +275,24 @@ def _zero_stretch(lines, h):
     (_zero_stretch, "only zeros"),
 ])
 def test_cli_bad_data_files(files, tmp_path, capsys, edit, words):
+    # issue 17's bad-input list (non-monotonic times, NaN samples, an unknown detector, an
+    # empty stretch) against the project's rule for bad input (DEVELOPERS.md, common
+    # practice of command-line tools): a message naming file, row and column, exit 2,
+    # nothing written; by both commands that read the format
     cat, data = files
     _rewrite(data, edit)
     out, plot = tmp_path / "lim.csv", tmp_path / "p.png"
     assert main(["posterior", str(data), "--catalogue", str(cat), "--target", "P",
                  "--out", str(out), "--plot", str(plot)]) == 2
     err = capsys.readouterr().err
+    assert err.startswith("error:") and words in err and str(data) in err and "row" in err
+    assert not out.exists() and not plot.exists()
+    assert main(["targeted", "--catalogue", str(cat), "--all", "--span", "2day",
+                 "--data", f"P={data}", "--noise-draws", "20", "--out", str(out),
+                 "--plot", str(plot)]) == 2
+    err = capsys.readouterr().err
+    # 'targeted' checks the detectors against its setup's (H1, L1) first
+    words = "detector not in the setup" if edit is _unknown_detector else words
     assert err.startswith("error:") and words in err and str(data) in err and "row" in err
     assert not out.exists() and not plot.exists()
 

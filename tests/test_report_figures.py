@@ -151,3 +151,45 @@ def test_svg_after_png_has_the_layout_matplotlib_gives_the_svg(tmp_path):
                                rtol=0, atol=LAYOUT_TOL)
     assert (tmp_path / "ours.png").stat().st_size > 0
     plt.close("all")
+
+
+def test_later_formats_without_the_dry_layout_draw_are_the_same_files(tmp_path):
+    # The formats after the first are saved with no layout engine (matplotlib then skips
+    # its dry draw before the save) instead of the "none" placeholder engine (which still
+    # triggers it): the SVG and PDF must be byte for byte those of the placeholder way
+    # (reference: matplotlib's own savefig with the placeholder engine).
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from cwlimits.plotting.figures import (
+        figure_metadata,
+        house_style,
+        new_figure,
+        save_figure,
+        tidy_log_axes,
+    )
+
+    def make():
+        fig, ax = new_figure()
+        f = np.geomspace(50, 450, 60)
+        ax.loglog(f, 1e-25 * (f / 100) ** -1.5, label="curve")
+        ax.set(xlabel="frequency [Hz]", ylabel=r"$h_0$")
+        ax.legend(fontsize=6)
+        tidy_log_axes(ax)
+        return fig
+
+    save_figure(make(), tmp_path / "ours", formats=("png", "svg", "pdf"))
+    reference = make()
+    with house_style():
+        reference.savefig(tmp_path / "ref.png", metadata=figure_metadata("png"))
+        reference.set_layout_engine("none")
+        for fmt in ("svg", "pdf"):
+            reference.savefig(tmp_path / f"ref.{fmt}", metadata=figure_metadata(fmt))
+    def content(path):  # the PDF's creation time is the only part that may differ
+        return re.sub(rb"/CreationDate \(D:[^)]*\)", b"", path.read_bytes())
+
+    for fmt in ("svg", "pdf"):
+        assert content(tmp_path / f"ours.{fmt}") == content(tmp_path / f"ref.{fmt}")
+    plt.close("all")

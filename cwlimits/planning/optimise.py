@@ -72,6 +72,7 @@ import numpy as np
 from astropy.table import QTable
 from numpy.typing import ArrayLike
 from scipy import optimize
+from scipy.optimize import elementwise
 
 from cwlimits import _defaults
 from cwlimits._units import (
@@ -146,6 +147,7 @@ _R2_NODES = 32               # condensation of the orientation rule (detection._
 _SIGNAL_NODES = 48
 _BAD_LOG_A = 60.0            # ln a of an unreachable confidence (depth ~ 0)
 _R2_SPAN_S = SECONDS_PER_YEAR  # span of the antenna-pattern averages of the fast model
+_SCALAR_ROOTS = 4            # up to this many candidates: scalar Brent for T at the budget
 
 
 # ---------------------------------------------------------------------------------------
@@ -458,6 +460,38 @@ class _TargetModel:
         """Cost in core-hours per band, (n_candidates, n_bands)."""
         return self.cost_info(t_s, n, mu_c, mu_f)[0]
 
+    def budget_curve(self, n, mu_c, mu_f, sel=slice(None)):
+        """``total(t_s)``: the cost summed over the bands ``sel``, for a solve in ``T``.
+
+        The same rule as :meth:`cost_info` (templates ``max(1, max_k theta_k mu^(-k/2)
+        sqrt(det g_k) V_k)``, zero space in a band: one template), with everything but the
+        powers ``T^(k (k + 1) / 2)`` of the segment length computed once: a root finder in
+        ``T`` then costs one product, one maximum and one sum per call.
+        """
+        n = np.asarray(n, int)
+        vol = self.volumes[:, sel]
+        vol = np.where(vol[0] > 0, vol, 0.0)              # no space: one template
+        k = np.arange(1, 4)
+
+        def pieces(mu, sd):
+            mu = np.broadcast_to(np.asarray(mu, float), n.shape)
+            factor = self.theta * mu[:, None] ** (-k / 2) * sd     # (c, 3)
+            return factor[:, :, None] * vol[None]                   # (c, 3, bands)
+
+        coh = pieces(mu_c, np.broadcast_to(self.sd_coh, (len(n), 3)))
+        semi = pieces(mu_f, self.sd_semi(n))
+        w_coh = (n * self.n_det * self.c_coh)[:, None]
+        w_semi = (n * self.c_semi)[:, None]
+        powers = self.powers[None, :, None]
+
+        def total(t_s, rows=slice(None)):
+            tp = np.asarray(t_s, float)[:, None, None] ** powers
+            n_coh = np.maximum((coh[rows] * tp).max(axis=1), 1.0)
+            n_semi = np.maximum((semi[rows] * tp).max(axis=1), 1.0)
+            return (w_coh[rows] * n_coh + w_semi[rows] * n_semi).sum(axis=1)
+
+        return total
+
     def _table(self, dc, df):
         """Grid axes and values of ln a over (ln N, ln mu_c, ln mu_f, log10 trials), dims (dc, df).
 
@@ -551,21 +585,71 @@ class _Optimum:
     grid_merit: float
 
 
-def _t_at_budget(model, n, mu_c, mu_f, budget_h, span_s, t_min_s, sel=slice(None)):
-    """Largest T in [t_min, span/N] with cost <= budget (bisection in ln T); NaN if none."""
+def _t_at_budget(model, n, mu_c, mu_f, budget_h, span_s, t_min_s, sel=slice(None),
+                 solver="root"):
+    """Largest T in [t_min, span/N] with cost <= budget; NaN if none.
+
+    ``solver="root"``: Chandrupatla's method in ln T
+    (``scipy.optimize.elementwise.find_root``) on the model's :meth:`budget_curve`, about
+    a dozen cost evaluations; the feasible end of its final bracket is returned, so the
+    cost never exceeds the budget.  ``solver="bisect"``: the reference, 60 bisection steps
+    in ln T on the full cost per band (measured: the two agree within 1e-10 relative in
+    T; tests/test_planning.py::test_t_at_budget_root_matches_the_bisection).
+    """
     n = np.asarray(n, int)
     t_hi = span_s / n
     t_lo = np.full(len(n), t_min_s)
-    total = lambda t: model.cost(t, n, mu_c, mu_f)[:, sel].sum(axis=1)  # noqa: E731
+    curve = getattr(model, "budget_curve", None)
+    if solver == "root" and curve is not None:
+        total = curve(n, mu_c, mu_f, sel)
+    else:
+        def total(t, rows=slice(None)):
+            return model.cost(t, n[rows], _rows(mu_c, rows), _rows(mu_f, rows))[:, sel].sum(
+                axis=1)
     at_hi = total(t_hi) <= budget_h
     feasible = (total(t_lo) <= budget_h) & (t_lo <= t_hi)
     lo, hi = np.log(t_lo), np.log(np.maximum(t_hi, t_lo))
-    for _ in range(60):
-        mid = 0.5 * (lo + hi)
-        ok = total(np.exp(mid)) <= budget_h
-        lo, hi = np.where(ok, mid, lo), np.where(ok, hi, mid)
+    if solver == "bisect":
+        for _ in range(60):
+            mid = 0.5 * (lo + hi)
+            ok = total(np.exp(mid)) <= budget_h
+            lo, hi = np.where(ok, mid, lo), np.where(ok, hi, mid)
+    else:
+        solve = np.flatnonzero(feasible & ~at_hi)
+        log_budget = math.log(budget_h)
+        if 0 < len(solve) <= _SCALAR_ROOTS:
+            # a few candidates (the refinement's simplex): scalar Brent, less overhead
+            for i in solve:
+                rows = np.array([i])
+
+                def g(y, rows=rows):
+                    return math.log(total(np.exp([y]), rows)[0]) - log_budget
+
+                y = optimize.brentq(g, lo[i], hi[i], xtol=1e-12, rtol=4 * np.finfo(float).eps)
+                # the feasible side of the root (the cost never exceeds the budget)
+                lo[i] = y if g(y) <= 0 else max(y - 2e-12, lo[i])
+            solve = solve[:0]
+        if len(solve):
+
+            def f(y, rows):
+                return np.log(total(np.exp(y), rows.astype(np.intp))) - log_budget
+
+            res = elementwise.find_root(f, (lo[solve], hi[solve]),
+                                        args=(solve.astype(float),),
+                                        tolerances=dict(xatol=1e-12, xrtol=0.0))
+            if not np.all(res.success):
+                raise ComputationError("the segment length at the budget was not found "
+                                       f"(candidate {int(solve[~res.success][0])})")
+            # the end of the final bracket where the cost is within the budget
+            xl, xr = res.bracket
+            lo[solve] = np.where(res.f_bracket[0] <= 0, xl, xr)
     t = np.where(at_hi, t_hi, np.exp(lo))
     return np.where(feasible, t, np.nan)
+
+
+def _rows(values, rows):
+    values = np.asarray(values)
+    return values if values.ndim == 0 else values[rows]
 
 
 def _depth_merit(model, t, n, mu_c, mu_f, sel=slice(None)):
@@ -1258,6 +1342,9 @@ class Ranking:
     plans : dict of str -> SearchPlan
         The plan at the allocated budget of each target that gets any.
     assumptions : dict
+    known_plans : dict of str -> KnownPulsarPlan
+        Every known pulsar's plan, funded or not (its expected-limit table is reused by
+        the report).
     """
 
     table: QTable
@@ -1266,6 +1353,7 @@ class Ranking:
     names: list
     plans: dict
     assumptions: dict
+    known_plans: dict = field(default_factory=dict)
 
 
 def _rank_one(chunk, rng, *, targets, noise, span, total_h, per_target_h, steps, measure,
@@ -1642,4 +1730,4 @@ def rank_targets(catalogue: TargetCatalogue,
     table.meta["assumptions"] = assumptions
     budgets = (rest.value * np.arange(steps + 1) / steps) << u.h
     return Ranking(table=table, budgets=budgets, merits=merits, names=names, plans=built,
-                   assumptions=assumptions)
+                   assumptions=assumptions, known_plans=known_plans)

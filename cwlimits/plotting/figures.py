@@ -162,7 +162,9 @@ def save_figure(fig, path, formats=("png", "svg")):
 
     The layout (constrained layout, most of the cost of a save) is solved once, by the
     first save; the later formats reuse its positions instead of solving it again, and
-    the figure gets its layout engine back afterwards.
+    the figure gets its layout engine back afterwards.  Without a layout engine
+    matplotlib also skips the dry draw it makes before each save to place a layout, so a
+    later format costs one draw, not two.
     """
     path = Path(path)
     written = []
@@ -179,7 +181,11 @@ def save_figure(fig, path, formats=("png", "svg")):
 def _save_all(fig, path, formats, engine, written):
     for k, fmt in enumerate(formats):
         if k == 1 and engine is not None:
-            fig.set_layout_engine("none")  # keep the positions the first save found
+            # keep the positions the first save found; None rather than "none" (a
+            # placeholder engine), so that savefig makes no dry draw for a layout
+            fig.set_layout_engine(None)
+            if fig.get_layout_engine() is not None:  # rcParams chose an engine for None
+                fig.set_layout_engine("none")
         target = path.with_suffix(f".{fmt}")
         metadata = figure_metadata(fmt)
         atomic_write(target, lambda handle, fmt=fmt, metadata=metadata: fig.savefig(

@@ -51,8 +51,13 @@ def plot_merit_vs_budget(ranking, title=None):
     ax.set_ylabel("figure of merit [Hz]" + (" (beat-age width)" if "width" in
                                             measure.split(":")[0] else ""))
     ax.grid(True, which="both", alpha=0.3)
-    # below the axes: with many targets a legend inside hides the curves
-    fig.legend(fontsize=5, loc="outside lower center", ncols=3)
+    # below the axes: with many targets a legend inside hides the curves (none when every
+    # target is a known pulsar: they have no merit curve)
+    if ranking.names:
+        fig.legend(fontsize=5, loc="outside lower center", ncols=3)
+    else:
+        ax.text(0.5, 0.5, "no unknown-spin target: known pulsars have no merit curve",
+                transform=ax.transAxes, ha="center", va="center", fontsize=6)
     if title:
         ax.set_title(title, fontsize=8)
     return fig

@@ -25,7 +25,7 @@ def plot_mock_efficiency(result, title=None):
     -------
     matplotlib.figure.Figure
         Log h0 axis; measured points with Clopper-Pearson error bars, the model's P_det(h0)
-        (quadratic-metric mismatches added) and the model corrected with the measured
+        (lattice mismatch draws, corrected by default) and the model with the measured
         mismatches, the detection probability and the h0 values at it.
     """
     from cwlimits.plotting.figures import PALETTE, new_figure, tidy_log_axes
@@ -36,8 +36,10 @@ def plot_mock_efficiency(result, title=None):
     lo, hi = np.asarray(t["ci_low"].value), np.asarray(t["ci_high"].value)
     fig, ax = new_figure()
     (c0, s0, m0), (c1, s1, _), (c2, s2, _), (c3, s3, _) = PALETTE[:4]
+    kind = s.get("mismatch_model_kind", "quadratic")
     ax.plot(result.model_h0, result.model_curve, color=c1, ls=s1, lw=1.2,
-            label="model (metric mismatch)")
+            label="model (corrected lattice mismatch)" if kind == "distribution"
+            else "model (metric mismatch)")
     ax.plot(result.model_h0, result.corrected_curve, color=c2, ls=s2, lw=1.2,
             label="model (measured mismatch)")
     ax.errorbar(h0, eff, yerr=[np.clip(eff - lo, 0, None), np.clip(hi - eff, 0, None)],

@@ -14,6 +14,7 @@ from cwlimits.pulsars.data import (
     simulate_pulsar_signal,
     write_down_converted,
 )
+from cwlimits.pulsars.dual import DualHarmonicPosterior, dual_harmonic_posterior, dual_limit_table
 from cwlimits.pulsars.emission import (
     DUAL_HARMONIC,
     RMODE,
@@ -24,6 +25,7 @@ from cwlimits.pulsars.emission import (
 )
 from cwlimits.pulsars.expected import targeted_sensitivity
 from cwlimits.pulsars.grid import OrientationPrior
+from cwlimits.pulsars.narrowband import NarrowBandLimit, narrow_band_limit
 from cwlimits.pulsars.posterior import (
     PulsarPosterior,
     limit_table,
@@ -36,4 +38,6 @@ __all__ = ["EmissionModel", "SINGLE_HARMONIC", "DUAL_HARMONIC", "RMODE", "get_em
            "harmonics", "targeted_sensitivity", "OrientationPrior", "DownConvertedData",
            "read_down_converted", "write_down_converted", "simulate_pulsar_signal",
            "add_noise", "pulsar_posterior", "PulsarPosterior", "limit_table",
-           "spindown_ratios", "known_pulsar_summary", "sensitivity_curve"]
+           "spindown_ratios", "known_pulsar_summary", "sensitivity_curve",
+           "narrow_band_limit", "NarrowBandLimit", "dual_harmonic_posterior",
+           "DualHarmonicPosterior", "dual_limit_table"]

@@ -46,8 +46,9 @@ from cwlimits.pulsars.likelihood import StretchSums
 from cwlimits.response.antenna import amplitude_modulation, get_detector
 from cwlimits.tables import read_table, write_table
 
-__all__ = ["DownConvertedData", "read_down_converted", "write_down_converted",
-           "from_band_data", "simulate_pulsar_signal", "add_noise", "stretch_sums",
+__all__ = ["DownConvertedData", "read_down_converted", "read_detector_files",
+           "combine_data", "write_down_converted", "from_band_data",
+           "simulate_pulsar_signal", "add_noise", "stretch_sums",
            "DEFAULT_MAX_STRETCH", "MAX_SAMPLES"]
 
 #: Default longest stretch in samples (Dupuis & Woan 2005 used stretches up to 30 min of
@@ -181,7 +182,8 @@ def _check_stretches(path, lines, det, labels, values, sigma, rows):
                              row=lines[where], column="sigma")
 
 
-def read_down_converted(path, *, detectors=None, max_stretch=DEFAULT_MAX_STRETCH):
+def read_down_converted(path, *, detectors=None, max_stretch=DEFAULT_MAX_STRETCH,
+                        file_detector=None):
     """Read and check a file of down-converted samples (format in the module notes).
 
     Parameters
@@ -191,6 +193,8 @@ def read_down_converted(path, *, detectors=None, max_stretch=DEFAULT_MAX_STRETCH
         The detectors allowed (a setup's); default: any built-in site.
     max_stretch : int
         Longest automatic stretch in samples (when the file has no ``stretch`` column).
+    file_detector : str, optional
+        The one detector every row must be of (a file per detector).
 
     Returns
     -------
@@ -215,6 +219,9 @@ def read_down_converted(path, *, detectors=None, max_stretch=DEFAULT_MAX_STRETCH
     names = table.text("detector")
     allowed = None if detectors is None else tuple(detectors)
     for i, name in enumerate(names):
+        if file_detector is not None and name != file_detector:
+            table.fail(f"a row of detector {name} in the file of detector {file_detector}",
+                       i, "detector", name)
         if allowed is not None and name not in allowed:
             table.fail(f"detector not in the setup (which has {', '.join(allowed)})", i,
                        "detector", name)
@@ -263,6 +270,71 @@ def read_down_converted(path, *, detectors=None, max_stretch=DEFAULT_MAX_STRETCH
     return DownConvertedData(np.concatenate(out_det), np.concatenate(out_t),
                              np.concatenate(out_v), np.concatenate(out_s),
                              np.concatenate(out_lab), str(path))
+
+
+def combine_data(parts, source=""):
+    """One :class:`DownConvertedData` from several (e.g. one file per detector).
+
+    The stretches keep their own labels (renumbered one after the other); a detector may
+    appear in only one part, so that its times stay one increasing series.
+
+    Raises
+    ------
+    InputError
+        When two parts hold the same detector, or no part is given.
+    """
+    parts = list(parts)
+    if not parts:
+        raise InputError("no down-converted data to combine")
+    seen = {}
+    for part in parts:
+        for det in part.detectors:
+            if det in seen:
+                raise InputError(f"detector {det} is in both {seen[det]} and {part.source}: "
+                                 "give each detector's samples once")
+            seen[det] = part.source
+    offsets = np.cumsum([0] + [p.n_stretches for p in parts[:-1]])
+    return DownConvertedData(np.concatenate([p.detector for p in parts]),
+                             np.concatenate([p.time_s for p in parts]),
+                             np.concatenate([p.value for p in parts]),
+                             np.concatenate([p.sigma for p in parts]),
+                             np.concatenate([p.stretch + o for p, o in
+                                             zip(parts, offsets, strict=True)]),
+                             source or "; ".join(p.source for p in parts))
+
+
+def read_detector_files(files, *, detectors=None, max_stretch=DEFAULT_MAX_STRETCH):
+    """Read one file of down-converted samples per detector and combine them.
+
+    Parameters
+    ----------
+    files : dict of str -> str or Path
+        Detector site code -> its file (the format of the module notes; every row of a
+        file must be of its detector).
+    detectors : sequence of str, optional
+        The detectors allowed (the analysis's).
+
+    Returns
+    -------
+    DownConvertedData
+
+    Raises
+    ------
+    TableError
+        Any problem of :func:`read_down_converted`, or a row of another detector than the
+        file's (naming the file, row and column).
+    InputError
+        A detector that is not among ``detectors``.
+    """
+    parts = []
+    for det, path in files.items():
+        if detectors is not None and det not in tuple(detectors):
+            raise InputError(f"data file for detector {det}, which the analysis does not "
+                             f"have (it has {', '.join(detectors)})", file=str(path),
+                             value=det)
+        parts.append(read_down_converted(path, detectors=detectors, max_stretch=max_stretch,
+                                         file_detector=det))
+    return combine_data(parts)
 
 
 def write_down_converted(data, path, *, assumptions=None, title=None):

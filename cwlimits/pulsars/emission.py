@@ -12,8 +12,11 @@
 * **r-modes** (l = m = 2 r-mode): f_gw = k f_rot with k = 4/3 for a slowly rotating
   Newtonian star (Papaloizou & Pringle 1978; Andersson 1998, gr-qc/9706075) and, with
   relativistic corrections and the range of masses and equations of state, k from about
-  1.39 to 1.57 (Idrisy, Owen & Jones 2015, arXiv:1410.7360, from memory).  The default band
-  k in [4/3, 1.57] covers both; a search over it is a narrow-band search in f.
+  1.39 to 1.57 (Idrisy, Owen & Jones 2015, Phys. Rev. D 91, 024001, arXiv:1410.7360).  The
+  two ends of that range are **from memory**, not read from the paper here: the paper is
+  the right source for them, but the numbers should be checked against it before they
+  are quoted (docs: known pulsars).  The default band k in [4/3, 1.57]
+  (:data:`RMODE_RATIO_BAND`) covers both; a search over it is a narrow-band search in f.
 
 Assumptions: emission locked to the spin (no free precession, no glitch in the span);
 the timing solution's spin-down extends to the gravitational-wave phase (fdot_gw = k
@@ -27,7 +30,14 @@ import astropy.units as u
 from cwlimits.errors import InputError
 
 __all__ = ["EmissionModel", "SINGLE_HARMONIC", "DUAL_HARMONIC", "RMODE", "EMISSION_MODELS",
-           "get_emission", "harmonics"]
+           "get_emission", "harmonics", "RMODE_RATIO_BAND"]
+
+#: Default r-mode band of k = f_gw / f_rot: from the Newtonian 4/3 of a slowly rotating
+#: star (Papaloizou & Pringle 1978; Andersson 1998, gr-qc/9706075) to the upper end 1.57
+#: of the relativistic range of Idrisy, Owen & Jones 2015 (arXiv:1410.7360; the value is
+#: from memory: check it against the paper before quoting it).  Set another band with
+#: ``get_emission('rmode', ratio_band=(k_min, k_max))``.
+RMODE_RATIO_BAND = (4.0 / 3.0, 1.57)
 
 
 @dataclass(frozen=True)
@@ -65,9 +75,9 @@ DUAL_HARMONIC = EmissionModel(
     "dual harmonic", (("C21", 1.0), ("C22", 2.0)),
     reference="l = 2, m = 1 and 2; Jones 2010, Pitkin et al. 2015")
 RMODE = EmissionModel(
-    "r-mode", (("h0", 4.0 / 3.0),), ratio_band=(4.0 / 3.0, 1.57),
+    "r-mode", (("h0", 4.0 / 3.0),), ratio_band=RMODE_RATIO_BAND,
     reference="Newtonian 4/3 (Andersson 1998) to the relativistic 1.39-1.57 of Idrisy, "
-              "Owen & Jones 2015 (from memory)")
+              "Owen & Jones 2015, arXiv:1410.7360 (the range from memory)")
 
 EMISSION_MODELS = {"single": SINGLE_HARMONIC, "dual": DUAL_HARMONIC, "rmode": RMODE}
 

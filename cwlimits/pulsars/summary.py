@@ -16,16 +16,30 @@ from astropy.table import QTable
 from cwlimits.errors import InputError
 from cwlimits.noise import DEFAULT_NOISE_MODEL
 from cwlimits.pulsars.expected import _noise_psd, targeted_sensitivity
+from cwlimits.pulsars.narrowband import narrow_band_limit
 from cwlimits.pulsars.posterior import pulsar_posterior, spindown_ratios
 from cwlimits.sensitivity.model import DEFAULT_START
 from cwlimits.targets.fiducial import DEFAULT_MOMENT_OF_INERTIA
 
-__all__ = ["known_pulsar_summary", "sensitivity_curve"]
+__all__ = ["known_pulsar_summary", "sensitivity_curve", "PREDICTED_METHODS",
+           "MEASURED_METHODS"]
+
+#: What the limit of a row is, by search kind (the table's ``limit_method``).
+PREDICTED_METHODS = {
+    "targeted": "predicted: median {conf:.0%} Bayesian limit on noise-only data (Dupuis & Woan "
+                "2005)",
+    "narrow-band": "predicted: h0 detected with {conf:.0%} probability above the box's "
+                   "F-statistic threshold (Wette 2012)"}
+MEASURED_METHODS = {
+    "targeted": "measured: time-domain {conf:.0%} posterior quantile of h0 (Dupuis & Woan 2005)",
+    "narrow-band": "measured: {conf:.0%} Bayesian limit from the loudest 2F of the box with its "
+                   "trials factor (cwlimits.pulsars.narrowband)"}
 
 
 def known_pulsar_summary(catalogue, setup, noise=DEFAULT_NOISE_MODEL, *, data=None,
                          confidence=0.95, n_noise=200, rng=None, start=DEFAULT_START,
-                         moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA, posterior_noise="student-t"):
+                         moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA, posterior_noise="student-t",
+                         predicted=None, narrow_band_noise="estimated"):
     """One row per known pulsar of ``catalogue`` (rows without a known spin are skipped).
 
     Parameters
@@ -40,12 +54,19 @@ def known_pulsar_summary(catalogue, setup, noise=DEFAULT_NOISE_MODEL, *, data=No
         As in :func:`.expected.targeted_sensitivity`.
     posterior_noise : str
         Noise model of the measured limits (:func:`.posterior.pulsar_posterior`).
+    narrow_band_noise : {'estimated', 'given'}
+        Noise of the measured narrow-band limits (:func:`.narrowband.narrow_band_limit`).
+    predicted : dict of str -> QTable, optional
+        Tables of :func:`.expected.targeted_sensitivity` already computed for this setup
+        and noise (e.g. by the ranking's plans), used instead of computing them again.
 
     Returns
     -------
     astropy.table.QTable
         ``name``, ``f_rot``, ``f_gw``, ``kind``, ``h0_spindown``, ``h95_predicted``,
-        ``factor_k``, ``h95_measured`` (NaN without data), ``limit_source``, and for the
+        ``factor_k``, ``h95_measured`` (NaN without data), ``limit_source``,
+        ``limit_method`` (which kind of limit: predicted or measured, targeted posterior
+        or narrow-band loudest-template limit), and for the
         reported limit ``ratio_spindown``, ``spindown_fraction``, ``eps_limit``,
         ``q22_limit``.  ``meta['assumptions']`` as in the functions it calls.
     """
@@ -59,24 +80,39 @@ def known_pulsar_summary(catalogue, setup, noise=DEFAULT_NOISE_MODEL, *, data=No
         raise InputError(f"data given for names that are not known pulsars of the "
                          f"catalogue: {', '.join(unknown)}")
     rows, info = [], {}
+    predicted = dict(predicted or {})
     for t in pulsars:
-        pred = targeted_sensitivity(t, setup, noise, confidence=confidence, n_noise=n_noise,
-                                    rng=rng, start=start, moment_of_inertia=moment_of_inertia)
+        pred = predicted.get(t.name)
+        if pred is None:
+            pred = targeted_sensitivity(t, setup, noise, confidence=confidence,
+                                        n_noise=n_noise, rng=rng, start=start,
+                                        moment_of_inertia=moment_of_inertia)
         info = dict(pred.meta["assumptions"])
+        kind = str(pred["kind"][0])
         measured = np.nan
-        if t.name in data:
+        method = PREDICTED_METHODS[kind]
+        if t.name in data and kind == "targeted":
             post = pulsar_posterior(data[t.name], t, noise=posterior_noise,
                                     confidence=confidence)
             measured = post.upper_limit
+            method = MEASURED_METHODS["targeted"]
             info["measured"] = f"{post.sampler} posterior, noise {post.noise}"
+        elif t.name in data:
+            nb = narrow_band_limit(data[t.name], t, noise=narrow_band_noise,
+                                   confidence=confidence)
+            measured = nb.upper_limit
+            method = MEASURED_METHODS["narrow-band"]
+            info[f"measured_{t.name}"] = nb.assumptions["method"] + "; " + \
+                nb.assumptions["box"]
         limit = measured if np.isfinite(measured) else float(pred["h95"][0])
         ratios = spindown_ratios(limit, t, moment_of_inertia)
         rows.append({
             "name": t.name, "f_rot": t.f_rot.to_value(u.Hz),
-            "f_gw": pred["f_gw"][0].to_value(u.Hz), "kind": str(pred["kind"][0]),
+            "f_gw": pred["f_gw"][0].to_value(u.Hz), "kind": kind,
             "h0_spindown": ratios["h0_spindown"], "h95_predicted": float(pred["h95"][0]),
             "factor_k": float(pred["factor_k"][0]), "h95_measured": measured,
             "limit_source": "measured" if np.isfinite(measured) else "predicted",
+            "limit_method": method.format(conf=confidence),
             "ratio_spindown": ratios["ratio_spindown"],
             "spindown_fraction": ratios["spindown_fraction"],
             "eps_limit": ratios["eps_limit"],

@@ -26,8 +26,10 @@ from cwlimits.limits.results import load_results
 from cwlimits.limits.upper import band_posterior, upper_limits
 from cwlimits.noise import get_noise
 from cwlimits.planning.optimise import rank_targets
+from cwlimits.pulsars.data import read_detector_files
 from cwlimits.report.html import Report, check_report_folder, file_sha256
 from cwlimits.report.pulsars import known_pulsar_section
+from cwlimits.report.validation import validation_section
 from cwlimits.runtime.executor import named_seed
 from cwlimits.searchspace.cost import computing_cost, scan_cost
 from cwlimits.searchspace.searchsetup import load_setup
@@ -98,6 +100,9 @@ def run_report(config, *, echo=None, progress=None, simulate=False, overwrite=Fa
     if config["catalogue.targets"]:
         catalogue = catalogue.select(config["catalogue.targets"])
     noise = get_noise(config["noise.model"])
+    # the known pulsars' data files are read (and checked) before any work
+    pulsar_data = {name: read_detector_files(files, detectors=config["data.detectors"])
+                   for name, files in config["pulsars.data"].items()}
     indirect = indirect_limits(catalogue, config["indirect.braking_index"],
                                config["indirect.moment_of_inertia"],
                                rng=named_seed(seed, "indirect"))
@@ -164,6 +169,10 @@ def run_report(config, *, echo=None, progress=None, simulate=False, overwrite=Fa
         if ranking is not None:
             _ranking_section(rep, ranking, plans)
         _plan_sections(rep, plans, sensitivities)
+        if config["validation.injections"] > 0:
+            validation_section(rep, plans, n_injections=config["validation.injections"],
+                               seed=seed, confidence=config["statistics.confidence"],
+                               false_alarm=config["statistics.false_alarm"], echo=echo)
         for name, table in limits.items():
             _limits_section(rep, config, plans[name]["target"], plans[name]["setup"],
                             results[name], table, noise, simulated=simulate,
@@ -174,7 +183,8 @@ def run_report(config, *, echo=None, progress=None, simulate=False, overwrite=Fa
                              detectors=tuple(config["data.detectors"]),
                              duty_factor=config["data.duty_factor"], start=config["data.start"],
                              confidence=config["statistics.confidence"], seed=seed,
-                             simulate=simulate, echo=echo)
+                             simulate=simulate, data=pulsar_data, echo=echo,
+                             predicted=_known_predictions(ranking))
         rep.assumptions(_assumptions(config, noise),
                         heading="Assumptions of the whole analysis")
         record = {"configuration": config.resolved(), "seed": seed,
@@ -183,6 +193,13 @@ def run_report(config, *, echo=None, progress=None, simulate=False, overwrite=Fa
         folder = rep.write(record)
     progress()
     return folder
+
+
+def _known_predictions(ranking):
+    """The known pulsars' expected-limit tables the ranking computed (reused, not redone)."""
+    if ranking is None:
+        return {}
+    return {name: plan.table for name, plan in ranking.known_plans.items()}
 
 
 #: Steps of :func:`run_report` that call ``progress``.

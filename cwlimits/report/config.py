@@ -26,7 +26,8 @@ __all__ = ["CONFIG_KEYS", "AnalysisConfig", "load_config"]
 _REQUIRED = object()
 
 #: key -> (kind, unit or choices, default, description).  Kinds: str, int, float, bool,
-#: quantity, path, noise (a model name or a path), list[str], choice, mapping[path].
+#: quantity, path, noise (a model name or a path), list[str], choice, mapping[path],
+#: mapping[mapping[path]] (name -> detector -> path).
 CONFIG_KEYS = {
     "title": ("str", None, "cwlimits report", "title of the report"),
     "seed": ("int", None, 2026, "seed of every random draw (a whole number >= 0)"),
@@ -70,6 +71,14 @@ CONFIG_KEYS = {
     "limits.distance_prior": ("choice", ("uniform", "log-normal"), "uniform",
                               "prior over the distance range"),
     "results": ("mapping[path]", None, {}, "per target: its search results file"),
+    "pulsars.data": ("mapping[mapping[path]]", None, {},
+                     "per known pulsar, its down-converted data: a table "
+                     "[pulsars.data.\"NAME\"] of detector = \"file\" (one file of the "
+                     "down-converted format per detector of data.detectors); the "
+                     "known-pulsar section then shows the measured limits from them"),
+    "validation.injections": ("int", None, 0,
+                              "mock-search injections per h0 (and noise-only, noise-free "
+                              "runs) for each planned setup; 0: no validation section"),
 }
 
 
@@ -115,6 +124,9 @@ class AnalysisConfig:
             files["noise"] = noise
         for name, path in self.values["results"].items():
             files[f"results:{name}"] = path
+        for name, per_detector in self.values["pulsars.data"].items():
+            for det, path in per_detector.items():
+                files[f"pulsar-data:{name}:{det}"] = path
         return files
 
 
@@ -183,6 +195,20 @@ def _read(path, key, raw, base):
             if not isinstance(value, str):
                 _fail(path, f"{key}.{name}", "must be a path (a string)", value)
             out[name] = (base / value).resolve()
+        return out
+    if kind == "mapping[mapping[path]]":
+        if not isinstance(raw, dict):
+            _fail(path, key, "must be a table of name = {detector = \"path\", ...}", raw)
+        out = {}
+        for name, inner in raw.items():
+            if not isinstance(inner, dict) or not inner:
+                _fail(path, f"{key}.{name}", "must be a non-empty table of detector = "
+                      "\"path\"", inner)
+            out[name] = {}
+            for det, value in inner.items():
+                if not isinstance(value, str):
+                    _fail(path, f"{key}.{name}.{det}", "must be a path (a string)", value)
+                out[name][det] = (base / value).resolve()
         return out
     raise AssertionError(kind)  # pragma: no cover - the table above is exhaustive
 
@@ -282,6 +308,9 @@ def _check(path, values, found):
             except SizeLimitError as exc:
                 raise ConfigError(f"key '{key}': {exc.reason}", file=str(path),
                                   value=written(key)) from None
+    if values["validation.injections"] < 0:
+        _fail(path, "validation.injections", "must be a whole number >= 0",
+              written("validation.injections"))
     if values["planning.max_targets"] < 1:
         _fail(path, "planning.max_targets", "must be at least 1",
               written("planning.max_targets"))
@@ -303,3 +332,22 @@ def _check(path, values, found):
         if name not in catalogue.names:
             _fail(path, f"results.{name}", f"results for an unknown target '{name}' (the "
                   f"catalogue has {', '.join(catalogue.names)})", name)
+    _check_pulsar_data(path, values, catalogue)
+
+
+def _check_pulsar_data(path, values, catalogue):
+    """``pulsars.data``: known pulsars of the catalogue, the analysis's detectors, files."""
+    known = [t.name for t in catalogue if t.has_spin]
+    for name, per_detector in values["pulsars.data"].items():
+        key = f"pulsars.data.{name}"
+        if name not in known:
+            _fail(path, key, f"'{name}' is not a known pulsar of the catalogue (rows with "
+                  f"f_rot and fdot_rot: {', '.join(known) or 'none'})", name)
+        if values["catalogue.targets"] and name not in values["catalogue.targets"]:
+            _fail(path, key, f"'{name}' is not among catalogue.targets", name)
+        for det, file in per_detector.items():
+            if det not in values["data.detectors"]:
+                _fail(path, f"{key}.{det}", "a detector that is not in data.detectors ("
+                      f"{', '.join(values['data.detectors'])})", det)
+            if not Path(file).is_file():
+                _fail(path, f"{key}.{det}", f"file not found (looked for {file})", str(file))

@@ -27,6 +27,10 @@ from cwlimits.searchspace.searchsetup import SearchSetup
 
 __all__ = ["known_pulsar_setup", "simulate_noise_only", "known_pulsar_section"]
 
+#: Sample length of the simulated data of a narrow-band pulsar (a residual frequency nu
+#: loses sinc(pi nu dt) of its amplitude in a sample of length dt).
+NARROW_BAND_SAMPLE = 6 * u.hour
+
 #: Noise-only draws of each predicted limit in a report (Monte-Carlo error ~2 %).
 REPORT_NOISE_DRAWS = 100
 
@@ -83,10 +87,15 @@ def simulate_noise_only(target, setup, noise, start_gps, rng, *, sample=1 * u.da
 
 
 def known_pulsar_section(rep, catalogue, noise, *, span, detectors, duty_factor, start,
-                         confidence, seed, simulate, data=None, echo=print):
+                         confidence, seed, simulate, data=None, echo=print,
+                         predicted=None):
     """Add the known-pulsar section to ``rep`` (a :class:`~cwlimits.report.html.Report`).
 
-    Returns the summary table, or None when the catalogue has no known pulsar.
+    ``data`` maps pulsar names to their down-converted data (the configuration key
+    ``pulsars.data``; with ``simulate`` the others get simulated noise-only data);
+    ``predicted`` maps names to expected-limit tables already computed for the same span,
+    detectors and noise (the ranking's), which are reused.  Returns the summary table, or
+    None when the catalogue has no known pulsar.
     """
     from astropy.time import Time
 
@@ -101,29 +110,35 @@ def known_pulsar_section(rep, catalogue, noise, *, span, detectors, duty_factor,
     f_max = max(2 * t.f_rot for t in pulsars)
     setup = known_pulsar_setup(span, detectors, duty_factor, f_max)
     data = dict(data or {})
+    given = {name: getattr(d, "source", str(d)) for name, d in data.items()}
     if simulate:
         with warnings.catch_warnings():
             # a start after the last leap-second table is fine here (ERFA "dubious year")
             warnings.simplefilter("ignore", ErfaWarning)
             start_gps = float(Time(start).gps)
-        # a measured limit from the targeted posterior is only meaningful for a pulsar
-        # whose phase is known: no simulated data for one with timing uncertainties
+        # a pulsar whose timing leaves a box (narrow-band) gets shorter samples, so that
+        # a signal anywhere in the box survives the averaging of a sample
         for t in pulsars:
-            if t.f_rot_err is not None or t.fdot_rot_err is not None:
-                continue
+            narrow = t.f_rot_err is not None or t.fdot_rot_err is not None
             data.setdefault(t.name, simulate_noise_only(
-                t, setup, noise, start_gps, named_seed(seed, f"pulsar-data:{t.name}")))
+                t, setup, noise, start_gps, named_seed(seed, f"pulsar-data:{t.name}"),
+                sample=NARROW_BAND_SAMPLE if narrow else 1 * u.day))
     table = known_pulsar_summary(catalogue, setup, noise, data=data, confidence=confidence,
                                  n_noise=REPORT_NOISE_DRAWS,
-                                 rng=named_seed(seed, "known-pulsars"), start=start)
+                                 rng=named_seed(seed, "known-pulsars"), start=start,
+                                 predicted=predicted)
     echo(f"known pulsars: {len(table)} (predicted" + (" and measured" if data else "")
          + " limits)")
     info = dict(table.meta["assumptions"])
     if simulate:
         info["data"] = ("SIMULATED noise-only down-converted data (no signal), one sample "
-                        "per day in stretches of 24 days with gaps for the duty factor, "
-                        "for the pulsars without timing uncertainties (targeted); the "
-                        "measured limits are those of these simulated data")
+                        "per day (every 6 hours for a pulsar with timing uncertainties) in "
+                        "stretches of 24 samples with gaps for the duty factor; the "
+                        "measured limits are those of these simulated data"
+                        + (" (except " + ", ".join(given) + ")" if given else ""))
+    if given:
+        info["data_files"] = "; ".join(f"{name}: measured limit from {source}"
+                                       for name, source in given.items())
     rep.section(
         "Known pulsars",
         "Stars whose spin is known from electromagnetic timing are searched fully "
@@ -132,7 +147,10 @@ def known_pulsar_section(rep, catalogue, noise, *, span, detectors, duty_factor,
         "small box (narrow-band) otherwise.  The predicted limit is the median 95 % "
         "Bayesian upper limit on noise-only data with the orientation prior integrated "
         "(Dupuis & Woan 2005), or the narrow-band sensitivity; the measured limit is the "
-        "95 % posterior quantile of h0 from the down-converted data.  The spin-down limit "
+        "95 % posterior quantile of h0 from the down-converted data (targeted), or, for a "
+        "narrow-band search, the Bayesian 95 % limit from the loudest F-statistic of the "
+        "box with its trials factor in the likelihood (column limit_method says which "
+        "kind each limit is).  The spin-down limit "
         "h_sd assumes all the rotational energy loss goes into gravitational waves, "
         "I = 1e38 kg m^2 and the catalogue distance (Jaranowski, Krolak & Schutz 1998); "
         "h95/h_sd < 1 means the search constrains the star.  Columns: f_rot, f_gw [Hz]; "
@@ -158,9 +176,13 @@ def known_pulsar_section(rep, catalogue, noise, *, span, detectors, duty_factor,
                        f"the expected 95 % limit of a targeted search over "
                        f"{u.Quantity(span).to(u.day):.4g} (line; K = {k:.3g} times "
                        "sqrt(S_n / T_data), the median of the targeted rows)")
-    if data:
+    if any(kind == "targeted" and name in data
+           for name, kind in zip(table["name"], table["kind"], strict=True)):
         ratio = np.asarray(table["ratio_spindown"], float)
-        names = [n for n in np.asarray(table["name"]) if n in data]
+        # the posterior figure is of a targeted pulsar (the time-domain posterior)
+        kinds = dict(zip(table["name"], table["kind"], strict=True))
+        names = [n for n in np.asarray(table["name"]) if n in data
+                 and kinds[n] == "targeted"]
         best = min(names, key=lambda n: ratio[list(table["name"]).index(n)])
         target = catalogue.target(best)
         post = pulsar_posterior(data[best], target, confidence=confidence)

@@ -45,6 +45,7 @@ from cwlimits.response.antenna import (
 )
 from cwlimits.searchspace.cost import count_templates
 from cwlimits.searchspace.lattices import sample_mismatch
+from cwlimits.sensitivity.mismatch_correction import CORRECTION_TEXT, corrected_mismatch
 from cwlimits.statistics.detection import (
     DEPTH_UNIT,
     QuadratureRule,
@@ -185,8 +186,9 @@ def _mismatch_rule(setup, counts, mismatch, size):
         return (QuadratureRule.fixed(np.minimum(mean, 1.0), name="mismatch"),
                 np.arange(n_bands), f"fixed at the lattice mean of the {' + '.join(stages)} "
                 "grid(s)")
-    if mismatch != "distribution":
-        raise InputError("mismatch must be 'distribution', 'mean' or 'none'", value=mismatch)
+    if mismatch not in ("distribution", "quadratic"):
+        raise InputError("mismatch must be 'distribution', 'quadratic', 'mean' or 'none'",
+                         value=mismatch)
     # Signals uniform relative to each lattice; the StackSlide mismatch is taken as the sum
     # of the coherent and semicoherent mismatches (Prix & Shaltev 2012, arXiv:1201.4321,
     # Sect. 3, from memory), capped at 1.  Fully coherent (N = 1): the coherent grid only.
@@ -199,12 +201,15 @@ def _mismatch_rule(setup, counts, mismatch, size):
     rng = np.random.default_rng(_MISMATCH_SEED)
     for k, (dc, ds) in enumerate(pairs):
         mu = sample_mismatch(setup.lattice, int(dc), mu_coh, size=size, rng=rng)
-        if setup.n_seg > 1:
-            mu = mu + sample_mismatch(setup.lattice, int(ds), mu_semi, size=size, rng=rng)
-        nodes[k] = np.minimum(mu, 1.0)
+        mu_s = (sample_mismatch(setup.lattice, int(ds), mu_semi, size=size, rng=rng)
+                if setup.n_seg > 1 else 0.0)
+        # the hook of the mock-search correction; mismatch='quadratic' opts out
+        nodes[k] = (corrected_mismatch(mu, mu_s, setup.t_seg) if mismatch == "distribution"
+                    else np.minimum(mu + mu_s, 1.0))
     return (QuadratureRule.from_samples(nodes, name="mismatch"), np.ravel(index),
             f"distribution of signals uniform relative to the {setup.lattice} "
-            f"{' + '.join(stages)} grid(s) (mismatches added, Prix & Shaltev 2012), "
+            f"{' + '.join(stages)} grid(s) (quadratic mismatches added, Prix & Shaltev "
+            f"2012{'; ' + CORRECTION_TEXT if mismatch == 'distribution' else ''}), "
             f"{size} fixed draws")
 
 
@@ -229,8 +234,10 @@ def signal_model(setup, noise, target=None, bands=None, *, start=DEFAULT_START,
         Start of the observation for the antenna-pattern averages.
     sky : {'target', 'isotropic'}
         Orientation factor at the target's position, or averaged over the whole sky.
-    mismatch : {'distribution', 'mean', 'none'}
-        The mismatch distribution of the lattices, its mean, or no mismatch.
+    mismatch : {'distribution', 'quadratic', 'mean', 'none'}
+        The mismatch distribution of the lattices (corrected by
+        :mod:`cwlimits.sensitivity.mismatch_correction`), the uncorrected sum of the
+        quadratic-metric draws, the quadratic mean, or no mismatch.
     order : int
         Nodes per dimension of the (cos iota, psi) rule.
     mismatch_samples : int
@@ -308,7 +315,8 @@ def signal_model(setup, noise, target=None, bands=None, *, start=DEFAULT_START,
     mismatch_rule, mismatch_index, mismatch_text = cached(
         ("mismatch", setup.lattice, setup.mismatch_coherent, setup.mismatch_semicoherent,
          setup.n_seg > 1, mismatch, mismatch_samples,
-         None if dims is None else dims.tobytes()),
+         None if dims is None else dims.tobytes(),
+         float(setup.t_seg.to_value(u.s)) if mismatch == "distribution" else None),
         lambda: _mismatch_rule(setup, counts, mismatch, mismatch_samples))
     trials = (np.asarray(counts["n_semi"] if setup.n_seg > 1 else counts["n_coh"], float)
               if n_templates is None else

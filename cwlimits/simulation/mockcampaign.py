@@ -20,7 +20,10 @@ psi in [0, pi), phi0 in [0, 2 pi)).  Three kinds of runs:
   model's :func:`cwlimits.statistics.detection.detection_probability`, which is the solve of
   :func:`cwlimits.sensitivity.model.strain_sensitivity` (orientation rule of the network at
   the sky position over the span and duty factor, mismatch draws, threshold of the bank).
-  The **corrected** model replaces the mismatch draws by the measured ones.
+  The model's mismatch draws are corrected by
+  :mod:`cwlimits.sensitivity.mismatch_correction` as in the sensitivity model (or not:
+  ``mismatch='quadratic'``); both predictions are kept.  The **corrected** columns replace
+  the mismatch draws by the measured ones.
 
 Runs go through :func:`cwlimits.runtime.executor.map_chunks` (resumable with a store,
 identical on any executor).
@@ -39,6 +42,7 @@ from cwlimits.errors import InputError
 from cwlimits.response.antenna import orientation_factor_rule, time_averages
 from cwlimits.runtime.executor import map_chunks
 from cwlimits.searchspace.lattices import sample_mismatch
+from cwlimits.sensitivity.mismatch_correction import CORRECTION_TEXT, corrected_mismatch
 from cwlimits.simulation.mocksearch import demodulated_fstat, mock_search
 from cwlimits.simulation.synthetic import BandData, _check_coord, _jks_amplitudes, gap_mask
 from cwlimits.statistics import detection as det
@@ -47,6 +51,9 @@ __all__ = ["MockCampaignResult", "mock_campaign", "mock_layout"]
 
 PSD_UNIT = u.Hz**-1
 FDOT_UNIT = u.Hz / u.s
+FDDOT_UNIT = u.Hz / u.s**2
+#: Seed of the model's fixed mismatch draws (the same every campaign).
+MODEL_MISMATCH_SEED = 20261202
 #: Kinds of run in a campaign's item list.
 NOISE_ONLY, NOISE_FREE, IN_NOISE = 0, 1, 2
 
@@ -98,7 +105,7 @@ def mock_layout(setup, coord, *, f_ref=None, bandwidth=0.0625 * u.Hz, start=1.3e
                     "flat PSD per detector")
 
 
-def _signal(layout, coord, f_hz, fdot, amplitudes):
+def _signal(layout, coord, f_hz, fdot, amplitudes, fddot=0.0):
     """Band series of a Doppler-modulated signal from its JKS amplitudes (masked).
 
     z_h = [(A1 a + A2 b) - i (A3 a + A4 b)] exp(i dPhi) / 2 with dPhi the heterodyned phase
@@ -106,13 +113,13 @@ def _signal(layout, coord, f_hz, fdot, amplitudes):
     :func:`cwlimits.simulation.synthetic.simulate_signal`, checked equal in the tests).
     """
     a, b = layout.modulation(coord)
-    phase = layout.template_phase(coord, f_hz, fdot, 0.0, doppler=True)
+    phase = layout.template_phase(coord, f_hz, fdot, fddot, doppler=True)
     A1, A2, A3, A4 = amplitudes
     z = 0.5 * ((A1 * a + A2 * b) - 1j * (A3 * a + A4 * b)) * np.exp(1j * phase)
     return np.where(layout.mask, z, 0.0)
 
 
-def _campaign_chunk(chunk, rng, *, layout, coord, setup, f_box, fdot_box):
+def _campaign_chunk(chunk, rng, *, layout, coord, setup, f_box, fdot_box, fddot_box=None):
     """Simulate, search and measure one chunk of runs (plain floats)."""
     kinds = np.asarray(chunk["kind"], int)
     h0 = np.asarray(chunk["h0"], float)
@@ -123,6 +130,7 @@ def _campaign_chunk(chunk, rng, *, layout, coord, setup, f_box, fdot_box):
     for i in range(n):
         f = rng.uniform(*f_box)
         fd = rng.uniform(*fdot_box)
+        fdd = rng.uniform(*fddot_box) if fddot_box is not None else 0.0
         cosi, psi, phi0 = rng.uniform(-1, 1), rng.uniform(0, np.pi), rng.uniform(0, 2 * np.pi)
         shape = layout.data.shape
         noise = sigma[..., None] * (rng.standard_normal(shape) + 1j * rng.standard_normal(shape))
@@ -130,18 +138,22 @@ def _campaign_chunk(chunk, rng, *, layout, coord, setup, f_box, fdot_box):
                                                                                       complex)
         if kinds[i] != NOISE_ONLY:
             amp = h0[i] if kinds[i] == IN_NOISE else 1e-20
-            s = _signal(layout, coord, f, fd, _jks_amplitudes(amp, cosi, psi, phi0))
+            s = _signal(layout, coord, f, fd, _jks_amplitudes(amp, cosi, psi, phi0), fdd)
             sig_data = replace(layout, data=s, _cache=layout._cache)
             out["rho2"][i] = demodulated_fstat(sig_data, coord, [f] * u.Hz,
-                                               [fd] * FDOT_UNIT).sum()
+                                               [fd] * FDOT_UNIT, [fdd] * FDDOT_UNIT).sum()
             z = z + s
         data = replace(layout, data=z, _cache=layout._cache)
         res = mock_search(data, coord, setup, tuple(np.array(f_box) * u.Hz),
-                          tuple(np.array(fdot_box) * FDOT_UNIT))
+                          tuple(np.array(fdot_box) * FDOT_UNIT), fddot_box=_fddot_q(fddot_box))
         out["two_f_max"][i] = res.two_f.value.max()
         out["f_hz"][i], out["fdot_hz_s"][i], out["cosi"][i] = f, fd, cosi
         out["n_templates"][i] = len(res.bank)
     return out
+
+
+def _fddot_q(box):
+    return None if box is None else tuple(np.array(box) * FDDOT_UNIT)
 
 
 def _crossing(log_h0, curve, level):
@@ -171,6 +183,13 @@ class MockCampaignResult:
     mismatch_measured, mismatch_model : ndarray
     model_h0, model_curve, corrected_curve : ndarray
     assumptions : dict of str
+    noise_max : ndarray
+        Loudest 2F_sum of the bank in each noise-only run.
+    model : dict
+        The model's inputs: ``threshold``, ``n_seg``, ``t_data_s``, ``s_ref`` (1/Hz),
+        ``r2_nodes`` and ``r2_weights`` (orientation rule), ``mu_coherent`` and
+        ``mu_semicoherent`` (the quadratic-metric draws of the two stages, before they are
+        added and capped; the second is zero for N = 1).
     """
 
     table: QTable
@@ -181,6 +200,8 @@ class MockCampaignResult:
     model_curve: np.ndarray
     corrected_curve: np.ndarray
     assumptions: dict
+    noise_max: np.ndarray = None
+    model: dict = None
 
 
 def mock_campaign(setup, coord, *, f_box_width=0.004 * u.Hz, fdot_box=None, duty=1.0,
@@ -188,7 +209,7 @@ def mock_campaign(setup, coord, *, f_box_width=0.004 * u.Hz, fdot_box=None, duty
                                                                           1.25, 1.6),
                   n_injections=50, n_noise=50, n_mismatch=50, bandwidth=0.0625 * u.Hz,
                   interval=0.95, rng=0, executor=None, store=None, key=None,
-                  progress=False, chunk_size=10):
+                  progress=False, chunk_size=10, mismatch="distribution", fddot_box=None):
     """Injection campaign of the directed mock search of one setup.
 
     Parameters
@@ -221,12 +242,23 @@ def mock_campaign(setup, coord, *, f_box_width=0.004 * u.Hz, fdot_box=None, duty
         Root seed of :func:`~cwlimits.runtime.executor.map_chunks`.
     executor, store, key, progress, chunk_size
         As in :func:`~cwlimits.runtime.executor.map_chunks`.
+    mismatch : {'distribution', 'quadratic'}
+        The model's mismatch, as in :func:`cwlimits.sensitivity.model.signal_model`: the
+        lattice draws with the correction of :mod:`cwlimits.sensitivity.mismatch_correction`
+        (default) or the uncorrected sum of the quadratic draws.  Both predictions are in
+        the table (``predicted``, ``predicted_quadratic``) and the summary.
+    fddot_box : (Quantity, Quantity) ['frequency / time2'], optional
+        For a parameter space with a second spin-down derivative: the searched fddot range
+        (signals drawn uniformly in it, banks in (f, fdot, fddot), the model's mismatch
+        draws in three dimensions).  Default a search in (f, fdot).
 
     Returns
     -------
     MockCampaignResult
     """
     coord = _check_coord(coord)
+    if mismatch not in ("distribution", "quadratic"):
+        raise InputError("mismatch must be 'distribution' or 'quadratic'", value=mismatch)
     for name, value in (("n_injections", n_injections), ("n_noise", n_noise),
                         ("n_mismatch", n_mismatch)):
         if int(value) < 1:
@@ -249,9 +281,16 @@ def mock_campaign(setup, coord, *, f_box_width=0.004 * u.Hz, fdot_box=None, duty
     half = 0.5 * float(f_box_width.to_value(u.Hz))
     f_box = (f_mid - half, f_mid + half)
     fd_box = tuple(float(q.to_value(FDOT_UNIT)) for q in fdot_box)
+    fdd_box = (None if fddot_box is None else
+               tuple(float(u.Quantity(q).to_value(FDDOT_UNIT)) for q in fddot_box))
+    n_dims = 2 if fdd_box is None else 3
     # the bank (its size sets the model's trials factor): a search of the empty layout
     n_templates = len(mock_search(layout, coord, setup, tuple(np.array(f_box) * u.Hz),
-                                  tuple(np.array(fd_box) * FDOT_UNIT)).bank)
+                                  tuple(np.array(fd_box) * FDOT_UNIT),
+                                  fddot_box=_fddot_q(fdd_box)).bank)
+    if n_templates == 0:
+        raise InputError("the searched box holds no template of the bank: widen it",
+                         value=(f_box, fd_box, fdd_box))
     n_seg = setup.n_seg
     threshold = float(det.false_alarm_threshold(false_alarm, n_templates, n_seg).value)
     # the model: orientation rule of the network over the span and duty, mismatch draws
@@ -266,13 +305,16 @@ def mock_campaign(setup, coord, *, f_box_width=0.004 * u.Hz, fdot_box=None, duty
     # between segments, times the duty factor), per the weighted network exposure
     t_data = avg.exposure * (n_seg * layout.t_seg.to_value(u.s) / span_s)
     s_ref = psd_hz.min() * PSD_UNIT
-    mm_rng = np.random.default_rng(20261202)
-    mu_model = sample_mismatch(setup.lattice, 2, setup.mismatch_coherent, 4096, mm_rng)
-    if n_seg > 1:
-        mu_model = mu_model + sample_mismatch(setup.lattice, 2, setup.mismatch_semicoherent,
-                                              4096, mm_rng)
-    mu_model = np.minimum(mu_model, 1.0)
+    mm_rng = np.random.default_rng(MODEL_MISMATCH_SEED)
+    mu_c = sample_mismatch(setup.lattice, n_dims, setup.mismatch_coherent, 4096, mm_rng)
+    mu_s = (sample_mismatch(setup.lattice, n_dims, setup.mismatch_semicoherent, 4096, mm_rng)
+            if n_seg > 1 else np.zeros_like(mu_c))
+    mu_quad = np.minimum(mu_c + mu_s, 1.0)
+    mu_model = (corrected_mismatch(mu_c, mu_s, layout.t_seg) if mismatch == "distribution"
+                else mu_quad)
     h0_pred = float(det.solve_amplitude(threshold, n_seg, t_data, s_ref, rule, mu_model,
+                                        probability=confidence, method="exact").value)
+    h0_quad = float(det.solve_amplitude(threshold, n_seg, t_data, s_ref, rule, mu_quad,
                                         probability=confidence, method="exact").value)
     h0 = h0_pred * np.asarray(h0_factors, float)
     kinds = np.concatenate([np.full(n_noise, NOISE_ONLY), np.full(n_mismatch, NOISE_FREE),
@@ -280,7 +322,7 @@ def mock_campaign(setup, coord, *, f_box_width=0.004 * u.Hz, fdot_box=None, duty
     h0_items = np.concatenate([np.zeros(n_noise + n_mismatch),
                                np.repeat(h0, n_injections)])
     func = functools.partial(_campaign_chunk, layout=layout, coord=coord, setup=setup,
-                             f_box=f_box, fdot_box=fd_box)
+                             f_box=f_box, fdot_box=fd_box, fddot_box=fdd_box)
     out = map_chunks(func, {"kind": kinds, "h0": h0_items}, chunk_size=int(chunk_size),
                      executor=executor, seed=rng, store=store, key=key, progress=progress,
                      desc="mock-search runs")
@@ -296,6 +338,8 @@ def mock_campaign(setup, coord, *, f_box_width=0.004 * u.Hz, fdot_box=None, duty
                                           mu_model, method="exact").to_value(u.one)
     corrected = det.detection_probability(h0, threshold, n_seg, t_data, s_ref, rule,
                                           mu_meas, method="exact").to_value(u.one)
+    predicted_quad = det.detection_probability(h0, threshold, n_seg, t_data, s_ref, rule,
+                                               mu_quad, method="exact").to_value(u.one)
     h0_corr = float(det.solve_amplitude(threshold, n_seg, t_data, s_ref, rule, mu_meas,
                                         probability=confidence, method="exact").value)
     model_h0 = np.geomspace(h0.min() / 1.2, h0.max() * 1.2, 64)
@@ -324,6 +368,7 @@ def mock_campaign(setup, coord, *, f_box_width=0.004 * u.Hz, fdot_box=None, duty
     table["ci_high"] = ci[:, 1] << u.one
     table["predicted"] = predicted << u.one
     table["corrected"] = corrected << u.one
+    table["predicted_quadratic"] = predicted_quad << u.one
     assumptions = {
         "signal": "Doppler modulated (astropy Roemer delay at the sky position), f and fdot "
                   "uniform in the searched box (off the template grid), cos(iota) in "
@@ -337,12 +382,17 @@ def mock_campaign(setup, coord, *, f_box_width=0.004 * u.Hz, fdot_box=None, duty
         "search": f"mock search ({setup.lattice} lattice, coherent mismatch "
                   f"{setup.mismatch_coherent:g}, semicoherent "
                   f"{setup.mismatch_semicoherent:g}), box {2 * half:.4g} Hz x "
-                  f"[{fd_box[0]:.3g}, {fd_box[1]:.3g}] Hz/s, {n_templates} templates; "
+                  f"[{fd_box[0]:.3g}, {fd_box[1]:.3g}] Hz/s"
+                  + ("" if fdd_box is None else
+                     f" x [{fdd_box[0]:.3g}, {fdd_box[1]:.3g}] Hz/s^2")
+                  + f", {n_templates} templates; "
                   f"threshold 2F_sum > {threshold:.4g} for false alarm {false_alarm:g} over "
                   "the bank (templates taken as independent)",
-        "model": "orientation rule of the network at the sky position, mismatch draws of "
-                 "the coherent + semicoherent lattices added (Prix & Shaltev 2012), "
-                 "non-central chi^2 with 4 N dof (Wette 2012, arXiv:1111.5650)",
+        "model": "orientation rule of the network at the sky position, quadratic mismatch "
+                 "draws of the coherent + semicoherent lattices added (Prix & Shaltev "
+                 "2012)" + ("; " + CORRECTION_TEXT if mismatch == "distribution" else "")
+                 + ", non-central chi^2 with 4 N dof (Wette 2012, arXiv:1111.5650)",
+        "predicted_quadratic": "the model with the uncorrected quadratic mismatch draws",
         "corrected": "the same model with the measured loudest-template mismatches",
         "intervals": f"Clopper-Pearson {interval:g} (scipy.stats.binomtest)",
     }
@@ -353,11 +403,14 @@ def mock_campaign(setup, coord, *, f_box_width=0.004 * u.Hz, fdot_box=None, duty
         "n_templates": n_templates, "threshold": threshold, "confidence": confidence,
         "h0_predicted": h0_pred, "h0_measured": h0_meas, "h0_measured_range": (h0_lo, h0_hi),
         "h0_corrected": h0_corr, "ratio": h0_meas / h0_pred,
+        "h0_predicted_quadratic": h0_quad, "ratio_quadratic": h0_meas / h0_quad,
+        "mismatch_model_kind": mismatch,
         "ratio_corrected": h0_meas / h0_corr,
         "false_alarm_nominal": float(false_alarm), "false_alarms": n_fa,
         "noise_runs": int(n_noise), "false_alarm_interval": tuple(map(float, fa_ci)),
         "mismatch_mean_measured": float(np.mean(mu_meas)),
         "mismatch_mean_model": float(np.mean(mu_model)),
+        "mismatch_mean_quadratic": float(np.mean(mu_quad)),
         "mismatch_ks_p": float(stats.ks_2samp(mu_meas, mu_model).pvalue),
         "rho2_ratio": float(np.mean(rho2_unit) / rho2_model),
     }
@@ -365,5 +418,8 @@ def mock_campaign(setup, coord, *, f_box_width=0.004 * u.Hz, fdot_box=None, duty
     table.meta["title"] = "Mock-search campaign: measured vs predicted detection efficiency"
     if not math.isfinite(h0_meas):
         summary["note"] = "the measured efficiency does not reach the detection probability"
+    model = {"threshold": threshold, "n_seg": n_seg, "t_data_s": float(t_data.to_value(u.s)),
+             "s_ref": float(s_ref.to_value(PSD_UNIT)), "r2_nodes": np.asarray(rule[0]),
+             "r2_weights": np.asarray(rule[1]), "mu_coherent": mu_c, "mu_semicoherent": mu_s}
     return MockCampaignResult(table, summary, mu_meas, mu_model, model_h0, model_curve,
-                              corr_curve, assumptions)
+                              corr_curve, assumptions, noise_max, model)

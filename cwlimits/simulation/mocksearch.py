@@ -41,9 +41,10 @@ of the exact Doppler phase at the detector samples (for checks and the benchmark
 sums (no FFT), which the search equals to rounding.
 
 Assumptions: known sky position (directed search); Roemer delay only (the Einstein and
-Shapiro delays, <= 1.7 ms, are left out for injections and templates alike); frequency and
-spin-down only (no fddot); known noise level per detector and segment; the searched
-frequencies lie in the inner part of the band, where the interpolator's response is flat.
+Shapiro delays, <= 1.7 ms, are left out for injections and templates alike); frequency,
+spin-down and (with ``fddot_box``) its derivative, no higher ones; known noise level per
+detector and segment; the searched frequencies lie in the inner part of the band, where the
+interpolator's response is flat.
 """
 
 from dataclasses import dataclass
@@ -71,6 +72,7 @@ __all__ = [
 ]
 
 FDOT_UNIT = u.Hz / u.s
+FDDOT_UNIT = u.Hz / u.s**2
 
 #: Default length of the windowed-sinc interpolator (samples) and the Kaiser shape.
 DEFAULT_TAPS = 32
@@ -203,35 +205,40 @@ def resample_to_barycentre(data, coord, *, noise="true", taps=DEFAULT_TAPS):
 # ------------------------------------------------------------------ lattice banks
 
 def lattice_rows(lattice, metric, max_mismatch):
-    """A 2-D lattice bank in (f, fdot) as rows of constant fdot.
+    """A lattice bank in (f, fdot) or (f, fdot, fddot) as rows of constant spin-down.
 
     Parameters
     ----------
     lattice : {'cubic', 'covering'}
-    metric : ndarray (2, 2)
-        The phase metric in SI ((f, fdot) coordinates).
+    metric : ndarray (n, n)
+        The phase metric in SI ((f, fdot[, fddot]) coordinates), n = 2 or 3.
     max_mismatch : float
         Maximum (covering) mismatch of the bank.
 
     Returns
     -------
     dict
-        ``f_step`` (Hz, spacing along a row), ``fdot_step`` (Hz/s, spacing of the rows),
-        ``row_shift`` (Hz: row m starts at m * row_shift modulo f_step, before the metric's
-        f-fdot coupling), ``coupling`` (df/dfdot of the whitened f axis, -R12 / R11) and
-        ``to_lattice`` / ``from_lattice`` (matrices between (f, fdot) and the native
-        coordinates of :class:`cwlimits.searchspace.lattices.Lattice`).
+        ``f_step`` (Hz, spacing along a row), ``fdot_step`` (Hz/s, spacing of the rows in
+        fdot at fixed fddot), ``fddot_step`` (Hz/s^2, n = 3 only), ``row_shift`` and
+        ``coupling`` (n = 2: row m starts at ``coupling * fdot + m * row_shift`` modulo
+        f_step), ``n_dims``, and the matrices ``basis`` (lower-triangular lattice basis,
+        one vector a row), ``rotation`` and ``whiten`` used by the row arithmetic.
 
     Notes
     -----
     Whitening u = R lambda / sqrt(mu) with g = R^T R (R upper triangular, Cholesky), so the
-    second whitened axis depends on fdot only; the lattice generator G (covering radius 1)
-    is rotated by the QR decomposition G^T = Q T into the lower-triangular basis T^T, whose
-    first vector lies along the first axis (Conway & Sloane SPLAG Ch. 2: a rotated lattice
-    has the same covering radius and thickness).
+    last whitened axes depend on the spin-downs only; the lattice generator G (covering
+    radius 1) is rotated by the QR decomposition G^T = Q T into the lower-triangular basis
+    T^T, whose first vector lies along the first axis (Conway & Sloane SPLAG Ch. 2: a
+    rotated lattice has the same covering radius and thickness).  A lattice point
+    ``sum_j n_j b_j`` then has spin-downs set by ``(n_2, ..., n_n)`` alone: a row, a comb in
+    f of spacing ``f_step``.
     """
-    lat = get_lattice(lattice, 2)
     g = np.asarray(metric, float)
+    if g.shape not in ((2, 2), (3, 3)):
+        raise InputError("the mock search takes a metric in (f, fdot) or (f, fdot, fddot)",
+                         value=g.shape)
+    lat = get_lattice(lattice, g.shape[0])
     r = np.linalg.cholesky(g).T                  # upper triangular, g = r^T r
     q, t = np.linalg.qr(lat.generator.T)
     sign = np.sign(np.diag(t))
@@ -239,21 +246,37 @@ def lattice_rows(lattice, metric, max_mismatch):
     basis = t.T                                  # rows (t11, 0), (t12, t22)
     s = np.sqrt(max_mismatch)
     whiten = r / s                               # lambda -> u (rotated lattice frame)
-    return {"lattice": lat, "basis": basis, "rotation": q, "whiten": whiten,
-            "f_step": basis[0, 0] / whiten[0, 0],
-            "fdot_step": basis[1, 1] / whiten[1, 1],
-            "row_shift": basis[1, 0] / whiten[0, 0],
-            "coupling": -whiten[0, 1] / whiten[0, 0]}
+    out = {"lattice": lat, "basis": basis, "rotation": q, "whiten": whiten,
+           "n_dims": int(g.shape[0]),
+           "f_step": basis[0, 0] / whiten[0, 0],
+           "fdot_step": basis[1, 1] / whiten[1, 1],
+           "row_shift": basis[1, 0] / whiten[0, 0],
+           "coupling": -whiten[0, 1] / whiten[0, 0]}
+    if g.shape[0] == 3:
+        out["fddot_step"] = basis[2, 2] / whiten[2, 2]
+    return out
 
 
-def _nearest_rows(bank, df_hz, fdot):
-    """Row index and along-row position (Hz) of the nearest lattice point to each point."""
-    u_rot = np.stack([df_hz, fdot], axis=-1) @ bank["whiten"].T
+def _row_params(bank, idx):
+    """Spin-downs (..., n-1) and f origin (...) of the rows of integer indices idx (..., n-1).
+
+    The point ``sum_{j>=2} n_j b_j`` of the rotated lattice, unwhitened: its last n - 1
+    coordinates fix the spin-downs (triangular whitening), its first the row's origin in f.
+    """
+    w = bank["whiten"]
+    u_pt = np.asarray(idx, float) @ bank["basis"][1:]            # (..., n)
+    spins = np.linalg.solve(w[1:, 1:], u_pt[..., 1:, None])[..., 0]
+    origin = (u_pt[..., 0] - spins @ w[0, 1:]) / w[0, 0]
+    return spins, origin
+
+
+def _nearest_rows(bank, lam):
+    """Row indices (..., n-1) and the nearest lattice point (..., n) to points ``lam``."""
+    u_rot = lam @ bank["whiten"].T
     native = u_rot @ bank["rotation"].T          # into the Lattice's own orientation
     near = bank["lattice"].nearest_point(native) @ bank["rotation"]
-    row = np.rint(near[..., 1] / bank["basis"][1, 1]).astype(int)
-    lam = near @ np.linalg.inv(bank["whiten"]).T
-    return row, lam[..., 0], lam[..., 1]
+    idx = np.rint(near @ np.linalg.inv(bank["basis"])).astype(int)[..., 1:]
+    return idx, near @ np.linalg.inv(bank["whiten"]).T
 
 
 @dataclass(frozen=True, eq=False)
@@ -265,43 +288,78 @@ class TemplateBank:
     frequency : Quantity ['frequency'] (n,)
         At the data's reference time t_ref (barycentric).
     fdot : Quantity ['frequency / time'] (n,)
+    fddot : Quantity ['frequency / time2'] (n,)
+        Zero for a search in (f, fdot).
     """
 
     frequency: u.Quantity
     fdot: u.Quantity
+    fddot: u.Quantity = None
 
     def __len__(self):
         return int(self.frequency.size)
 
 
-def _fine_bank(bank, f_box, fdot_box, s_ref):
-    """All fine lattice points with (f, fdot) at t_ref inside the box.
+def _row_candidates(bank, spin_box):
+    """Integer row indices (k, n-1) whose spin-downs lie in the box ((lo, hi) per spin-down).
 
-    Lattice coordinates are at the barycentric time ``s_ref`` (from t_ref); f at t_ref is
-    f(s_ref) - fdot s_ref.  Rows of constant fdot are enumerated from the box.
+    The last index fixes the last spin-down alone; the earlier ones are enumerated from the
+    box given the later ones (triangular basis), with a margin of one row.
     """
-    fd_step = bank["fdot_step"]
-    m_lo = int(np.floor(fdot_box[0] / fd_step)) - 1
-    m_hi = int(np.ceil(fdot_box[1] / fd_step)) + 1
-    rows = np.arange(m_lo, m_hi + 1)
-    fdots = rows * fd_step
-    keep = (fdots >= fdot_box[0]) & (fdots <= fdot_box[1])
-    rows, fdots = rows[keep], fdots[keep]
+    b, w = bank["basis"], bank["whiten"]
+    n = bank["n_dims"]
+    if n == 2:
+        step = bank["fdot_step"]
+        m = np.arange(int(np.floor(spin_box[0][0] / step)) - 1,
+                      int(np.ceil(spin_box[0][1] / step)) + 2)
+        cand = m[:, None]
+    else:
+        step3 = bank["fddot_step"]
+        n3 = np.arange(int(np.floor(spin_box[1][0] / step3)) - 1,
+                       int(np.ceil(spin_box[1][1] / step3)) + 2)
+        rows = []
+        for k3 in n3:
+            fdd = k3 * step3
+            # fdot = (n2 b22 + n3 b32 - w12 fddot) / w11 (whitened second axis)
+            lo, hi = ((v * w[1, 1] + w[1, 2] * fdd - k3 * b[2, 1]) / b[1, 1]
+                      for v in spin_box[0])
+            for k2 in range(int(np.floor(min(lo, hi))) - 1, int(np.ceil(max(lo, hi))) + 2):
+                rows.append((k2, k3))
+        cand = np.array(rows, int).reshape(-1, 2)
+    spins, _ = _row_params(bank, cand)
+    keep = np.ones(len(cand), bool)
+    for j, (lo, hi) in enumerate(spin_box):
+        keep &= (spins[:, j] >= lo) & (spins[:, j] <= hi)
+    return cand[keep]
+
+
+def _fine_bank(bank, f_box, spin_box, s_ref):
+    """All fine lattice points with f at t_ref and the spin-downs inside the box.
+
+    Lattice coordinates are at the barycentric time ``s_ref`` (from t_ref): f at t_ref is
+    f(s_ref) - fdot s_ref + fddot s_ref^2 / 2 and fdot at t_ref is fdot(s_ref) - fddot
+    s_ref; the spin-down box applies at ``s_ref`` (the mean segment mid-time, about t_ref).
+    Returns (f - f_ref, fdot[, fddot]) at t_ref, each (n,).
+    """
+    rows = _row_candidates(bank, spin_box)
+    spins, origins = _row_params(bank, rows)
+    fd = spins[:, 0]
+    fdd = spins[:, 1] if spins.shape[1] > 1 else np.zeros_like(fd)
     f_step = bank["f_step"]
-    width = (f_box[1] - f_box[0]) + abs(fdots).max(initial=0) * abs(s_ref) + 2 * f_step
+    drift = fd * s_ref - 0.5 * fdd * s_ref**2          # f(s_ref) - f(t_ref)
+    width = (f_box[1] - f_box[0]) + abs(drift).max(initial=0) + 2 * f_step
     check_size("mock_templates", len(rows) * (width / f_step + 2),
                f"a fine bank of {len(rows)} rows x {width / f_step:.3g} templates")
-    out_f, out_fd = [], []
-    for m, fd in zip(rows, fdots, strict=True):
-        # f(s_ref) along row m: coupling * fd + m * row_shift + i * f_step
-        origin = bank["coupling"] * fd + m * bank["row_shift"]
-        lo = f_box[0] + fd * s_ref
-        hi = f_box[1] + fd * s_ref
-        i = np.arange(np.ceil((lo - origin) / f_step), np.floor((hi - origin) / f_step) + 1)
-        f_sref = origin + i * f_step
-        out_f.append(f_sref - fd * s_ref)
-        out_fd.append(np.full(i.size, fd))
-    return np.concatenate(out_f), np.concatenate(out_fd)
+    out = [[] for _ in range(spins.shape[1] + 1)]
+    for j in range(len(rows)):
+        lo, hi = f_box[0] + drift[j], f_box[1] + drift[j]
+        i = np.arange(np.ceil((lo - origins[j]) / f_step),
+                      np.floor((hi - origins[j]) / f_step) + 1)
+        out[0].append(origins[j] + i * f_step - drift[j])
+        out[1].append(np.full(i.size, fd[j] - fdd[j] * s_ref))
+        if spins.shape[1] > 1:
+            out[2].append(np.full(i.size, fdd[j]))
+    return tuple(np.concatenate(o) if o else np.zeros(0) for o in out)
 
 
 # ------------------------------------------------------------------ the search
@@ -336,16 +394,19 @@ class MockSearchResult:
     def loudest(self):
         """The loudest fine template: dict with ``frequency``, ``fdot``, ``two_f``, ``index``."""
         i = int(np.argmax(self.two_f.value))
-        return {"frequency": self.bank.frequency[i], "fdot": self.bank.fdot[i],
-                "two_f": self.two_f[i], "index": i}
+        out = {"frequency": self.bank.frequency[i], "fdot": self.bank.fdot[i],
+               "two_f": self.two_f[i], "index": i}
+        if self.bank.fddot is not None:
+            out["fddot"] = self.bank.fddot[i]
+        return out
 
 
-def _coherent_banks(setup_lattice, t_seg_s, mu_coh):
-    return lattice_rows(setup_lattice, coherent_metric(t_seg_s * u.s, 2), mu_coh)
+def _coherent_banks(setup_lattice, t_seg_s, mu_coh, n_dims=2):
+    return lattice_rows(setup_lattice, coherent_metric(t_seg_s * u.s, n_dims), mu_coh)
 
 
-def mock_search(data, coord, setup, f_box, fdot_box, *, noise="true", taps=DEFAULT_TAPS,
-                keep_segments=False, barycentric=None):
+def mock_search(data, coord, setup, f_box, fdot_box, *, fddot_box=None, noise="true",
+                taps=DEFAULT_TAPS, keep_segments=False, barycentric=None):
     """Run the directed mock search of a setup on band data.
 
     Parameters
@@ -358,6 +419,10 @@ def mock_search(data, coord, setup, f_box, fdot_box, *, noise="true", taps=DEFAU
     f_box : (Quantity, Quantity) ['frequency']
         Searched frequencies at the data's t_ref; within the inner half of the band.
     fdot_box : (Quantity, Quantity) ['frequency / time']
+    fddot_box : (Quantity, Quantity) ['frequency / time2'], optional
+        Searched second derivatives: the banks are then lattices in (f, fdot, fddot) of the
+        three-parameter metrics (for a parameter space with fddot); default a search in
+        (f, fdot).
     noise : {'true', 'median'} or Quantity ['1/frequency']
     taps : int
         Interpolator length for the resampling.
@@ -381,31 +446,48 @@ def mock_search(data, coord, setup, f_box, fdot_box, *, noise="true", taps=DEFAU
     """
     f_lo, f_hi = (float(q.to_value(u.Hz)) for q in f_box)
     fd_lo, fd_hi = (float(q.to_value(FDOT_UNIT)) for q in fdot_box)
-    if not (f_lo <= f_hi and fd_lo <= fd_hi):
-        raise InputError("the box must have f_min <= f_max and fdot_min <= fdot_max",
-                         value=(f_box, fdot_box))
+    spin_box = [(fd_lo, fd_hi)]
+    if fddot_box is not None:
+        spin_box.append(tuple(float(q.to_value(FDDOT_UNIT)) for q in fddot_box))
+    n_dims = len(spin_box) + 1
+    if not (f_lo <= f_hi and all(lo <= hi for lo, hi in spin_box)):
+        raise InputError("the box must have f_min <= f_max and each spin-down's min <= max",
+                         value=(f_box, fdot_box, fddot_box))
     bd = barycentric or resample_to_barycentre(data, coord, noise=noise, taps=taps)
     f_ref, bw = bd.f_ref_hz, bd.bandwidth_hz
     span_s = np.ptp(bd.mid_s) + bd.t_seg_s
     reach = max(abs(fd_lo), abs(fd_hi)) * span_s
+    if n_dims == 3:
+        reach += max(map(abs, spin_box[1])) * span_s**2 / 8
     if f_lo - reach < f_ref - bw / 4 or f_hi + reach > f_ref + bw / 4:
         raise InputError(
             f"the searched box [{f_lo:.9g}, {f_hi:.9g}] Hz (with its spin-down drift of "
             f"{reach:.3g} Hz) must lie in the inner half [{f_ref - bw / 4:.9g}, "
             f"{f_ref + bw / 4:.9g}] Hz of the band", value=(f_lo, f_hi))
     n_seg, m, dt = bd.n_seg, bd.n_samples, bd.dt_s
-    coh = _coherent_banks(setup.lattice, bd.t_seg_s, setup.mismatch_coherent)
+    coh = _coherent_banks(setup.lattice, bd.t_seg_s, setup.mismatch_coherent, n_dims)
     s_ref = float(np.mean(bd.mid_s))
     if n_seg == 1:
         fine = coh
     else:
-        g_semi = semicoherent_metric(bd.t_seg_s * u.s, mid_times=bd.mid_s * u.s, n_dims=2)
+        g_semi = semicoherent_metric(bd.t_seg_s * u.s, mid_times=bd.mid_s * u.s,
+                                     n_dims=n_dims)
         fine = lattice_rows(setup.lattice, g_semi, setup.mismatch_semicoherent)
-    f_t, fd_t = _fine_bank(fine, (f_lo - f_ref, f_hi - f_ref), (fd_lo, fd_hi), s_ref)
+    fine_pts = _fine_bank(fine, (f_lo - f_ref, f_hi - f_ref), spin_box, s_ref)
+    f_t, fd_t = fine_pts[0], fine_pts[1]
+    fdd_t = fine_pts[2] if n_dims == 3 else np.zeros_like(f_t)
     n_fine = f_t.size
-    # the coherent template of every fine template in every segment
-    df_k = f_t[None, :] + fd_t[None, :] * bd.mid_s[:, None]        # (n_seg, n)
-    row, df_c, fd_c = _nearest_rows(coh, df_k, np.broadcast_to(fd_t, df_k.shape))
+    # the coherent template of every fine template in every segment: the fine template's
+    # (f, fdot, fddot) carried to the segment's mid-time (Taylor expansion)
+    t_k = bd.mid_s[:, None]
+    lam_k = [f_t + fd_t * t_k + 0.5 * fdd_t * t_k**2, fd_t + fdd_t * t_k,
+             np.broadcast_to(fdd_t, (n_seg, n_fine))][:n_dims]
+    idx, near = _nearest_rows(coh, np.stack(np.broadcast_arrays(*lam_k), axis=-1))
+    df_c = near[..., 0].copy()
+    rows, row = np.unique(idx.reshape(-1, n_dims - 1), axis=0, return_inverse=True)
+    row = row.reshape(idx.shape[:-1])
+    row_spins, row_origin = _row_params(coh, rows)
+    spins_c = np.empty(idx.shape[:-1] + (n_dims - 1,))
     # FFT length: every r-th bin of spacing B / L lies on a lattice row
     f_step = coh["f_step"]
     r = max(1, int(np.ceil(m * f_step / bw)))
@@ -415,11 +497,14 @@ def mock_search(data, coord, setup, f_box, fdot_box, *, noise="true", taps=DEFAU
     A, B, C = _abc(bd.w, bd.a, bd.b)
     tl = (np.arange(m) - (m - 1) / 2.0) * dt
     n_coh = 0
-    for mrow in np.unique(row):
-        fd_row = mrow * coh["fdot_step"]
-        shift = coh["coupling"] * fd_row + mrow * coh["row_shift"]
+    for mrow in range(len(rows)):
+        fd_row = row_spins[mrow, 0]
+        shift = row_origin[mrow]
         eps = shift - d * np.rint(shift / d)
-        y = bd.wz * np.exp(-2j * np.pi * eps * tl)
+        phase = eps * tl
+        if n_dims == 3:                          # the fddot chirp about the mid-time
+            phase = phase + row_spins[mrow, 1] * tl**3 / 6.0
+        y = bd.wz * np.exp(-2j * np.pi * phase)
         fa, fb = _coherent_stage(y, bd.a, bd.b, fd_row, dt, length)
         tf = _two_f(fa, fb, A[:, None], B[:, None], C[:, None])   # (n_seg, L)
         n_coh += tf.size
@@ -428,25 +513,29 @@ def mock_search(data, coord, setup, f_box, fdot_box, *, noise="true", taps=DEFAU
         bins = np.rint((df_c[sel] - eps) / d).astype(int) + length // 2
         two_f_k[kk, jj] = tf[kk, bins]
         df_c[sel] = eps + (bins - length // 2) * d              # the bin actually used
-        fd_c[sel] = fd_row
+        spins_c[sel] = row_spins[mrow]
     assumptions = {
         "statistic": "StackSlide sum of the JKS 1998 F-statistic (gr-qc/9804014) over "
                      "segments, chi^2 with 4 N_seg degrees of freedom in noise",
         "frame": "resampled to the solar-system barycentre at the known sky position "
                  "(astropy Roemer delay; Einstein and Shapiro delays left out)",
-        "bank": f"{setup.lattice} lattice, coherent mismatch {setup.mismatch_coherent:g}, "
+        "bank": f"{setup.lattice} lattice in {n_dims} parameters, coherent mismatch "
+                f"{setup.mismatch_coherent:g}, "
                 f"semicoherent mismatch {setup.mismatch_semicoherent:g} (quadratic metric)",
         "noise": "Gaussian, stationary per segment, known level per detector and segment",
     }
-    bank = TemplateBank((f_ref + f_t) * u.Hz, fd_t * FDOT_UNIT)
+    bank = TemplateBank((f_ref + f_t) * u.Hz, fd_t * FDOT_UNIT, fdd_t * FDDOT_UNIT)
+    coarse = {"df_hz": df_c, "fdot": spins_c[..., 0]}
+    if n_dims == 3:
+        coarse["fddot"] = spins_c[..., 1]
     return MockSearchResult(bank, two_f_k.sum(axis=0) << u.one,
                             two_f_k if keep_segments else None,
-                            {"df_hz": df_c, "fdot": fd_c}, n_coh, length, assumptions)
+                            coarse, n_coh, length, assumptions)
 
 
 # -------------------------------------------------------------- direct evaluations
 
-def resampled_direct_fstat(bd, df_hz, fdot):
+def resampled_direct_fstat(bd, df_hz, fdot, fddot=None):
     """2F_k by explicit sums on the resampled series at given coherent templates.
 
     Parameters
@@ -454,27 +543,32 @@ def resampled_direct_fstat(bd, df_hz, fdot):
     bd : BarycentricData
     df_hz, fdot : ndarray (n_seg, n)
         Per segment, offset from f_ref at the segment's barycentric mid-time, and spin-down.
+    fddot : ndarray (n_seg, n), optional
+        Second derivative (default 0).
 
     Returns
     -------
     ndarray (n_seg, n)
         ``2F_k = 4 (B abs(Fa)^2 + A abs(Fb)^2 - 2 C Re(Fa conj(Fb))) / D`` with
-        ``Fa = sum_j w z' a exp(-2 pi i (df t_j + fdot t_j^2 / 2))``, ``t_j`` from the
+        ``Fa = sum_j w z' a exp(-2 pi i (df t_j + fdot t_j^2 / 2 + fddot t_j^3 / 6))``,
+        ``t_j`` from the
         mid-time (the F-statistic of Jaranowski, Krolak & Schutz 1998, gr-qc/9804014).
     """
     m = bd.n_samples
     tl = (np.arange(m) - (m - 1) / 2.0) * bd.dt_s
     A, B, C = _abc(bd.w, bd.a, bd.b)
     out = np.empty(np.shape(df_hz))
+    fddot = np.zeros(np.shape(df_hz)) if fddot is None else np.asarray(fddot, float)
     for k in range(bd.n_seg):
-        e = np.exp(-2j * np.pi * (df_hz[k][:, None] * tl + 0.5 * fdot[k][:, None] * tl**2))
+        e = np.exp(-2j * np.pi * (df_hz[k][:, None] * tl + 0.5 * fdot[k][:, None] * tl**2
+                                  + fddot[k][:, None] * tl**3 / 6.0))
         fa = (bd.wz[:, k] * bd.a[:, k]).sum(axis=0) @ e.T
         fb = (bd.wz[:, k] * bd.b[:, k]).sum(axis=0) @ e.T
         out[k] = _two_f(fa, fb, A[k], B[k], C[k])
     return out
 
 
-def demodulated_fstat(data, coord, frequency, fdot, *, noise="true"):
+def demodulated_fstat(data, coord, frequency, fdot, fddot=None, *, noise="true"):
     """Per-segment 2F_k by explicit sums of the exact Doppler phase (no resampling).
 
     Parameters
@@ -484,6 +578,8 @@ def demodulated_fstat(data, coord, frequency, fdot, *, noise="true"):
     frequency : Quantity ['frequency'] (n,)
         Template frequencies at the data's t_ref (barycentric).
     fdot : Quantity ['frequency / time'] (n,)
+    fddot : Quantity ['frequency / time2'] (n,), optional
+        Default 0.
 
     Returns
     -------
@@ -500,6 +596,8 @@ def demodulated_fstat(data, coord, frequency, fdot, *, noise="true"):
     coord = _check_coord(coord)
     f = np.atleast_1d(frequency.to_value(u.Hz))
     fd = np.broadcast_to(np.atleast_1d(fdot.to_value(FDOT_UNIT)), f.shape)
+    fdd = (np.zeros(f.shape) if fddot is None else
+           np.broadcast_to(np.atleast_1d(u.Quantity(fddot).to_value(FDDOT_UNIT)), f.shape))
     check_size("mock_samples", data.data.size * f.size,
                f"a direct F-statistic of {data.data.size} samples x {f.size} templates")
     psd = _psd_values(data, noise)
@@ -509,7 +607,7 @@ def demodulated_fstat(data, coord, frequency, fdot, *, noise="true"):
     wz = w * data.data
     out = np.empty((data.n_seg, f.size))
     for i in range(f.size):
-        phase = data.template_phase(coord, f[i], fd[i], 0.0, doppler=True)
+        phase = data.template_phase(coord, f[i], fd[i], fdd[i], doppler=True)
         e = np.exp(-1j * phase)
         fa = np.sum(wz * a * e, axis=(0, 2))
         fb = np.sum(wz * b * e, axis=(0, 2))

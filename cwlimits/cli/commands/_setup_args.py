@@ -59,8 +59,10 @@ def add_signal_model_args(parser):
     model = parser.add_argument_group("signal model")
     model.add_argument("--sky", choices=("target", "isotropic"), default="target",
                        help="orientation factor at the target (default) or all-sky")
-    model.add_argument("--mismatch", choices=("distribution", "mean", "none"),
-                       default="distribution", help="mismatch model (default distribution)")
+    model.add_argument("--mismatch", choices=("distribution", "quadratic", "mean", "none"),
+                       default="distribution",
+                       help="mismatch model (default distribution: the lattice draws with "
+                            "the mock-search correction; quadratic: uncorrected)")
     model.add_argument("--start", default=DEFAULT_START,
                        help=f"start of the data, UTC (default {DEFAULT_START})")
     return model

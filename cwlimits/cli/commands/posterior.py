@@ -56,8 +56,12 @@ def register(subparsers, common):
     parser.add_argument("--noise", choices=PULSAR_NOISE_MODES, default="student-t",
                         help="noise per stretch marginalised (default), the file's sigma, "
                              "or estimated from each stretch")
-    parser.add_argument("--harmonic", choices=PULSAR_HARMONICS, default="22",
-                        help="data at 2 f_rot (h0; default) or at f_rot (C21)")
+    parser.add_argument("--harmonic", choices=(*PULSAR_HARMONICS, "dual"), default="22",
+                        help="data at 2 f_rot (h0; default), at f_rot (C21), or 'dual': "
+                             "the joint fit of C21 and C22 (DATA at 2 f_rot, --data-21 at "
+                             "f_rot)")
+    parser.add_argument("--data-21", metavar="FILE",
+                        help="with --harmonic dual: the samples down-converted at f_rot")
     parser.add_argument("--h0-prior", choices=("uniform", "log-uniform"), default="uniform")
     parser.add_argument("--h0-min", type=float, default=None,
                         help="lower end of a log-uniform prior")
@@ -111,7 +115,12 @@ def run(args):
         detectors = load_setup(args.setup).detectors
     if args.steps > 10**6 or args.walkers > 10**4:
         raise InputError("--steps at most 1e6 and --walkers at most 1e4")
+    if (args.harmonic == "dual") != (args.data_21 is not None):
+        raise InputError("--harmonic dual and --data-21 go together (the joint fit needs the "
+                         "data at f_rot and at 2 f_rot)")
     data = read_down_converted(args.data, detectors=detectors, max_stretch=args.max_stretch)
+    if args.harmonic == "dual":
+        return _run_dual(args, target, data, detectors, out)
     post = pulsar_posterior(data, target, noise=args.noise, h0_prior=args.h0_prior,
                             h0_min=args.h0_min, h0_max=args.h0_max,
                             orientation=args.orientation, confidence=args.confidence,
@@ -149,5 +158,35 @@ def run(args):
             echo(args, f"wrote {corner}")
     if out is not None:
         write_table(table, out, title=f"upper limit for {target.name}", assumptions=info)
+        echo(args, f"wrote {out}")
+    return 0
+
+
+def _run_dual(args, target, data, detectors, out):
+    """The joint C21/C22 fit (cwlimits.pulsars.dual): table and assumptions."""
+    from cwlimits.pulsars.data import read_down_converted
+    from cwlimits.pulsars.dual import dual_harmonic_posterior, dual_limit_table
+    from cwlimits.tables import write_table
+
+    if args.noise == "student-t" or args.sampler != "grid" or args.plot or args.corner:
+        raise InputError("--harmonic dual takes --noise given or estimated, the grid "
+                         "sampler and no figures")
+    data_21 = read_down_converted(args.data_21, detectors=detectors,
+                                  max_stretch=args.max_stretch)
+    post = dual_harmonic_posterior(data_21, data, target, noise=args.noise,
+                                   orientation=args.orientation, confidence=args.confidence)
+    table = dual_limit_table(post, target, moment_of_inertia=args.moment_of_inertia)
+    info = dict(table.meta["assumptions"], seed=str(args.seed))
+    row = table[0]
+    echo(args, f"{100 * post.confidence:g} % upper limits for {target.name} from "
+               f"{args.data_21} (f_rot) and {args.data} (2 f_rot), joint fit")
+    echo(args, format_rows(["target", "C21 limit", "C22 limit", "2 C22 / h_sd", "eps"],
+                           [[row["target"], sci(row["c21_limit"]), sci(row["c22_limit"]),
+                             sci(row["ratio_spindown"]), sci(row["eps_limit"])]]))
+    echo(args)
+    echo(args, format_assumptions(info))
+    if out is not None:
+        write_table(table, out, title=f"dual-harmonic limits for {target.name}",
+                    assumptions=info)
         echo(args, f"wrote {out}")
     return 0
