@@ -190,7 +190,7 @@ def _narrow_band(setup, sums, prior, box, confidence, false_alarm):
                          rng=_MISMATCH_SEED)
     mismatch = QuadratureRule.from_samples(np.minimum(mu, 1.0), name="mismatch")
     h = solve_amplitude(threshold, 1, sums["exposure"] * u.s, sums["s_ref"] / u.Hz,
-                        _r2_rule(sums["averages"], prior), mismatch, probability=confidence)
+                        _r2_rule(sums["averages"], prior), mismatch, confidence=confidence)
     cost = (n_templates * setup.n_detectors * setup.cost_coherent).to(u.h)
     return float(h.value), n_templates, float(threshold.value), cost, dims
 

@@ -452,7 +452,7 @@ def injection_campaign(coord: SkyCoord, *, detectors="H1", psd: u.Quantity = 1e-
     rule = (r2.to_value(u.one), w)
     exposure, s_ref = avg.exposure, psd_hz.min() * PSD_UNIT
     h0_pred = float(det.solve_amplitude(threshold, n_seg, exposure, s_ref, rule,
-                                        probability=confidence, method="exact").value)
+                                        confidence=confidence, method="exact").value)
     if h0_values is None:
         low, high, steps = h0_grid
         if not (0 < float(low) < float(high) and math.isfinite(float(high))

@@ -327,9 +327,9 @@ def mock_campaign(setup: SearchSetup, coord: SkyCoord, *, f_box_width: u.Quantit
     mu_model = (corrected_mismatch(mu_c, mu_s, layout.t_seg) if mismatch == "distribution"
                 else mu_quad)
     h0_pred = float(det.solve_amplitude(threshold, n_seg, t_data, s_ref, rule, mu_model,
-                                        probability=confidence, method="exact").value)
+                                        confidence=confidence, method="exact").value)
     h0_quad = float(det.solve_amplitude(threshold, n_seg, t_data, s_ref, rule, mu_quad,
-                                        probability=confidence, method="exact").value)
+                                        confidence=confidence, method="exact").value)
     h0 = h0_pred * np.asarray(h0_factors, float)
     kinds = np.concatenate([np.full(n_noise, NOISE_ONLY), np.full(n_mismatch, NOISE_FREE),
                             np.full(h0.size * n_injections, IN_NOISE)])
@@ -355,7 +355,7 @@ def mock_campaign(setup: SearchSetup, coord: SkyCoord, *, f_box_width: u.Quantit
     predicted_quad = det.detection_probability(h0, threshold, n_seg, t_data, s_ref, rule,
                                                mu_quad, method="exact").to_value(u.one)
     h0_corr = float(det.solve_amplitude(threshold, n_seg, t_data, s_ref, rule, mu_meas,
-                                        probability=confidence, method="exact").value)
+                                        confidence=confidence, method="exact").value)
     model_h0 = np.geomspace(h0.min() / 1.2, h0.max() * 1.2, 64)
     model_curve = det.detection_probability(model_h0, threshold, n_seg, t_data, s_ref, rule,
                                             mu_model, method="exact").to_value(u.one)

@@ -41,6 +41,7 @@ from numpy.typing import ArrayLike
 from scipy import special, stats
 from scipy.optimize import elementwise
 
+from cwlimits._deprecate import renamed_keywords
 from cwlimits._units import fraction, positive_finite, to_value
 from cwlimits.errors import ComputationError, InputError
 
@@ -1159,33 +1160,37 @@ def _solve(threshold, n_seg, r2_rule, mismatch_rule, probability, convention, me
     return solve_log_amplitude(thr, nseg, prob, rule, method)
 
 
+@renamed_keywords(probability="confidence")
 def solve_amplitude(threshold: float | ArrayLike, n_seg: int | ArrayLike, t_data: u.Quantity,
                     psd: u.Quantity, r2_rule: u.Quantity | QuadratureRule | ArrayLike,
-                    mismatch_rule: u.Quantity | QuadratureRule | ArrayLike = 0.0, probability=0.9,
+                    mismatch_rule: u.Quantity | QuadratureRule | ArrayLike = 0.0,
+                    confidence: float | ArrayLike = 0.9,
                     convention: str = "total", method: str = "auto",
                     max_nodes: int = DEFAULT_MAX_NODES) -> u.Quantity:
-    """Amplitude ``h0`` at which the detection probability above ``threshold`` is ``probability``.
+    """Amplitude ``h0`` at which the detection probability above ``threshold`` is ``confidence``.
 
     The same solve serves the expected sensitivity (``threshold`` from a false alarm) and the
-    frequentist loudest-event upper limit (``threshold`` = observed loudest statistic,
-    ``probability`` = confidence).  Parameters as in :func:`detection_probability`.
+    frequentist loudest-event upper limit (``threshold`` = observed loudest statistic).
+    Parameters as in :func:`detection_probability`; ``confidence`` is the detection
+    probability demanded (the keyword ``probability`` of earlier versions still works for
+    one release).
 
     Returns
     -------
     h0 : Quantity ['dimensionless']
-        0 where noise alone exceeds the threshold with at least ``probability``.
+        0 where noise alone exceeds the threshold with at least ``confidence``.
 
     Raises
     ------
     InputError
-        Bad inputs (``probability`` outside (0, 1), ``n_seg < 1``, non-positive ``t_data`` or
+        Bad inputs (``confidence`` outside (0, 1), ``n_seg < 1``, non-positive ``t_data`` or
         ``psd``).
     ComputationError
         The probability cannot be reached (see :func:`critical_depth`).
 
     Notes
     -----
-    Solves ``P_det(a) = probability`` for ``a = h0^2 T_data / S_n`` and returns
+    Solves ``P_det(a) = confidence`` for ``a = h0^2 T_data / S_n`` and returns
     ``h0 = sqrt(a S_n / T_data)``.
 
     References
@@ -1195,7 +1200,7 @@ def solve_amplitude(threshold: float | ArrayLike, n_seg: int | ArrayLike, t_data
     t_s, s_n = _time_psd(t_data, psd)
     if s_n is None:
         raise InputError("psd is required to return h0; use critical_depth for the depth")
-    a = _solve(threshold, n_seg, r2_rule, mismatch_rule, probability, convention, method,
+    a = _solve(threshold, n_seg, r2_rule, mismatch_rule, confidence, convention, method,
                max_nodes)
     return _h0_from_normalised(a, t_s, s_n) << u.one
 
