@@ -1390,7 +1390,8 @@ def estimate_sensitivity(n_seg: int | ArrayLike, t_data: u.Quantity,
                          false_alarm: float | ArrayLike | None = None,
                          n_templates: float | ArrayLike = 1,
                          threshold: float | ArrayLike | None = None,
-                         confidence: float | ArrayLike = DEFAULT_CONFIDENCE, convention: str = "total",
+                         confidence: float | ArrayLike = DEFAULT_CONFIDENCE,
+                         convention: str = "total",
                          method: str = "auto",
                          max_nodes: int = DEFAULT_MAX_NODES) -> SensitivityEstimate:
     """Expected sensitivity of a StackSlide search: threshold, depth and h0 per band.
