@@ -340,8 +340,9 @@ def map_chunks(func: Callable[..., dict[str, np.ndarray]], items: int | Mapping[
         :func:`make_executor`.  The caller owns it (this function does not shut it down).
     rng : None, int, sequence of int, numpy.random.SeedSequence or Generator, optional
         Root seed (``seed`` in earlier versions).  Chunk ``i`` uses
-        ``default_rng(SeedSequence(rng).spawn(n_chunks)[i])`` (see :func:`chunk_seed`).  ``None`` draws fresh entropy (recorded in ``store``,
-        so a resumed run continues the same streams).  A Generator is advanced by 128 bits.
+        ``default_rng(SeedSequence(rng).spawn(n_chunks)[i])`` (see :func:`chunk_seed`).
+        ``None`` draws fresh entropy (recorded in ``store``, so a resumed run continues the
+        same streams).  A Generator is advanced by 128 bits.
     store : cwlimits.runtime.store.ResultStore, optional
         Where finished chunks are committed one by one; chunks already there are loaded
         instead of computed.
