@@ -68,3 +68,40 @@ def test_negative_injections_are_refused(tmp_path, capsys):
     err = capsys.readouterr().err
     assert err.startswith("error:") and "validation.injections" in err
     assert not (tmp_path / "out").exists()
+
+
+TABLE_CONFIG = CONFIG.replace("injections = {n}", 'tables = {{ "Fict Quill" = "{table}" }}')
+
+
+def test_report_shows_a_table_of_validate_mock_search(tmp_path):
+    cfg = _project(tmp_path, 0)
+    table = tmp_path / "campaign" / "mock.ecsv"
+    table.parent.mkdir()
+    assert main(["validate", "--catalogue", str(tmp_path / "cat.csv"), "--target",
+                 "Fict Quill", "--setup", str(tmp_path / "setup.toml"), "--mock-search",
+                 "--injections", "3", "--noise-runs", "3", "--mismatch-runs", "3", "--h0",
+                 "1.0", "--seed", "5", "--out", str(table), "--quiet"]) == 0
+    cfg.write_text(TABLE_CONFIG.format(table="campaign/mock.ecsv"))
+    assert main(["report", str(cfg)]) == 0
+    page = (tmp_path / "out" / "index.html").read_text(encoding="utf-8")
+    assert "Validation with a mock search" in page and "campaign/mock.ecsv" in page
+    shown = QTable.read(tmp_path / "out" / "validation_fict_quill.ecsv")
+    written = QTable.read(table)
+    # the detection counts are the campaign's, and their Clopper-Pearson intervals hold
+    # (scipy.stats.binomtest, exact method)
+    np.testing.assert_array_equal(np.asarray(shown["n_detected"]),
+                                  np.asarray(written["n_detected"]))
+    for row in shown:
+        ci = stats.binomtest(int(row["n_detected"]), 3).proportion_ci(0.95, method="exact")
+        np.testing.assert_allclose([float(row["ci_low"]), float(row["ci_high"])],
+                                   [ci.low, ci.high], rtol=1e-12)
+
+
+def test_a_validation_table_must_be_ecsv_of_a_known_target(tmp_path, capsys):
+    cfg = _project(tmp_path, 0)
+    (tmp_path / "mock.csv").write_text("h0\n1\n")
+    cfg.write_text(TABLE_CONFIG.format(table="mock.csv"))
+    assert main(["report", str(cfg)]) == 2
+    err = capsys.readouterr().err
+    assert "validation.tables.Fict Quill" in err and ".ecsv" in err
+    assert not (tmp_path / "out").exists()

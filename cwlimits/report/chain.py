@@ -32,7 +32,7 @@ from cwlimits.planning.optimise import rank_targets
 from cwlimits.pulsars.data import read_detector_files
 from cwlimits.report.html import Report, check_report_folder, file_sha256
 from cwlimits.report.pulsars import known_pulsar_section
-from cwlimits.report.validation import validation_section
+from cwlimits.report.validation import validation_section, validation_tables_section
 from cwlimits.runtime.executor import named_seed
 from cwlimits.searchspace.cost import computing_cost, scan_cost
 from cwlimits.searchspace.searchsetup import load_setup
@@ -175,6 +175,8 @@ def run_report(config, *, echo=None, progress=None, simulate: bool = False,
         if ranking is not None:
             _ranking_section(rep, ranking, plans)
         _plan_sections(rep, plans, sensitivities)
+        if config["validation.tables"]:
+            validation_tables_section(rep, config["validation.tables"], echo=echo)
         if config["validation.injections"] > 0:
             validation_section(rep, plans, n_injections=config["validation.injections"],
                                seed=seed, confidence=config["statistics.confidence"],

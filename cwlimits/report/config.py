@@ -81,6 +81,10 @@ CONFIG_KEYS = {
     "validation.injections": ("int", None, 0,
                               "mock-search injections per h0 (and noise-only, noise-free "
                               "runs) for each planned setup; 0: no validation section"),
+    "validation.tables": ("mapping[path]", None, {},
+                          "per target: a table written by 'cwlimits validate --mock-search "
+                          "--out FILE.ecsv', shown in the validation section instead of a "
+                          "campaign of the report's own"),
 }
 
 
@@ -126,6 +130,8 @@ class AnalysisConfig:
             files["noise"] = noise
         for name, path in self.values["results"].items():
             files[f"results:{name}"] = path
+        for name, path in self.values["validation.tables"].items():
+            files[f"validation:{name}"] = path
         for name, per_detector in self.values["pulsars.data"].items():
             for det, path in per_detector.items():
                 files[f"pulsar-data:{name}:{det}"] = path
@@ -330,6 +336,17 @@ def _check(path, values, found):
         if name not in catalogue.names:
             _fail(path, "catalogue.targets", f"unknown target '{name}' (the catalogue has "
                   f"{', '.join(catalogue.names)})", name)
+    for name, file in values["validation.tables"].items():
+        key = f"validation.tables.{name}"
+        given = found.get("validation.tables", {}).get(name, str(file))
+        if name not in catalogue.names:
+            _fail(path, key, f"a table for an unknown target '{name}' (the catalogue has "
+                  f"{', '.join(catalogue.names)})", name)
+        if Path(file).suffix.lower() != ".ecsv":
+            _fail(path, key, "must be the .ecsv table of 'cwlimits validate --mock-search "
+                  "--out' (only ECSV keeps its summary)", given)
+        if not Path(file).is_file():
+            _fail(path, key, f"file not found (looked for {file})", given)
     for name in values["results"]:
         if name not in catalogue.names:
             _fail(path, f"results.{name}", f"results for an unknown target '{name}' (the "

@@ -9,6 +9,9 @@ measured efficiency against h0 with the model's curve, the loudest-template mism
 against the model's distribution, and the campaign table with its assumptions.  A campaign
 this small (a few runs per h0) is a smoke check of the model for the plan, not a
 validation to 10 %: docs/validation.md gives the campaign sizes that resolve that.
+
+With ``validation.tables`` (target -> the ECSV table of ``cwlimits validate --mock-search
+--out``) the section shows those campaigns, of any size, instead.
 """
 
 import astropy.units as u
@@ -16,7 +19,7 @@ import astropy.units as u
 from cwlimits.errors import SizeLimitError
 from cwlimits.runtime.executor import named_seed
 
-__all__ = ["H0_FACTORS", "validation_section"]
+__all__ = ["H0_FACTORS", "validation_section", "validation_tables_section"]
 
 #: Injected h0 in units of the plan's predicted h0 (below, at and above it).
 H0_FACTORS = (0.7, 1.0, 1.4)
@@ -101,4 +104,78 @@ def validation_section(rep, plans, *, n_injections, seed, confidence, false_alar
                            "the model's distribution")
         out[name] = res
         echo(f"validation of {name}: {len(table)} amplitudes, {s['n_templates']} templates")
+    return out
+
+
+#: Columns and summary keys a table of ``cwlimits validate --mock-search --out`` carries.
+TABLE_COLUMNS = ("h0", "n_injections", "n_detected", "efficiency", "ci_low", "ci_high",
+                 "predicted")
+TABLE_SUMMARY = ("setup", "n_templates", "threshold", "confidence", "h0_predicted",
+                 "h0_measured", "ratio", "false_alarms", "noise_runs")
+
+
+def validation_tables_section(rep, tables, echo=None):
+    """Add campaigns written by ``cwlimits validate --mock-search --out`` to a report.
+
+    Parameters
+    ----------
+    rep : cwlimits.report.html.Report
+    tables : dict
+        Target name -> path of the ECSV table.
+    echo : callable, optional
+
+    Returns
+    -------
+    dict
+        Target name -> the table read (QTable).
+
+    Raises
+    ------
+    InputError
+        A table that is not one of ``cwlimits validate --mock-search`` (naming the file and
+        the missing column or summary key).
+    """
+    from astropy.table import QTable
+
+    from cwlimits.errors import InputError
+
+    echo = echo or (lambda text: None)
+    rep.section("Validation with a mock search",
+                "Campaigns of the directed mock search run by 'cwlimits validate "
+                "--mock-search' on the planned setups (simulated Gaussian noise, Doppler "
+                "modulated signals off the template grid, the setups' lattices), read from "
+                "their tables: detections per h0 against the sensitivity model.")
+    out = {}
+    for name, path in tables.items():
+        try:
+            table = QTable.read(path, format="ascii.ecsv")
+        except Exception as exc:  # noqa: BLE001 - any unreadable file is one input error
+            raise InputError(f"cannot read the validation table: {exc}", file=str(path),
+                             value=name) from None
+        for col in TABLE_COLUMNS:
+            if col not in table.colnames:
+                raise InputError("not a table of 'cwlimits validate --mock-search': no "
+                                 f"column '{col}'", file=str(path), value=col)
+        for key in TABLE_SUMMARY:
+            if key not in table.meta:
+                raise InputError("not a table of 'cwlimits validate --mock-search': no "
+                                 f"summary key '{key}'", file=str(path), value=key)
+        m = table.meta
+        measured = (f"{m['h0_measured']:.3g}" if m["h0_measured"] < float("inf")
+                    else "not reached")
+        slug = "".join(c if c.isalnum() else "_" for c in name.lower()).strip("_")
+        rep.section(f"Mock search of {name}",
+                    f"{m['setup']} ({path}); {m['n_templates']} templates in the searched "
+                    f"box, threshold 2F > {m['threshold']:.4g}.  h0 at "
+                    f"{100 * m['confidence']:g} % detection: predicted "
+                    f"{m['h0_predicted']:.3g}, measured {measured} (measured/predicted "
+                    f"{m['ratio']:.3f}); false alarms {m['false_alarms']} of "
+                    f"{m['noise_runs']} noise-only runs.")
+        shown = table.copy()
+        shown["h0"] = u.Quantity(shown["h0"]).value << u.one
+        rep.table(f"validation_{slug}", shown,
+                  caption=f"Mock-search campaign of {name} (from {path}): detections per "
+                          "h0 against the model", assumptions=m.get("assumptions"))
+        out[name] = table
+        echo(f"validation of {name}: read {path}")
     return out

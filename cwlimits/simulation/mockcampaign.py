@@ -58,7 +58,7 @@ if TYPE_CHECKING:
     from cwlimits._random import RngLike
     from cwlimits.searchspace.searchsetup import SearchSetup
 
-__all__ = ["MockCampaignResult", "mock_campaign", "mock_layout", "bank_size"]
+__all__ = ["MockCampaignResult", "mock_campaign", "mock_layout", "bank_size", "finer_rows"]
 
 PSD_UNIT = u.Hz**-1
 FDOT_UNIT = u.Hz / u.s
@@ -217,6 +217,22 @@ class MockCampaignResult:
     model: dict = None
 
 
+def finer_rows(setup, n_dims=2):
+    """The lattice rows of the finer bank of a setup (coherent for N = 1, else semicoherent).
+
+    As :func:`~cwlimits.simulation.mocksearch.lattice_rows` returns them, in (f, fdot) or
+    (f, fdot, fddot) for ``n_dims`` 2 or 3.
+    """
+    from cwlimits.searchspace.metric import coherent_metric, semicoherent_metric
+    from cwlimits.simulation.mocksearch import lattice_rows
+
+    mid = setup.segment_mid_times
+    g = (coherent_metric(setup.t_seg, n_dims) if setup.n_seg == 1 else
+         semicoherent_metric(setup.t_seg, mid_times=mid - mid[0], n_dims=n_dims))
+    mu = setup.mismatch_coherent if setup.n_seg == 1 else setup.mismatch_semicoherent
+    return lattice_rows(setup.lattice, g, mu)
+
+
 def bank_size(setup, f_box_width, fdot_box, fddot_box=None):
     """Estimated number of templates of the finer bank over a searched box (nothing allocated).
 
@@ -235,15 +251,7 @@ def bank_size(setup, f_box_width, fdot_box, fddot_box=None):
         The box width over the lattice spacing along each axis (plus the rows of margin the
         bank adds), multiplied: the size to check before :func:`mock_campaign` allocates.
     """
-    from cwlimits.searchspace.metric import coherent_metric, semicoherent_metric
-    from cwlimits.simulation.mocksearch import lattice_rows
-
-    n_dims = 2 if fddot_box is None else 3
-    mid = setup.segment_mid_times
-    g = (coherent_metric(setup.t_seg, n_dims) if setup.n_seg == 1 else
-         semicoherent_metric(setup.t_seg, mid_times=mid - mid[0], n_dims=n_dims))
-    mu = setup.mismatch_coherent if setup.n_seg == 1 else setup.mismatch_semicoherent
-    rows = lattice_rows(setup.lattice, g, mu)
+    rows = finer_rows(setup, 2 if fddot_box is None else 3)
     widths = [float(u.Quantity(f_box_width).to_value(u.Hz))]
     steps = [rows["f_step"]]
     for box, unit, step in ((fdot_box, FDOT_UNIT, "fdot_step"),

@@ -520,6 +520,7 @@ def _spin_boxes(args, setup, target):
     import astropy.units as u
 
     from cwlimits.searchspace.cost import count_templates, resolve_space
+    from cwlimits.simulation.mockcampaign import finer_rows
 
     f = 0.5 * (setup.f_min + setup.f_max)
     space = None
@@ -532,6 +533,12 @@ def _spin_boxes(args, setup, target):
         fdot = _option_range(args.fdot_range, "--fdot-range")
     elif space is not None:
         fdot = tuple(sorted(q.to(u.Hz / u.s) for q in space.fdot_range(f)))
+        step = finer_rows(setup)["fdot_step"] * u.Hz / u.s
+        if fdot[1] - fdot[0] < step:
+            # thinner than one row of the bank (the plan counts one template in fdot): two
+            # rows about the plan's range, so that the bank has templates
+            centre = 0.5 * (fdot[0] + fdot[1])
+            fdot = (centre - step, centre + step)
     else:
         fdot = None
     if args.fddot_range is not None:
