@@ -39,7 +39,7 @@ MEASURED_METHODS = {
 def known_pulsar_summary(catalogue, setup, noise=DEFAULT_NOISE_MODEL, *, data=None,
                          confidence=0.95, n_noise=200, rng=None, start=DEFAULT_START,
                          moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA, posterior_noise="student-t",
-                         predicted=None, narrow_band_noise="estimated"):
+                         predicted=None, narrow_band_noise="estimated", posteriors=None):
     """One row per known pulsar of ``catalogue`` (rows without a known spin are skipped).
 
     Parameters
@@ -59,6 +59,9 @@ def known_pulsar_summary(catalogue, setup, noise=DEFAULT_NOISE_MODEL, *, data=No
     predicted : dict of str -> QTable, optional
         Tables of :func:`.expected.targeted_sensitivity` already computed for this setup
         and noise (e.g. by the ranking's plans), used instead of computing them again.
+    posteriors : dict, optional
+        If given, filled with the :class:`.posterior.PulsarPosterior` of each targeted
+        pulsar with data (by name), for a caller that shows one (not computed twice).
 
     Returns
     -------
@@ -94,6 +97,8 @@ def known_pulsar_summary(catalogue, setup, noise=DEFAULT_NOISE_MODEL, *, data=No
         if t.name in data and kind == "targeted":
             post = pulsar_posterior(data[t.name], t, noise=posterior_noise,
                                     confidence=confidence)
+            if posteriors is not None:
+                posteriors[t.name] = post
             measured = post.upper_limit
             method = MEASURED_METHODS["targeted"]
             info["measured"] = f"{post.sampler} posterior, noise {post.noise}"
