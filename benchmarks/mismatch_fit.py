@@ -77,7 +77,7 @@ def h0_at(model, mu, confidence):
     rule = (np.asarray(model["r2_nodes"]), np.asarray(model["r2_weights"]))
     return float(det.solve_amplitude(model["threshold"], model["n_seg"],
                                      model["t_data_s"] * u.s, model["s_ref"] / u.Hz, rule,
-                                     mu, probability=confidence, method="exact").value)
+                                     mu, confidence=confidence, method="exact").value)
 
 
 def main(argv=None):

@@ -31,3 +31,17 @@ def test_upper_limits_takes_the_old_inertia_keyword():
     from cwlimits.limits.upper import upper_limits
 
     assert upper_limits.renamed_keywords == {"inertia_range": "moment_of_inertia_range"}
+
+
+def test_solve_amplitude_takes_confidence_and_the_old_probability_keyword():
+    # glossary: the detection probability a sensitivity demands is called confidence; the
+    # old keyword gives the same amplitude (the same solve) with a deprecation warning
+    import astropy.units as u
+
+    from cwlimits.statistics.detection import solve_amplitude
+
+    args = (60.0, 1, 1 * u.day, 1e-46 / u.Hz, 0.16, 0.0)
+    new = solve_amplitude(*args, confidence=0.9)
+    with pytest.warns(CwlimitsDeprecationWarning, match="'probability'.*'confidence'"):
+        old = solve_amplitude(*args, probability=0.9)
+    assert old == new and new.value > 0

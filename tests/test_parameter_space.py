@@ -126,3 +126,16 @@ def test_bad_inputs():
         BoxSpace((1 * u.Hz, 2 * u.Hz), (1 * FDOT, 0 * FDOT))
     with pytest.raises(InputError, match="positive"):
         BoxSpace((-1 * u.Hz, 2 * u.Hz), (0 * FDOT, 1 * FDOT))
+
+
+def test_volume_takes_band_edges_f_lo_f_hi_and_the_old_keywords_warn():
+    # glossary (DEVELOPERS.md, Conventions): f_lo/f_hi are the edges of one band; a box of
+    # width w in f has the 1-d volume w (the length of the interval, common practice)
+    from cwlimits.errors import CwlimitsDeprecationWarning
+
+    box = BoxSpace((100 * u.Hz, 101 * u.Hz), (-1e-9 * FDOT, 0 * FDOT))
+    new = box.volume(f_lo=100.2 * u.Hz, f_hi=100.7 * u.Hz, n_dims=1)
+    assert new.to_value(u.Hz) == pytest.approx(0.5)
+    with pytest.warns(CwlimitsDeprecationWarning, match=r"'f_m(in|ax)'"):
+        old = box.volume(f_min=100.2 * u.Hz, f_max=100.7 * u.Hz, n_dims=1)
+    assert old == new

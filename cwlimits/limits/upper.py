@@ -300,7 +300,7 @@ def _solve_x(obs_sum, n_seg, c, w, confidence):
     """Loudest-event x = h0 sqrt(T/S): solve_amplitude with T/S = 1 s Hz (one code path)."""
     rule = QuadratureRule(c, w, name="signal rule")
     return solve_amplitude(obs_sum, n_seg, _UNIT_T, _UNIT_S, rule, 0.0,
-                           probability=confidence).value
+                           confidence=confidence).value
 
 
 def _groups(rid, tabulate, min_size=None):

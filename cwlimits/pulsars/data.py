@@ -33,7 +33,10 @@ stretch with fewer than two samples or only zeros, ...) is a located
 :class:`~cwlimits.errors.TableError`.
 """
 
+from __future__ import annotations
+
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -45,6 +48,12 @@ from cwlimits.errors import InputError, TableError
 from cwlimits.pulsars.likelihood import StretchSums
 from cwlimits.response.antenna import amplitude_modulation, get_detector
 from cwlimits.tables import read_table, write_table
+
+if TYPE_CHECKING:
+    from pathlib import Path
+
+    from cwlimits._random import RngLike
+    from cwlimits.targets.catalogue import Target
 
 __all__ = ["DownConvertedData", "read_down_converted", "read_detector_files",
            "combine_data", "write_down_converted", "from_band_data",
@@ -182,8 +191,9 @@ def _check_stretches(path, lines, det, labels, values, sigma, rows):
                              row=lines[where], column="sigma")
 
 
-def read_down_converted(path, *, detectors=None, max_stretch=DEFAULT_MAX_STRETCH,
-                        file_detector=None):
+def read_down_converted(path: str | Path, *, detectors=None,
+                        max_stretch: int = DEFAULT_MAX_STRETCH,
+                        file_detector=None) -> DownConvertedData:
     """Read and check a file of down-converted samples (format in the module notes).
 
     Parameters
@@ -337,7 +347,7 @@ def read_detector_files(files, *, detectors=None, max_stretch=DEFAULT_MAX_STRETC
     return combine_data(parts)
 
 
-def write_down_converted(data, path, *, assumptions=None, title=None):
+def write_down_converted(data, path: str | Path, *, assumptions=None, title: str | None = None):
     """Write ``data`` in the format of the module notes (it reads back unchanged)."""
     table = QTable()
     table["detector"] = data.detector
@@ -442,9 +452,11 @@ def from_band_data(band, target, *, harmonic=2.0, average=None, doppler=True):
                              np.concatenate(out["stretch"]), "from band data")
 
 
-def simulate_pulsar_signal(target, detectors, start, n_stretches, stretch_length, *,
-                           h0, cosi, psi, phi0, psd, sample=600 * u.s, gap_fraction=0.0,
-                           max_gap=0.5, doppler=True, demodulate=None, rng=None,
+def simulate_pulsar_signal(target: Target, detectors, start, n_stretches: int,
+                           stretch_length: u.Quantity, *, h0: float, cosi: float, psi, phi0,
+                           psd: u.Quantity, sample: u.Quantity = 600 * u.s,
+                           gap_fraction: float = 0.0, max_gap: float = 0.5, doppler: bool = True,
+                           demodulate: bool | None = None, rng: RngLike | None = None,
                            harmonic=2.0):
     """Simulated down-converted data of a known pulsar (noiseless signal, sigma set).
 
@@ -533,7 +545,7 @@ def simulate_pulsar_signal(target, detectors, start, n_stretches, stretch_length
                              data.stretch, "simulated (fictional) known-pulsar data")
 
 
-def add_noise(data, rng=None):
+def add_noise(data, rng: RngLike | None = None):
     """A copy of ``data`` with circular Gaussian noise of standard deviation ``sigma`` per part."""
     if not data.has_sigma:
         raise InputError("add_noise needs sigma for every sample")

@@ -20,7 +20,10 @@ orientation.  Priors: C21 and C22 uniform from 0 to where the likelihood has fal
 the orientation uniform or the catalogue's restricted prior, the phases uniform.
 """
 
+from __future__ import annotations
+
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -38,6 +41,9 @@ from cwlimits.pulsars.grid import (
 )
 from cwlimits.pulsars.likelihood import orientation_coefficients
 from cwlimits.targets.fiducial import DEFAULT_MOMENT_OF_INERTIA
+
+if TYPE_CHECKING:
+    from cwlimits.targets.catalogue import Target
 
 __all__ = ["DualHarmonicPosterior", "dual_harmonic_posterior", "dual_limit_table",
            "DUAL_GRID"]
@@ -107,8 +113,9 @@ def _weighted(data, target, noise):
             *(float(np.sum(w * x)) for x in (sums.s_aa, sums.s_bb_pat, sums.s_ab)))
 
 
-def dual_harmonic_posterior(data_21, data_22, target, *, noise="estimated",
-                            orientation="catalogue", confidence=0.95, grid=None):
+def dual_harmonic_posterior(data_21, data_22, target: Target, *, noise="estimated",
+                            orientation: str = "catalogue", confidence: float = 0.95,
+                            grid=None) -> DualHarmonicPosterior:
     """Joint posterior of C21 and C22 from data at f_rot and at 2 f_rot (module notes).
 
     Parameters
@@ -199,7 +206,8 @@ def _joint(sums, tops, windows, prior, grid):
     return marg, c, s
 
 
-def dual_limit_table(posterior, target, *, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA):
+def dual_limit_table(posterior, target: Target, *,
+                     moment_of_inertia: u.Quantity = DEFAULT_MOMENT_OF_INERTIA):
     """The C21 and C22 limits and the ratios of the C22 limit to the spin-down limit.
 
     Columns: ``target``, ``confidence``, ``c21_limit``, ``c22_limit``, the spin-down

@@ -23,11 +23,17 @@ the timing solution's spin-down extends to the gravitational-wave phase (fdot_gw
 fdot_rot).
 """
 
+from __future__ import annotations
+
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 
 from cwlimits.errors import InputError
+
+if TYPE_CHECKING:
+    from cwlimits.targets.catalogue import Target
 
 __all__ = ["EmissionModel", "SINGLE_HARMONIC", "DUAL_HARMONIC", "RMODE", "EMISSION_MODELS",
            "get_emission", "harmonics", "RMODE_RATIO_BAND"]
@@ -102,7 +108,7 @@ def get_emission(spec, ratio_band=None):
     return model
 
 
-def harmonics(target, emission="single"):
+def harmonics(target: Target, emission: str = "single"):
     """The gravitational-wave frequencies a known pulsar's spin implies.
 
     Parameters

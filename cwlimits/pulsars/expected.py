@@ -27,7 +27,10 @@
   frequency is a band).  The reason is returned.
 """
 
+from __future__ import annotations
+
 import math
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -48,6 +51,11 @@ from cwlimits.searchspace.parameter_space import BoxSpace
 from cwlimits.sensitivity.model import DEFAULT_START
 from cwlimits.statistics.detection import QuadratureRule, false_alarm_threshold, solve_amplitude
 from cwlimits.targets.indirect import spindown_limit
+
+if TYPE_CHECKING:
+    from cwlimits._random import RngLike
+    from cwlimits.searchspace.searchsetup import SearchSetup
+    from cwlimits.targets.catalogue import Target
 
 __all__ = ["targeted_sensitivity", "network_sums", "coherent_mismatch", "KINDS",
            "DEFAULT_N_SIGMA"]
@@ -182,17 +190,18 @@ def _narrow_band(setup, sums, prior, box, confidence, false_alarm):
                          rng=_MISMATCH_SEED)
     mismatch = QuadratureRule.from_samples(np.minimum(mu, 1.0), name="mismatch")
     h = solve_amplitude(threshold, 1, sums["exposure"] * u.s, sums["s_ref"] / u.Hz,
-                        _r2_rule(sums["averages"], prior), mismatch, probability=confidence)
+                        _r2_rule(sums["averages"], prior), mismatch, confidence=confidence)
     cost = (n_templates * setup.n_detectors * setup.cost_coherent).to(u.h)
     return float(h.value), n_templates, float(threshold.value), cost, dims
 
 
-def targeted_sensitivity(target, setup, noise=DEFAULT_NOISE_MODEL, *, kind="auto",
-                         emission="single", confidence=0.95, h0_prior="uniform",
-                         h0_min=None, orientation="catalogue", start=DEFAULT_START,
-                         n_sigma=DEFAULT_N_SIGMA, fractional_width=None, false_alarm=0.01,
-                         n_noise=DEFAULT_N_NOISE, rng=None, grid=None,
-                         moment_of_inertia=None):
+def targeted_sensitivity(target: Target, setup: SearchSetup, noise=DEFAULT_NOISE_MODEL, *,
+                         kind: str = "auto", emission: str = "single", confidence: float = 0.95,
+                         h0_prior: str = "uniform", h0_min=None, orientation: str = "catalogue",
+                         start=DEFAULT_START, n_sigma: float = DEFAULT_N_SIGMA,
+                         fractional_width: float | None = None, false_alarm: float = 0.01,
+                         n_noise: int = DEFAULT_N_NOISE, rng: RngLike | None = None, grid=None,
+                         moment_of_inertia: u.Quantity | None = None):
     """Expected sensitivity and cost of a targeted or narrow-band search for a known pulsar.
 
     Parameters

@@ -38,7 +38,10 @@ Assumptions: Gaussian noise, stationary within a stretch, sigma given or estimat
 stretch; the signal's (f, fdot) uniform over the box; phase coherent over the data.
 """
 
+from __future__ import annotations
+
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -50,6 +53,9 @@ from cwlimits.pulsars.emission import get_emission, harmonics
 from cwlimits.pulsars.grid import OrientationPrior, _h0_weights, quantile_from_grid
 from cwlimits.pulsars.likelihood import orientation_coefficients
 from cwlimits.statistics.detection import QuadratureRule, combine_rules
+
+if TYPE_CHECKING:
+    from cwlimits.targets.catalogue import Target
 
 __all__ = ["NarrowBandLimit", "narrow_band_limit", "MAX_BOX_TEMPLATES", "loudest_likelihood"]
 
@@ -148,9 +154,11 @@ def _sample_length(data):
     return float(np.median(steps))
 
 
-def narrow_band_limit(data, target, *, n_sigma=None, fractional_width=None, box=None,
-                      noise="estimated", confidence=0.95, mismatch=0.2,
-                      orientation="catalogue", n_orientation=12, n_h0=400):
+def narrow_band_limit(data, target: Target, *, n_sigma: float | None = None,
+                      fractional_width: float | None = None, box=None, noise="estimated",
+                      confidence: float = 0.95, mismatch: float = 0.2,
+                      orientation: str = "catalogue", n_orientation: int = 12,
+                      n_h0: int = 400) -> NarrowBandLimit:
     """Bayesian upper limit of a narrow-band search from the loudest template (module notes).
 
     Parameters

@@ -22,7 +22,10 @@ C21).  Ratios a paper reports (h_UL / h_sd, the spin-down fraction (h_UL / h_sd)
 ellipticity, Q22, C22 = h0 / 2) are in :func:`limit_table`.
 """
 
+from __future__ import annotations
+
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -49,6 +52,12 @@ from cwlimits.pulsars.likelihood import orientation_coefficients, student_log_li
 from cwlimits.targets.conversions import ellipticity, mass_quadrupole
 from cwlimits.targets.fiducial import DEFAULT_MOMENT_OF_INERTIA
 from cwlimits.targets.indirect import spindown_limit
+
+if TYPE_CHECKING:
+    from numpy.typing import ArrayLike
+
+    from cwlimits._random import RngLike
+    from cwlimits.targets.catalogue import Target
 
 __all__ = ["PulsarPosterior", "pulsar_posterior", "limit_table", "spindown_ratios",
            "NOISE_MODES", "SAMPLERS", "HARMONICS"]
@@ -146,10 +155,11 @@ def _sums_for(data, target, noise):
     return sums
 
 
-def pulsar_posterior(data, target, *, noise="student-t", h0_prior="uniform", h0_min=None,
-                     h0_max=None, orientation="catalogue", confidence=0.95, sampler="grid",
-                     harmonic="22", grid=None, rng=None, n_walkers=32, n_steps=3000,
-                     burn=1000):
+def pulsar_posterior(data, target: Target, *, noise="student-t", h0_prior: str = "uniform",
+                     h0_min=None, h0_max=None, orientation: str = "catalogue",
+                     confidence: float = 0.95, sampler: str = "grid", harmonic="22", grid=None,
+                     rng: RngLike | None = None, n_walkers: int = 32, n_steps: int = 3000,
+                     burn: int = 1000) -> PulsarPosterior:
     """The posterior of a known pulsar's signal in down-converted data, and its limit.
 
     Parameters
@@ -419,7 +429,8 @@ def _assumptions(data, target, noise, h0_prior, h0_min, prior, sampler, harmonic
     }
 
 
-def spindown_ratios(h_ul, target, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA):
+def spindown_ratios(h_ul: float | ArrayLike, target: Target,
+                    moment_of_inertia: u.Quantity = DEFAULT_MOMENT_OF_INERTIA) -> dict:
     """h_UL against the spin-down limit, and the ellipticity and Q22 it allows.
 
     Returns
@@ -447,7 +458,8 @@ def spindown_ratios(h_ul, target, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA):
     }
 
 
-def limit_table(posterior, target, *, moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA):
+def limit_table(posterior, target: Target, *,
+                moment_of_inertia: u.Quantity = DEFAULT_MOMENT_OF_INERTIA):
     """The limit and the ratios a paper reports, with units and assumptions.
 
     Columns: ``target``, ``harmonic``, ``f_gw``, ``confidence``, ``amplitude`` (h0 or

@@ -9,6 +9,10 @@ factor K of the table's targeted rows (K depends on the sky position only throug
 antenna averages; Dupuis & Woan 2005).
 """
 
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
 import astropy.units as u
 import numpy as np
 from astropy.table import QTable
@@ -20,6 +24,11 @@ from cwlimits.pulsars.narrowband import narrow_band_limit
 from cwlimits.pulsars.posterior import pulsar_posterior, spindown_ratios
 from cwlimits.sensitivity.model import DEFAULT_START
 from cwlimits.targets.fiducial import DEFAULT_MOMENT_OF_INERTIA
+
+if TYPE_CHECKING:
+    from cwlimits._random import RngLike
+    from cwlimits.searchspace.searchsetup import SearchSetup
+    from cwlimits.targets.catalogue import TargetCatalogue
 
 __all__ = ["known_pulsar_summary", "sensitivity_curve", "PREDICTED_METHODS",
            "MEASURED_METHODS"]
@@ -36,10 +45,12 @@ MEASURED_METHODS = {
                    "trials factor (cwlimits.pulsars.narrowband)"}
 
 
-def known_pulsar_summary(catalogue, setup, noise=DEFAULT_NOISE_MODEL, *, data=None,
-                         confidence=0.95, n_noise=200, rng=None, start=DEFAULT_START,
-                         moment_of_inertia=DEFAULT_MOMENT_OF_INERTIA, posterior_noise="student-t",
-                         predicted=None, narrow_band_noise="estimated", posteriors=None):
+def known_pulsar_summary(catalogue: TargetCatalogue, setup: SearchSetup, noise=DEFAULT_NOISE_MODEL,
+                         *, data=None, confidence: float = 0.95, n_noise: int = 200,
+                         rng: RngLike | None = None, start=DEFAULT_START,
+                         moment_of_inertia: u.Quantity = DEFAULT_MOMENT_OF_INERTIA,
+                         posterior_noise="student-t", predicted=None,
+                         narrow_band_noise="estimated", posteriors: dict | None = None):
     """One row per known pulsar of ``catalogue`` (rows without a known spin are skipped).
 
     Parameters
@@ -137,7 +148,7 @@ def known_pulsar_summary(catalogue, setup, noise=DEFAULT_NOISE_MODEL, *, data=No
     return table
 
 
-def sensitivity_curve(setup, noise, factor_k, f_gw):
+def sensitivity_curve(setup: SearchSetup, noise, factor_k, f_gw):
     """h95(f) = K / sqrt(sum_d T_d / S_d(f)) of a targeted search over the setup's span.
 
     ``T_d`` is the span times the duty factor (module notes); ``f_gw`` a Quantity array.

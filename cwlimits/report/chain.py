@@ -14,8 +14,11 @@ versions, seed, input hashes) that reruns the same report exactly.  Every step c
 same public functions as the individual commands, so the numbers are theirs.
 """
 
+from __future__ import annotations
+
 import logging
 from dataclasses import replace
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -42,6 +45,9 @@ from cwlimits.sensitivity.model import (
 from cwlimits.targets.catalogue import load_targets
 from cwlimits.targets.indirect import indirect_limits
 
+if TYPE_CHECKING:
+    from cwlimits._random import RngLike
+
 _log = logging.getLogger("cwlimits.report")
 
 __all__ = ["run_report", "simulate_results", "summary_table", "budget_account", "CAUTION",
@@ -60,8 +66,8 @@ CAUTION = ("Every number in this report is an upper limit or a predicted sensiti
            "index range, Gaussian stationary noise), not a detection claim.")
 
 
-def run_report(config, *, echo=None, progress=None, simulate=False, overwrite=False,
-               output_option=None):
+def run_report(config, *, echo=None, progress=None, simulate: bool = False,
+               overwrite: bool = False, output_option=None):
     """Run the analysis of ``config`` and write its report; return the report folder.
 
     Parameters
@@ -624,7 +630,7 @@ def summary_table(indirect, ranking, plans, sensitivities, limits, max_targets=N
     return table
 
 
-def simulate_results(model, rng=None):
+def simulate_results(model, rng: RngLike | None = None):
     """Per-band loudest statistics of a search of pure Gaussian noise (for the demo).
 
     The loudest of N_t independent chi-squared(4N) values has the CDF F(x)^N_t, so with

@@ -9,6 +9,8 @@ catalogue does not have is a :class:`~cwlimits.errors.ConfigError` that names th
 and the key, raised before anything is written.
 """
 
+from __future__ import annotations
+
 import os
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -213,7 +215,7 @@ def _read(path, key, raw, base):
     raise AssertionError(kind)  # pragma: no cover - the table above is exhaustive
 
 
-def load_config(path):
+def load_config(path: str | Path):
     """Read and validate an analysis configuration file.
 
     Raises

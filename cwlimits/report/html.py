@@ -17,6 +17,8 @@ each table as CSV and ECSV) and to nothing on the network.  All text from the us
 names, notes) is HTML-escaped.
 """
 
+from __future__ import annotations
+
 import datetime
 import hashlib
 import html
@@ -72,7 +74,7 @@ figure img { width: 100%; height: auto; } figcaption { font-size: 0.85em; }
 """
 
 
-def file_sha256(path):
+def file_sha256(path: str | Path):
     """The SHA-256 of a file's bytes, as hex."""
     digest = hashlib.sha256()
     with open(path, "rb") as handle:
@@ -136,7 +138,8 @@ def _foreign_entries(folder, manifest):
     return foreign
 
 
-def check_report_folder(out_dir, overwrite=False, option="output"):
+def check_report_folder(out_dir: str | Path, overwrite: bool = False,
+                        option: str = "output") -> str:
     """Check, before any work, that a report may be written to ``out_dir``.
 
     Parameters

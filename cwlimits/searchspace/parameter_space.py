@@ -39,6 +39,7 @@ import astropy.units as u
 import numpy as np
 from scipy import integrate
 
+from cwlimits._deprecate import renamed_keywords
 from cwlimits._units import to_value
 from cwlimits.errors import InputError
 
@@ -89,13 +90,15 @@ class ParameterSpace:
         lo, hi = self._f_bounds()
         return float(lo) << u.Hz, float(hi) << u.Hz
 
-    def volume(self, f_min: u.Quantity, f_max: u.Quantity, n_dims: int = 3) -> u.Quantity:
-        """Closed-form ``n_dims``-dimensional volume of the space within ``[f_min, f_max]``.
+    @renamed_keywords(f_min="f_lo", f_max="f_hi")
+    def volume(self, f_lo: u.Quantity, f_hi: u.Quantity, n_dims: int = 3) -> u.Quantity:
+        """Closed-form ``n_dims``-dimensional volume of the space within ``[f_lo, f_hi]``.
 
         Parameters
         ----------
-        f_min, f_max : Quantity ['frequency']
-            Band edges (broadcast together).
+        f_lo, f_hi : Quantity ['frequency']
+            Band edges (broadcast together; the keywords ``f_min``, ``f_max`` of earlier
+            versions still work for one release).
         n_dims : int
             1 (f), 2 (f, fdot) or 3 (f, fdot, fddot).
 
@@ -105,16 +108,17 @@ class ParameterSpace:
             In Hz, Hz^2/s or Hz^3/s^3.
         """
         _check_k(n_dims)
-        lo, hi = _band(f_min, f_max)
+        lo, hi = _band(f_lo, f_hi)
         return self._volume(lo, hi, n_dims) << VOLUME_UNITS[n_dims]
 
-    def volume_numeric(self, f_min: u.Quantity, f_max: u.Quantity, n_dims: int = 3) -> u.Quantity:
+    @renamed_keywords(f_min="f_lo", f_max="f_hi")
+    def volume_numeric(self, f_lo: u.Quantity, f_hi: u.Quantity, n_dims: int = 3) -> u.Quantity:
         """The same volume by numerical integration of the bounds (scipy.integrate).
 
         Slow (one adaptive quadrature per band): a check of :meth:`volume`, not for grids.
         """
         _check_k(n_dims)
-        lo, hi = _band(f_min, f_max)
+        lo, hi = _band(f_lo, f_hi)
         out = np.empty(lo.shape)
         for idx in np.ndindex(lo.shape):
             out[idx] = self._volume_numeric(float(lo[idx]), float(hi[idx]), n_dims)

@@ -25,12 +25,17 @@ upper limits of :mod:`cwlimits.limits.upper` reuse the same :class:`SignalModel`
 for the expected sensitivity and the limits).
 """
 
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
 from astropy.table import QTable
 from astropy.time import Time
+from numpy.typing import ArrayLike
 from scipy.interpolate import CubicSpline
 
 from cwlimits import _defaults
@@ -54,6 +59,11 @@ from cwlimits.statistics.detection import (
     false_alarm_threshold,
 )
 from cwlimits.targets.indirect import age_limit, limit_range
+
+if TYPE_CHECKING:
+    from cwlimits.noise import NoiseSource
+    from cwlimits.searchspace.searchsetup import SearchSetup
+    from cwlimits.targets.catalogue import Target
 
 __all__ = [
     "AGE_COMPARISON",
@@ -145,7 +155,7 @@ class SignalModel:
         return combine_rules(self.r2_rule, mu)
 
     @property
-    def f_mid(self):
+    def f_mid(self) -> u.Quantity:
         """Band centres."""
         return (self.f_lo + self.f_hi) / 2
 
@@ -213,9 +223,11 @@ def _mismatch_rule(setup, counts, mismatch, size):
             f"{size} fixed draws")
 
 
-def signal_model(setup, noise, target=None, bands=None, *, start=DEFAULT_START,
-                 sky="target", mismatch="distribution", order=16, mismatch_samples=256,
-                 n_templates=None, _cache=None):
+def signal_model(setup: SearchSetup, noise: str | NoiseSource | Mapping,
+                 target: Target | None = None, bands: tuple[u.Quantity, u.Quantity] | None = None,
+                 *, start: str | Time = DEFAULT_START, sky: str = "target",
+                 mismatch: str = "distribution", order: int = 16, mismatch_samples: int = 256,
+                 n_templates: float | ArrayLike | None = None, _cache=None) -> SignalModel:
     """Per-band inputs of the detection statistics for a setup, noise and target.
 
     Parameters
@@ -350,9 +362,12 @@ def _check_probability(value, name):
     return np.asarray(fraction(value, name), float)
 
 
-def strain_sensitivity(setup, noise, bands=None, target=None, *, confidence=0.95,
-                       false_alarm=0.01, threshold=None, false_alarm_scope="band",
-                       convention="total", model=None, **model_options):
+def strain_sensitivity(setup: SearchSetup, noise: str | NoiseSource | Mapping,
+                       bands: tuple[u.Quantity, u.Quantity] | None = None,
+                       target: Target | None = None, *, confidence: float = 0.95,
+                       false_alarm: float = 0.01, threshold: float | ArrayLike | None = None,
+                       false_alarm_scope: str = "band", convention: str = "total",
+                       model: SignalModel | None = None, **model_options) -> QTable:
     """Expected h0 sensitivity and depth per band of a directed search.
 
     Parameters
@@ -489,7 +504,7 @@ AGE_COMPARISON = ("h0_age: nominal age-based limit (catalogue distance and age; 
                   "beats_age (h0 < h0_age) use the nominal h0_age")
 
 
-def add_age_comparison(table, target, h0_column="h0"):
+def add_age_comparison(table: QTable, target: Target, h0_column: str = "h0") -> QTable:
     """Add the columns comparing ``h0_column`` with ``target``'s age-based limit.
 
     Columns: ``h0_age`` (nominal: the target's distance and age), ``h0_age_optimistic``
@@ -535,8 +550,11 @@ def add_age_comparison(table, target, h0_column="h0"):
     table.meta["assumptions"] = info
 
 
-def sensitivity_depth(setups, noise=None, target=None, bands=None, *, confidence=0.95,
-                      false_alarm=0.01, **model_options):
+def sensitivity_depth(setups: SearchSetup | Sequence[SearchSetup],
+                      noise: str | NoiseSource | Mapping | None = None,
+                      target: Target | None = None,
+                      bands: tuple[u.Quantity, u.Quantity] | None = None, *,
+                      confidence: float = 0.95, false_alarm: float = 0.01, **model_options):
     """Sensitivity depth D = sqrt(S_n)/h0 per band, for one setup or many.
 
     Parameters

@@ -27,9 +27,12 @@ grid (zero mismatch, as the model is run with mismatch 0); templates on the Four
 1/T_seg (padding 1), taken as independent for the threshold.
 """
 
+from __future__ import annotations
+
 import functools
 import math
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -57,6 +60,11 @@ from cwlimits.simulation.synthetic import (
     _node_grid,
 )
 from cwlimits.statistics import detection as det
+
+if TYPE_CHECKING:
+    from astropy.coordinates import SkyCoord
+
+    from cwlimits._random import RngLike
 
 __all__ = ["CampaignResult", "injection_campaign", "simulation_layout", "plot_efficiency",
            "DEFAULT_CAMPAIGN_CHUNK", "MAX_SAMPLES_PER_INJECTION"]
@@ -159,7 +167,8 @@ def _crossing(log_h0, curve, level):
     return x0 + (level - y0) * (x1 - x0) / (y1 - y0) if y1 > y0 else x1
 
 
-def simulation_layout(t_seg, n_detectors, n_seg, n_search_bins=32, bandwidth=None):
+def simulation_layout(t_seg: u.Quantity, n_detectors: int, n_seg: int, n_search_bins: int = 32,
+                      bandwidth: u.Quantity | None = None):
     """Samples per segment and the simulated band width of a campaign.
 
     Parameters
@@ -317,13 +326,14 @@ def _sampled_modulation(dets, coord, times_s):
     return np.array([x[0] for x in out]), np.array([x[1] for x in out])
 
 
-def injection_campaign(coord, *, detectors="H1", psd=1e-46 * PSD_UNIT, f_ref=100 * u.Hz,
-                       bandwidth=None, t_seg=2048 * u.s, n_seg=4,
-                       start=1.2e9 * u.s, h0_values=None, n_injections=200,
-                       false_alarm=0.01, n_search_bins=32, confidence=0.9, interval=0.95,
-                       rng=None, executor=None, store=None, key=None,
+def injection_campaign(coord: SkyCoord, *, detectors="H1", psd: u.Quantity = 1e-46 * PSD_UNIT,
+                       f_ref: u.Quantity = 100 * u.Hz, bandwidth: u.Quantity | None = None,
+                       t_seg: u.Quantity = 2048 * u.s, n_seg: int = 4, start=1.2e9 * u.s,
+                       h0_values=None, n_injections: int = 200, false_alarm: float = 0.01,
+                       n_search_bins: int = 32, confidence: float = 0.9, interval: float = 0.95,
+                       rng: RngLike | None = None, executor=None, store=None, key=None,
                        chunk_size=DEFAULT_CAMPAIGN_CHUNK, progress=False,
-                       h0_grid=(0.5, 2.0, 8)):
+                       h0_grid=(0.5, 2.0, 8)) -> CampaignResult:
     """Inject, search and count: the measured efficiency against the sensitivity model.
 
     Parameters
@@ -442,7 +452,7 @@ def injection_campaign(coord, *, detectors="H1", psd=1e-46 * PSD_UNIT, f_ref=100
     rule = (r2.to_value(u.one), w)
     exposure, s_ref = avg.exposure, psd_hz.min() * PSD_UNIT
     h0_pred = float(det.solve_amplitude(threshold, n_seg, exposure, s_ref, rule,
-                                        probability=confidence, method="exact").value)
+                                        confidence=confidence, method="exact").value)
     if h0_values is None:
         low, high, steps = h0_grid
         if not (0 < float(low) < float(high) and math.isfinite(float(high))
@@ -533,7 +543,7 @@ def injection_campaign(coord, *, detectors="H1", psd=1e-46 * PSD_UNIT, f_ref=100
                           two_f=two_f)
 
 
-def plot_efficiency(result, title=None):
+def plot_efficiency(result, title: str | None = None):
     """Measured detection efficiency against h0 with binomial error bars and the model.
 
     Parameters

@@ -51,9 +51,12 @@ Cutler & Schutz 2005, gr-qc/0504011 (multi-detector F-statistic);
 Wette 2012, arXiv:1111.5650 (StackSlide sum of 2F, 4N degrees of freedom).
 """
 
+from __future__ import annotations
+
 import math
 import time
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -63,6 +66,11 @@ from cwlimits.errors import InputError
 from cwlimits.noise import median_bias
 from cwlimits.response.antenna import orientation_factor
 from cwlimits.simulation.synthetic import BandData, CWSignal, _check_coord
+
+if TYPE_CHECKING:
+    from astropy.coordinates import SkyCoord
+
+    from cwlimits._random import RngLike
 
 __all__ = [
     "FstatResult",
@@ -81,7 +89,7 @@ FDOT_UNIT = u.Hz / u.s
 
 # ------------------------------------------------------------------------- noise level
 
-def noise_levels(data, *, method="median", fft_length=None):
+def noise_levels(data, *, method: str = "median", fft_length: int | None = None) -> u.Quantity:
     """The noise PSD per detector and segment: the true one or a median-based estimate.
 
     Parameters
@@ -289,8 +297,10 @@ def _fft_length(m, padding, fft_length):
     return length
 
 
-def stackslide_fstat(data, coord, fdot=0.0 * FDOT_UNIT, *, f_min=None, f_max=None,
-                     padding=2, fft_length=None, noise="true", keep_segments=False):
+def stackslide_fstat(data, coord: SkyCoord, fdot: u.Quantity = 0.0 * FDOT_UNIT, *,
+                     f_min: u.Quantity | None = None, f_max: u.Quantity | None = None,
+                     padding: int = 2, fft_length: int | None = None, noise="true",
+                     keep_segments: bool = False) -> FstatResult:
     """The StackSlide F-statistic 2F_sum(f, fdot) of band data over a template grid.
 
     Parameters
@@ -470,8 +480,9 @@ class AmplitudeEstimate:
     phi0: u.Quantity
 
 
-def estimate_amplitudes(data, coord, frequency, fdot=0.0 * FDOT_UNIT, *, noise="true",
-                        doppler=False):
+def estimate_amplitudes(data, coord: SkyCoord, frequency: u.Quantity,
+                        fdot: u.Quantity = 0.0 * FDOT_UNIT, *, noise="true",
+                        doppler: bool = False) -> AmplitudeEstimate:
     """Coherent F-statistic and maximum-likelihood h0, cos(iota), psi, phi0 at one template.
 
     Parameters
@@ -528,7 +539,7 @@ def estimate_amplitudes(data, coord, frequency, fdot=0.0 * FDOT_UNIT, *, noise="
     return AmplitudeEstimate(float(x @ amp), amp, fisher, float(h0), float(cosi), psi, phi0)
 
 
-def expected_rho2(data, signal, *, noise="true"):
+def expected_rho2(data, signal, *, noise="true") -> u.Quantity:
     """The optimal SNR^2 rho^2 of a signal in the data, from the response module's R^2.
 
     Parameters
@@ -564,7 +575,8 @@ def expected_rho2(data, signal, *, noise="true"):
 
 # ------------------------------------------------------------------------ unit costs
 
-def measure_unit_costs(n_samples=10_000, *, n_seg=16, padding=2, repeats=3, rng=None):
+def measure_unit_costs(n_samples: int = 10_000, *, n_seg: int = 16, padding: int = 2,
+                       repeats: int = 3, rng: RngLike | None = None) -> dict:
     """Time the coherent and semi-coherent stages on this machine, per template.
 
     Parameters

@@ -29,9 +29,12 @@ Runs go through :func:`cwlimits.runtime.executor.map_chunks` (resumable with a s
 identical on any executor).
 """
 
+from __future__ import annotations
+
 import functools
 import math
 from dataclasses import dataclass, replace
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -47,6 +50,13 @@ from cwlimits.simulation.mocksearch import demodulated_fstat, mock_search
 from cwlimits.simulation.synthetic import BandData, _check_coord, _jks_amplitudes, gap_mask
 from cwlimits.statistics import detection as det
 
+if TYPE_CHECKING:
+    from astropy.coordinates import SkyCoord
+    from numpy.typing import ArrayLike
+
+    from cwlimits._random import RngLike
+    from cwlimits.searchspace.searchsetup import SearchSetup
+
 __all__ = ["MockCampaignResult", "mock_campaign", "mock_layout"]
 
 PSD_UNIT = u.Hz**-1
@@ -58,8 +68,10 @@ MODEL_MISMATCH_SEED = 20261202
 NOISE_ONLY, NOISE_FREE, IN_NOISE = 0, 1, 2
 
 
-def mock_layout(setup, coord, *, f_ref=None, bandwidth=0.0625 * u.Hz, start=1.3e9 * u.s,
-                duty=1.0, psd=None, mask_seed=0):
+def mock_layout(setup: SearchSetup, coord: SkyCoord, *, f_ref: u.Quantity | None = None,
+                bandwidth: u.Quantity = 0.0625 * u.Hz, start=1.3e9 * u.s,
+                duty: float | ArrayLike = 1.0, psd: u.Quantity | None = None,
+                mask_seed: int = 0) -> BandData:
     """The data layout of a setup's mock search (no samples drawn).
 
     Parameters
@@ -204,12 +216,14 @@ class MockCampaignResult:
     model: dict = None
 
 
-def mock_campaign(setup, coord, *, f_box_width=0.004 * u.Hz, fdot_box=None, duty=1.0,
-                  psd=None, confidence=0.9, false_alarm=0.01, h0_factors=(0.6, 0.8, 1.0,
-                                                                          1.25, 1.6),
-                  n_injections=50, n_noise=50, n_mismatch=50, bandwidth=0.0625 * u.Hz,
-                  interval=0.95, rng=0, executor=None, store=None, key=None,
-                  progress=False, chunk_size=10, mismatch="distribution", fddot_box=None):
+def mock_campaign(setup: SearchSetup, coord: SkyCoord, *, f_box_width: u.Quantity = 0.004 * u.Hz,
+                  fdot_box=None, duty: float | ArrayLike = 1.0, psd: u.Quantity | None = None,
+                  confidence: float = 0.9, false_alarm: float = 0.01,
+                  h0_factors=(0.6, 0.8, 1.0, 1.25, 1.6), n_injections: int = 50, n_noise: int = 50,
+                  n_mismatch: int = 50, bandwidth: u.Quantity = 0.0625 * u.Hz,
+                  interval: float = 0.95, rng: RngLike = 0, executor=None, store=None, key=None,
+                  progress=False, chunk_size=10, mismatch: float = "distribution",
+                  fddot_box=None) -> MockCampaignResult:
     """Injection campaign of the directed mock search of one setup.
 
     Parameters
@@ -313,9 +327,9 @@ def mock_campaign(setup, coord, *, f_box_width=0.004 * u.Hz, fdot_box=None, duty
     mu_model = (corrected_mismatch(mu_c, mu_s, layout.t_seg) if mismatch == "distribution"
                 else mu_quad)
     h0_pred = float(det.solve_amplitude(threshold, n_seg, t_data, s_ref, rule, mu_model,
-                                        probability=confidence, method="exact").value)
+                                        confidence=confidence, method="exact").value)
     h0_quad = float(det.solve_amplitude(threshold, n_seg, t_data, s_ref, rule, mu_quad,
-                                        probability=confidence, method="exact").value)
+                                        confidence=confidence, method="exact").value)
     h0 = h0_pred * np.asarray(h0_factors, float)
     kinds = np.concatenate([np.full(n_noise, NOISE_ONLY), np.full(n_mismatch, NOISE_FREE),
                             np.full(h0.size * n_injections, IN_NOISE)])
@@ -341,7 +355,7 @@ def mock_campaign(setup, coord, *, f_box_width=0.004 * u.Hz, fdot_box=None, duty
     predicted_quad = det.detection_probability(h0, threshold, n_seg, t_data, s_ref, rule,
                                                mu_quad, method="exact").to_value(u.one)
     h0_corr = float(det.solve_amplitude(threshold, n_seg, t_data, s_ref, rule, mu_meas,
-                                        probability=confidence, method="exact").value)
+                                        confidence=confidence, method="exact").value)
     model_h0 = np.geomspace(h0.min() / 1.2, h0.max() * 1.2, 64)
     model_curve = det.detection_probability(model_h0, threshold, n_seg, t_data, s_ref, rule,
                                             mu_model, method="exact").to_value(u.one)

@@ -47,7 +47,10 @@ detector and segment; the searched frequencies lie in the inner part of the band
 interpolator's response is flat.
 """
 
+from __future__ import annotations
+
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -59,6 +62,11 @@ from cwlimits.searchspace.lattices import get_lattice
 from cwlimits.searchspace.metric import coherent_metric, semicoherent_metric
 from cwlimits.simulation.fstat import _abc, _coherent_stage, _psd_values, _two_f, _weights
 from cwlimits.simulation.synthetic import BandData, _check_coord
+
+if TYPE_CHECKING:
+    from astropy.coordinates import SkyCoord
+
+    from cwlimits.searchspace.searchsetup import SearchSetup
 
 __all__ = [
     "BarycentricData",
@@ -129,7 +137,8 @@ def _kaiser_sinc(d, half):
     return np.sinc(d) * i0(KAISER_BETA * np.sqrt(x)) / i0(KAISER_BETA)
 
 
-def resample_to_barycentre(data, coord, *, noise="true", taps=DEFAULT_TAPS):
+def resample_to_barycentre(data, coord: SkyCoord, *, noise="true",
+                           taps: int = DEFAULT_TAPS) -> BarycentricData:
     """Demodulate by the sky position and resample to a uniform barycentric-time grid.
 
     Parameters
@@ -204,7 +213,7 @@ def resample_to_barycentre(data, coord, *, noise="true", taps=DEFAULT_TAPS):
 
 # ------------------------------------------------------------------ lattice banks
 
-def lattice_rows(lattice, metric, max_mismatch):
+def lattice_rows(lattice, metric, max_mismatch: float) -> dict:
     """A lattice bank in (f, fdot) or (f, fdot, fddot) as rows of constant spin-down.
 
     Parameters
@@ -405,8 +414,9 @@ def _coherent_banks(setup_lattice, t_seg_s, mu_coh, n_dims=2):
     return lattice_rows(setup_lattice, coherent_metric(t_seg_s * u.s, n_dims), mu_coh)
 
 
-def mock_search(data, coord, setup, f_box, fdot_box, *, fddot_box=None, noise="true",
-                taps=DEFAULT_TAPS, keep_segments=False, barycentric=None):
+def mock_search(data, coord: SkyCoord, setup: SearchSetup, f_box, fdot_box, *, fddot_box=None,
+                noise="true", taps: int = DEFAULT_TAPS, keep_segments: bool = False,
+                barycentric=None) -> MockSearchResult:
     """Run the directed mock search of a setup on band data.
 
     Parameters
@@ -535,7 +545,7 @@ def mock_search(data, coord, setup, f_box, fdot_box, *, fddot_box=None, noise="t
 
 # -------------------------------------------------------------- direct evaluations
 
-def resampled_direct_fstat(bd, df_hz, fdot, fddot=None):
+def resampled_direct_fstat(bd, df_hz, fdot: u.Quantity, fddot: u.Quantity | None = None):
     """2F_k by explicit sums on the resampled series at given coherent templates.
 
     Parameters
@@ -568,7 +578,8 @@ def resampled_direct_fstat(bd, df_hz, fdot, fddot=None):
     return out
 
 
-def demodulated_fstat(data, coord, frequency, fdot, fddot=None, *, noise="true"):
+def demodulated_fstat(data, coord: SkyCoord, frequency: u.Quantity, fdot: u.Quantity,
+                      fddot: u.Quantity | None = None, *, noise="true"):
     """Per-segment 2F_k by explicit sums of the exact Doppler phase (no resampling).
 
     Parameters

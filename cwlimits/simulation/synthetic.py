@@ -59,9 +59,12 @@ Assumptions
   in sidereal time, so the interpolation error is below 1e-7 (checked in the tests).
 """
 
+from __future__ import annotations
+
 import math
 import warnings
 from dataclasses import dataclass, field, replace
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -76,6 +79,11 @@ from cwlimits._units import to_value
 from cwlimits.errors import InputError, OutOfRangeError
 from cwlimits.noise import NoiseSource, get_noise
 from cwlimits.response.antenna import amplitude_modulation, antenna_patterns, get_detectors
+
+if TYPE_CHECKING:
+    from numpy.typing import ArrayLike
+
+    from cwlimits._random import RngLike
 
 __all__ = [
     "BandData",
@@ -188,7 +196,7 @@ def _delay_s(detector, coord, times_s):
         return np.asarray(t.light_travel_time(coord, kind="barycentric").to_value(u.s))
 
 
-def barycentric_delay(detector, coord, times):
+def barycentric_delay(detector, coord: SkyCoord, times) -> u.Quantity:
     """The Roemer delay Delta(t) = t_SSB - t of a detector towards a sky position.
 
     Parameters
@@ -384,7 +392,8 @@ class BandData:
                        psd=self.psd[:, index], _cache={})
 
 
-def gap_mask(shape, duty=1.0, *, n_blocks=16, rng=None):
+def gap_mask(shape, duty: float | ArrayLike = 1.0, *, n_blocks: int = 16,
+             rng: RngLike | None = None):
     """Random gaps: each segment is cut into blocks and a fraction ``duty`` of them kept.
 
     Parameters
@@ -454,8 +463,10 @@ def _noise_spectra(noise, n_det, n_seg, f_bins_hz):
     return psd, name
 
 
-def simulate_noise(detectors, noise, f_ref, bandwidth, t_seg, segment_starts, *,
-                   t_ref=None, duty=1.0, n_blocks=16, mask=None, rng=None):
+def simulate_noise(detectors, noise, f_ref: u.Quantity, bandwidth: u.Quantity, t_seg: u.Quantity,
+                   segment_starts, *, t_ref: u.Quantity | None = None,
+                   duty: float | ArrayLike = 1.0, n_blocks: int = 16, mask=None,
+                   rng: RngLike | None = None) -> BandData:
     """Gaussian noise of one band as heterodyned complex series, in segments.
 
     Parameters
@@ -655,7 +666,7 @@ def _phase_offset(df_hz, fdot, fddot, tau):
     return 2 * np.pi * tau * (df_hz + tau * (fdot / 2 + tau * fddot / 6))
 
 
-def simulate_signal(data, signal, *, doppler=False):
+def simulate_signal(data, signal, *, doppler: bool = False):
     """The band series z_h of a CW signal at the samples of ``data`` (zero in gaps).
 
     Parameters
@@ -735,7 +746,7 @@ def _signal_from_amplitudes(data, coord, amplitudes, f_hz, fdot_hz_s=0.0):
     return np.where(data.mask, out, 0.0)
 
 
-def inject(data, signal, *, doppler=False):
+def inject(data, signal, *, doppler: bool = False):
     """Return a copy of ``data`` with the band series of ``signal`` added.
 
     See :func:`simulate_signal` (parameters, errors).  The copy keeps the cached antenna
@@ -747,7 +758,8 @@ def inject(data, signal, *, doppler=False):
 
 # -------------------------------------------------------------------- real series
 
-def simulate_real_noise(noise, sample_rate, duration, *, rng=None):
+def simulate_real_noise(noise, sample_rate: u.Quantity, duration: u.Quantity, *,
+                        rng: RngLike | None = None) -> u.Quantity:
     """A real Gaussian noise series with one-sided PSD S_n(f), coloured in frequency.
 
     Parameters
@@ -792,7 +804,8 @@ def simulate_real_noise(noise, sample_rate, duration, *, rng=None):
     return np.fft.irfft(coeffs, n=n) << u.one
 
 
-def simulate_real_signal(detector, signal, sample_rate, duration, t_start, *, t_ref=None):
+def simulate_real_signal(detector, signal, sample_rate: u.Quantity, duration: u.Quantity,
+                         t_start: u.Quantity, *, t_ref: u.Quantity | None = None) -> u.Quantity:
     """The real strain h(t) = F+ h+ + Fx hx of a CW signal at one detector.
 
     Parameters
@@ -841,7 +854,7 @@ def simulate_real_signal(detector, signal, sample_rate, duration, t_start, *, t_
     return (fp[0] * ap * np.cos(phase) + fx[0] * ax * np.sin(phase)) << u.one
 
 
-def heterodyne(series, sample_rate, f_ref, bandwidth):
+def heterodyne(series, sample_rate: u.Quantity, f_ref: u.Quantity, bandwidth: u.Quantity):
     """Band series of a real series: heterodyne at f_ref, keep abs(f - f_ref) < B/2, decimate.
 
     Parameters

@@ -30,14 +30,18 @@ The solver finds ``a`` (in log space) for given ``N``, threshold and rules, and 
 follows as ``D = sqrt(S_n) / h0 = sqrt(T_data / a)`` (Hz^-1/2).
 """
 
+from __future__ import annotations
+
 from dataclasses import dataclass, field
 
 import astropy.units as u
 import numpy as np
 from astropy.table import QTable
+from numpy.typing import ArrayLike
 from scipy import special, stats
 from scipy.optimize import elementwise
 
+from cwlimits._deprecate import renamed_keywords
 from cwlimits._units import fraction, positive_finite, to_value
 from cwlimits.errors import ComputationError, InputError
 
@@ -183,26 +187,26 @@ class QuadratureRule:
         self.weights = weights / total
 
     @classmethod
-    def from_samples(cls, samples, *, name="rule"):
+    def from_samples(cls, samples: ArrayLike, *, name: str = "rule") -> QuadratureRule:
         """Rule with equal weights ``1/n`` on samples along the last axis."""
         return cls(samples, None, name=name)
 
     @classmethod
-    def fixed(cls, value, *, name="rule"):
+    def fixed(cls, value: float | ArrayLike, *, name: str = "rule") -> QuadratureRule:
         """One node of weight 1 (a fixed value; an array gives one value per batch element)."""
         return cls(np.asarray(value, dtype=float)[..., None], None, name=name)
 
     @property
-    def batch_shape(self):
+    def batch_shape(self) -> tuple[int, ...]:
         """Shape of the leading (per-setup) axes."""
         return self.nodes.shape[:-1]
 
     @property
-    def size(self):
+    def size(self) -> int:
         """Number of nodes per rule."""
         return self.nodes.shape[-1]
 
-    def mean(self):
+    def mean(self) -> np.ndarray:
         """Weighted mean of the nodes, per batch element."""
         return np.sum(self.nodes * self.weights, axis=-1)
 
@@ -328,7 +332,9 @@ def product_signal_rule(r2_rule, mismatch_rule, max_nodes=DEFAULT_MAX_NODES):
     return _SignalRule(c, w, batch)
 
 
-def combine_rules(r2_rule, mismatch_rule=0.0, max_nodes=DEFAULT_MAX_NODES):
+def combine_rules(r2_rule: u.Quantity | QuadratureRule | ArrayLike,
+                  mismatch_rule: u.Quantity | QuadratureRule | ArrayLike = 0.0,
+                  max_nodes: int = DEFAULT_MAX_NODES) -> QuadratureRule:
     """Rule for the signal factor ``c = R2 (1 - mu)``, built once and reusable.
 
     The functions of this module combine the R2 and mismatch rules (and condense large
@@ -1000,7 +1006,8 @@ def likelihood_rows(observed_sum, a, n_seg, c, w, method="exact"):
 # ---------------------------------------------------------------------------------------
 # Public API
 # ---------------------------------------------------------------------------------------
-def false_alarm_threshold(false_alarm, n_templates=1, n_seg=1, convention="total"):
+def false_alarm_threshold(false_alarm: float | ArrayLike, n_templates: float | ArrayLike = 1,
+                          n_seg: int | ArrayLike = 1, convention: str = "total") -> np.ndarray:
     """Threshold on the StackSlide statistic for a false-alarm probability over a band.
 
     Parameters
@@ -1086,8 +1093,12 @@ def _amplitude(h0, t_data, psd, purpose):
     return _rho2(h0, t_s, s_n)
 
 
-def detection_probability(h0, threshold, n_seg, t_data, psd, r2_rule, mismatch_rule=0.0,
-                          convention="total", method="auto", max_nodes=DEFAULT_MAX_NODES):
+def detection_probability(h0: u.Quantity | ArrayLike, threshold: float | ArrayLike,
+                          n_seg: int | ArrayLike, t_data: u.Quantity, psd: u.Quantity,
+                          r2_rule: u.Quantity | QuadratureRule | ArrayLike,
+                          mismatch_rule: u.Quantity | QuadratureRule | ArrayLike = 0.0,
+                          convention: str = "total", method: str = "auto",
+                          max_nodes: int = DEFAULT_MAX_NODES) -> np.ndarray:
     """Probability that a signal of amplitude ``h0`` crosses ``threshold``.
 
     Parameters
@@ -1149,31 +1160,37 @@ def _solve(threshold, n_seg, r2_rule, mismatch_rule, probability, convention, me
     return solve_log_amplitude(thr, nseg, prob, rule, method)
 
 
-def solve_amplitude(threshold, n_seg, t_data, psd, r2_rule, mismatch_rule=0.0,
-                    probability=0.9, convention="total", method="auto",
-                    max_nodes=DEFAULT_MAX_NODES):
-    """Amplitude ``h0`` at which the detection probability above ``threshold`` is ``probability``.
+@renamed_keywords(probability="confidence")
+def solve_amplitude(threshold: float | ArrayLike, n_seg: int | ArrayLike, t_data: u.Quantity,
+                    psd: u.Quantity, r2_rule: u.Quantity | QuadratureRule | ArrayLike,
+                    mismatch_rule: u.Quantity | QuadratureRule | ArrayLike = 0.0,
+                    confidence: float | ArrayLike = 0.9,
+                    convention: str = "total", method: str = "auto",
+                    max_nodes: int = DEFAULT_MAX_NODES) -> u.Quantity:
+    """Amplitude ``h0`` at which the detection probability above ``threshold`` is ``confidence``.
 
     The same solve serves the expected sensitivity (``threshold`` from a false alarm) and the
-    frequentist loudest-event upper limit (``threshold`` = observed loudest statistic,
-    ``probability`` = confidence).  Parameters as in :func:`detection_probability`.
+    frequentist loudest-event upper limit (``threshold`` = observed loudest statistic).
+    Parameters as in :func:`detection_probability`; ``confidence`` is the detection
+    probability demanded (the keyword ``probability`` of earlier versions still works for
+    one release).
 
     Returns
     -------
     h0 : Quantity ['dimensionless']
-        0 where noise alone exceeds the threshold with at least ``probability``.
+        0 where noise alone exceeds the threshold with at least ``confidence``.
 
     Raises
     ------
     InputError
-        Bad inputs (``probability`` outside (0, 1), ``n_seg < 1``, non-positive ``t_data`` or
+        Bad inputs (``confidence`` outside (0, 1), ``n_seg < 1``, non-positive ``t_data`` or
         ``psd``).
     ComputationError
         The probability cannot be reached (see :func:`critical_depth`).
 
     Notes
     -----
-    Solves ``P_det(a) = probability`` for ``a = h0^2 T_data / S_n`` and returns
+    Solves ``P_det(a) = confidence`` for ``a = h0^2 T_data / S_n`` and returns
     ``h0 = sqrt(a S_n / T_data)``.
 
     References
@@ -1183,13 +1200,16 @@ def solve_amplitude(threshold, n_seg, t_data, psd, r2_rule, mismatch_rule=0.0,
     t_s, s_n = _time_psd(t_data, psd)
     if s_n is None:
         raise InputError("psd is required to return h0; use critical_depth for the depth")
-    a = _solve(threshold, n_seg, r2_rule, mismatch_rule, probability, convention, method,
+    a = _solve(threshold, n_seg, r2_rule, mismatch_rule, confidence, convention, method,
                max_nodes)
     return _h0_from_normalised(a, t_s, s_n) << u.one
 
 
-def critical_depth(threshold, n_seg, t_data, r2_rule, mismatch_rule=0.0, confidence=0.9,
-                   convention="total", method="auto", max_nodes=DEFAULT_MAX_NODES):
+def critical_depth(threshold: float | ArrayLike, n_seg: int | ArrayLike, t_data: u.Quantity,
+                   r2_rule: u.Quantity | QuadratureRule | ArrayLike,
+                   mismatch_rule: u.Quantity | QuadratureRule | ArrayLike = 0.0,
+                   confidence: float | ArrayLike = 0.9, convention: str = "total",
+                   method: str = "auto", max_nodes: int = DEFAULT_MAX_NODES) -> u.Quantity:
     """Sensitivity depth ``D = sqrt(S_n) / h0`` at which ``P_det = confidence``.
 
     Vectorised: ``threshold``, ``n_seg``, ``t_data``, ``confidence`` and the rules' batch
@@ -1240,9 +1260,12 @@ def critical_depth(threshold, n_seg, t_data, r2_rule, mismatch_rule=0.0, confide
         return np.sqrt(t_s / a) << DEPTH_UNIT
 
 
-def marginal_likelihood(observed, h0, n_seg, t_data, psd, r2_rule, mismatch_rule=0.0,
-                        convention="total", log=False, method="exact",
-                        max_nodes=DEFAULT_MAX_NODES):
+def marginal_likelihood(observed: float | ArrayLike, h0: u.Quantity | ArrayLike,
+                        n_seg: int | ArrayLike, t_data: u.Quantity, psd: u.Quantity,
+                        r2_rule: u.Quantity | QuadratureRule | ArrayLike,
+                        mismatch_rule: u.Quantity | QuadratureRule | ArrayLike = 0.0,
+                        convention: str = "total", log: bool = False, method: str = "exact",
+                        max_nodes: int = DEFAULT_MAX_NODES) -> np.ndarray:
     """Density of an observed statistic given ``h0``, marginalised over orientation and mismatch.
 
     Parameters
@@ -1339,7 +1362,7 @@ class SensitivityEstimate:
     h0: u.Quantity | None
     assumptions: dict = field(default_factory=dict)
 
-    def to_table(self):
+    def to_table(self) -> QTable:
         """Return a flat :class:`astropy.table.QTable` with units and the assumptions in meta."""
         cols = {"threshold": self.threshold, "n_seg": self.n_seg,
                 "confidence": self.confidence, "depth": self.depth}
@@ -1355,9 +1378,16 @@ class SensitivityEstimate:
         return table
 
 
-def estimate_sensitivity(n_seg, t_data, r2_rule, mismatch_rule=0.0, *, psd=None,
-                         false_alarm=None, n_templates=1, threshold=None, confidence=0.9,
-                         convention="total", method="auto", max_nodes=DEFAULT_MAX_NODES):
+def estimate_sensitivity(n_seg: int | ArrayLike, t_data: u.Quantity,
+                         r2_rule: u.Quantity | QuadratureRule | ArrayLike,
+                         mismatch_rule: u.Quantity | QuadratureRule | ArrayLike = 0.0, *,
+                         psd: u.Quantity | None = None,
+                         false_alarm: float | ArrayLike | None = None,
+                         n_templates: float | ArrayLike = 1,
+                         threshold: float | ArrayLike | None = None,
+                         confidence: float | ArrayLike = 0.9, convention: str = "total",
+                         method: str = "auto",
+                         max_nodes: int = DEFAULT_MAX_NODES) -> SensitivityEstimate:
     """Expected sensitivity of a StackSlide search: threshold, depth and h0 per band.
 
     Give either ``false_alarm`` (with ``n_templates``) or a ``threshold`` on the statistic.
