@@ -27,7 +27,7 @@ def main(argv):
         run = store.begin_run({"job": "toy", "n_items": n_items, "seed": seed,
                                "chunk_size": chunk_size})
         out = map_chunks(functools.partial(slow_draws, seconds=float(seconds)), items,
-                         chunk_size=chunk_size, seed=seed, store=store,
+                         chunk_size=chunk_size, rng=seed, store=store,
                          key=(run, "fictional target"))
     np.savez(out_path, **out)
 

@@ -45,3 +45,21 @@ def test_solve_amplitude_takes_confidence_and_the_old_probability_keyword():
     with pytest.warns(CwlimitsDeprecationWarning, match="'probability'.*'confidence'"):
         old = solve_amplitude(*args, probability=0.9)
     assert old == new and new.value > 0
+
+
+def test_map_chunks_takes_rng_and_the_old_seed_keyword():
+    # glossary: a library function's source of randomness is called rng; the old keyword
+    # seed gives the same draws (numpy's SeedSequence spawning, common practice) with a
+    # deprecation warning
+    import numpy as np
+
+    from cwlimits.runtime.executor import map_chunks
+
+    def draws(chunk, rng):
+        return {"x": rng.standard_normal(len(chunk["index"]))}
+
+    new = map_chunks(draws, 10, chunk_size=4, rng=7)["x"]
+    with pytest.warns(CwlimitsDeprecationWarning, match="'seed'.*'rng'"):
+        old = map_chunks(draws, 10, chunk_size=4, seed=7)["x"]
+    np.testing.assert_array_equal(old, new)
+    assert not np.array_equal(new, map_chunks(draws, 10, chunk_size=4, rng=8)["x"])

@@ -103,13 +103,13 @@ def test_named_seeds_are_stable_distinct_and_none_stays_none():
 # --- identical bits from every executor --------------------------------------------------
 
 def test_serial_run_matches_numpys_spawn_scheme():
-    assert_bitwise_equal(map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, seed=SEED),
+    assert_bitwise_equal(map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, rng=SEED),
                          reference())
 
 
 def test_serial_executor_and_inline_agree():
     with SerialExecutor() as executor:
-        assert_bitwise_equal(map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, seed=SEED,
+        assert_bitwise_equal(map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, rng=SEED,
                                         executor=executor), reference())
 
 
@@ -118,7 +118,7 @@ def test_process_pool_gives_the_same_bits(workers):
     # Real worker processes (spawned): arrays and generators cross a pickle boundary.
     with make_executor(workers=workers) as executor:
         assert isinstance(executor, concurrent.futures.ProcessPoolExecutor)
-        out = map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, seed=SEED, executor=executor)
+        out = map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, rng=SEED, executor=executor)
     assert_bitwise_equal(out, reference())
 
 
@@ -127,7 +127,7 @@ def test_completion_out_of_order_gives_the_same_bits(caplog):
     func = functools.partial(reversed_delay, n_items=50.0, seconds=0.05)
     with caplog.at_level(logging.INFO, logger="cwlimits.runtime.executor"), \
             concurrent.futures.ThreadPoolExecutor(3) as executor:
-        out = map_chunks(func, ITEMS, chunk_size=CHUNK, seed=SEED, executor=executor,
+        out = map_chunks(func, ITEMS, chunk_size=CHUNK, rng=SEED, executor=executor,
                          desc="toy")
     order = [int(m.group(1)) for r in caplog.records
              if (m := re.match(r"toy: chunk (\d+) ", r.getMessage()))]
@@ -143,28 +143,28 @@ def test_dask_local_cluster_gives_the_same_bits():
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
                                   dashboard_address=":0") as cluster, \
             distributed.Client(cluster, set_as_default=False) as client:
-        out = map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, seed=SEED, executor=client)
+        out = map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, rng=SEED, executor=client)
         # --scheduler ADDRESS: make_executor connects a client of its own to the scheduler.
         with make_executor(scheduler=cluster.scheduler_address) as by_address:
             assert isinstance(by_address, distributed.Client)
-            again = map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, seed=SEED,
+            again = map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, rng=SEED,
                                executor=by_address)
             # A failing chunk on the cluster raises here, with the note naming it.
             with pytest.raises(RuntimeError, match="simulated failure") as info:
                 map_chunks(functools.partial(fail_at, start=ITEMS["x"][2 * CHUNK]), ITEMS,
-                           chunk_size=CHUNK, seed=SEED, executor=by_address)
+                           chunk_size=CHUNK, rng=SEED, executor=by_address)
     assert_bitwise_equal(out, reference())
     assert_bitwise_equal(again, reference())
     assert any("chunk 2" in note for note in info.value.__notes__)
 
 
 def test_a_different_seed_or_chunk_size_changes_the_draws_but_not_the_deterministic_part():
-    base = map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, seed=SEED)
-    for other in (map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, seed=SEED + 1),
-                  map_chunks(toy_draws, ITEMS, chunk_size=CHUNK + 1, seed=SEED)):
+    base = map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, rng=SEED)
+    for other in (map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, rng=SEED + 1),
+                  map_chunks(toy_draws, ITEMS, chunk_size=CHUNK + 1, rng=SEED)):
         assert not np.array_equal(base["y"], other["y"])
         np.testing.assert_array_equal(base["x2"], other["x2"])
-    assert_bitwise_equal(map_chunks(toy_draws, ITEMS, chunk_size=500, seed=SEED),
+    assert_bitwise_equal(map_chunks(toy_draws, ITEMS, chunk_size=500, rng=SEED),
                          reference(chunk_size=500))
 
 
@@ -194,7 +194,7 @@ def test_serial_executor_refuses_work_after_shutdown():
 
 
 def test_no_items_runs_the_function_once_for_names_and_dtypes():
-    out = map_chunks(toy_draws, {"x": np.array([])}, chunk_size=CHUNK, seed=SEED)
+    out = map_chunks(toy_draws, {"x": np.array([])}, chunk_size=CHUNK, rng=SEED)
     assert {k: (v.shape, v.dtype.kind) for k, v in out.items()} == {
         "y": ((0,), "f"), "k": ((0,), "i"), "x2": ((0,), "f")}
 
@@ -221,7 +221,7 @@ def test_a_bad_chunk_result_is_a_computation_error():
 def test_an_error_in_a_chunk_propagates_with_a_note_naming_the_chunk():
     func = functools.partial(fail_at, start=ITEMS["x"][3 * CHUNK])
     with pytest.raises(RuntimeError, match="simulated failure") as info:
-        map_chunks(func, ITEMS, chunk_size=CHUNK, seed=SEED)
+        map_chunks(func, ITEMS, chunk_size=CHUNK, rng=SEED)
     assert any("chunk 3" in note for note in info.value.__notes__)
 
 
@@ -234,14 +234,14 @@ def test_resume_computes_only_the_missing_chunks(tmp_path):
         run = store.begin_run({"job": "toy", "seed": SEED, "chunk_size": CHUNK})
         with pytest.raises(RuntimeError, match="simulated failure"):
             map_chunks(functools.partial(fail_at, start=ITEMS["x"][k * CHUNK]), ITEMS,
-                       chunk_size=CHUNK, seed=SEED, store=store, key=run)
+                       chunk_size=CHUNK, rng=SEED, store=store, key=run)
         assert store.finished_chunks(run) == set(range(k))
         first_session = store.session_id
     _chunk_jobs.COMPUTED.clear()
     with ResultStore(tmp_path / "s.sqlite") as store:  # a new process run (session)
         run2 = store.begin_run({"job": "toy", "seed": SEED, "chunk_size": CHUNK})
         assert run2 == run
-        out = map_chunks(counting, ITEMS, chunk_size=CHUNK, seed=SEED, store=store, key=run)
+        out = map_chunks(counting, ITEMS, chunk_size=CHUNK, rng=SEED, store=store, key=run)
         log = store.chunk_log(run)
         second_session = store.session_id
     # Only the missing chunks were computed the second time ...
@@ -257,10 +257,10 @@ def test_resume_computes_only_the_missing_chunks(tmp_path):
 def test_rerunning_a_finished_run_computes_nothing(tmp_path):
     with ResultStore(tmp_path / "s.sqlite") as store:
         run = store.begin_run({"job": "toy"})
-        first = map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, seed=SEED, store=store,
+        first = map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, rng=SEED, store=store,
                            key=(run, "target A"))
         _chunk_jobs.COMPUTED.clear()
-        again = map_chunks(counting, ITEMS, chunk_size=CHUNK, seed=SEED, store=store,
+        again = map_chunks(counting, ITEMS, chunk_size=CHUNK, rng=SEED, store=store,
                            key=(run, "target A"))
     assert _chunk_jobs.COMPUTED == []
     assert_bitwise_equal(first, again)
@@ -283,27 +283,27 @@ def test_without_a_seed_a_resumed_run_keeps_its_recorded_streams(tmp_path):
 def test_a_changed_chunk_size_or_seed_on_the_same_run_is_refused(tmp_path):
     with ResultStore(tmp_path / "s.sqlite") as store:
         run = store.begin_run({"job": "toy"})
-        map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, seed=SEED, store=store, key=run)
+        map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, rng=SEED, store=store, key=run)
         with pytest.raises(ConfigError, match="chunk size"):
-            map_chunks(toy_draws, ITEMS, chunk_size=CHUNK + 1, seed=SEED, store=store,
+            map_chunks(toy_draws, ITEMS, chunk_size=CHUNK + 1, rng=SEED, store=store,
                        key=run)
         with pytest.raises(ConfigError, match="seed"):
-            map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, seed=SEED + 1, store=store,
+            map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, rng=SEED + 1, store=store,
                        key=run)
 
 
 def test_a_changed_configuration_starts_a_new_run_and_does_not_mix(tmp_path):
     with ResultStore(tmp_path / "s.sqlite") as store:
         run_a = store.begin_run({"job": "toy", "seed": SEED})
-        out_a = map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, seed=SEED, store=store,
+        out_a = map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, rng=SEED, store=store,
                            key=run_a)
         run_b = store.begin_run({"job": "toy", "seed": SEED + 1})
         assert run_b != run_a
-        out_b = map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, seed=SEED + 1, store=store,
+        out_b = map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, rng=SEED + 1, store=store,
                            key=run_b)
         # Run b computed all its chunks itself; run a's results are untouched.
         assert sorted(r["chunk"] for r in store.chunk_log(run_b)) == list(range(15))
-        again_a = map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, seed=SEED, store=store,
+        again_a = map_chunks(toy_draws, ITEMS, chunk_size=CHUNK, rng=SEED, store=store,
                              key=run_a)
     assert_bitwise_equal(out_a, reference())
     assert_bitwise_equal(out_b, reference(seed=SEED + 1))
@@ -331,7 +331,7 @@ def test_ctrl_c_cancels_pending_chunks_keeps_finished_ones_and_reraises(tmp_path
         run = store.begin_run({"job": "toy"})
         with concurrent.futures.ThreadPoolExecutor(2) as executor, \
                 pytest.raises(KeyboardInterrupt):
-            map_chunks(func, ITEMS, chunk_size=CHUNK, seed=SEED, executor=executor,
+            map_chunks(func, ITEMS, chunk_size=CHUNK, rng=SEED, executor=executor,
                        store=store, key=run, progress=interrupt_after_three)
         finished = store.finished_chunks(run)
     # The three chunks handed over were committed; at most a window (2 x 2 workers) more

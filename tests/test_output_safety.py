@@ -378,7 +378,7 @@ def test_two_processes_on_one_store_compute_each_chunk_once(tmp_path):
         _, err = job.communicate(timeout=300)
         assert job.returncode == 0, err.decode()
     reference = map_chunks(toy_draws, {"x": np.linspace(0.0, 50.0, 1200)}, chunk_size=100,
-                           seed=7)
+                           rng=7)
     for k in range(2):
         with np.load(tmp_path / f"out{k}.npz", allow_pickle=False) as result:
             for name, array in reference.items():
@@ -406,10 +406,10 @@ def test_a_claim_of_a_dead_process_is_taken_over(tmp_path):
                                                   "2026-01-01T00:00:00+00:00", "0"))
         store._db.execute("INSERT INTO claims VALUES (?, '', 1, last_insert_rowid(), ?, ?, ?)",
                           (run, dead.pid, os.uname().nodename, "2026-01-01T00:00:00+00:00"))
-        out = map_chunks(toy_draws, {"x": np.arange(30.0)}, chunk_size=10, seed=seed,
+        out = map_chunks(toy_draws, {"x": np.arange(30.0)}, chunk_size=10, rng=seed,
                          store=store, key=run)
         assert store.finished_chunks(run) == {0, 1, 2}
-    expected = map_chunks(toy_draws, {"x": np.arange(30.0)}, chunk_size=10, seed=5)
+    expected = map_chunks(toy_draws, {"x": np.arange(30.0)}, chunk_size=10, rng=5)
     assert out["y"].tobytes() == expected["y"].tobytes()
 
 

@@ -82,26 +82,26 @@ def test_closed_stream_is_not_a_terminal():
 
 def test_map_chunks_under_pytest_capture_writes_nothing(capsys):
     # Standard error is captured here (not a terminal): progress=True must stay silent.
-    map_chunks(toy_draws, {"x": np.arange(1000.0)}, chunk_size=100, seed=1, progress=True)
+    map_chunks(toy_draws, {"x": np.arange(1000.0)}, chunk_size=100, rng=1, progress=True)
     captured = capsys.readouterr()
     assert captured.out == "" and captured.err == ""
 
 
 def test_map_chunks_reports_each_chunk_to_a_progress_callback():
     seen = []
-    map_chunks(toy_draws, {"x": np.arange(1050.0)}, chunk_size=100, seed=1,
+    map_chunks(toy_draws, {"x": np.arange(1050.0)}, chunk_size=100, rng=1,
                progress=seen.append)
     assert seen == [100] * 10 + [50]
 
 
 def test_map_chunks_logs_its_plan_and_chunks_for_verbose(caplog):
     with caplog.at_level(logging.INFO, logger="cwlimits.runtime.executor"):
-        map_chunks(toy_draws, {"x": np.arange(300.0)}, chunk_size=100, seed=1, desc="toy")
+        map_chunks(toy_draws, {"x": np.arange(300.0)}, chunk_size=100, rng=1, desc="toy")
     messages = [r.getMessage() for r in caplog.records]
     assert messages[0].startswith("toy: 300 items in 3 chunks of 100; 0 chunks from the "
                                   "store, 3 to compute")
     assert sum("finished" in m for m in messages) == 3
     caplog.clear()
     with caplog.at_level(logging.WARNING, logger="cwlimits.runtime.executor"):
-        map_chunks(toy_draws, {"x": np.arange(300.0)}, chunk_size=100, seed=1)
+        map_chunks(toy_draws, {"x": np.arange(300.0)}, chunk_size=100, rng=1)
     assert caplog.records == []  # without --verbose the CLI logs warnings only

@@ -127,7 +127,7 @@ def test_runs_persist_and_record_their_configuration(tmp_path):
 def test_chunk_log_records_the_session_with_timestamps(tmp_path):
     with ResultStore(tmp_path / "s.sqlite") as store:
         run = store.begin_run({"job": "log"})
-        map_chunks(toy_draws, {"x": np.arange(10.0)}, chunk_size=4, seed=1, store=store,
+        map_chunks(toy_draws, {"x": np.arange(10.0)}, chunk_size=4, rng=1, store=store,
                    key=(run, "fictional A"))
         log = store.chunk_log(run, "fictional A")
     assert [r["chunk"] for r in log] == [0, 1, 2]
@@ -198,7 +198,7 @@ def test_sigkill_mid_run_then_rerun_gives_the_uninterrupted_result(tmp_path):
 
     # The result equals an uninterrupted run (in this process, no store) ...
     uninterrupted = map_chunks(toy_draws, {"x": np.linspace(0.0, 50.0, 2000)},
-                               chunk_size=100, seed=7)
+                               chunk_size=100, rng=7)
     with np.load(out, allow_pickle=False) as result:
         assert sorted(result.files) == sorted(uninterrupted)
         for name, array in uninterrupted.items():
@@ -233,7 +233,7 @@ def test_store_command_lists_and_clears(tmp_path, capsys):
 
     with open_store(tmp_path) as store:
         run_id = store.begin_run({"command": "limits", "seed": 1})
-        map_chunks(toy_draws, {"x": np.arange(10.0)}, chunk_size=4, seed=1,
+        map_chunks(toy_draws, {"x": np.arange(10.0)}, chunk_size=4, rng=1,
                    store=store, key=(run_id, "Fict A"))
     assert main(["store", str(tmp_path)]) == 0
     out = capsys.readouterr().out

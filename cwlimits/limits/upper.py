@@ -936,7 +936,7 @@ def upper_limits(results: SearchResults | str | Path, setup: SearchSetup | str |
     run_key = key
     part = (run_key, "limits") if isinstance(run_key, str) else run_key
     out = map_chunks(func, items, chunk_size=chunk_size or n, executor=executor,
-                     seed=_part_seed(seed, "limits"),
+                     rng=_part_seed(seed, "limits"),
                      store=store, key=part, progress=progress, desc=f"{method} limits")
     empty_note = _blank_zero_limits(out, results, confidence)
     table = QTable()
@@ -1089,7 +1089,7 @@ def _add_emcee(table, setup, sm, arrays, target, confidence, bands, seed, hmax, 
                              **options)
     part = None if store is None else ((run_key, "emcee") if isinstance(run_key, str)
                                        else (run_key[0], run_key[1] + "/emcee"))
-    out = map_chunks(func, items, chunk_size=1, executor=executor, seed=seed, store=store,
+    out = map_chunks(func, items, chunk_size=1, executor=executor, rng=seed, store=store,
                      key=part, progress=progress, desc="emcee")
     col = np.full(n, np.nan)
     col[idx] = out["x_ul"] * arrays["scale"][idx]

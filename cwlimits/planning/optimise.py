@@ -1594,7 +1594,7 @@ def rank_targets(catalogue: TargetCatalogue,
     # One target per chunk; with a results store (``store``, ``key``) every finished
     # target is committed, so an interrupted ranking resumes with the missing ones.
     if targets:
-        out = map_chunks(func, len(targets), chunk_size=1, executor=executor, seed=0,
+        out = map_chunks(func, len(targets), chunk_size=1, executor=executor, rng=0,
                          progress=progress, desc="targets", store=store, key=key)
         merits = out["grid"]
         units, _ = allocate_budget(merits)
@@ -1612,7 +1612,7 @@ def rank_targets(catalogue: TargetCatalogue,
                                                  for i in funded],
                                       noise=noise, span=span, measure=measure, case=case,
                                       options=options)
-        found = map_chunks(plan_func, len(funded), chunk_size=1, executor=executor, seed=0,
+        found = map_chunks(plan_func, len(funded), chunk_size=1, executor=executor, rng=0,
                            progress=progress, desc="plans")
         for j, i in enumerate(funded):
             if not found["ok"][j]:

@@ -46,6 +46,7 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from cwlimits import _defaults
+from cwlimits._deprecate import renamed_keywords
 from cwlimits._random import RngLike, seed_sequence
 from cwlimits.errors import ComputationError, CwlimitsError, InputError
 
@@ -309,9 +310,10 @@ def _completed_dask(client, tasks, window):
         raise
 
 
+@renamed_keywords(seed="rng")
 def map_chunks(func: Callable[..., dict[str, np.ndarray]], items: int | Mapping[str, ArrayLike], *,
                chunk_size: int = DEFAULT_CHUNK_SIZE,
-               executor: concurrent.futures.Executor | None = None, seed: RngLike = None,
+               executor: concurrent.futures.Executor | None = None, rng: RngLike = None,
                store: ResultStore | None = None, key: Mapping | None = None,
                progress: bool = False, desc: str | None = None) -> dict[str, np.ndarray]:
     """Compute ``func`` chunk by chunk over ``items``; return the results concatenated.
@@ -336,10 +338,11 @@ def map_chunks(func: Callable[..., dict[str, np.ndarray]], items: int | Mapping[
     executor : concurrent.futures.Executor or distributed.Client, optional
         Where chunks run; ``None`` runs them one after the other in this process.  See
         :func:`make_executor`.  The caller owns it (this function does not shut it down).
-    seed : None, int, sequence of int, numpy.random.SeedSequence or Generator, optional
-        Root seed.  Chunk ``i`` uses ``default_rng(SeedSequence(seed).spawn(n_chunks)[i])``
-        (see :func:`chunk_seed`).  ``None`` draws fresh entropy (recorded in ``store``,
-        so a resumed run continues the same streams).  A Generator is advanced by 128 bits.
+    rng : None, int, sequence of int, numpy.random.SeedSequence or Generator, optional
+        Root seed (``seed`` in earlier versions).  Chunk ``i`` uses
+        ``default_rng(SeedSequence(rng).spawn(n_chunks)[i])`` (see :func:`chunk_seed`).
+        ``None`` draws fresh entropy (recorded in ``store``, so a resumed run continues the
+        same streams).  A Generator is advanced by 128 bits.
     store : cwlimits.runtime.store.ResultStore, optional
         Where finished chunks are committed one by one; chunks already there are loaded
         instead of computed.
@@ -362,7 +365,7 @@ def map_chunks(func: Callable[..., dict[str, np.ndarray]], items: int | Mapping[
     Raises
     ------
     InputError
-        For a bad ``items``, ``chunk_size`` or ``seed``.
+        For a bad ``items``, ``chunk_size`` or ``rng``.
     ConfigError
         If ``store`` already holds this run and part with another size, chunk size or seed.
     ComputationError
@@ -378,13 +381,13 @@ def map_chunks(func: Callable[..., dict[str, np.ndarray]], items: int | Mapping[
     ...     x = chunk["x"]
     ...     return {"y": x**2 + rng.normal(scale=1e-3, size=x.shape)}
     >>> out = map_chunks(noisy_square, {"x": np.linspace(0, 1, 10_000)}, chunk_size=1000,
-    ...                  seed=1)
+    ...                  rng=1)
     >>> out["y"].shape
     (10000,)
     """
     arrays, n_items = _items(items)
     bounds = chunk_bounds(n_items, chunk_size)
-    root, seed_given = _root_seed(seed)
+    root, seed_given = _root_seed(rng)
     label = desc or getattr(func, "__name__", None) or "chunks"
 
     run_id = part = None

@@ -475,7 +475,7 @@ def injection_campaign(coord: SkyCoord, *, detectors="H1", psd: u.Quantity = 1e-
                              n_bins=n_bins, lo_bin=lo_bin, guard=_guard_bins(t_seg_s),
                              threshold=threshold)
     out = map_chunks(func, {"h0": np.repeat(h0, n_injections)}, chunk_size=int(chunk_size),
-                     executor=executor, seed=rng, store=store, key=key, progress=progress,
+                     executor=executor, rng=rng, store=store, key=key, progress=progress,
                      desc="injections")
     two_f = out["two_f"].reshape(h0.size, n_injections)
     detected = np.sum(two_f > threshold, axis=1)

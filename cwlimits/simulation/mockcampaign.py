@@ -338,7 +338,7 @@ def mock_campaign(setup: SearchSetup, coord: SkyCoord, *, f_box_width: u.Quantit
     func = functools.partial(_campaign_chunk, layout=layout, coord=coord, setup=setup,
                              f_box=f_box, fdot_box=fd_box, fddot_box=fdd_box)
     out = map_chunks(func, {"kind": kinds, "h0": h0_items}, chunk_size=int(chunk_size),
-                     executor=executor, seed=rng, store=store, key=key, progress=progress,
+                     executor=executor, rng=rng, store=store, key=key, progress=progress,
                      desc="mock-search runs")
     noise_max = out["two_f_max"][kinds == NOISE_ONLY]
     free = kinds == NOISE_FREE

@@ -41,9 +41,14 @@ from numpy.typing import ArrayLike
 from scipy import special, stats
 from scipy.optimize import elementwise
 
+from cwlimits._defaults import DEFAULTS
 from cwlimits._deprecate import renamed_keywords
 from cwlimits._units import fraction, positive_finite, to_value
 from cwlimits.errors import ComputationError, InputError
+
+#: Default detection probability of a sensitivity estimate, the same level as every upper
+#: limit's (the glossary's one default confidence; ``cwlimits._defaults``).
+DEFAULT_CONFIDENCE = DEFAULTS["confidence"][0]
 
 __all__ = [
     "QuadratureRule",
@@ -1164,7 +1169,7 @@ def _solve(threshold, n_seg, r2_rule, mismatch_rule, probability, convention, me
 def solve_amplitude(threshold: float | ArrayLike, n_seg: int | ArrayLike, t_data: u.Quantity,
                     psd: u.Quantity, r2_rule: u.Quantity | QuadratureRule | ArrayLike,
                     mismatch_rule: u.Quantity | QuadratureRule | ArrayLike = 0.0,
-                    confidence: float | ArrayLike = 0.9,
+                    confidence: float | ArrayLike = DEFAULT_CONFIDENCE,
                     convention: str = "total", method: str = "auto",
                     max_nodes: int = DEFAULT_MAX_NODES) -> u.Quantity:
     """Amplitude ``h0`` at which the detection probability above ``threshold`` is ``confidence``.
@@ -1208,7 +1213,7 @@ def solve_amplitude(threshold: float | ArrayLike, n_seg: int | ArrayLike, t_data
 def critical_depth(threshold: float | ArrayLike, n_seg: int | ArrayLike, t_data: u.Quantity,
                    r2_rule: u.Quantity | QuadratureRule | ArrayLike,
                    mismatch_rule: u.Quantity | QuadratureRule | ArrayLike = 0.0,
-                   confidence: float | ArrayLike = 0.9, convention: str = "total",
+                   confidence: float | ArrayLike = DEFAULT_CONFIDENCE, convention: str = "total",
                    method: str = "auto", max_nodes: int = DEFAULT_MAX_NODES) -> u.Quantity:
     """Sensitivity depth ``D = sqrt(S_n) / h0`` at which ``P_det = confidence``.
 
@@ -1385,7 +1390,8 @@ def estimate_sensitivity(n_seg: int | ArrayLike, t_data: u.Quantity,
                          false_alarm: float | ArrayLike | None = None,
                          n_templates: float | ArrayLike = 1,
                          threshold: float | ArrayLike | None = None,
-                         confidence: float | ArrayLike = 0.9, convention: str = "total",
+                         confidence: float | ArrayLike = DEFAULT_CONFIDENCE,
+                         convention: str = "total",
                          method: str = "auto",
                          max_nodes: int = DEFAULT_MAX_NODES) -> SensitivityEstimate:
     """Expected sensitivity of a StackSlide search: threshold, depth and h0 per band.
