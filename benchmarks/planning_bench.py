@@ -33,6 +33,7 @@ def _clear():
     planning._R2_CACHE.clear()
     planning._TABLE_CACHE.clear()
     response._cached_gast_moments.cache_clear()  # the sidereal-time moments too
+    response._cached_eo_nodes.cache_clear()
 
 
 def timed(fn):

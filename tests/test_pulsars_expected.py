@@ -174,8 +174,19 @@ def test_summary_of_every_known_pulsar_and_the_figure(tmp_path, capsys):
                                             cosi=0.0, psi=0.0, phi0=0.0, psd=1e-46,
                                             rng=0), 1)
     setup = _setup(30)
-    table = known_pulsar_summary(catalogue, setup, data={"P": data}, n_noise=50, rng=0)
+    posteriors = {}
+    table = known_pulsar_summary(catalogue, setup, data={"P": data}, n_noise=50, rng=0,
+                                 posteriors=posteriors)
     assert list(table["name"]) == ["P", "R"]  # Q has no known spin
+    # the posteriors handed back (the report's figure reuses them instead of computing
+    # the best one again) are those of a separate call with the same defaults
+    from cwlimits.pulsars.posterior import pulsar_posterior
+    again = pulsar_posterior(data, p)
+    assert list(posteriors) == ["P"]
+    assert posteriors["P"].upper_limit == again.upper_limit == table["h95_measured"][0]
+    for name, (nodes, mass) in again.marginals.items():
+        np.testing.assert_array_equal(posteriors["P"].marginals[name][0], nodes)
+        np.testing.assert_array_equal(posteriors["P"].marginals[name][1], mass)
     assert list(table["limit_source"]) == ["measured", "predicted"]
     # the ratios belong to the reported limit: (h_UL / h_sd)^2 (energy in h0^2)
     assert table["spindown_fraction"][0] == pytest.approx(

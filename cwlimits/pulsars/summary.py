@@ -50,7 +50,7 @@ def known_pulsar_summary(catalogue: TargetCatalogue, setup: SearchSetup, noise=D
                          rng: RngLike | None = None, start=DEFAULT_START,
                          moment_of_inertia: u.Quantity = DEFAULT_MOMENT_OF_INERTIA,
                          posterior_noise="student-t", predicted=None,
-                         narrow_band_noise="estimated"):
+                         narrow_band_noise="estimated", posteriors: dict | None = None):
     """One row per known pulsar of ``catalogue`` (rows without a known spin are skipped).
 
     Parameters
@@ -70,6 +70,9 @@ def known_pulsar_summary(catalogue: TargetCatalogue, setup: SearchSetup, noise=D
     predicted : dict of str -> QTable, optional
         Tables of :func:`.expected.targeted_sensitivity` already computed for this setup
         and noise (e.g. by the ranking's plans), used instead of computing them again.
+    posteriors : dict, optional
+        If given, filled with the :class:`.posterior.PulsarPosterior` of each targeted
+        pulsar with data (by name), for a caller that shows one (not computed twice).
 
     Returns
     -------
@@ -105,6 +108,8 @@ def known_pulsar_summary(catalogue: TargetCatalogue, setup: SearchSetup, noise=D
         if t.name in data and kind == "targeted":
             post = pulsar_posterior(data[t.name], t, noise=posterior_noise,
                                     confidence=confidence)
+            if posteriors is not None:
+                posteriors[t.name] = post
             measured = post.upper_limit
             method = MEASURED_METHODS["targeted"]
             info["measured"] = f"{post.sampler} posterior, noise {post.noise}"

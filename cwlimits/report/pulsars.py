@@ -123,8 +123,9 @@ def known_pulsar_section(rep, catalogue, noise, *, span, detectors, duty_factor,
             data.setdefault(t.name, simulate_noise_only(
                 t, setup, noise, start_gps, named_seed(seed, f"pulsar-data:{t.name}"),
                 sample=NARROW_BAND_SAMPLE if narrow else 1 * u.day))
+    posteriors = {}  # the summary's own posteriors: the figure reuses the best one
     table = known_pulsar_summary(catalogue, setup, noise, data=data, confidence=confidence,
-                                 n_noise=REPORT_NOISE_DRAWS,
+                                 n_noise=REPORT_NOISE_DRAWS, posteriors=posteriors,
                                  rng=named_seed(seed, "known-pulsars"), start=start,
                                  predicted=predicted)
     echo(f"known pulsars: {len(table)} (predicted" + (" and measured" if data else "")
@@ -184,8 +185,9 @@ def known_pulsar_section(rep, catalogue, noise, *, span, detectors, duty_factor,
         names = [n for n in np.asarray(table["name"]) if n in data
                  and kinds[n] == "targeted"]
         best = min(names, key=lambda n: ratio[list(table["name"]).index(n)])
-        target = catalogue.target(best)
-        post = pulsar_posterior(data[best], target, confidence=confidence)
+        post = posteriors.get(best)
+        if post is None:
+            post = pulsar_posterior(data[best], catalogue.target(best), confidence=confidence)
         row = table[list(table["name"]).index(best)]
         rep.figure("pulsar_posterior_" + "".join(c if c.isalnum() else "_"
                                                  for c in best.lower()),

@@ -564,32 +564,49 @@ def _gast_rad(times):
 
 # Node spacing of the interpolated GAST - ERA (the equation of the origins, a function of
 # TT only).  Its fastest terms come from the nutation (shortest large term 13.66 d, about
-# 1e-6 rad; IERS Conventions 2010, Table 5.3a): a cubic spline through nodes half a day
-# apart is wrong by ~(2 pi 0.5 / 13.66)^4 / 384 * 1e-6 rad ~ 1e-11 rad, far below the
-# 1e-6 rad the antenna patterns need (measured against astropy: tests/test_response.py).
-_EO_NODE_STEP_S = 43200.0
+# 1e-6 rad; IERS Conventions 2010, Table 5.3a): a cubic spline through nodes one day
+# apart is wrong by ~(2 pi 1 / 13.66)^4 / 384 * 1e-6 rad ~ 1e-10 rad, far below the
+# 1e-6 rad the antenna patterns need (measured against astropy: 1.2e-9 rad over a year,
+# tests/test_response.py).
+_EO_NODE_STEP_S = 86400.0
+# The nodes lie on a fixed grid from the start, their number rounded up to a multiple of
+# this, so that spans that differ by less (a year and the span a plan settles on) share
+# one evaluation of the full model.
+_EO_NODE_BLOCK = 64
+
+
+@functools.lru_cache(maxsize=32)
+def _cached_eo_nodes(start_jd, count):
+    """EO = GAST - ERA (rad, unwrapped) at ``start + k * _EO_NODE_STEP_S``, k < count."""
+    with QuietTime():
+        start = Time(start_jd[0], start_jd[1], format="jd", scale="utc")
+        node_times = _offline_ut1(start + np.arange(count) * _EO_NODE_STEP_S * u.s)
+        ut1 = node_times.ut1
+        return np.unwrap(_gast_rad(node_times) - erfa.era00(ut1.jd1, ut1.jd2))
 
 
 def _gast_grid_rad(start, offsets_s):
-    """GAST (rad) at ``start + offsets_s`` (sorted seconds), cheaply and to ~1e-10 rad.
+    """GAST (rad) at ``start + offsets_s`` (sorted seconds >= -1 day), cheaply, ~1e-9 rad.
 
     GAST = ERA(UT1) - EO(TT) (IERS Conventions 2010, eqs. 5.30-5.32; ERFA ``gst06a``):
     the Earth rotation angle is a closed linear form in UT1 (``era00``) evaluated on every
     sample, while the equation of the origins, which carries the costly precession-nutation
     series, varies slowly and is taken from astropy's full model on a coarse grid of nodes
-    and interpolated with a cubic spline.
+    (cached per start) and interpolated with a cubic spline.
     """
     offsets_s = np.asarray(offsets_s, float)
-    span = float(offsets_s[-1] - offsets_s[0])
-    count = max(4, int(math.ceil(span / _EO_NODE_STEP_S)) + 1)
-    nodes_s = np.linspace(offsets_s[0], offsets_s[-1], count)
     with QuietTime():
-        node_times = _offline_ut1(start + nodes_s * u.s)
-        ut1 = node_times.ut1
-        eo = np.unwrap(_gast_rad(node_times) - erfa.era00(ut1.jd1, ut1.jd2))
+        # one node before the first sample, at least two after the last
+        first = start + (math.floor(offsets_s[0] / _EO_NODE_STEP_S) - 1) * _EO_NODE_STEP_S * u.s
+        rel = offsets_s - (first - start).to_value(u.s)
+        need = int(math.ceil(rel[-1] / _EO_NODE_STEP_S)) + 3
+        count = _EO_NODE_BLOCK * int(math.ceil(need / _EO_NODE_BLOCK))
+        utc = first.utc
+        eo = _cached_eo_nodes((float(utc.jd1), float(utc.jd2)), count)
         samples = _offline_ut1(start + offsets_s * u.s).ut1
         era = erfa.era00(samples.jd1, samples.jd2)
-    return np.mod(era + CubicSpline(nodes_s, eo)(offsets_s), 2 * np.pi)
+    nodes_s = np.arange(count) * _EO_NODE_STEP_S
+    return np.mod(era + CubicSpline(nodes_s, eo)(rel), 2 * np.pi)
 
 
 @functools.lru_cache(maxsize=64)
